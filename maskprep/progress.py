@@ -1,0 +1,68 @@
+"""Progress lines on stderr.
+
+One small reporter used by every long stage. It writes at most a few lines per
+second, to stderr only, and nothing at all when quiet. It never touches stdout,
+so command output stays clean for pipes.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+
+
+class Progress:
+    """Report progress of one stage: ``with Progress("count", total=n) as p: p.advance(k)``."""
+
+    def __init__(self, label: str, *, total: float | None = None, unit: str = "",
+                 quiet: bool = False, interval: float = 0.5) -> None:
+        self.label = label
+        self.total = total
+        self.unit = unit
+        self.quiet = quiet
+        self.interval = interval
+        self.done = 0.0
+        self._start = time.monotonic()
+        self._last = 0.0
+
+    def __enter__(self) -> "Progress":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.finish()
+
+    def advance(self, amount: float = 1.0) -> None:
+        self.done += amount
+        now = time.monotonic()
+        if not self.quiet and now - self._last >= self.interval:
+            self._last = now
+            self._write(final=False)
+
+    def finish(self) -> None:
+        if not self.quiet:
+            self._write(final=True)
+            self.quiet = True  # finish once
+
+    def _write(self, *, final: bool) -> None:
+        elapsed = time.monotonic() - self._start
+        if self.total:
+            share = min(self.done / self.total, 1.0)
+            msg = f"{self.label}: {share:6.1%} ({_fmt(self.done)}/{_fmt(self.total)} {self.unit})"
+        else:
+            msg = f"{self.label}: {_fmt(self.done)} {self.unit}"
+        msg += f" {elapsed:6.1f}s"
+        end = "\n" if final else "\r"
+        if not sys.stderr.isatty() and not final:
+            end = "\n"
+        sys.stderr.write(msg + end)
+        sys.stderr.flush()
+
+
+def _fmt(x: float) -> str:
+    if x >= 1e9:
+        return f"{x / 1e9:.2f}G"
+    if x >= 1e6:
+        return f"{x / 1e6:.2f}M"
+    if x >= 1e4:
+        return f"{x / 1e3:.1f}k"
+    return f"{x:g}"
