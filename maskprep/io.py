@@ -1,0 +1,69 @@
+"""Atomic file writes.
+
+Every output of maskprep is first written under a temporary name in the same
+directory and renamed into place when complete, so an interrupted run never
+leaves a file that looks finished. This module holds the few helpers that do
+that; it does not know about any file format.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Any, Iterator
+
+
+@contextlib.contextmanager
+def atomic_path(path: str | Path) -> Iterator[Path]:
+    """Yield a temporary path beside `path`; rename it to `path` on success.
+
+    >>> with atomic_path("out.bin") as tmp:  # doctest: +SKIP
+    ...     tmp.write_bytes(b"...")
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        os.replace(tmp_path, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            tmp_path.unlink()
+        raise
+
+
+def atomic_write_bytes(path: str | Path, data: bytes) -> None:
+    """Write bytes atomically: ``atomic_write_bytes("a.bin", b"x")``."""
+    with atomic_path(path) as tmp:
+        with open(tmp, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+
+
+def atomic_write_text(path: str | Path, text: str) -> None:
+    """Write UTF-8 text atomically: ``atomic_write_text("a.txt", "hi")``."""
+    atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def atomic_write_json(path: str | Path, obj: Any) -> None:
+    """Write JSON (sorted keys, indented, trailing newline) atomically."""
+    atomic_write_text(path, json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n")
+
+
+def read_json(path: str | Path, *, what: str = "file") -> Any:
+    """Read a JSON file; a missing or broken file raises `MaskprepError` naming it."""
+    from .errors import MaskprepError
+
+    p = Path(path)
+    if not p.is_file():
+        raise MaskprepError(f"{p}: {what} not found")
+    try:
+        return json.loads(p.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise MaskprepError(f"{p}: {what} is not valid JSON ({exc})") from None
