@@ -1,0 +1,39 @@
+"""maskprep: prepare text corpora for masked-language-model pretraining.
+
+The public API, in data-flow order. Heavy modules are imported on first use.
+"""
+
+from __future__ import annotations
+
+from importlib import import_module
+from typing import Any
+
+__version__ = "0.1.0"
+
+# name -> module that defines it
+_EXPORTS = {
+    "MaskprepError": "errors",
+    "CorpusOptions": "corpus",
+    "iter_corpus": "corpus",
+    "resolve_inputs": "corpus",
+    "plan_tasks": "corpus",
+    "load_tokenizer": "tokenize",
+    "train_tokenizer": "tokenize",
+    "TrainConfig": "tokenize",
+    "encode_documents": "tokenize",
+    "EncodedBatch": "tokenize",
+    "run_audit": "audit",
+    "AuditConfig": "audit",
+    "Executor": "execute",
+}
+
+__all__ = sorted(_EXPORTS) + ["__version__"]
+
+
+def __getattr__(name: str) -> Any:
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'maskprep' has no attribute {name!r}")
+    value = getattr(import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value

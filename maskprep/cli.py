@@ -1,0 +1,190 @@
+"""The `maskprep` command line: a thin shell over the library.
+
+Each command parses its options, checks conflicts between them, builds the
+library's config objects, calls one library function and prints its summary.
+Library errors (`MaskprepError`) become one line on stderr and exit status 1.
+No computation lives here.
+"""
+
+from __future__ import annotations
+
+import functools
+import sys
+from pathlib import Path
+from typing import Any, Callable
+
+import click
+
+from .errors import MaskprepError
+
+CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
+
+
+@click.group(context_settings=CONTEXT)
+@click.version_option(package_name="maskprep")
+@click.option("--workers", type=int, default=None, metavar="N",
+              help="Local worker processes (default: all cores).")
+@click.option("--dask", "dask_address", default=None, metavar="ADDRESS",
+              help="Run tasks on a running Dask scheduler, e.g. tcp://10.0.0.5:8786.")
+@click.option("--quiet", "-q", is_flag=True, help="No progress on stderr.")
+@click.pass_context
+def cli(ctx: click.Context, workers: int | None, dask_address: str | None, quiet: bool) -> None:
+    """Prepare text corpora for masked-language-model pretraining.
+
+    Audit vocabulary fragmentation, count word n-grams exactly, score
+    multi-word units by PMI-style cohesion, mask with token / word / span / PMI
+    strategies under one budgeted sampler, and write training-ready shards.
+    """
+    ctx.ensure_object(dict)
+    ctx.obj["workers"] = workers
+    ctx.obj["dask"] = dask_address
+    ctx.obj["quiet"] = quiet
+
+
+def executor_from(ctx: click.Context) -> Any:
+    """The `Executor` for the global --workers / --dask / --quiet options."""
+    from .execute import Executor, default_workers
+
+    obj = ctx.find_root().obj or {}
+    workers = obj.get("workers")
+    if workers is not None and workers < 1:
+        raise MaskprepError(f"--workers: expected a positive whole number, got {workers}")
+    return Executor(workers=workers or default_workers(), dask=obj.get("dask"), quiet=bool(obj.get("quiet")))
+
+
+def is_quiet(ctx: click.Context) -> bool:
+    return bool((ctx.find_root().obj or {}).get("quiet"))
+
+
+def user_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """Turn `MaskprepError` into one clean click error (exit 1)."""
+
+    @functools.wraps(fn)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return fn(*args, **kwargs)
+        except MaskprepError as exc:
+            raise click.ClickException(str(exc)) from None
+        except KeyboardInterrupt:
+            click.echo("interrupted; partial outputs were not renamed into place (use --resume where offered)",
+                       err=True)
+            sys.exit(130)
+
+    return wrapper
+
+
+def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """The options every command that reads a corpus shares."""
+    fn = click.option("--doc-sep", type=click.Choice(["line", "blank"]), default="line", show_default=True,
+                      help="Text files: one document per line, or documents separated by blank lines.")(fn)
+    fn = click.option("--text-field", default="text", show_default=True,
+                      help="JSONL: the field holding the text.")(fn)
+    fn = click.option("--text-column", default="text", show_default=True,
+                      help="Parquet/Arrow: the column holding the text.")(fn)
+    fn = click.option("--strict", is_flag=True,
+                      help="Invalid UTF-8 is an error (naming file, line and byte) instead of being replaced.")(fn)
+    return fn
+
+
+def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict: bool) -> Any:
+    from .corpus import CorpusOptions
+
+    return CorpusOptions(doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict)
+
+
+# ---------------------------------------------------------------- train-tokenizer / audit (lead)
+
+@cli.command("train-tokenizer", context_settings=CONTEXT)
+@click.argument("corpus", nargs=-1, required=True)
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Where to write tokenizer.json.")
+@click.option("--model", type=click.Choice(["wordpiece", "bpe", "unigram"]), default="wordpiece", show_default=True,
+              help="Tokenizer family (bpe is byte-level).")
+@click.option("--vocab-size", type=int, default=30000, show_default=True, help="Vocabulary size to train.")
+@click.option("--lowercase/--no-lowercase", default=True, show_default=True, help="Lowercase the text first.")
+@corpus_options
+@click.pass_context
+@user_errors
+def train_tokenizer_cmd(ctx: click.Context, corpus: tuple[str, ...], output: str, model: str, vocab_size: int,
+                        lowercase: bool, **copts: Any) -> None:
+    """Train a tokenizer on CORPUS (files, directories or globs).
+
+    The tokenizer gets five special tokens, recorded in the file: padding,
+    unknown, sequence start, separator and mask.
+    """
+    from .audit import train_on_corpus
+
+    info = train_on_corpus(list(corpus), model=model, vocab_size=vocab_size, lowercase=lowercase,
+                           corpus_options=make_corpus_options(**copts), output=Path(output),
+                           quiet=is_quiet(ctx))
+    click.echo(f"wrote {output}: {info.vocab_size} tokens ({model}), special tokens "
+               + ", ".join(f"{r}={t}" for r, t in info.describe()["special_tokens"].items()))
+
+
+def parse_vocab_sizes(text: str | None) -> list[int]:
+    if not text:
+        return []
+    sizes = []
+    for part in text.split(","):
+        part = part.strip().replace("_", "")
+        if part.lower().endswith("k") and part[:-1].isdigit():
+            part = str(int(part[:-1]) * 1000)
+        if not part.isdigit() or int(part) <= 0:
+            raise MaskprepError(f"--vocab-sizes: {text!r} is not a comma-separated list of positive integers "
+                                "(e.g. 2000,8000,30000)")
+        sizes.append(int(part))
+    return sizes
+
+
+@cli.command("audit", context_settings=CONTEXT)
+@click.argument("corpus", nargs=-1, required=True)
+@click.option("-t", "--tokenizer", "tokenizers", multiple=True, type=click.Path(),
+              help="A tokenizer.json to audit (repeat for several).")
+@click.option("--vocab-sizes", default=None, metavar="N,N,...",
+              help="Also train tokenizers of these sizes on the corpus and audit them, e.g. 2000,8000,30000.")
+@click.option("--model", type=click.Choice(["wordpiece", "bpe", "unigram"]), default="wordpiece", show_default=True,
+              help="Family of the tokenizers trained for --vocab-sizes.")
+@click.option("--lowercase/--no-lowercase", default=True, show_default=True,
+              help="Lowercasing of the tokenizers trained for --vocab-sizes.")
+@click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="Output directory.")
+@click.option("--top-words", type=int, default=25, show_default=True,
+              help="How many badly fragmented frequent words to list.")
+@corpus_options
+@click.pass_context
+@user_errors
+def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str, ...], vocab_sizes: str | None,
+              model: str, lowercase: bool, output: str, top_words: int, **copts: Any) -> None:
+    """Measure how a vocabulary fragments the words of CORPUS.
+
+    Writes DIR/audit.json, DIR/audit.html (chart of tokens per word by
+    frequency band) and prints a table.
+    """
+    from .audit import AuditConfig, format_audit_table, run_audit
+
+    sizes = parse_vocab_sizes(vocab_sizes)
+    if not tokenizers and not sizes:
+        raise MaskprepError("audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,...")
+    if top_words < 1 or top_words > 10000:
+        raise MaskprepError(f"--top-words: expected 1 to 10000, got {top_words}")
+    result = run_audit(list(corpus), AuditConfig(tokenizers=tuple(tokenizers), vocab_sizes=tuple(sizes),
+                                                model=model, lowercase=lowercase, top_words=top_words),
+                       output=Path(output), corpus_options=make_corpus_options(**copts), quiet=is_quiet(ctx))
+    click.echo(format_audit_table(result))
+    click.echo(f"\nwrote {Path(output) / 'audit.json'} and {Path(output) / 'audit.html'}")
+
+
+# ---------------------------------------------------------------- count (ngrams engineer)
+
+# ---------------------------------------------------------------- units (units engineer)
+
+# ---------------------------------------------------------------- mask / show / verify (shards engineer)
+
+# ---------------------------------------------------------------- compare / run / demo (lead)
+
+
+def main() -> None:
+    """Console-script entry point."""
+    cli(obj={})
+
+
+if __name__ == "__main__":
+    main()
