@@ -20,10 +20,11 @@ class Progress:
         self.total = total
         self.unit = unit
         self.quiet = quiet
-        self.interval = interval
+        # On a terminal the line is redrawn in place; in a log file, write rarely.
+        self.interval = interval if sys.stderr.isatty() else max(interval, 10.0)
         self.done = 0.0
         self._start = time.monotonic()
-        self._last = 0.0
+        self._last = self._start
 
     def __enter__(self) -> "Progress":
         return self

@@ -210,7 +210,37 @@ def encode_documents(info: TokenizerInfo, texts: list[str]) -> EncodedBatch:
     >>> b.num_words  # doctest: +SKIP
     5
     """
-    encs = info.tokenizer.encode_batch(texts, add_special_tokens=False)
+    return _from_encodings(info, info.tokenizer.encode_batch(texts, add_special_tokens=False))
+
+
+def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator[EncodedBatch]:
+    """Encode batches of documents, encoding the next batch while this one is grouped.
+
+    The tokenizer releases the GIL while it encodes, so one batch of look-ahead
+    in a helper thread overlaps its work with the numpy grouping here.
+
+    >>> sum(b.num_words for b in encode_stream(info, iter_batches(task)))  # doctest: +SKIP
+    120345
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    def raw(texts: list[str]) -> list[Any]:
+        return info.tokenizer.encode_batch(texts, add_special_tokens=False)
+
+    it = iter(batches)
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        first = next(it, None)
+        if first is None:
+            return
+        pending = pool.submit(raw, first)
+        for texts in it:
+            encs = pending.result()
+            pending = pool.submit(raw, texts)
+            yield _from_encodings(info, encs)
+        yield _from_encodings(info, pending.result())
+
+
+def _from_encodings(info: TokenizerInfo, encs: list[Any]) -> EncodedBatch:
     lens = np.fromiter((len(e.ids) for e in encs), dtype=np.int64, count=len(encs))
     total = int(lens.sum())
     ids = np.fromiter(itertools.chain.from_iterable(e.ids for e in encs), dtype=np.int32, count=total)
@@ -410,7 +440,7 @@ class TrainConfig:
     model: str = "wordpiece"
     vocab_size: int = 30000
     lowercase: bool = True
-    min_frequency: int = 2
+    min_frequency: int = 0  # the library default: keep every pair, so a small corpus can reach large sizes
 
     def __post_init__(self) -> None:
         if self.model not in MODELS:
