@@ -10,9 +10,9 @@ Sampler, per sequence (vectorised over the batch with numpy):
 1. budget = floor(rate * maskable + 0.5), i.e. rate times the number of
    non-special tokens rounded half up (no minimum: a very short sequence can
    get a budget of 0);
-2. units are visited in the order of a random 64-bit priority per unit (draw
-   (PRIORITY, unit index); ties, which need equal 64-bit draws, go to the lower
-   unit index); a unit is taken only if its token count fits the remaining
+2. units are visited in ascending order of a random priority per unit: the top
+   40 bits of draw (PRIORITY, unit index), ties going to the lower unit index
+   (at most 2**24 - 1 units per sequence); a unit is taken only if its token count fits the remaining
    budget; this goes on until the budget is met or nothing fits. Long units can
    therefore be skipped near the end of the budget, which makes the lengths of
    masked units somewhat shorter than the lengths of all units;
@@ -50,6 +50,9 @@ __all__ = [
 ]
 
 IGNORE_LABEL = -100  # label of non-target tokens (common practice)
+_MASK64 = (1 << 64) - 1
+_UNIT_MASK = (1 << 24) - 1
+_MAX_UNITS = _UNIT_MASK
 
 
 class Strategy(str, enum.Enum):
@@ -169,39 +172,55 @@ def select_targets(unit_ids: np.ndarray, *, sequence_ids: np.ndarray, seed: int,
     U = int(unit_ids.max(initial=-1)) + 1
     if B == 0 or U == 0:
         return np.zeros((B, L), dtype=bool)
+    if U > _MAX_UNITS:
+        raise ValueError(f"at most {_MAX_UNITS} units per sequence are supported, got {U}")
     maskable = unit_ids >= 0
-    rows = np.broadcast_to(np.arange(B, dtype=np.int64)[:, None] * U, (B, L))
-    lengths = np.bincount((rows + unit_ids)[maskable], minlength=B * U).reshape(B, U)
-    budget = np.floor(rate * maskable.sum(axis=1) + 0.5).astype(np.int64)
+    offsets = np.arange(B, dtype=np.int64)[:, None] * U
+    flat_units = offsets + unit_ids  # only read where maskable
+    lengths = np.bincount(flat_units[maskable], minlength=B * U).astype(np.int32)
+    budget = np.floor(rate * maskable.sum(axis=1) + 0.5).astype(np.int32)
 
+    # Priority: top 40 bits of the draw, unit index in the low 24 bits, so keys are
+    # unique within a row and any sort gives the same order (ties -> lower index).
     states = sequence_states(sequence_ids, seed=seed, copy=copy, tag=TAG_PRIORITY)
-    prio = absorb(states[:, None], np.arange(U, dtype=np.uint64)[None, :])
-    order = np.argsort(prio, axis=1, kind="stable")
-    sorted_len = np.take_along_axis(lengths, order, axis=1)
+    unit_col = np.arange(U, dtype=np.uint64)
+    prio = absorb(states[:, None], unit_col[None, :])
+    prio &= np.uint64(~_UNIT_MASK & _MASK64)
+    prio |= unit_col[None, :]
+    order = np.argsort(prio, axis=1)
+    order += offsets
+    sorted_len = lengths[order]  # (B, U), units in visiting order
     taken_sorted = np.zeros((B, U), dtype=bool)
-    remaining = budget.copy()
-    stop = np.zeros(B, dtype=np.int64)  # first sorted index not yet decided
-    col = np.arange(U)
+    remaining = budget
+    stop = np.zeros(B, dtype=np.int32)  # first sorted index not yet decided
+    col = np.arange(U, dtype=np.int32)
     active = np.flatnonzero(remaining > 0)
+    full = active.size == B
     # Each pass: among undecided units that still fit on their own, the prefix whose
     # cumulative length fits is taken; the first one after it cannot fit and is
     # skipped; the next pass resumes after it with the smaller remainder. Units
     # longer than the remainder can never be taken later, so filtering them is exact.
     while active.size:
-        sub = sorted_len[active]
-        rem = remaining[active][:, None]
-        eligible = (sub <= rem) & (col >= stop[active][:, None])
-        csum = np.cumsum(np.where(eligible, sub, 0), axis=1)
+        sub = sorted_len if full else sorted_len[active]
+        rem = (remaining if full else remaining[active])[:, None]
+        eligible = sub <= rem
+        if not full:
+            eligible &= col >= stop[active][:, None]
+        csum = np.cumsum(np.where(eligible, sub, 0), axis=1, dtype=np.int32)
         fits = eligible & (csum <= rem)
         over = eligible & ~fits
-        taken_sorted[active] |= fits
-        rem_after = rem[:, 0] - np.where(fits, sub, 0).sum(axis=1)
+        rem_after = rem[:, 0] - np.where(fits, sub, 0).sum(axis=1, dtype=np.int32)
+        if full:
+            taken_sorted |= fits
+        else:
+            taken_sorted[active] |= fits
         remaining[active] = rem_after
         stop[active] = np.argmax(over, axis=1) + 1
         active = active[over.any(axis=1) & (rem_after > 0)]
-    taken = np.empty_like(taken_sorted)
-    np.put_along_axis(taken, order, taken_sorted, axis=1)
-    return np.take_along_axis(taken, np.maximum(unit_ids, 0), axis=1) & maskable
+        full = False
+    taken = np.zeros(B * U, dtype=bool)
+    taken[order[taken_sorted]] = True
+    return taken[np.where(maskable, flat_units, 0)] & maskable
 
 
 def mask_batch(input_ids: np.ndarray, unit_ids: np.ndarray, *, sequence_ids: np.ndarray,

@@ -143,7 +143,7 @@ def document_breaks(special: np.ndarray, word_ids: np.ndarray, n_words: int) -> 
     brk = np.zeros((word_ids.shape[0], n_words), dtype=bool)
     hit = _word_start_tokens(word_ids)
     hit[:, 1:] &= special[:, :-1]
-    hit[:, 0] = False
+    hit[:, :1] = False
     b, t = np.nonzero(hit)
     brk[b, word_ids[b, t]] = True
     return brk
