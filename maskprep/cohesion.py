@@ -199,7 +199,11 @@ class CountTable:
 
 
 def _search(values: np.ndarray, q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    pos = np.searchsorted(values, q)
+    """Position of each `q` in sorted `values` and whether it is there (queries
+    are sorted first: a searchsorted over sorted queries is cache friendly)."""
+    order = np.argsort(q)
+    pos = np.empty(len(q), dtype=np.int64)
+    pos[order] = np.searchsorted(values, q[order])
     clipped = np.minimum(pos, max(len(values) - 1, 0))
     ok = (pos < len(values)) & (values[clipped] == q) if len(values) else np.zeros(len(q), bool)
     return clipped, ok
