@@ -163,8 +163,8 @@ def select_targets(unit_ids: np.ndarray, *, sequence_ids: np.ndarray, seed: int,
                    rate: float = 0.15) -> np.ndarray:
     """Budgeted greedy choice of whole units: bool (B, L), True on target tokens.
 
-    >>> select_targets(np.array([[-1, 0, 1, 2, 3]]), sequence_ids=np.array([0], np.uint64), seed=0, rate=0.5).sum()
-    np.int64(2)
+    >>> int(select_targets(np.array([[-1, 0, 1, 2, 3]]), sequence_ids=np.array([0], np.uint64), seed=0, rate=0.5).sum())
+    2
     """
     unit_ids, sequence_ids = _check_units(unit_ids, sequence_ids)
     rate = MaskingConfig(rate=rate).rate
