@@ -1,18 +1,15 @@
 """Self-contained HTML reports with inline SVG charts.
 
 What it does: renders line charts, grouped bar charts, histograms, tables and
-token sequences with their masked units highlighted, each as a string of
-markup, and assembles them into one complete HTML5 page with inline CSS that
-reads well on screen, in dark mode and on paper. Every piece of text that could
-come from a corpus or a user is escaped, and characters that XML forbids are
-replaced by U+FFFD, so each chart also parses as XML. The same inputs always
-give the same bytes.
+token sequences with masked units highlighted as markup strings, and assembles
+them into one HTML5 page with inline CSS that reads well on screen, in dark mode
+and on paper. All text that could come from a corpus or a user is escaped
+(characters XML forbids become U+FFFD, so charts parse as XML). Same inputs,
+same bytes.
 
-What it does not do: compute any statistic (that is `stats.py`), fetch fonts,
-images or styles from anywhere, or run scripts; tooltips are SVG ``<title>``
-elements and HTML ``title`` attributes. Section bodies given to `page` are
-trusted markup: build them with this module's functions (text goes through
-`paragraph`).
+What it does not do: compute statistics (that is `stats.py`), load anything
+from anywhere, or run scripts (tooltips are SVG ``<title>`` and HTML ``title``).
+Section bodies given to `page` are trusted markup built with this module.
 """
 
 from __future__ import annotations
@@ -62,13 +59,10 @@ def _clip(text: str, size: float, max_w: float) -> str:
     """Shorten ``text`` with an ellipsis so that it fits ``max_w`` pixels."""
     if _text_w(text, size) <= max_w:
         return text
-    out, used = [], _char_w("\u2026", size)
-    for ch in text:
-        used += _char_w(ch, size)
-        if used > max_w:
-            break
-        out.append(ch)
-    return "".join(out) + "\u2026"
+    used, end = _char_w("\u2026", size), 0
+    while end < len(text) and (used := used + _char_w(text[end], size)) <= max_w:
+        end += 1
+    return text[:end] + "\u2026"
 
 
 def _svg_text(text: str, *, x: float, y: float, size: float, max_w: float,
@@ -93,8 +87,7 @@ def _columns(series: Mapping[str, Sequence[object]], count: int, what: str) -> l
 
 def _nice_ticks(lo: float, hi: float, *, target: int = 5) -> list[float]:
     """Round tick values covering [lo, hi], steps of 1, 2, 2.5 or 5 x 10^k."""
-    if hi < lo:
-        lo, hi = hi, lo
+    lo, hi = min(lo, hi), max(lo, hi)
     if hi == lo:
         spread = abs(hi) * 0.1 or 1.0
         lo, hi = lo - spread, hi + spread
@@ -117,17 +110,15 @@ def _tick_labels(ticks: Sequence[float], *, percent: bool) -> list[str]:
     big = next(((1.0 / div, name) for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M")) if top >= div), (1.0, ""))
     scale, suffix = (100.0, "%") if percent else big
     dec = _decimals((ticks[1] - ticks[0]) * scale if len(ticks) > 1 else 1.0)
-    return [f"{t * scale + 0.0:,.{dec}f}{suffix}" for t in ticks]
+    return ["0" if t == 0 and suffix not in ("", "%") else f"{t * scale + 0.0:,.{dec}f}{suffix}" for t in ticks]
 
 
 def _short(value: float, *, percent: bool) -> str:
     """A compact value label: ``1.23``, ``15.0%``, ``12,345``, ``3.4M``."""
-    if percent:
-        return f"{value * 100:.1f}%"
     size = abs(value)
-    for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M")):
-        if size >= div:
-            return f"{value / div:.3g}{name}"
+    big = next((f"{value / div:.3g}{name}" for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M")) if size >= div), "")
+    if percent or big:
+        return f"{value * 100:.1f}%" if percent else big
     if value.is_integer():
         return f"{int(value):,}"
     return f"{value:,.0f}" if size >= 1000 else f"{value:.3g}" if size < 1 else f"{value:.2f}"
@@ -227,8 +218,9 @@ class _Frame:
             cy = self.top + _PLOT_H / 2
             out.append(_svg_text(self.y_label, x=_PAD + 10, y=cy, size=12, max_w=_PLOT_H,
                                  anchor="middle", extra=f' transform="rotate(-90 {_PAD + 10:.1f} {cy:.1f})"'))
-        for i, text in enumerate(self.x_text):
-            x = self.xc(i)
+        every = math.ceil(15 / self.slot) if self.rotate else 1  # thin out labels closer than a line apart
+        for i, text in enumerate(self.x_text[::every]):
+            x = self.xc(i * every)
             turn = f' transform="rotate(-40 {x:.1f} {self.label_y:.1f})"' if self.rotate else ""
             out.append(_svg_text(text, x=x, y=self.label_y, size=11, max_w=170,
                                  anchor="end" if self.rotate else "middle", extra=turn))

@@ -161,7 +161,7 @@ def test_tick_labels_are_round_readable_numbers() -> None:
         mantissa = step / 10 ** __import__("math").floor(__import__("math").log10(step))
         assert any(abs(mantissa - m) < 1e-6 for m in (1, 2, 2.5, 5))
     assert report._tick_labels([0.0, 0.1, 0.2], percent=True) == ["0%", "10%", "20%"]
-    assert report._tick_labels([0.0, 2.5e6, 5e6], percent=False) == ["0.0M", "2.5M", "5.0M"]
+    assert report._tick_labels([0.0, 2.5e6, 5e6], percent=False) == ["0", "2.5M", "5.0M"]
     assert report._tick_labels([0.0, 5000.0, 10000.0], percent=False) == ["0", "5,000", "10,000"]
     assert report._tick_labels([1.0, 1.25, 1.5], percent=False) == ["1.00", "1.25", "1.50"]
 
@@ -353,3 +353,22 @@ def test_write_page_into_unwritable_place_is_a_user_error(tmp_path: Path) -> Non
     blocker.write_text("x")
     with pytest.raises(MaskprepError, match="cannot write the report"):
         report.write_page(blocker / "audit.html", "<p>x</p>")
+
+
+def test_crowded_x_labels_turn_stay_inside_and_thin_out() -> None:
+    import math
+
+    labels = [f"category number {i} with a long label" for i in range(12)]
+    root = parse(report.bar_chart(title="t", categories=labels, series={"s": [1.0] * 12}, y_label="y"))
+    turned = [t for t in root.iter("text") if "rotate(-40" in t.get("transform", "")]
+    assert len(turned) == 12
+    for t in turned:
+        shown = "".join(x for x in t.itertext() if x not in labels)  # drop tooltip text
+        assert float(t.get("x", 0)) - report._text_w(shown, 11) * math.cos(math.radians(40)) >= 0
+    many = [f"label {i}" for i in range(120)]
+    root = parse(report.line_chart(title="t", x_labels=many, series={"s": [float(i) for i in range(120)]},
+                                   y_label="y"))
+    drawn = [t.text for t in root.iter("text") if t.text in set(many)]
+    assert 10 <= len(drawn) < 120 and drawn[0] == "label 0"
+    height = float(root.get("height", 0))
+    assert all(float(t.get("y", 0)) < height for t in root.iter("text"))
