@@ -297,7 +297,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
         y_label="tokens per word", y_min=1.0)
     split_chart = report.bar_chart(
         title="Share of word occurrences split into 2+ tokens, by band", categories=list(doc["bands"]),
-        series={r["name"]: [b["split_share"] or 0.0 for b in r["bands"]] for r in toks},
+        series={r["name"]: [b["split_share"] for b in r["bands"]] for r in toks},
         y_label="split share", percent=True)
     summary = report.table(
         headers=["tokenizer", "vocab size", "tokens/word", "tokens/word (all)", "split share", "tokens/char",

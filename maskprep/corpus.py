@@ -260,11 +260,52 @@ def _open_binary(path: str, compression: str | None) -> IO[bytes]:
     if compression == "gzip":
         return gzip.open(path, "rb")
     if compression == "zstd":
+        return io.BufferedReader(_ZstdReader(path), buffer_size=1 << 20)
+    return open(path, "rb")
+
+
+class _ZstdReader(io.RawIOBase):
+    """Streaming zstd reader that notices a truncated last frame (EOFError)."""
+
+    def __init__(self, path: str) -> None:
         import zstandard
 
-        fh = open(path, "rb")
-        return io.BufferedReader(zstandard.ZstdDecompressor().stream_reader(fh, closefd=True))  # type: ignore[arg-type]
-    return open(path, "rb")
+        self._zstd = zstandard
+        self._fh = open(path, "rb")
+        self._dctx = zstandard.ZstdDecompressor()
+        self._dobj = self._dctx.decompressobj()
+        self._buf = b""
+        self._pending = False  # bytes fed to a frame that has not ended
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, b: "bytearray | memoryview") -> int:  # type: ignore[override]
+        while not self._buf:
+            chunk = self._fh.read(1 << 20)
+            if not chunk:
+                if self._pending:
+                    raise EOFError("zstd stream ended in the middle of a frame")
+                return 0
+            parts = []
+            while chunk:
+                parts.append(self._dobj.decompress(chunk))
+                self._pending = True
+                if self._dobj.eof:  # frame complete; the rest starts another frame
+                    chunk = self._dobj.unused_data
+                    self._dobj = self._dctx.decompressobj()
+                    self._pending = False
+                else:
+                    chunk = b""
+            self._buf = b"".join(parts)
+        n = min(len(b), len(self._buf))
+        b[:n] = self._buf[:n]
+        self._buf = self._buf[n:]
+        return n
+
+    def close(self) -> None:
+        self._fh.close()
+        super().close()
 
 
 def _raw_lines(task: CorpusTask) -> Iterator[tuple[int, bytes]]:
@@ -287,6 +328,8 @@ def _raw_lines(task: CorpusTask) -> Iterator[tuple[int, bytes]]:
                 pos += len(line)
                 yield start, line.rstrip(b"\r\n") if line.endswith(b"\n") else line.rstrip(b"\r")
     except EOFError as exc:
+        if task.compression == "zstd":
+            raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
         raise MaskprepError(f"{task.path}: compressed file is truncated ({exc}); re-create or re-download it") from None
     except (gzip.BadGzipFile, zlib.error) as exc:
         raise MaskprepError(f"{task.path}: not a valid gzip file ({exc})") from None
