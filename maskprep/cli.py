@@ -178,6 +178,120 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
 
 # ---------------------------------------------------------------- mask / show / verify (shards engineer)
 
+def _pct(x: float | None) -> str:
+    return "n/a" if x is None else f"{100 * x:.2f}%"
+
+
+@cli.command("mask", context_settings=CONTEXT)
+@click.argument("corpus", nargs=-1, required=True)
+@click.option("-t", "--tokenizer", required=True, type=click.Path(), help="The tokenizer.json to encode with.")
+@click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="Shards directory to write.")
+@click.option("--strategy", type=click.Choice(["token", "word", "span", "pmi"]), default="token", show_default=True,
+              help="How tokens are grouped into the units the sampler masks.")
+@click.option("--units", "units_path", type=click.Path(), default=None,
+              help="Unit vocabulary (units.parquet from maskprep units); needed by --strategy pmi.")
+@click.option("--rate", type=float, default=0.15, show_default=True,
+              help="Share of maskable (non-special) tokens made targets, per sequence.")
+@click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
+              help="How targets are shown: mask token, random token, unchanged.")
+@click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
+              help="Draw the mix per target token or once per masked unit.")
+@click.option("--span-p", type=float, default=0.2, show_default=True, help="span: geometric parameter of span lengths.")
+@click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words.")
+@click.option("--seq-len", type=int, default=128, show_default=True, help="Tokens per sequence, special tokens included.")
+@click.option("--no-pack", is_flag=True, help="One document per sequence (split when too long) instead of packing.")
+@click.option("--copies", type=int, default=1, show_default=True,
+              help="Differently masked copies of every sequence (one set of shard files each).")
+@click.option("--seed", type=int, default=0, show_default=True, help="Seed of all random draws.")
+@click.option("--format", "fmt", type=click.Choice(["arrow", "parquet"]), default="arrow", show_default=True,
+              help="Arrow IPC files or Parquet (zstd).")
+@click.option("--shard-rows", type=int, default=16384, show_default=True, help="Rows per shard file, at most.")
+@click.option("--dynamic", is_flag=True,
+              help="Write unmasked input_ids and unit_ids, to mask on the fly with maskprep.mask_batch.")
+@click.option("--overwrite", is_flag=True, help="Replace the shards in an existing output directory.")
+@click.option("--resume", is_flag=True, help="Finish an interrupted run with the same options.")
+@corpus_options
+@click.pass_context
+@user_errors
+def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output: str, strategy: str,
+             units_path: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
+             seq_len: int, no_pack: bool, copies: int, seed: int, fmt: str, shard_rows: int, dynamic: bool,
+             overwrite: bool, resume: bool, **copts: Any) -> None:
+    """Pack CORPUS into sequences, mask them and write training-ready shards.
+
+    Writes DIR/shard-*.arrow (or .parquet), DIR/manifest.json, DIR/stats.json
+    and a copy of the tokenizer. Same inputs, options and seed give
+    byte-identical shards whatever the number of workers.
+    """
+    from .masking import MaskingConfig
+    from .packing import PackingConfig
+    from .shards import ShardConfig, write_shards
+
+    if overwrite and resume:
+        raise MaskprepError("--overwrite and --resume exclude each other: pick one")
+    masking = MaskingConfig(strategy=strategy, rate=rate, mix=mix, mix_per=mix_per, span_p=span_p,
+                            span_max=span_max)
+    packing = PackingConfig(seq_len=seq_len, pack=not no_pack)
+    shards = ShardConfig(format=fmt, shard_rows=shard_rows, copies=copies, seed=seed, dynamic=dynamic)
+    manifest, stats = write_shards(list(corpus), tokenizer=tokenizer, output=output, masking=masking,
+                                   packing=packing, shards=shards, units=units_path,
+                                   corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
+                                   overwrite=overwrite, resume=resume)
+    rate_ = stats["masking_rate"]
+    mix_ = stats["mix"]
+    units_ = stats["unit_lengths"]
+    kind = "dynamic (unmasked, with unit_ids)" if dynamic else "masked"
+    click.echo(f"wrote {stats['rows']:,} {kind} rows ({stats['sequences']:,} sequences x {copies} "
+               f"cop{'y' if copies == 1 else 'ies'}) in {manifest.totals['shards']} {fmt} shards to {output}")
+    click.echo(f"tokens {stats['tokens']:,} (maskable {stats['maskable_tokens']:,}); targets {stats['targets']:,} = "
+               f"{_pct(rate_['corpus'])} of maskable tokens (asked {rate:g}; per sequence "
+               f"{_pct(rate_['per_sequence_min'])} to {_pct(rate_['per_sequence_max'])}, median "
+               f"{_pct(rate_['per_sequence_median'])})")
+    click.echo(f"shown as: mask {_pct(mix_['mask'])}, random {_pct(mix_['random'])}, keep {_pct(mix_['keep'])} "
+               f"(asked {'/'.join(f'{x:g}' for x in masking.mix)})")
+    mean_t, mean_w = units_["mean_tokens"], units_["mean_words"]
+    click.echo(f"masked units: {'n/a' if mean_t is None else f'{mean_t:.2f}'} tokens, "
+               f"{'n/a' if mean_w is None else f'{mean_w:.2f}'} words on average; multi-word share "
+               f"{_pct(stats['multiword_share'])}; within-word leakage {_pct(stats['within_word_leakage'])}")
+    if dynamic:
+        click.echo("(dynamic shards: figures are those of maskprep.mask_batch with each shard's copy)")
+    click.echo("note: the rate is over maskable tokens (special tokens are never masked), and each sequence's "
+               "budget is round(rate x its maskable tokens), so short sequences deviate from the rate")
+    click.echo(f"see {Path(output) / 'stats.json'} and {Path(output) / 'manifest.json'}")
+
+
+@cli.command("show", context_settings=CONTEXT)
+@click.argument("directory", type=click.Path())
+@click.option("-n", "count", type=int, default=3, show_default=True, help="How many rows to show.")
+@user_errors
+def show_cmd(directory: str, count: int) -> None:
+    """Show masked rows of a shards DIRECTORY, masked runs marked, with their original text.
+
+    On a terminal masked runs are coloured; when piped they are put in {braces}.
+    """
+    from .shardcheck import format_examples
+
+    if count < 1:
+        raise MaskprepError(f"-n must be at least 1, got {count}")
+    color = sys.stdout.isatty()
+    click.echo(format_examples(directory, n=count, color=color), color=color)
+
+
+@cli.command("verify", context_settings=CONTEXT)
+@click.argument("directory", type=click.Path())
+@user_errors
+def verify_cmd(directory: str) -> None:
+    """Check shards against manifest.json (sha256, counts) and the row invariants; exit 1 on any fault."""
+    from .shardcheck import verify_shards
+
+    report = verify_shards(directory)
+    if not report.ok:
+        for fault in report.faults:
+            click.echo(fault, err=True)
+        raise MaskprepError(f"{directory}: {len(report.faults)} fault(s); first: {report.faults[0]}")
+    click.echo(f"ok: {report.shards} shards, {report.rows:,} rows in {directory} match manifest.json")
+
+
 # ---------------------------------------------------------------- compare / run / demo (lead)
 
 

@@ -152,9 +152,12 @@ class ShardManifest:
 
 
 def _version() -> str:
-    from . import __version__
+    from importlib.metadata import PackageNotFoundError, version
 
-    return __version__
+    try:
+        return version("maskprep")
+    except PackageNotFoundError:
+        return "unknown"
 
 
 def _dump(obj: Any) -> str:
