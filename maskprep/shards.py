@@ -169,6 +169,24 @@ def shard_name(task: int, copy: int, part: int, fmt: str) -> str:
     return f"shard-{task:05d}-{copy:02d}-{part:04d}{_FORMATS[fmt]}"
 
 
+_UMASK: list[int] = []
+
+
+def _readable(path: str | Path) -> None:
+    """Give a written file the usual permissions (temporary files are created private)."""
+    import os
+
+    if not _UMASK:
+        _UMASK.append(os.umask(0o022))
+        os.umask(_UMASK[0])
+    os.chmod(path, 0o666 & ~_UMASK[0])
+
+
+def _write_text(path: Path, text: str) -> None:
+    atomic_write_text(path, text)
+    _readable(path)
+
+
 def file_sha256(path: str | Path) -> str:
     """Hex sha256 of a file's bytes."""
     h = hashlib.sha256()
@@ -203,6 +221,7 @@ def _write_file(path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, meta
             import pyarrow.parquet as pq
 
             pq.write_table(table, str(tmp), row_group_size=PARQUET_GROUP_ROWS, compression="zstd")
+        _readable(tmp)
 
 
 class _ShardWriter:
@@ -478,9 +497,9 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                                    "round(rate x its maskable tokens), so per-sequence rates vary"
                                    + ("; dynamic shards: figures of mask_batch with copy = the shard's copy"
                                       if shards.dynamic else ""))
-    atomic_write_text(out / "tokenizer.json", info.json)
-    atomic_write_text(out / "stats.json", _dump(stats_doc))
-    atomic_write_text(out / "manifest.json", _dump(manifest.to_json()))
+    _write_text(out / "tokenizer.json", info.json)
+    _write_text(out / "stats.json", _dump(stats_doc))
+    _write_text(out / "manifest.json", _dump(manifest.to_json()))
     return manifest, stats_doc
 
 
