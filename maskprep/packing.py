@@ -196,32 +196,45 @@ class TaskPacker:
         ids, word, key, kind = stream
         L = self.config.seq_len
         piece = L - 1
+        S = len(ids)
         rows_per_seg = -(-seg_lengths // piece)
         B = int(rows_per_seg.sum())
-        seg_row0 = np.cumsum(rows_per_seg) - rows_per_seg
-        seg_start = np.cumsum(seg_lengths) - seg_lengths
-        seg_of = np.repeat(np.arange(len(seg_lengths)), seg_lengths)
-        k = np.arange(len(ids), dtype=np.int64) - seg_start[seg_of]
-        row = seg_row0[seg_of] + k // piece
-        col = 1 + k % piece
+        if len(seg_lengths) == 1:  # one segment (packed mode): rows are consecutive pieces of the stream
+            row = np.arange(S, dtype=np.int64) // piece
+            flat = None
+        else:
+            seg_row0 = np.cumsum(rows_per_seg) - rows_per_seg
+            seg_start = np.cumsum(seg_lengths) - seg_lengths
+            seg_of = np.repeat(np.arange(len(seg_lengths)), seg_lengths)
+            k = np.arange(S, dtype=np.int64) - seg_start[seg_of]
+            row = seg_row0[seg_of] + k // piece
+            flat = row * L + 1 + k % piece
 
-        input_ids = np.full((B, L), self.pad_id, dtype=np.int32)
-        input_ids[:, 0] = self.cls_id
-        input_ids[row, col] = ids
-        attention = np.zeros((B, L), dtype=np.int8)
-        attention[:, 0] = 1
-        attention[row, col] = 1
-        wnum = np.full((B, L), -1, dtype=np.int64)
-        wnum[row, col] = word
-        first = np.where(wnum >= 0, wnum, _NO_WORD).min(axis=1)
-        word_ids = np.where(wnum >= 0, wnum - first[:, None], -1).astype(np.int32)
-        Lw = int(word_ids.max(initial=-1)) + 1
+        def place(values: np.ndarray, fill: int, first: int, dtype: type) -> np.ndarray:
+            out = np.full((B, L), fill, dtype=dtype)
+            out[:, 0] = first
+            if flat is None:
+                body = np.full(B * piece, fill, dtype=dtype)
+                body[:S] = values
+                out[:, 1:] = body.reshape(B, piece)
+            else:
+                out.reshape(-1)[flat] = values
+            return out
+
+        # sequence-local word numbers: stream word numbers minus the first word of the row
+        row_start = np.flatnonzero(np.r_[True, row[1:] != row[:-1]]) if S else np.zeros(0, np.int64)
+        first = np.minimum.reduceat(np.where(word >= 0, word, _NO_WORD), row_start) if S else row_start
+        local = np.where(word >= 0, word - first[row], -1).astype(np.int32)
+        input_ids = place(ids, self.pad_id, self.cls_id, np.int32)
+        attention = place(np.ones(S, dtype=np.int8), 0, 1, np.int8)
+        word_ids = place(local, -1, -1, np.int32)
+        Lw = int(local.max(initial=-1)) + 1
+        has = local >= 0
+        wflat = row[has] * Lw + local[has]
         word_keys = np.zeros((B, Lw), dtype=np.uint64)
         word_kinds = np.full((B, Lw), -1, dtype=np.int8)
-        local = word_ids[row, col]
-        has = local >= 0
-        word_keys[row[has], local[has]] = key[has]
-        word_kinds[row[has], local[has]] = kind[has]
+        word_keys.reshape(-1)[wflat] = key[has]
+        word_kinds.reshape(-1)[wflat] = kind[has]
         if self.sequences + B >= _MAX_SEQUENCES:
             raise MaskprepError(f"corpus task {self.task_index} yields more than 2**32 sequences; "
                                 "split the input file into smaller files")
