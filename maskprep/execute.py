@@ -145,7 +145,7 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
         index = {f.key: i for i, f in enumerate(futures)}
         done: dict[int, Any] = {}
         emit = 0
-        for fut in as_completed(futures):
+        for fut in as_completed(futures, loop=client.loop):
             i = index[fut.key]
             ok, value = fut.result()
             if not ok:
