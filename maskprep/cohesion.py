@@ -32,9 +32,11 @@ Measures (``Measure``):
   with ``s^2 ~ x``. For n > 2, the minimum over binary splits. Range
   (-inf, sqrt(c)); positive means more frequent than independence predicts.
 
-Sub-n-gram counts are found by exact sorted-key lookup (``CountTable``: dense
-codes built with ``np.unique`` and matched with ``searchsorted``), never by a
-Python dict or loop per n-gram. A part that is missing from its table, or
+Sub-n-gram counts are found by exact sorted-key lookup, never by a Python dict
+or loop per n-gram: ``NgramIndex`` gives every k-gram a dense id (its rank
+among sorted ``prefix id * V + last word id`` codes), so a part costs one
+``searchsorted`` per word; ``CountTable`` is the stand-alone lookup of one
+table (dense per-column codes from ``np.unique``). A part that is missing from its table, or
 counted less often than the n-gram containing it, means the counts are corrupt
 and raises ``MaskprepError``; it is never treated as zero.
 
@@ -51,7 +53,8 @@ import numpy as np
 
 from .errors import MaskprepError
 
-__all__ = ["Measure", "CountTable", "score_ngrams", "binary_split_pmi", "MAX_N"]
+__all__ = ["Measure", "CountTable", "NgramIndex", "score_ngrams", "score_with_split_pmi", "binary_split_pmi",
+           "MAX_N"]
 
 MAX_N = 8
 """Longest n-gram this module scores (segmentations of n words: 2**(n-1) - 1)."""
@@ -199,78 +202,200 @@ class CountTable:
 
 
 def _search(values: np.ndarray, q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Position of each `q` in sorted `values` and whether it is there (queries
-    are sorted first: a searchsorted over sorted queries is cache friendly)."""
-    order = np.argsort(q)
-    pos = np.empty(len(q), dtype=np.int64)
-    pos[order] = np.searchsorted(values, q[order])
+    """Position of each `q` in sorted `values` and whether it is there. Large
+    tables are searched with sorted queries (cache friendly, several times faster)."""
+    if len(values) > _CACHE_ENTRIES and len(q) > _CACHE_ENTRIES:
+        order = np.argsort(q)
+        pos = np.empty(len(q), dtype=np.int64)
+        pos[order] = np.searchsorted(values, q[order])
+    else:
+        pos = np.searchsorted(values, q)
     clipped = np.minimum(pos, max(len(values) - 1, 0))
     ok = (pos < len(values)) & (values[clipped] == q) if len(values) else np.zeros(len(q), bool)
     return clipped, ok
 
 
+_CACHE_ENTRIES = 1 << 17
+
+
+def _missing(k: int, count: int) -> MaskprepError:
+    return MaskprepError(
+        f"corrupt counts: {count} part(s) of length {k} are missing from the {k}-gram counts although a "
+        "longer n-gram containing them was kept; re-run maskprep count with one --min-count for every n")
+
+
+@dataclass(frozen=True, eq=False)
+class NgramIndex:
+    """Dense ids of the k-grams of every length 1..K, for fast exact part lookup.
+
+    A k-gram's id is its rank among ``prefix_id * V + last_word_id`` codes
+    (V = number of distinct words), so finding a part costs one sorted search
+    per added word, not one per key column.
+
+    >>> ix = NgramIndex.build({1: (np.array([[5], [9]], np.uint64), np.array([3, 4])),
+    ...                        2: (np.array([[9, 5]], np.uint64), np.array([2]))})
+    >>> ix.counts_of(np.array([[9, 5]], np.uint64)).tolist()
+    [2]
+    """
+
+    words: np.ndarray  # sorted distinct word keys (V,)
+    codes: tuple[np.ndarray, ...]  # codes[k - 1]: sorted codes of the k-grams (k >= 2); codes[0] unused
+    counts: tuple[np.ndarray, ...]  # counts[k - 1][id]: count of the k-gram with that id
+
+    @property
+    def max_k(self) -> int:
+        return len(self.counts)
+
+    @classmethod
+    def build(cls, tables: Mapping[int, "TableLike"]) -> "NgramIndex":
+        """Index tables ``{k: (keys (m, k) uint64, counts (m,))}`` for k = 1..K (all present)."""
+        if not tables:
+            return cls(np.zeros(0, np.uint64), (np.zeros(0, np.uint64),), (np.zeros(0, np.int64),))
+        arrays = {k: _as_arrays(tables, k) for k in range(1, max(tables) + 1)}
+        keys1, counts1 = arrays[1]
+        order = np.argsort(keys1[:, 0], kind="stable")
+        words = keys1[order, 0]
+        if len(words) > 1 and (words[1:] == words[:-1]).any():
+            raise MaskprepError("1-gram table: duplicate word keys; the counts are corrupt (re-run maskprep count)")
+        index = cls(words, (words,), (counts1[order],))
+        for k in range(2, len(arrays) + 1):
+            index = index.add(*arrays[k])
+        return index
+
+    def add(self, keys: np.ndarray, counts: np.ndarray) -> "NgramIndex":
+        """A new index with the next length (k = max_k + 1) added: ``ix = ix.add(keys_k, counts_k)``."""
+        k = self.max_k + 1
+        keys = _key_rows(keys, counts, k)
+        v = np.uint64(max(len(self.words), 1))
+        if len(self.counts[-1]) * float(v) >= 2.0 ** 64:
+            raise MaskprepError(f"{k}-gram table too large to index ({len(self.counts[-1])} x {int(v)} codes)")
+        wid = self.word_ids(keys)
+        code = self.prefix_ids(wid[:, :k - 1]).astype(np.uint64) * v + wid[:, k - 1].astype(np.uint64)
+        order = np.argsort(code, kind="stable")
+        code = code[order]
+        if len(code) > 1 and (code[1:] == code[:-1]).any():
+            raise MaskprepError(f"{k}-gram table: duplicate key rows; the counts are corrupt (re-run maskprep count)")
+        return NgramIndex(self.words, self.codes + (code,), self.counts + (np.asarray(counts, np.int64)[order],))
+
+    def word_ids(self, keys: np.ndarray) -> np.ndarray:
+        """Ids (int64, same shape) of word keys; a word not in the 1-gram table raises."""
+        flat = np.asarray(keys, np.uint64).ravel()
+        pos, ok = _search(self.words, flat)
+        if not ok.all():
+            raise _missing(1, int((~ok).sum()))
+        return pos.reshape(np.shape(keys))
+
+    def extend(self, k: int, prefix_ids: np.ndarray, last_word_ids: np.ndarray) -> np.ndarray:
+        """Ids of the k-grams made of a (k-1)-gram id and a word id; an absent k-gram raises."""
+        if k > self.max_k:
+            raise MaskprepError(f"the {k}-gram counts are needed to score longer n-grams but were not given")
+        code = prefix_ids.astype(np.uint64) * np.uint64(len(self.words)) + last_word_ids.astype(np.uint64)
+        pos, ok = _search(self.codes[k - 1], code)
+        if not ok.all():
+            raise _missing(k, int((~ok).sum()))
+        return pos
+
+    def prefix_ids(self, wid: np.ndarray) -> np.ndarray:
+        """Id of each row of word ids (m, k) as a k-gram."""
+        ids = wid[:, 0]
+        for j in range(1, wid.shape[1]):
+            ids = self.extend(j + 1, ids, wid[:, j])
+        return ids
+
+    def counts_of(self, keys: np.ndarray) -> np.ndarray:
+        """Counts of the k-grams given as word keys (m, k); absent rows raise."""
+        keys = np.asarray(keys, np.uint64)
+        return self.counts[keys.shape[1] - 1][self.prefix_ids(self.word_ids(keys))]
+
+
 TableLike = Union[CountTable, tuple]
 
 
-def _as_table(tables: Mapping[int, TableLike], k: int) -> CountTable:
+def _as_arrays(tables: Mapping[int, TableLike], k: int) -> tuple[np.ndarray, np.ndarray]:
     if k not in tables:
         raise MaskprepError(f"the {k}-gram counts are needed to score longer n-grams but were not given")
     t = tables[k]
-    if isinstance(t, CountTable):
-        table = t
-    else:
-        keys, counts = t
-        table = CountTable.build(np.asarray(keys, np.uint64).reshape(len(counts), -1), counts,
-                                 name=f"{k}-gram table")
-    if table.k != k:
-        raise MaskprepError(f"the table given for length {k} has {table.k} key columns")
-    return table
+    keys, counts = (t.keys, t.counts) if isinstance(t, CountTable) else t
+    return _key_rows(keys, counts, k), np.asarray(counts, np.int64)
+
+
+def _key_rows(keys: np.ndarray, counts: np.ndarray, k: int) -> np.ndarray:
+    keys = np.asarray(keys, np.uint64)
+    if keys.size == 0 and len(counts) == 0:
+        return keys.reshape(0, k)
+    if keys.ndim != 2 or keys.shape != (len(counts), k):
+        raise MaskprepError(f"the {k}-gram table needs keys of shape ({len(counts)}, {k}), got {keys.shape}")
+    return keys
+
+
+def _as_index(tables: Union[NgramIndex, Mapping[int, TableLike]], n: int) -> NgramIndex:
+    if isinstance(tables, NgramIndex):
+        if tables.max_k < n - 1:
+            raise MaskprepError(f"the {tables.max_k + 1}-gram counts are needed to score {n}-grams "
+                                "but were not given")
+        return tables
+    return NgramIndex.build({k: tables[k] for k in range(1, n) if k in tables} or {1: _as_arrays(tables, 1)})
 
 
 def score_ngrams(measure: Union[Measure, str], *, n: int, keys: np.ndarray, counts: np.ndarray,
-                 tables: Mapping[int, TableLike], N: int) -> np.ndarray:
+                 tables: Union[NgramIndex, Mapping[int, TableLike]], N: int) -> np.ndarray:
     """Score every n-gram (rows of `keys`, (m, n) uint64) by `measure`; float64 (m,).
 
-    `tables[k]` is a `CountTable` (or a ``(keys_k, counts_k)`` pair) of the
-    k-grams for k = 1..n-1; `N` is the number of counted word positions.
+    `tables` is an `NgramIndex` of the k-grams for k = 1..n-1, or a mapping
+    ``{k: (keys_k, counts_k)}`` (or ``CountTable``) to build one from; `N` is the
+    number of counted word positions.
 
-    >>> t1 = CountTable.build(np.array([[1], [2]], np.uint64), np.array([42, 20]))
+    >>> t1 = (np.array([[1], [2]], np.uint64), np.array([42, 20]))
     >>> s = score_ngrams("pmi", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([20]),
     ...                  tables={1: t1}, N=14_307_668)
     >>> round(float(s[0] / np.log(2)), 2)
     18.38
     """
-    measure = Measure.parse(measure)
-    keys, counts = _check_inputs(n=n, keys=keys, counts=counts, N=N)
-    parts = {k: _as_table(tables, k) for k in range(1, n)}
-    out = np.empty(len(counts), dtype=np.float64)
-    for start in range(0, len(counts), _CHUNK_ROWS):
-        stop = min(start + _CHUNK_ROWS, len(counts))
-        out[start:stop] = _score_chunk(measure, n, keys[start:stop], counts[start:stop], parts, N)
-    return out
+    return _run((Measure.parse(measure),), n=n, keys=keys, counts=counts, tables=tables, N=N)[0]
+
+
+def score_with_split_pmi(measure: Union[Measure, str], *, n: int, keys: np.ndarray, counts: np.ndarray,
+                         tables: Union[NgramIndex, Mapping[int, TableLike]], N: int
+                         ) -> tuple[np.ndarray, np.ndarray]:
+    """``(score_ngrams(...), binary_split_pmi(...))`` in one pass over the parts.
+
+    >>> scores, split = score_with_split_pmi("llr", n=2, keys=k, counts=c, tables=t, N=n)  # doctest: +SKIP
+    """
+    out = _run((Measure.parse(measure), None), n=n, keys=keys, counts=counts, tables=tables, N=N)
+    return out[0], out[1]
 
 
 def binary_split_pmi(*, n: int, keys: np.ndarray, counts: np.ndarray,
-                     tables: Mapping[int, TableLike], N: int) -> np.ndarray:
+                     tables: Union[NgramIndex, Mapping[int, TableLike]], N: int) -> np.ndarray:
     """Min over the n - 1 binary splits of ln p(g) - ln p(left) - ln p(right), nats.
 
     Positive exactly where the n-gram is more frequent than independence of
     its two parts predicts on every binary split (the sign of ``t`` and of a
     signed ``llr``). ``binary_split_pmi(n=2, ...)`` equals ``pmi`` for bigrams.
     """
+    return _run((None,), n=n, keys=keys, counts=counts, tables=tables, N=N)[0]
+
+
+def _run(kinds: tuple[Measure | None, ...], *, n: int, keys: np.ndarray, counts: np.ndarray,
+         tables: Union[NgramIndex, Mapping[int, TableLike]], N: int) -> list[np.ndarray]:
+    """Each measure of `kinds` (None: binary-split pmi), finding the parts once per chunk."""
     keys, counts = _check_inputs(n=n, keys=keys, counts=counts, N=N)
-    parts = {k: _as_table(tables, k) for k in range(1, n)}
-    out = np.empty(len(counts), dtype=np.float64)
+    index = _as_index(tables, n)
+    out = [np.empty(len(counts), dtype=np.float64) for _ in kinds]
     for start in range(0, len(counts), _CHUNK_ROWS):
         stop = min(start + _CHUNK_ROWS, len(counts))
-        c = counts[start:stop].astype(np.float64)
-        spans = _span_counts(keys[start:stop], counts[start:stop], parts, n, binary_only=True)
-        best = np.full(len(c), np.inf)
-        for s in range(1, n):
-            v = np.log(c) - np.log(spans[(0, s)]) - np.log(spans[(s, n)]) + np.log(float(N))
-            best = np.minimum(best, v)
-        out[start:stop] = best
+        spans = _span_counts(keys[start:stop], counts[start:stop], index, n)
+        for kind, dest in zip(kinds, out):
+            dest[start:stop] = _split_pmi(spans, n, N) if kind is None else _score_chunk(kind, n, spans, N)
     return out
+
+
+def _split_pmi(spans: Mapping[tuple[int, int], np.ndarray], n: int, N: int) -> np.ndarray:
+    c = spans[(0, n)]
+    best = np.full(len(c), np.inf)
+    for s in range(1, n):
+        best = np.minimum(best, np.log(c) - np.log(spans[(0, s)]) - np.log(spans[(s, n)]) + np.log(float(N)))
+    return best
 
 
 def _check_inputs(*, n: int, keys: np.ndarray, counts: np.ndarray, N: int) -> tuple[np.ndarray, np.ndarray]:
@@ -289,38 +414,36 @@ def _check_inputs(*, n: int, keys: np.ndarray, counts: np.ndarray, N: int) -> tu
     return keys, counts
 
 
-def _span_counts(keys: np.ndarray, counts: np.ndarray, parts: Mapping[int, CountTable], n: int,
-                 *, binary_only: bool) -> dict[tuple[int, int], np.ndarray]:
-    """Counts (float64) of the sub-spans [i, j) of every row; whole span included."""
+def _span_counts(keys: np.ndarray, counts: np.ndarray, index: NgramIndex, n: int
+                 ) -> dict[tuple[int, int], np.ndarray]:
+    """Counts (float64) of every sub-span [i, j) of every row; the whole span included."""
     spans: dict[tuple[int, int], np.ndarray] = {(0, n): counts.astype(np.float64)}
-    m = len(counts)
-    for k in range(1, n):
-        starts = [0, n - k] if binary_only else list(range(n - k + 1))
-        starts = sorted(set(starts))
-        query = np.concatenate([keys[:, i:i + k] for i in starts], axis=0)
-        found = parts[k].counts_of(query)
-        for idx, i in enumerate(starts):
-            c = found[idx * m:(idx + 1) * m]
+    wid = index.word_ids(keys)
+    for i in range(n):
+        ids = wid[:, i]
+        for j in range(i + 1, n + 1):
+            if (i, j) == (0, n):
+                break
+            if j > i + 1:
+                ids = index.extend(j - i, ids, wid[:, j - 1])
+            c = index.counts[j - i - 1][ids]
             if (c < counts).any():
                 raise MaskprepError(
-                    f"corrupt counts: a {k}-gram is counted less often than a {n}-gram that contains "
+                    f"corrupt counts: a {j - i}-gram is counted less often than a {n}-gram that contains "
                     "it; re-run maskprep count")
-            spans[(i, i + k)] = c.astype(np.float64)
+            spans[(i, j)] = c.astype(np.float64)
     return spans
 
 
-def _score_chunk(measure: Measure, n: int, keys: np.ndarray, counts: np.ndarray,
-                 parts: Mapping[int, CountTable], N: int) -> np.ndarray:
+def _score_chunk(measure: Measure, n: int, spans: Mapping[tuple[int, int], np.ndarray], N: int) -> np.ndarray:
     log_n = np.log(float(N))
     if measure in (Measure.LLR, Measure.T):
-        spans = _span_counts(keys, counts, parts, n, binary_only=True)
         c = spans[(0, n)]
         best = np.full(len(c), np.inf)
         for s in range(1, n):
             f = _llr if measure is Measure.LLR else _t_score
             best = np.minimum(best, f(c, spans[(0, s)], spans[(s, n)], float(N)))
         return best
-    spans = _span_counts(keys, counts, parts, n, binary_only=False)
     logp = {span: np.log(c) - log_n for span, c in spans.items()}
     if measure is Measure.PMI_NAIVE:
         return logp[(0, n)] - sum(logp[(i, i + 1)] for i in range(n))

@@ -17,7 +17,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from maskprep.cohesion import CountTable, Measure, binary_split_pmi, score_ngrams
+from maskprep.cohesion import (CountTable, Measure, NgramIndex, binary_split_pmi, score_ngrams,
+                               score_with_split_pmi)
 from maskprep.errors import MaskprepError
 
 LN2 = math.log(2.0)
@@ -168,6 +169,8 @@ def test_pmi_is_min_over_all_segmentations(docs):
         ours = score_ngrams("pmi", n=n, keys=keys, counts=counts, tables=tables, N=N)
         naive = score_ngrams("pmi-naive", n=n, keys=keys, counts=counts, tables=tables, N=N)
         split = binary_split_pmi(n=n, keys=keys, counts=counts, tables=tables, N=N)
+        both = score_with_split_pmi("pmi", n=n, keys=keys, counts=counts, tables=tables, N=N)
+        assert np.array_equal(both[0], ours) and np.array_equal(both[1], split)
         for g, o, nv, sp in zip(grams, ours, naive, split):
             lp = lambda part: math.log(c[len(part)][part] / N)  # noqa: E731
             full = lp(g)
@@ -244,9 +247,41 @@ def test_count_table_lookup_is_exact(rows, extra):
     assert got.tolist() == [ref.get(tuple(r), -1) for r in queries]
 
 
+@settings(max_examples=50, deadline=None)
+@given(st.lists(st.lists(st.integers(0, 6), min_size=1, max_size=30), min_size=1, max_size=5),
+       st.lists(st.lists(st.integers(0, 7), min_size=3, max_size=3), max_size=20))
+def test_ngram_index_lookup_is_exact(docs, extra):
+    # Source: common practice (exact lookup compared with a Python Counter).
+    words = [[f"w{i}" for i in d] for d in docs]
+    c = count_ngrams(words, 3)
+    index = NgramIndex.build({k: as_arrays(list(c[k]), c[k], k) for k in (1, 2, 3)})
+    for k in (1, 2, 3):
+        grams = list(c[k])
+        if grams:
+            keys, counts = as_arrays(grams, c[k], k)
+            assert index.counts_of(keys).tolist() == counts.tolist()
+    for q in extra:  # present rows give their count; absent rows raise, never count as zero
+        g = tuple(f"w{i}" for i in q)
+        keys = np.array([[word_key(w) for w in g]], np.uint64)
+        if g in c[3]:
+            assert index.counts_of(keys).tolist() == [c[3][g]]
+        else:
+            with pytest.raises(MaskprepError, match="corrupt counts.*missing"):
+                index.counts_of(keys)
+
+
 def test_duplicate_rows_and_missing_parts_raise():
     with pytest.raises(MaskprepError, match="duplicate key rows"):
         CountTable.build(np.array([[1, 2], [1, 2]], np.uint64), np.array([3, 4]))
+    with pytest.raises(MaskprepError, match="duplicate key rows"):
+        NgramIndex.build({1: (np.array([[1], [2]], np.uint64), np.array([3, 4])),
+                          2: (np.array([[1, 2], [1, 2]], np.uint64), np.array([1, 1]))})
+    with pytest.raises(MaskprepError, match="duplicate word keys"):
+        NgramIndex.build({1: (np.array([[1], [1]], np.uint64), np.array([3, 4]))})
+    with pytest.raises(MaskprepError, match="3-gram counts are needed"):
+        score_ngrams("pmi", n=4, keys=np.array([[1, 1, 1, 1]], np.uint64), counts=np.array([1]),
+                     tables={1: (np.array([[1]], np.uint64), np.array([9])),
+                             2: (np.array([[1, 1]], np.uint64), np.array([5]))}, N=10)
     t1 = CountTable.build(np.array([[1]], np.uint64), np.array([5]))
     with pytest.raises(MaskprepError, match="missing from the 1-gram counts"):
         score_ngrams("pmi", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([3]), tables={1: t1}, N=10)
@@ -272,8 +307,11 @@ def test_tuple_tables_and_chunking_agree(shakespeare_counts, monkeypatch):
     pairs = {k: (t.keys, t.counts) for k, t in tables.items()}
     a = score_ngrams("pmi", n=3, keys=keys, counts=counts, tables=tables, N=N)
     monkeypatch.setattr(cohesion, "_CHUNK_ROWS", 97)
+    monkeypatch.setattr(cohesion, "_CACHE_ENTRIES", 10)  # exercise the sorted-query search too
     b = score_ngrams("pmi", n=3, keys=keys, counts=counts, tables=pairs, N=N)
-    assert np.array_equal(a, b)
+    index = NgramIndex.build(pairs)
+    c = score_ngrams("pmi", n=3, keys=keys, counts=counts, tables=index, N=N)
+    assert np.array_equal(a, b) and np.array_equal(a, c)
 
 
 def test_measure_help_text_names_every_range():
