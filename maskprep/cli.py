@@ -294,6 +294,115 @@ def verify_cmd(directory: str) -> None:
 
 # ---------------------------------------------------------------- compare / run / demo (lead)
 
+def _parse_sample(text: str) -> int | None:
+    if text.strip().lower() == "all":
+        return None
+    t = text.strip().replace("_", "").replace(",", "")
+    if not t.isdigit() or int(t) < 1:
+        raise MaskprepError(f"--sample: expected a whole number of sequences >= 1 or 'all', got {text!r}")
+    return int(t)
+
+
+@cli.command("compare", context_settings=CONTEXT)
+@click.argument("corpus", nargs=-1, required=True)
+@click.option("-t", "--tokenizer", required=True, type=click.Path(), help="The tokenizer.json to encode with.")
+@click.option("--units", "units_path", type=click.Path(), default=None,
+              help="Unit vocabulary (units.parquet from maskprep units): enables pmi and within-unit leakage.")
+@click.option("--strategies", default=None, metavar="S,S,...",
+              help="Strategies to compare, from token,word,span,pmi (default: all; pmi only with --units).")
+@click.option("--rate", type=float, default=0.15, show_default=True,
+              help="Share of maskable (non-special) tokens made targets, per sequence.")
+@click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
+              help="How targets are shown: mask token, random token, unchanged.")
+@click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
+              help="Draw the mix per target token or once per masked unit.")
+@click.option("--span-p", type=float, default=0.2, show_default=True, help="span: geometric parameter of span lengths.")
+@click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words.")
+@click.option("--seq-len", type=int, default=128, show_default=True, help="Tokens per sequence, special tokens included.")
+@click.option("--no-pack", is_flag=True, help="One document per sequence (split when too long) instead of packing.")
+@click.option("--sample", default="10000", show_default=True, metavar="N|all",
+              help="Most sequences compared, spread over the corpus by size; 'all' for every sequence.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Seed of all random draws (as for maskprep mask).")
+@click.option("--examples", type=int, default=3, show_default=True, help="Example sequences shown in compare.html.")
+@click.option("-o", "--output", required=True, type=click.Path(file_okay=False),
+              help="Directory for compare.json and compare.html.")
+@corpus_options
+@click.pass_context
+@user_errors
+def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, units_path: str | None,
+                strategies: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
+                seq_len: int, no_pack: bool, sample: str, seed: int, examples: int, output: str,
+                **copts: Any) -> None:
+    """Mask the same sequences of CORPUS with each strategy and compare what they hide.
+
+    Per strategy: actual masking rate, unit lengths, multi-word share, within-word and
+    within-unit leakage, easy-target share, targets by word-frequency band and per
+    sequence. Writes DIR/compare.json and DIR/compare.html and prints a table.
+    """
+    from .compare import CompareConfig, compare_strategies, format_compare_table
+
+    config = CompareConfig(strategies=strategies, rate=rate, mix=mix, mix_per=mix_per, span_p=span_p,
+                           span_max=span_max, seq_len=seq_len, pack=not no_pack, seed=seed,
+                           sample=_parse_sample(sample), examples=examples)
+    doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,
+                             corpus_options=make_corpus_options(**copts), executor=executor_from(ctx))
+    click.echo(format_compare_table(doc))
+    click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")
+
+
+def _print_run(result: Any, *, quiet: bool) -> None:
+    from .compare import format_compare_table
+    from .pipeline import format_run_summary
+
+    click.echo(format_run_summary(result))
+    if result.compare is not None:
+        click.echo("")
+        click.echo(format_compare_table(result.compare))
+    ran = sum(s.status == "ran" for s in result.stages)
+    click.echo(f"\n{ran} stage(s) ran, {len(result.stages) - ran} up to date; outputs in {result.output}"
+               f" (summary: {result.output / 'pipeline.json'})")
+
+
+@cli.command("run", context_settings=CONTEXT)
+@click.argument("config", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", type=click.Path(file_okay=False), default=None,
+              help="Output directory (overrides the file's output key).")
+@click.option("--force", is_flag=True, help="Rerun every stage, even those that are up to date.")
+@click.pass_context
+@user_errors
+def run_cmd(ctx: click.Context, config: str, output: str | None, force: bool) -> None:
+    """Run the whole pipeline described by CONFIG (a TOML file).
+
+    Stages (tables): corpus, tokenizer, audit, count, units, mask, compare. A stage
+    whose inputs, options and code are unchanged is skipped; a changed option reruns
+    that stage and the stages downstream of it. See sample_corpus/*.toml for examples.
+    """
+    from .pipeline import run_pipeline
+
+    result = run_pipeline(config, output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
+    _print_run(result, quiet=is_quiet(ctx))
+
+
+@cli.command("demo", context_settings=CONTEXT)
+@click.option("-o", "--output", type=click.Path(file_okay=False), default="maskprep-demo", show_default=True,
+              help="Output directory.")
+@click.option("--force", is_flag=True, help="Rerun every stage, even those that are up to date.")
+@click.pass_context
+@user_errors
+def demo_cmd(ctx: click.Context, output: str, force: bool) -> None:
+    """Run the whole pipeline on the bundled, invented sample corpus (sample_corpus/demo.toml).
+
+    Trains a tokenizer, audits it, counts n-grams, picks PMI units, masks with every
+    strategy and compares them. The sample text is synthetic: its figures show how
+    the tool works, not how real text behaves.
+    """
+    from .pipeline import run_demo
+
+    result = run_demo(output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
+    _print_run(result, quiet=is_quiet(ctx))
+    click.echo("note: the sample corpus is synthetic (templated text with planted terms); do not read its "
+               "figures as properties of real text")
+
 
 def main() -> None:
     """Console-script entry point."""
