@@ -32,7 +32,8 @@ import numpy as np
 from .errors import MaskprepError
 from .io import read_json
 from .masking import IGNORE_LABEL
-from .shards import METADATA_KEY, ShardRecord, ShardSet, file_sha256, open_shards
+from .shards import METADATA_KEY, ShardRecord, file_sha256, open_shards
+from .shardset import ShardSet, to_numpy
 
 __all__ = ["VerifyReport", "verify_shards", "format_examples"]
 
@@ -208,18 +209,8 @@ def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -
     """Batches with a check that every list has exactly L entries (before reshaping)."""
     import pyarrow as pa
 
-    path = ss.directory / record.file
-    if ss.options["format"] == "arrow":
-        reader = pa.ipc.open_file(pa.memory_map(str(path)))
-        parts: Iterator[Any] = (reader.get_batch(i) for i in range(reader.num_record_batches))
-    else:
-        import pyarrow.parquet as pq
-
-        pf = pq.ParquetFile(str(path))
-        parts = (pf.read_row_group(i) for i in range(pf.num_row_groups))
     row0 = 0
-    for part in parts:
-        out: dict[str, np.ndarray] = {}
+    for part in ss.parts(record):
         for name in part.schema.names:
             col = part.column(name)
             if isinstance(col, pa.ChunkedArray):
@@ -230,12 +221,8 @@ def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -
                 if bad is not None:
                     faults.append(f"{record.file} row {row0 + bad}: {name} has {lengths[bad]} entries, not {L}")
                     return
-                out[name] = col.flatten().to_numpy().reshape(len(col), L)
-            else:
-                out[name] = col.to_numpy()
-        out["copy"] = np.full(part.num_rows, record.copy, dtype=np.int32)
         row0 += part.num_rows
-        yield out
+        yield to_numpy(part, seq_len=L, copy=record.copy)
 
 
 # ------------------------------------------------------------------ show

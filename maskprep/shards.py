@@ -30,19 +30,14 @@ Files in SHARDS_DIR:
 
 Every file is written under a temporary name and renamed when complete.
 
-Masking on the fly from ``--dynamic`` shards uses the same sampler, so it
-gives exactly the static rows for the same seed and copy::
+Masking on the fly from ``--dynamic`` shards uses the same sampler
+(`ShardSet.mask`, see `maskprep.shardset` for a training-loop example), so it
+gives exactly the static rows for the same seed and copy. For dynamic span
+masking the spans themselves are those of the shard's copy; only the choice
+of spans and the replacement change with ``copy``.
 
-    shards = open_shards("shards/")
-    for epoch in range(3):
-        for batch in shards:
-            input_ids, labels = shards.mask(batch, copy=epoch)
-            loss = train_step(input_ids, labels, batch["attention_mask"])
-
-For dynamic span masking the spans themselves are those of the shard's copy;
-only the choice of spans and the replacement change with ``copy``.
-
-This module does not verify shards or render them (see `maskprep.shardcheck`).
+This module does not read shards back (see `maskprep.shardset`), verify or render them
+(see `maskprep.shardcheck`).
 """
 
 from __future__ import annotations
@@ -52,7 +47,7 @@ import json
 import shutil
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
-from typing import Any, Iterator, Mapping, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 
@@ -62,7 +57,7 @@ from .masking import MaskingConfig, Strategy, mask_batch, strategy_units
 from .packing import PackingConfig, TaskPacker, check_packing_tokenizer
 from .stats import MaskStats
 
-__all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "ShardSet", "write_shards", "open_shards",
+__all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards", "open_shards",
            "FORMAT_VERSION", "METADATA_KEY"]
 
 FORMAT_VERSION = 1
@@ -505,100 +500,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
 
 # ------------------------------------------------------------------ reading
 
-class ShardSet:
-    """Shards of one directory, read back as numpy batches or a pyarrow dataset.
+def open_shards(directory: str | Path) -> Any:
+    """Open a finished shards directory (a `maskprep.shardset.ShardSet`): ``for batch in open_shards("shards/"): ...``."""
+    from .shardset import ShardSet
 
-    Iterating yields one dict per record batch (Arrow) or row group (Parquet):
-    2-D ``input_ids`` / ``labels`` or ``unit_ids`` (int32) and ``attention_mask``
-    (int8), 1-D ``sequence_id`` (uint64) and ``copy`` (int32).
-
-    >>> shards = open_shards("shards/")  # doctest: +SKIP
-    >>> next(iter(shards))["input_ids"].shape  # doctest: +SKIP
-    (1024, 128)
-    """
-
-    def __init__(self, directory: str | Path) -> None:
-        self.directory = Path(directory)
-        self.manifest = ShardManifest.read(self.directory)
-        self.options = dict(self.manifest.options)
-        self.dynamic = bool(self.options["dynamic"])
-        self.files = [self.directory / s.file for s in self.manifest.shards]
-
-    def __len__(self) -> int:
-        return sum(s.rows for s in self.manifest.shards)
-
-    def __iter__(self) -> Iterator[dict[str, np.ndarray]]:
-        for record in self.manifest.shards:
-            yield from self.file_batches(record)
-
-    def file_batches(self, record: ShardRecord) -> Iterator[dict[str, np.ndarray]]:
-        """Batches of one shard file (see the class docs)."""
-        import pyarrow as pa
-
-        path = self.directory / record.file
-        if not path.is_file():
-            raise MaskprepError(f"{path}: shard listed in the manifest is missing")
-        L = int(self.options["seq_len"])
-        if self.options["format"] == "arrow":
-            reader = pa.ipc.open_file(pa.memory_map(str(path)))
-            parts = (reader.get_batch(i) for i in range(reader.num_record_batches))
-        else:
-            import pyarrow.parquet as pq
-
-            pf = pq.ParquetFile(str(path))
-            parts = (pf.read_row_group(i) for i in range(pf.num_row_groups))
-        for part in parts:
-            out: dict[str, np.ndarray] = {}
-            for name in part.schema.names:
-                col = part.column(name)
-                if isinstance(col, pa.ChunkedArray):
-                    col = col.combine_chunks()
-                if pa.types.is_list(col.type):
-                    out[name] = col.flatten().to_numpy().reshape(len(col), L)
-                else:
-                    out[name] = col.to_numpy()
-            out["copy"] = np.full(part.num_rows, record.copy, dtype=np.int32)
-            yield out
-
-    def dataset(self) -> Any:
-        """The shards as a ``pyarrow.dataset.Dataset`` (in manifest order)."""
-        import pyarrow.dataset as ds
-
-        return ds.dataset([str(f) for f in self.files], format="ipc" if self.options["format"] == "arrow"
-                          else "parquet")
-
-    def masking_config(self) -> MaskingConfig:
-        o = self.options
-        return MaskingConfig(strategy=o["strategy"], rate=o["rate"], mix=tuple(o["mix"]), mix_per=o["mix_per"],
-                             span_p=o["span_p"], span_max=o["span_max"])
-
-    def random_token_ids(self) -> np.ndarray:
-        """The non-special ids random replacements draw from (as when writing)."""
-        tok = self.manifest.tokenizer
-        ids = np.arange(int(tok["vocab_size"]), dtype=np.int32)
-        return ids[~np.isin(ids, np.asarray(tok["special_ids"], dtype=np.int32))]
-
-    def mask(self, batch: Mapping[str, np.ndarray], *, copy: int | None = None,
-             seed: int | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """Mask a batch of dynamic shard rows on the fly: (input_ids, labels).
-
-        `copy` defaults to the rows' own copy (then the result equals the static
-        rows of a run with the same options); pass e.g. the epoch for fresh masks.
-        """
-        if "unit_ids" not in batch:
-            raise MaskprepError(f"{self.directory}: these shards are already masked (static); "
-                                "write them with --dynamic to mask on the fly")
-        if copy is None:
-            copies = np.unique(batch["copy"])
-            if len(copies) != 1:
-                raise MaskprepError("batch mixes rows of several copies; pass copy=")
-            copy = int(copies[0])
-        return mask_batch(batch["input_ids"], batch["unit_ids"], sequence_ids=batch["sequence_id"],
-                          seed=self.options["seed"] if seed is None else seed, copy=copy,
-                          config=self.masking_config(), mask_token_id=int(self.manifest.tokenizer["mask_token_id"]),
-                          random_token_ids=self.random_token_ids())
-
-
-def open_shards(directory: str | Path) -> ShardSet:
-    """Open a finished shards directory: ``for batch in open_shards("shards/"): ...``."""
     return ShardSet(directory)
