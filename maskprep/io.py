@@ -28,6 +28,7 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     os.close(fd)
     tmp_path = Path(tmp)
+    os.chmod(tmp_path, 0o666 & ~_umask())  # mkstemp makes 0600; outputs get the usual permissions
     try:
         yield tmp_path
         os.replace(tmp_path, path)
@@ -35,6 +36,12 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
         with contextlib.suppress(OSError):
             tmp_path.unlink()
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def atomic_write_bytes(path: str | Path, data: bytes) -> None:
