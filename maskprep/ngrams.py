@@ -1,0 +1,655 @@
+"""Exact, streaming, memory-bounded counts of word n-grams: `maskprep count`.
+
+A word is one piece of the tokenizer's pre-tokenization (`EncodedBatch`
+words). Whitespace-only words are dropped (they are no positions and break
+nothing); punctuation-only and special words are not counted and break
+n-grams; n-grams never cross documents. N is the number of counted word
+positions, and every count divides by N.
+
+How: the corpus is split into tasks (`corpus.plan_tasks`). `count_chunk`
+encodes a task batch by batch and counts all n = 1..max_n at once with numpy
+(`spill.count_windows`), buffers the distinct n-grams per coarse key range,
+and when its share of ``--memory`` is used, reduces the buffer and spills one
+sorted run per n to ``COUNTS_DIR/.spill-*/``. Every run is sorted by the
+n-grams' fingerprints, so a key range (fine bucket) is one slice of each run.
+`merge_partition` then reduces one key range of one n at a time, in small
+cache-sized groups, so no process ever holds all keys; pruning by
+``min_count`` happens there, exactly, after all occurrences are summed. The
+driver writes ``ngrams-<n>.parquet`` (count descending, then fingerprint, then
+keys), ``counts.json`` and a copy of the tokenizer, renaming each into place
+only when all are complete; ``counts.json`` is renamed last.
+
+Memory: every task keeps to ``memory / workers``; merges and the final write
+work in blocks of that size. What is not bounded by ``--memory``: one batch
+holds at least one whole document, and the driver keeps the word vocabulary
+(distinct words and their texts) to write the ``text`` column.
+
+It does not score n-grams (cohesion.py) or choose units (units.py).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import errno
+import itertools
+import json
+import os
+import re
+import shutil
+import time
+import uuid
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, iter_batches, plan_tasks, \
+    resolve_inputs
+from .errors import MaskprepError
+from .execute import Executor, map_tasks
+from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, coarse_split, \
+    count_windows, disk_error, fine_bucket, merge_hist, merge_partition, plan_merges, read_rows, reduce_rows
+from .tokenize import SPACE, WORD, EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
+    tokenizer_from_json
+
+__all__ = ["CountConfig", "CountSummary", "ChunkCounter", "count_ngrams", "count_chunk", "merge_partition",
+           "parse_memory", "format_summary", "FORMAT_VERSION", "MIN_TASK_MEMORY", "MAX_N"]
+
+FORMAT_VERSION = 1
+MAX_N = 8
+MIN_TASK_MEMORY = 4 << 20       # below this a task cannot hold a batch and a buffer at once
+TASK_BYTES = 16 << 20           # text files are split into tasks of about this size
+ROW_GROUP = 1 << 17             # rows per Parquet row group (fixed, so files are byte-identical)
+_UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
+          "kib": 1 << 10, "mib": 1 << 20, "gib": 1 << 30, "tib": 1 << 40,
+          "kb": 10 ** 3, "mb": 10 ** 6, "gb": 10 ** 9, "tb": 10 ** 12}
+
+
+def parse_memory(text: str | int, *, option: str = "--memory") -> int:
+    """Bytes from "1GiB", "512MiB", "2G" (K/M/G/T and KiB.. are powers of 1024; KB/MB/GB of 1000) or an int.
+
+    >>> parse_memory("512MiB"), parse_memory("2G"), parse_memory("1.5kb")
+    (536870912, 2147483648, 1500)
+    """
+    if isinstance(text, int) and not isinstance(text, bool):
+        value = text
+    else:
+        m = re.fullmatch(r"\s*(\d+(?:\.\d*)?|\.\d+)\s*([a-zA-Z]*)\s*", str(text))
+        unit = m.group(2).lower() if m else None
+        if m is None or unit not in _UNITS:
+            raise MaskprepError(f"{option}: cannot read {text!r} as a size; write e.g. 1GiB, 512MiB, 2G or a "
+                                "number of bytes")
+        value = int(float(m.group(1)) * _UNITS[unit])
+    if value < MIN_TASK_MEMORY:
+        raise MaskprepError(f"{option}: {text} is too small to make progress; the minimum is "
+                            f"{MIN_TASK_MEMORY >> 20} MiB per worker")
+    return value
+
+
+@dataclass(frozen=True)
+class CountConfig:
+    """What to count: ``CountConfig(max_n=5, min_count=10, memory="1GiB")``.
+
+    `batch_chars` (characters per encoded batch) defaults to a size derived
+    from the memory share; results never depend on it.
+    """
+
+    max_n: int = 5
+    min_count: int = 10
+    memory: str | int = "1GiB"
+    batch_chars: int | None = None
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.max_n, int) or not 1 <= self.max_n <= MAX_N:
+            raise MaskprepError(f"--max-n: expected 1 to {MAX_N}, got {self.max_n}")
+        if not isinstance(self.min_count, int) or self.min_count < 1:
+            raise MaskprepError(f"--min-count: expected a whole number >= 1, got {self.min_count}")
+        if self.batch_chars is not None and self.batch_chars < 1:
+            raise MaskprepError(f"batch_chars: expected a positive number, got {self.batch_chars}")
+        parse_memory(self.memory)
+
+    @property
+    def memory_bytes(self) -> int:
+        return parse_memory(self.memory)
+
+
+@dataclass(frozen=True)
+class ChunkResult:
+    """What one counting task left behind (runs and its word list) and its totals per n."""
+
+    task_index: int
+    runs: list[RunInfo]
+    totals: list[int]
+    words_path: str
+    words: int
+    flushes: int
+    documents: int
+
+
+@dataclass(frozen=True)
+class CountSummary:
+    """Figures of a finished count, as written to counts.json."""
+
+    output: Path
+    N: int
+    max_n: int
+    min_count: int
+    totals: dict[int, int]
+    distinct: dict[int, int]
+    kept: dict[int, int]
+    documents: int
+    spill_runs: int
+    tasks: int
+    seconds: float
+    files: list[str] = field(default_factory=list)
+
+
+# ---------------------------------------------------------------- counting one task
+
+def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Counted words of a batch: keys [M], words left in their run [M], run start offsets [R]."""
+    kinds = batch.word_kinds
+    doc = np.repeat(np.arange(batch.num_docs, dtype=np.int64), np.diff(batch.doc_offsets))
+    keep = kinds != SPACE
+    kept_kinds = kinds[keep]
+    kept_doc = doc[keep]
+    is_word = kept_kinds == WORD
+    continues = np.zeros(len(kept_kinds), bool)
+    continues[1:] = is_word[:-1] & (kept_doc[1:] == kept_doc[:-1])
+    start = (is_word & ~continues)[is_word]
+    wk = batch.word_keys[keep][is_word]
+    run_starts = np.flatnonzero(start)
+    run_ends = np.append(run_starts[1:], len(wk))
+    run_id = np.cumsum(start) - 1
+    rem = run_ends[run_id] - np.arange(len(wk), dtype=np.int64)
+    return wk, rem, run_starts
+
+
+class ChunkCounter:
+    """Count the n-grams of a stream of `EncodedBatch`es within a memory share, spilling sorted runs.
+
+    >>> c = ChunkCounter(info, max_n=5, spill_dir=Path("spill"), share=256 << 20, tag="t0")  # doctest: +SKIP
+    >>> c.add(info.encode(["To be, or not to be"])); result = c.finish()  # doctest: +SKIP
+    """
+
+    def __init__(self, info: TokenizerInfo, *, max_n: int, spill_dir: Path, share: int, tag: str,
+                 block_words: int | None = None) -> None:
+        self.info = info
+        self.max_n = max_n
+        self.spill_dir = spill_dir
+        self.tag = tag
+        self.limit = share // 2
+        self.block_words = block_words or int(np.clip(share // 256, 2048, 1 << 16))
+        self.buffers: list[list[list[np.ndarray]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
+        self.buffer_bytes = 0
+        self.totals = [0] * max_n
+        self.runs: list[RunInfo] = []
+        self.flushes = 0
+        self.vocab: dict[int, str] = {}
+        self._seen_types = 0
+
+    def add(self, batch: EncodedBatch) -> None:
+        """Count one batch (its words' texts are collected from the tokenizer's word types)."""
+        self._collect_words(batch)
+        wk, rem, run_starts = _runs_of(batch)
+        M = len(wk)
+        if M == 0:
+            return
+        run_lens = np.diff(np.append(run_starts, M))
+        for n in range(1, self.max_n + 1):
+            self.totals[n - 1] += int(np.maximum(run_lens - (n - 1), 0).sum())
+        targets = np.arange(self.block_words, M, self.block_words)
+        cuts = run_starts[np.searchsorted(run_starts, targets, side="right") - 1]
+        bounds = np.unique(np.concatenate(([0], cuts, [M])))
+        for a, b in zip(bounds[:-1].tolist(), bounds[1:].tolist()):  # one step per block of ~64k words
+            for n, table in enumerate(count_windows(wk[a:b], rem[a:b], self.max_n), start=1):
+                grouped, offsets = coarse_split(table, n)
+                buf = self.buffers[n - 1]
+                for c in np.flatnonzero(np.diff(offsets)).tolist():
+                    buf[c].append(grouped[offsets[c]:offsets[c + 1]])
+                self.buffer_bytes += grouped.nbytes
+            if self.buffer_bytes >= self.limit:
+                self.flush()
+
+    def flush(self) -> None:
+        """Reduce the buffer and write one sorted run per n."""
+        if self.buffer_bytes == 0:
+            return
+        try:
+            for n in range(1, self.max_n + 1):
+                path = self.spill_dir / f"{self.tag}-r{self.flushes:04d}-n{n}.npy"
+                bucket_rows = np.zeros(FINE_BUCKETS, np.int64)
+                with RunWriter(path, n + 1) as writer:
+                    buf = self.buffers[n - 1]
+                    for c in range(COARSE_BUCKETS):
+                        pieces, buf[c] = buf[c], []
+                        if not pieces:
+                            continue
+                        table = pieces[0] if len(pieces) == 1 else np.concatenate(pieces)
+                        del pieces
+                        out, fp = reduce_rows(table, n)
+                        writer.write(out)
+                        bucket_rows += np.bincount(fine_bucket(fp), minlength=FINE_BUCKETS)
+                offsets = np.concatenate(([0], np.cumsum(bucket_rows)))
+                if writer.rows:
+                    self.runs.append(RunInfo(str(path), n, writer.rows, offsets))
+                else:
+                    path.unlink()
+        except OSError as exc:
+            raise disk_error(exc, self.spill_dir, "spilling n-gram counts") from None
+        self.buffer_bytes = 0
+        self.flushes += 1
+
+    def finish(self, *, task_index: int = 0, documents: int = 0) -> ChunkResult:
+        """Spill what is left and write the task's word list; return the task's result."""
+        self.flush()
+        import pyarrow as pa
+
+        keys = np.fromiter(self.vocab.keys(), dtype=np.uint64, count=len(self.vocab))
+        order = np.argsort(keys, kind="stable")
+        texts = list(self.vocab.values())
+        table = pa.table({"key": pa.array(keys[order]), "text": pa.array([texts[i] for i in order.tolist()],
+                                                                          type=pa.large_string())})
+        path = self.spill_dir / f"{self.tag}-words.arrow"
+        try:
+            with pa.OSFile(str(path), "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
+                w.write_table(table)
+        except OSError as exc:
+            raise disk_error(exc, self.spill_dir, "writing the word list") from None
+        return ChunkResult(task_index, self.runs, self.totals, str(path), len(keys), self.flushes, documents)
+
+    def _collect_words(self, batch: EncodedBatch) -> None:
+        """Texts of the words first seen in this batch; two texts with one key raise."""
+        types = self.info._types
+        size = len(types)
+        if size < self._seen_types:  # the tokenizer's type cache was cleared during this batch
+            self._seen_types = 0
+            self._decode_missing(batch)
+        new = itertools.islice(reversed(types.values()), size - self._seen_types)
+        vocab = self.vocab
+        for wt in new:  # one step per distinct word type, not per occurrence
+            if wt.kind == WORD:
+                prev = vocab.setdefault(wt.key, wt.text)
+                if prev != wt.text:
+                    raise _collision(wt.key, prev, wt.text)
+        self._seen_types = size
+
+    def _decode_missing(self, batch: EncodedBatch) -> None:
+        words = np.flatnonzero(batch.word_kinds == WORD)
+        uniq, first = np.unique(batch.word_keys[words], return_index=True)
+        missing = [i for i, k in enumerate(uniq.tolist()) if k not in self.vocab]
+        wo = batch.word_offsets
+        lists = [batch.ids[wo[w]:wo[w + 1]].tolist() for w in words[first[missing]].tolist()]
+        for i, text in zip(missing, self.info.tokenizer.decode_batch(lists, skip_special_tokens=False)):
+            self.vocab[int(uniq[i])] = text.strip()
+
+    def abort(self) -> None:
+        """Drop the buffer (files are removed with the spill directory)."""
+        self.buffers = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(self.max_n)]
+        self.buffer_bytes = 0
+
+
+def _collision(key: int, a: str, b: str) -> MaskprepError:
+    return MaskprepError(f"word key collision: {a!r} and {b!r} share the 64-bit key {key:#018x}; the counts "
+                         "would merge two different words, so counting stopped (please report this)")
+
+
+def _batch_chars(config: CountConfig, share: int) -> int:
+    return config.batch_chars or int(np.clip(share // 256, 16_384, 1 << 20))
+
+
+def count_chunk(task: CorpusTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
+                corpus_options: CorpusOptions, share: int) -> ChunkResult:
+    """Task function: count one corpus task, spilling runs under `spill_dir`.
+
+    >>> count_chunk(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x", CorpusOptions(), 1 << 28)  # doctest: +SKIP
+    """
+    info = tokenizer_from_json(tokenizer_json)  # a fresh word-type cache per task: its entries give the texts
+    counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,
+                           tag=f"t{task.index:06d}")
+    stats = ReadStats()
+    try:
+        for batch in encode_stream(info, iter_batches(task, corpus_options, stats,
+                                                      batch_chars=_batch_chars(config, share))):
+            counter.add(batch)
+        return counter.finish(task_index=task.index, documents=stats.documents)
+    except BaseException:
+        counter.abort()
+        raise
+
+
+# ---------------------------------------------------------------- words and output files
+
+class _Vocab:
+    """Word key -> canonical text over all tasks; two texts under one key raise."""
+
+    def __init__(self) -> None:
+        import pyarrow as pa
+
+        self.keys = np.zeros(0, np.uint64)
+        self.texts: Any = pa.array([], type=pa.large_string())
+        self._pending: list[Any] = []
+        self._pending_rows = 0
+
+    def add_file(self, path: str) -> None:
+        import pyarrow as pa
+
+        with pa.memory_map(path) as source:
+            table = pa.ipc.open_file(source).read_all()
+        self._pending.append(table)
+        self._pending_rows += table.num_rows
+        if self._pending_rows > len(self.keys):  # merge when the pending words double the vocabulary
+            self.finish()
+
+    def finish(self) -> None:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        if not self._pending:
+            return
+        keys = np.concatenate([self.keys] + [t.column("key").to_numpy() for t in self._pending])
+        texts = pa.concat_arrays([self.texts] + [c for t in self._pending for c in t.column("text").chunks])
+        self._pending, self._pending_rows = [], 0
+        order = np.argsort(keys, kind="stable")
+        keys = keys[order]
+        texts = texts.take(pa.array(order))
+        dup = np.flatnonzero(keys[1:] == keys[:-1])
+        if len(dup):
+            differ = pc.not_equal(texts.take(pa.array(dup)), texts.take(pa.array(dup + 1))).to_numpy(
+                zero_copy_only=False)
+            if differ.any():
+                i = int(dup[np.flatnonzero(differ)[0]])
+                raise _collision(int(keys[i]), texts[i].as_py(), texts[i + 1].as_py())
+            keep = np.ones(len(keys), bool)
+            keep[dup + 1] = False
+            keys, texts = keys[keep], texts.filter(pa.array(keep))
+        self.keys, self.texts = keys, texts
+
+    def join(self, rows: np.ndarray, n: int) -> Any:
+        """The `text` column for rows of word keys: their words' texts joined by one space."""
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        m = rows.shape[0]
+        query = np.ascontiguousarray(rows[:, :n].T).ravel()
+        index = pc.index_in(pa.array(query), value_set=pa.array(self.keys))
+        if index.null_count:
+            raise RuntimeError("internal error: an n-gram word has no text in the vocabulary")
+        words = self.texts.take(index)
+        cols = [words.slice(j * m, m) for j in range(n)]
+        joined = cols[0] if n == 1 else pc.binary_join_element_wise(*cols, pa.scalar(" ", pa.large_string()))
+        return joined.cast(pa.string())
+
+
+class _ParquetSink:
+    """Write rows in order as fixed-size row groups, so the file does not depend on how rows arrive."""
+
+    def __init__(self, path: Path, n: int, vocab: _Vocab) -> None:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        self.n = n
+        self.vocab = vocab
+        self.schema = pa.schema([("text", pa.string()), ("count", pa.int64())]
+                                + [(f"w{j}", pa.uint64()) for j in range(n)])
+        self.writer = pq.ParquetWriter(str(path), self.schema, compression="zstd", use_dictionary=False)
+        self.pending: list[Any] = []
+        self.pending_rows = 0
+
+    def append(self, rows: np.ndarray) -> None:
+        import pyarrow as pa
+
+        if rows.shape[0] == 0:
+            return
+        n = self.n
+        arrays = [self.vocab.join(rows, n), pa.array(rows[:, n].astype(np.int64))]
+        arrays += [pa.array(np.ascontiguousarray(rows[:, j])) for j in range(n)]
+        self.pending.append(pa.Table.from_arrays(arrays, schema=self.schema))
+        self.pending_rows += rows.shape[0]
+        if self.pending_rows >= ROW_GROUP:
+            self._emit(final=False)
+
+    def _emit(self, *, final: bool) -> None:
+        import pyarrow as pa
+
+        table = pa.concat_tables(self.pending)
+        k = table.num_rows if final else (table.num_rows // ROW_GROUP) * ROW_GROUP
+        if k:
+            self.writer.write_table(table.slice(0, k), row_group_size=ROW_GROUP)
+        rest = table.slice(k)
+        self.pending = [rest] if rest.num_rows else []
+        self.pending_rows = rest.num_rows
+
+    def close(self) -> None:
+        if self.pending_rows:
+            self._emit(final=True)
+        self.writer.close()
+
+
+def _count_desc_order(counts: np.ndarray) -> np.ndarray:
+    """Stable order by count descending (a plain sort with the index packed in the low bits)."""
+    m = len(counts)
+    if m == 0:
+        return np.zeros(0, np.intp)
+    hi, lo = int(counts.max()), int(counts.min())
+    ib = max(1, (m - 1).bit_length())
+    if (hi - lo).bit_length() + ib > 64:
+        return np.argsort(-counts.astype(np.int64), kind="stable")
+    packed = (np.uint64(hi) - counts.astype(np.uint64)) << np.uint64(ib) | np.arange(m, dtype=np.uint64)
+    packed.sort()
+    return (packed & np.uint64((1 << ib) - 1)).astype(np.intp)
+
+
+def _write_table(path: Path, n: int, parts: list[PartitionResult], vocab: _Vocab, band_rows: int) -> None:
+    """Write the kept rows of one n, count descending, ties in canonical (fingerprint, keys) order.
+
+    Partitions hold kept rows in canonical order, so a stable sort by count of
+    their concatenation is the final order. Rows are handled in bands of count
+    values of at most `band_rows` rows; a single count value with more rows is
+    already in order and is streamed.
+    """
+    values, rows = merge_hist([p.hist_values for p in parts], [p.hist_rows for p in parts])
+    bands: list[tuple[int, int]] = []
+    acc = 0
+    for v, r in zip(values[::-1].tolist(), rows[::-1].tolist()):  # one step per distinct count value
+        if bands and acc + r <= band_rows:
+            bands[-1] = (bands[-1][0], v)
+            acc += r
+        else:
+            bands.append((v, v))
+            acc = r
+    sink = _ParquetSink(path, n, vocab)
+    try:
+        for hi, lo in bands:
+            pieces = []
+            for p in parts:
+                for s in range(0, p.kept, band_rows):
+                    block = read_rows(p.path, n + 1, s, min(s + band_rows, p.kept))
+                    if len(bands) > 1:
+                        c = block[:, n]
+                        block = block[(c >= np.uint64(lo)) & (c <= np.uint64(hi))]
+                    if hi == lo:
+                        sink.append(block)
+                    else:
+                        pieces.append(block)
+            if hi != lo and pieces:
+                table = np.concatenate(pieces)
+                del pieces
+                sink.append(table[_count_desc_order(table[:, n])])
+    finally:
+        sink.close()
+
+
+# ---------------------------------------------------------------- the driver
+
+def _check_output(output: Path, overwrite: bool) -> None:
+    if output.exists() and not output.is_dir():
+        raise MaskprepError(f"-o {output}: is a file; give a directory for the counts")
+    if output.is_dir() and any(output.iterdir()) and not overwrite:
+        raise MaskprepError(f"-o {output}: directory exists and is not empty; pass --overwrite to replace the "
+                            "counts in it, or choose another directory")
+
+
+def _task_megabytes(task: CorpusTask) -> float:
+    if task.end >= 0 and task.fmt in ("txt", "jsonl"):
+        return (task.end - task.start) / 1e6
+    try:
+        return os.path.getsize(task.path) / 1e6
+    except OSError:
+        return 1.0
+
+
+def _publish(staged: Path, output: Path, max_n: int) -> None:
+    """Rename the finished files into place; counts.json (the mark of a finished count) goes last."""
+    (output / "counts.json").unlink(missing_ok=True)
+    for n in range(1, max_n + 1):
+        os.replace(staged / f"ngrams-{n}.parquet", output / f"ngrams-{n}.parquet")
+    for stale in output.glob("ngrams-*.parquet"):
+        m = re.fullmatch(r"ngrams-(\d+)\.parquet", stale.name)
+        if m and int(m.group(1)) > max_n:
+            stale.unlink()
+    os.replace(staged / "tokenizer.json", output / "tokenizer.json")
+    os.replace(staged / "counts.json", output / "counts.json")
+
+
+def _fsynced_text(path: Path, text: str) -> None:
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write(text)
+        fh.flush()
+        os.fsync(fh.fileno())
+
+
+def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo, output: str | Path,
+                 config: CountConfig = CountConfig(), corpus_options: CorpusOptions = CorpusOptions(),
+                 executor: Executor = Executor(), overwrite: bool = False, quiet: bool = False) -> CountSummary:
+    """Count the word n-grams of a corpus exactly into COUNTS_DIR `output`.
+
+    >>> count_ngrams(["plays.txt"], tokenizer="tokenizer.json", output="counts", config=CountConfig(max_n=3))  # doctest: +SKIP
+    CountSummary(output=PosixPath('counts'), N=860226, ...)
+    """
+    started = time.monotonic()
+    output = Path(output)
+    files = resolve_inputs(list(corpus))
+    info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
+    _check_output(output, overwrite)
+    executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
+    memory = config.memory_bytes
+    task_options = dataclasses.replace(corpus_options, chunk_bytes=min(corpus_options.chunk_bytes, TASK_BYTES))
+    tasks = plan_tasks(files, task_options)
+    slots = 1 if executor.dask else executor.workers
+    share = memory // max(1, min(slots, len(tasks)))
+    if share < MIN_TASK_MEMORY:
+        need = MIN_TASK_MEMORY * min(slots, len(tasks))
+        raise MaskprepError(f"--memory {config.memory}: too small to make progress with {min(slots, len(tasks))} "
+                            f"workers; the minimum is {need >> 20} MiB ({MIN_TASK_MEMORY >> 20} MiB per worker); "
+                            "raise --memory or lower --workers")
+    output.mkdir(parents=True, exist_ok=True)
+    if overwrite:
+        for old in output.glob(".spill-*"):
+            shutil.rmtree(old, ignore_errors=True)
+    spill = output / f".spill-{uuid.uuid4().hex[:12]}"
+    spill.mkdir()
+    max_n = config.max_n
+    try:
+        results: list[ChunkResult] = list(map_tasks(
+            count_chunk, [(t, info.json, config, str(spill), task_options, share) for t in tasks],
+            executor=executor, label="count", describe=lambda i: tasks[i].describe(),
+            weights=[_task_megabytes(t) for t in tasks], unit="MB"))
+        vocab = _Vocab()
+        for r in results:
+            vocab.add_file(r.words_path)
+            os.unlink(r.words_path)
+        vocab.finish()
+        totals = [sum(r.totals[n - 1] for r in results) for n in range(1, max_n + 1)]
+        if totals[0] == 0:
+            raise MaskprepError(f"{', '.join(map(str, corpus))}: no words to count (every document is empty, "
+                                "whitespace or punctuation)")
+        jobs: list[MergeJob] = []
+        merge_slots = max(1, slots)
+        for n in range(1, max_n + 1):
+            runs = [run for r in results for run in r.runs if run.n == n]
+            group_rows = int(np.clip(share // (16 * (n + 1) + 64), 4096, 1 << 18))
+            jobs += plan_merges(runs, n, 2 * merge_slots, config.min_count, group_rows, spill)
+        parts: list[PartitionResult] = list(map_tasks(
+            merge_partition, [(j,) for j in jobs], executor=executor, label="merge",
+            describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}"))
+        for r in results:
+            for run in r.runs:
+                os.unlink(run.path)
+        distinct, kept = [0] * max_n, [0] * max_n
+        with_progress = _progress("write", max_n, quiet or executor.quiet)
+        for n in range(1, max_n + 1):
+            mine = [p for p in parts if p.n == n]
+            if sum(p.total for p in mine) != totals[n - 1]:
+                raise RuntimeError(f"internal error: merged {n}-gram occurrences do not add up to the counted total")
+            distinct[n - 1] = sum(p.distinct for p in mine)
+            kept[n - 1] = sum(p.kept for p in mine)
+            band_rows = max(1024, share // (24 * (n + 1) + 96))
+            try:
+                _write_table(spill / f"ngrams-{n}.parquet", n, mine, vocab, band_rows)
+            except OSError as exc:
+                raise disk_error(exc, output, f"writing ngrams-{n}.parquet") from None
+            for p in mine:
+                os.unlink(p.path)
+            with_progress.advance(1)
+        with_progress.finish()
+        documents = sum(r.documents for r in results)
+        meta = {
+            "format_version": FORMAT_VERSION, "N": totals[0], "max_n": max_n, "min_count": config.min_count,
+            "totals": {str(n): totals[n - 1] for n in range(1, max_n + 1)},
+            "distinct": {str(n): distinct[n - 1] for n in range(1, max_n + 1)},
+            "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
+            "documents": documents,
+            "tokenizer_hash": info.hash, "tokenizer_name": info.name,
+            "corpus_fingerprint": corpus_fingerprint(files, corpus_options),
+            "corpus_files": [str(f) for f in files],
+            "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,
+                        "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
+                        "strict": corpus_options.strict},
+            "maskprep_version": _version(),
+        }
+        try:
+            _fsynced_text(spill / "tokenizer.json", info.json)
+            _fsynced_text(spill / "counts.json", json.dumps(meta, indent=2, sort_keys=True) + "\n")
+            _publish(spill, output, max_n)
+        except OSError as exc:
+            raise disk_error(exc, output, "writing the counts") from None
+    finally:
+        shutil.rmtree(spill, ignore_errors=True)
+    rng = range(1, max_n + 1)
+    return CountSummary(output=output, N=totals[0], max_n=max_n, min_count=config.min_count,
+                        totals=dict(zip(rng, totals)), distinct=dict(zip(rng, distinct)),
+                        kept=dict(zip(rng, kept)), documents=documents,
+                        spill_runs=sum(len(r.runs) for r in results), tasks=len(tasks),
+                        seconds=time.monotonic() - started, files=[str(f) for f in files])
+
+
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("maskprep")
+    except PackageNotFoundError:
+        return "unknown"
+
+
+def _progress(label: str, total: int, quiet: bool) -> Any:
+    from .progress import Progress
+
+    return Progress(label, total=total, unit="files", quiet=quiet)
+
+
+def format_summary(summary: CountSummary) -> str:
+    """A short table of the count for the terminal.
+
+    >>> print(format_summary(summary))  # doctest: +SKIP
+    """
+    lines = [f"counted N = {summary.N:,} word positions in {summary.documents:,} documents "
+             f"({summary.tasks} tasks, {summary.spill_runs} sorted runs spilled, {summary.seconds:.1f}s)",
+             f"{'n':>3}  {'occurrences':>14}  {'distinct':>12}  {'kept (count >= ' + str(summary.min_count) + ')':>20}"]
+    for n in range(1, summary.max_n + 1):
+        lines.append(f"{n:>3}  {summary.totals[n]:>14,}  {summary.distinct[n]:>12,}  {summary.kept[n]:>20,}")
+    names = ", ".join(f"ngrams-{n}.parquet" for n in range(1, summary.max_n + 1))
+    lines.append(f"wrote {summary.output}/ ({names}, counts.json, tokenizer.json)")
+    return "\n".join(lines)

@@ -1,0 +1,441 @@
+"""Numpy kernels of exact n-gram counting, and the sorted runs spilled to disk.
+
+Three kernels, all vectorised (no Python loop per word or per n-gram):
+
+- `count_windows`: all n-grams (n = 1..max_n) of a block of word runs, counted
+  exactly with one lexicographic sort of the max_n-word windows;
+- `fingerprint`: an order-sensitive 64-bit mix of a row of word keys, which
+  fixes each n-gram's bucket (its "key range") and its canonical order;
+- `reduce_rows`: merge equal rows of a (rows, n + 1) table of word keys and
+  counts, exactly: rows are grouped by fingerprint and then compared word by
+  word, so two different n-grams are never merged, whatever the hash does.
+
+Tables are uint64 arrays of shape (m, n + 1): columns 0..n-1 are word keys,
+column n is the count. The canonical order of distinct rows is (fingerprint,
+then word keys); it depends only on the set of rows, never on batch sizes,
+spills or workers, which is what makes outputs byte-identical.
+
+Spill runs are plain `.npy` files (readable with ``np.load``) written block by
+block by `RunWriter`; every run is sorted canonically, so the rows of one
+fine bucket (top `FINE_BITS` bits of the fingerprint) are one contiguous slice.
+
+`merge_partition` (a task function) sums the runs of one key range of one n,
+in groups of consecutive fine buckets small enough to stay in cache, prunes
+by min_count and writes the kept rows, still in canonical order.
+
+It does not read corpora, tokenize, or decide when to spill (see ngrams.py).
+"""
+
+from __future__ import annotations
+
+import errno
+import os
+import struct
+from dataclasses import dataclass
+from pathlib import Path
+from typing import BinaryIO
+
+import numpy as np
+
+from .errors import MaskprepError
+
+FINE_BITS = 12                  # fine buckets: the key ranges merges are planned over
+FINE_BUCKETS = 1 << FINE_BITS
+COARSE_BITS = 6                 # coarse buckets: in-memory partitions of the spill buffer
+COARSE_BUCKETS = 1 << COARSE_BITS
+_HEADER_BYTES = 128             # fixed .npy header size, so the shape can be patched at the end
+
+_SEED = np.uint64(0x9E3779B97F4A7C15)
+_MUL1 = np.uint64(0xFF51AFD7ED558CCD)
+_MUL2 = np.uint64(0xC4CEB9FE1A85EC53)
+_S33 = np.uint64(33)
+_S29 = np.uint64(29)
+_U64 = np.dtype("<u8")
+
+
+def fingerprint(keys: np.ndarray) -> np.ndarray:
+    """Order-sensitive 64-bit mix of each row of word keys, uint64 [m].
+
+    >>> f = fingerprint(np.array([[1, 2], [2, 1]], dtype=np.uint64)); bool(f[0] != f[1])
+    True
+    """
+    h = np.full(keys.shape[0], _SEED, dtype=np.uint64)
+    for j in range(keys.shape[1]):  # loop over the <= 8 columns, vectorised over rows
+        h ^= keys[:, j]
+        h *= _MUL1
+        h ^= h >> _S33
+    h *= _MUL2
+    h ^= h >> _S29
+    return h
+
+
+def _bits(x: int) -> int:
+    return max(1, int(x).bit_length())
+
+
+def _differs(t: np.ndarray, ncols: int) -> np.ndarray:
+    """bool [m-1]: row i+1 differs from row i in its first `ncols` columns."""
+    out = t[1:, 0] != t[:-1, 0]
+    for j in range(1, ncols):
+        out |= t[1:, j] != t[:-1, j]
+    return out
+
+
+def reduce_rows(table: np.ndarray, n: int, *, index_bits: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Merge equal n-grams of a (m, n+1) table; return (distinct rows with summed counts, fingerprints).
+
+    Output is in canonical order (fingerprint, then keys). `index_bits` only
+    exists so tests can force fingerprint-prefix collisions.
+
+    >>> reduce_rows(np.array([[5, 1], [7, 2], [5, 3]], dtype=np.uint64), 1)[0][:, 1].tolist() in ([4, 2], [2, 4])
+    True
+    """
+    m = table.shape[0]
+    if m == 0:
+        return np.zeros((0, n + 1), np.uint64), np.zeros(0, np.uint64)
+    fp = fingerprint(table[:, :n])
+    ib = index_bits if index_bits is not None else _bits(m - 1)
+    if ib < _bits(m - 1):
+        raise ValueError("index_bits too small for the table")
+    shift = np.uint64(ib)
+    low = np.uint64((1 << ib) - 1)
+    # Sort fingerprint prefixes with the row index packed into the low bits: a
+    # plain (SIMD) sort of uint64 gives the permutation, much faster than argsort.
+    packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
+    packed.sort()
+    order = (packed & low).astype(np.intp)
+    t = np.take(table, order, axis=0)
+    f = fp[order]
+    if m > 1:
+        same_prefix = (packed[1:] >> shift) == (packed[:-1] >> shift)
+        diff = _differs(t, n)
+        bad = same_prefix & diff
+        if bad.any():
+            # Different n-grams share a fingerprint prefix: order those groups by
+            # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
+            group = np.concatenate(([0], np.cumsum(~same_prefix)))
+            hit = np.isin(group, np.unique(group[1:][bad]))
+            pos = np.flatnonzero(hit)
+            sub = t[pos]
+            perm = np.lexsort([sub[:, j] for j in range(n - 1, -1, -1)] + [f[pos], group[pos]])
+            t[pos] = sub[perm]
+            f[pos] = f[pos][perm]
+            diff = _differs(t, n)
+        starts = np.flatnonzero(np.concatenate(([True], diff)))
+    else:
+        starts = np.zeros(1, np.intp)
+    out = t[starts]
+    if len(starts) < m:
+        out[:, n] = np.add.reduceat(t[:, n], starts)
+    return out, f[starts]
+
+
+def _dense_ids(wk: np.ndarray) -> tuple[np.ndarray, int]:
+    """Ids 1..V of word keys in key order (0 is kept free as the window sentinel)."""
+    m = len(wk)
+    ib = _bits(m - 1)
+    low = np.uint64((1 << ib) - 1)
+    packed = (wk & ~low) | np.arange(m, dtype=np.uint64)
+    packed.sort()
+    order = (packed & low).astype(np.intp)
+    sk = wk[order]
+    if m > 1 and bool((sk[1:] < sk[:-1]).any()):
+        # two keys share their top bits (rare): exact fallback
+        uniq, inverse = np.unique(wk, return_inverse=True)
+        return (inverse.astype(np.uint64) + np.uint64(1)), len(uniq)
+    step = np.empty(m, np.uint64)
+    step[0] = 1
+    np.not_equal(sk[1:], sk[:-1], out=step[1:], casting="unsafe")
+    ids = np.empty(m, np.uint64)
+    ids[order] = np.cumsum(step)
+    return ids, int(ids[order[-1]])
+
+
+def count_windows(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[np.ndarray]:
+    """Count every n-gram (n = 1..max_n) of a block of word runs.
+
+    `wk` uint64 [M]: keys of counted words, runs back to back; `rem` int64 [M]:
+    words left in the run from each position (>= 1). Returns, for each n, a
+    (D_n, n+1) table of the distinct n-grams and their counts.
+
+    >>> [t[:, -1].tolist() for t in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
+    [[3], [2]]
+    """
+    # Performance: each block (<= 2**16 words by default) is small enough to
+    # stay in cache. Words get dense ids (b bits); windows of max_n ids are
+    # packed several to a uint64 beside the position index, sorted with numpy's
+    # SIMD sort (no argsort), and re-ranked to a dense code when the next
+    # column would not fit. One lexicographic order of the max_n-windows then
+    # serves every n: the groups of n-grams are the runs of equal first n ids,
+    # found with one vectorised comparison per n. Cost: ~2-3 sorts of M plus
+    # O(M * max_n) linear passes, independent of how many n-grams are distinct.
+    M = len(wk)
+    if M == 0:
+        return [np.zeros((0, n + 1), np.uint64) for n in range(1, max_n + 1)]
+    ids, V = _dense_ids(wk)
+    b = _bits(V)
+    ib = _bits(M - 1)
+    room = 64 - ib
+    padded = np.zeros(M + max_n, np.uint64)
+    padded[:M] = ids
+    cols = [padded[:M]]
+    for j in range(1, max_n):
+        cols.append(np.where(rem > j, padded[j:j + M], np.uint64(0)))
+    index = np.arange(M, dtype=np.uint64)
+    low = np.uint64((1 << ib) - 1)
+    code = np.zeros(M, np.uint64)
+    cbits = 0
+    j = 0
+    order = np.arange(M, dtype=np.intp)
+    while j < max_n:
+        packed_any = False
+        while j < max_n and (cbits + b <= room or not packed_any):
+            if cbits + b > 64:
+                raise OverflowError("n-gram block too large to pack; lower the batch size")
+            code = (code << np.uint64(b)) | cols[j] if cbits else cols[j].copy()
+            cbits += b
+            j += 1
+            packed_any = True
+        if cbits + ib <= 64:
+            srt = (code << np.uint64(ib)) | index
+            srt.sort()
+            order = (srt & low).astype(np.intp)
+            sorted_code = srt >> np.uint64(ib)
+        else:  # very long runs only: exact but slower
+            order = np.argsort(code, kind="stable")
+            sorted_code = code[order]
+        if j < max_n:
+            step = np.empty(M, np.uint64)
+            step[0] = 0
+            np.not_equal(sorted_code[1:], sorted_code[:-1], out=step[1:], casting="unsafe")
+            rank = np.cumsum(step)
+            code = np.empty(M, np.uint64)
+            code[order] = rank
+            cbits = _bits(int(rank[-1]))
+    out: list[np.ndarray] = []
+    differs = np.zeros(M - 1, bool)
+    for n in range(1, max_n + 1):
+        col = cols[n - 1][order]
+        differs |= col[1:] != col[:-1]
+        starts = np.flatnonzero(np.concatenate(([True], differs)))
+        counts = np.diff(np.append(starts, M))
+        valid = col[starts] != 0
+        rep = order[starts[valid]]
+        table = np.empty((len(rep), n + 1), np.uint64)
+        for k in range(n):
+            table[:, k] = wk[rep + k]
+        table[:, n] = counts[valid]
+        out.append(table)
+    return out
+
+
+def coarse_split(table: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Group a table by coarse bucket; return (grouped table, bucket offsets [COARSE_BUCKETS + 1])."""
+    bucket = (fingerprint(table[:, :n]) >> np.uint64(64 - COARSE_BITS)).astype(np.uint8)
+    order = np.argsort(bucket, kind="stable")
+    offsets = np.zeros(COARSE_BUCKETS + 1, np.int64)
+    np.cumsum(np.bincount(bucket, minlength=COARSE_BUCKETS), out=offsets[1:])
+    return np.take(table, order, axis=0), offsets
+
+
+def fine_bucket(fp: np.ndarray) -> np.ndarray:
+    """Fine bucket (key range) of each fingerprint: its top FINE_BITS bits."""
+    return (fp >> np.uint64(64 - FINE_BITS)).astype(np.int64)
+
+
+# ---------------------------------------------------------------- run files
+
+def write_block(fh: BinaryIO, block: np.ndarray) -> None:
+    """Append the bytes of a uint64 block to an open spill file (the one place spills write)."""
+    fh.write(memoryview(np.ascontiguousarray(block, dtype=_U64)).cast("B"))
+
+
+def _npy_header(rows: int, cols: int) -> bytes:
+    text = "{'descr': '<u8', 'fortran_order': False, 'shape': (%d, %d), }" % (rows, cols)
+    body = text.ljust(_HEADER_BYTES - 10 - 1) + "\n"
+    return b"\x93NUMPY\x01\x00" + struct.pack("<H", len(body)) + body.encode("latin1")
+
+
+class RunWriter:
+    """Stream a (rows, cols) uint64 `.npy` file block by block.
+
+    >>> with RunWriter(Path("run.npy"), 3) as w: w.write(np.zeros((2, 3), np.uint64))  # doctest: +SKIP
+    """
+
+    def __init__(self, path: Path, cols: int) -> None:
+        self.path = path
+        self.cols = cols
+        self.rows = 0
+        self._fh: BinaryIO | None = open(path, "wb")
+        self._fh.write(_npy_header(0, cols))
+
+    def write(self, block: np.ndarray) -> None:
+        if block.shape[0] == 0:
+            return
+        assert self._fh is not None and block.shape[1] == self.cols
+        write_block(self._fh, block)
+        self.rows += block.shape[0]
+
+    def close(self) -> None:
+        if self._fh is None:
+            return
+        fh, self._fh = self._fh, None
+        try:
+            fh.seek(0)
+            fh.write(_npy_header(self.rows, self.cols))
+        finally:
+            fh.close()
+
+    def abort(self) -> None:
+        if self._fh is not None:
+            self._fh.close()
+            self._fh = None
+        try:
+            os.unlink(self.path)
+        except OSError:
+            pass
+
+    def __enter__(self) -> "RunWriter":
+        return self
+
+    def __exit__(self, exc_type: object, *rest: object) -> None:
+        if exc_type is None:
+            self.close()
+        else:
+            self.abort()
+
+
+def read_rows(path: str | Path, cols: int, start: int, stop: int) -> np.ndarray:
+    """Rows [start, stop) of a run file, read into memory (no mapping, so RSS stays bounded).
+
+    >>> read_rows("run.npy", 3, 0, 2).shape  # doctest: +SKIP
+    (2, 3)
+    """
+    count = max(0, stop - start)
+    if count == 0:
+        return np.zeros((0, cols), np.uint64)
+    with open(path, "rb") as fh:
+        fh.seek(_HEADER_BYTES + start * cols * 8)
+        data = np.fromfile(fh, dtype=_U64, count=count * cols)
+    if data.size != count * cols:
+        raise OSError(f"{path}: spill file is truncated")
+    return data.reshape(count, cols)
+
+
+
+# ---------------------------------------------------------------- runs and their merge
+
+@dataclass(frozen=True)
+class RunInfo:
+    """One sorted spill run of one n: its file, rows and fine-bucket offsets [FINE_BUCKETS + 1]."""
+
+    path: str
+    n: int
+    rows: int
+    offsets: np.ndarray
+
+
+@dataclass(frozen=True)
+class PartitionResult:
+    """One merged key range of one n: kept rows written to `path`, and figures before pruning."""
+
+    n: int
+    path: str
+    kept: int
+    distinct: int
+    total: int
+    hist_values: np.ndarray
+    hist_rows: np.ndarray
+
+
+@dataclass(frozen=True)
+class MergeJob:
+    """Arguments of one `merge_partition` task."""
+
+    n: int
+    sources: list[tuple[str, np.ndarray]]  # (run path, its offsets for fine buckets b0..b1)
+    min_count: int
+    group_rows: int
+    out_path: str
+
+
+def disk_error(exc: OSError, where: Path, doing: str) -> MaskprepError:
+    if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+        return MaskprepError(f"{where}: no space left on device while {doing}; free disk space, write "
+                             "COUNTS_DIR (-o) on a larger disk, or raise --memory so fewer runs are spilled "
+                             "(temporary files were removed)")
+    return MaskprepError(f"{where}: cannot write while {doing} ({exc.strerror or exc})")
+
+
+# ---------------------------------------------------------------- merging one key range
+
+def merge_partition(job: MergeJob) -> PartitionResult:
+    """Task function: sum the runs of one key range of one n exactly, prune, write kept rows.
+
+    >>> merge_partition(MergeJob(2, [("t0-r0000-n2.npy", offsets)], 10, 1 << 18, "kept.npy"))  # doctest: +SKIP
+    """
+    n = job.n
+    if job.sources:
+        per_bucket = sum(np.diff(off) for _, off in job.sources)
+    else:
+        per_bucket = np.zeros(0, np.int64)
+    # greedy groups of consecutive buckets of at most group_rows rows (at least one bucket)
+    groups: list[tuple[int, int]] = []
+    start, acc = 0, 0
+    for b, rows in enumerate(per_bucket.tolist()):
+        if acc and acc + rows > job.group_rows:
+            groups.append((start, b))
+            start, acc = b, 0
+        acc += rows
+    if acc:
+        groups.append((start, len(per_bucket)))
+    distinct = total = 0
+    hist_v: list[np.ndarray] = []
+    hist_r: list[np.ndarray] = []
+    try:
+        with RunWriter(Path(job.out_path), n + 1) as writer:
+            for s0, s1 in groups:
+                parts = [read_rows(path, n + 1, int(off[s0]), int(off[s1])) for path, off in job.sources
+                         if off[s1] > off[s0]]
+                table = parts[0] if len(parts) == 1 else np.concatenate(parts)
+                del parts
+                out, _ = reduce_rows(table, n)
+                del table
+                counts = out[:, n]
+                distinct += len(out)
+                total += int(counts.sum())
+                kept = out[counts >= np.uint64(job.min_count)]
+                writer.write(kept)
+                v, r = np.unique(kept[:, n], return_counts=True)
+                hist_v.append(v)
+                hist_r.append(r)
+            kept_rows = writer.rows
+    except OSError as exc:
+        raise disk_error(exc, Path(job.out_path).parent, "merging spilled runs") from None
+    values, rows = merge_hist(hist_v, hist_r)
+    return PartitionResult(n, job.out_path, kept_rows, distinct, total, values, rows)
+
+
+def merge_hist(values: list[np.ndarray], rows: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    if not values:
+        return np.zeros(0, np.uint64), np.zeros(0, np.int64)
+    v, inv = np.unique(np.concatenate(values), return_inverse=True)
+    return v, np.bincount(inv.ravel(), weights=np.concatenate(rows), minlength=len(v)).astype(np.int64)
+
+
+def plan_merges(runs: list[RunInfo], n: int, parts: int, min_count: int, group_rows: int,
+                 spill_dir: Path) -> list[MergeJob]:
+    """Split the fine buckets of one n into `parts` ranges of about equal rows."""
+    if not runs:
+        return []
+    per_bucket = sum(np.diff(r.offsets) for r in runs)
+    cum = np.cumsum(per_bucket)
+    total = int(cum[-1])
+    parts = max(1, min(parts, -(-total // 65536)))
+    cuts = np.searchsorted(cum, [total * k // parts for k in range(1, parts)], side="right")
+    edges = np.unique(np.concatenate(([0], cuts, [FINE_BUCKETS]))).tolist()
+    jobs = []
+    for p, (b0, b1) in enumerate(zip(edges[:-1], edges[1:])):
+        sources = [(r.path, r.offsets[b0:b1 + 1].copy()) for r in runs if r.offsets[b1] > r.offsets[b0]]
+        jobs.append(MergeJob(n, sources, min_count, group_rows, str(spill_dir / f"kept-n{n}-p{p:04d}.npy")))
+    return jobs
