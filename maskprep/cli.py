@@ -174,6 +174,40 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
 
 # ---------------------------------------------------------------- count (ngrams engineer)
 
+@cli.command("count", context_settings=CONTEXT)
+@click.argument("corpus", nargs=-1, required=True)
+@click.option("-t", "--tokenizer", required=True, type=click.Path(),
+              help="The tokenizer.json whose pre-tokenization defines the words.")
+@click.option("-o", "--output", required=True, type=click.Path(), help="COUNTS_DIR to write.")
+@click.option("--max-n", type=int, default=5, show_default=True, help="Longest n-gram to count (1 to 8).")
+@click.option("--min-count", type=int, default=10, show_default=True,
+              help="Keep n-grams seen at least this often (applied exactly, after all counts are summed).")
+@click.option("--memory", default="1GiB", show_default=True, metavar="SIZE",
+              help="Memory for counting, shared by the workers; beyond it sorted runs spill to COUNTS_DIR. "
+                   "K/M/G/T and KiB..TiB are powers of 1024, KB/MB/GB/TB of 1000, a plain number is bytes.")
+@click.option("--overwrite", is_flag=True, help="Replace the counts in an existing, non-empty COUNTS_DIR.")
+@corpus_options
+@click.pass_context
+@user_errors
+def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output: str, max_n: int, min_count: int,
+              memory: str, overwrite: bool, **copts: Any) -> None:
+    """Count word n-grams of CORPUS exactly, in bounded memory.
+
+    Words are the tokenizer's pre-tokenization pieces. N-grams never contain or
+    span punctuation-only words and never cross documents. Writes
+    COUNTS_DIR/ngrams-<n>.parquet (text, count, w0..), counts.json (N, totals,
+    distinct and kept per n, corpus fingerprint, tokenizer hash) and a copy of
+    the tokenizer.
+    """
+    from .ngrams import CountConfig, count_ngrams, format_summary
+
+    config = CountConfig(max_n=max_n, min_count=min_count, memory=memory)
+    summary = count_ngrams(list(corpus), tokenizer=tokenizer, output=Path(output), config=config,
+                           corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
+                           overwrite=overwrite, quiet=is_quiet(ctx))
+    click.echo(format_summary(summary))
+
+
 # ---------------------------------------------------------------- units (units engineer)
 
 # ---------------------------------------------------------------- mask / show / verify (shards engineer)
