@@ -39,8 +39,8 @@ from .segment import check_seed
 from .stats import MaskStats
 from .targetstats import TOP_WORDS, TargetStats, targets_per_sequence
 
-__all__ = ["CompareConfig", "compare_strategies", "parse_strategies", "format_compare_table", "ALL_STRATEGIES",
-           "DEFAULT_SAMPLE"]
+__all__ = ["CompareConfig", "compare_strategies", "parse_strategies", "format_compare_table", "sample_quotas",
+           "resolve_strategies", "ALL_STRATEGIES", "DEFAULT_SAMPLE"]
 
 ALL_STRATEGIES: tuple[Strategy, ...] = (Strategy.TOKEN, Strategy.WORD, Strategy.SPAN, Strategy.PMI)
 DEFAULT_SAMPLE = 10_000

@@ -33,7 +33,8 @@ from pathlib import Path
 from typing import Any, Callable, Sequence
 
 from .errors import MaskprepError
-from .io import atomic_write_json, read_json
+from .io import atomic_write_json as write_json
+from .io import read_json
 from .runconfig import RunConfig, load_run_config
 
 __all__ = ["StageResult", "RunResult", "run_pipeline", "run_demo", "sample_corpus_dir", "code_version",
@@ -78,8 +79,9 @@ def code_version() -> str:
     True
     """
     if not _CODE:
-        from . import __version__
+        from .shards import _version
 
+        __version__ = _version()
         h = hashlib.sha256()
         for p in sorted(Path(__file__).parent.glob("*.py")):
             h.update(p.name.encode() + b"\0" + p.read_bytes() + b"\0")
@@ -138,7 +140,7 @@ class _Runner:
         start = time.monotonic()
         files = sorted(run(d))
         seconds = time.monotonic() - start
-        atomic_write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
+        write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
                                    "inputs": inputs, "code": code_version(), "files": files})
         result = StageResult(name, "ran", seconds, d, fp)
         self._log(result)
@@ -167,7 +169,7 @@ def _prepare_output(out: Path, config: RunConfig) -> None:
                             "subdirectories)")
     out.mkdir(parents=True, exist_ok=True)
     if not (out / RUN_FILE).is_file():
-        atomic_write_json(out / RUN_FILE, {"format": "maskprep-run", "config": str(config.path), "stages": []})
+        write_json(out / RUN_FILE, {"format": "maskprep-run", "config": str(config.path), "stages": []})
 
 
 def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = None, force: bool = False,
@@ -291,7 +293,7 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
 
     result = RunResult(output=out, config=cfg.path, stages=tuple(runner.results), tokenizer=tok_path,
                        compare=compare_doc)
-    atomic_write_json(out / RUN_FILE, {
+    write_json(out / RUN_FILE, {
         "format": "maskprep-run", "config": str(cfg.path), "code": code_version(),
         "stages": [{"name": s.name, "status": s.status, "output": str(s.output.relative_to(out)),
                     "fingerprint": s.fingerprint} for s in result.stages]})
@@ -303,7 +305,7 @@ def _count(corpus: list[str], tokenizer: Path, output: Path, config: Any, corpus
     from .ngrams import count_ngrams
 
     count_ngrams(corpus, tokenizer=tokenizer, output=output, config=config, corpus_options=corpus_options,
-                 executor=executor)
+                 executor=executor, overwrite=True, quiet=quiet)
 
 
 def sample_corpus_dir() -> Path:
@@ -312,9 +314,7 @@ def sample_corpus_dir() -> Path:
     >>> sample_corpus_dir().name  # doctest: +SKIP
     'sample_corpus'
     """
-    import maskprep
-
-    d = Path(maskprep.__file__).resolve().parent.parent / "sample_corpus"
+    d = Path(__file__).resolve().parent.parent / "sample_corpus"  # the package's parent: the checkout
     if not (d / "demo.toml").is_file():
         raise MaskprepError(f"{d}: the sample corpus (with demo.toml) is not there; maskprep demo runs from a "
                             "clone of the repository installed with pip install -e . (a wheel does not ship "

@@ -101,7 +101,7 @@ def find_key_line(text: str, section: str, key: str | None) -> int | None:
         m = header.match(line)
         if m:
             table = m.group(1).replace('"', "").replace("'", "").strip()
-            if key is None and table == section:
+            if (key is None and table == section) or (not section and table == key):
                 return i
             continue
         name = r"\s*[\"']?%s[\"']?\s*"
@@ -151,7 +151,8 @@ class _Checker:
             return fn(value)
         except MaskprepError as exc:
             # The config classes name command-line options (--max-n); here the key is the name.
-            problem = re.sub(rf"--{re.escape(key.replace('_', '-'))}\b:?\s*", "", str(exc), count=1)
+            names = "|".join(re.escape(n) for n in (key, key.replace("_", "-")))
+            problem = re.sub(rf"^(?:--)?(?:{names})\b:?\s*", "", str(exc), count=1)
             raise self.fail(section, key, f"{_shown(value)}: {problem}") from None
 
     def path_of(self, section: str, key: str, value: str, *, must_exist: bool = True) -> Path:
