@@ -384,7 +384,7 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, uni
     click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")
 
 
-def _print_run(result: Any, *, quiet: bool) -> None:
+def _print_run(result: Any) -> None:
     from .compare import format_compare_table
     from .pipeline import format_run_summary
 
@@ -414,7 +414,7 @@ def run_cmd(ctx: click.Context, config: str, output: str | None, force: bool) ->
     from .pipeline import run_pipeline
 
     result = run_pipeline(config, output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
-    _print_run(result, quiet=is_quiet(ctx))
+    _print_run(result)
 
 
 @cli.command("demo", context_settings=CONTEXT)
@@ -433,7 +433,7 @@ def demo_cmd(ctx: click.Context, output: str, force: bool) -> None:
     from .pipeline import run_demo
 
     result = run_demo(output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
-    _print_run(result, quiet=is_quiet(ctx))
+    _print_run(result)
     click.echo("note: the sample corpus is synthetic (templated text with planted terms); do not read its "
                "figures as properties of real text")
 
