@@ -38,7 +38,7 @@ from .io import read_json
 from .runconfig import RunConfig, load_run_config
 
 __all__ = ["StageResult", "RunResult", "run_pipeline", "run_demo", "sample_corpus_dir", "code_version",
-           "format_run_summary", "STAGE_FILE", "RUN_FILE"]
+           "stage_fingerprint", "format_run_summary", "STAGE_FILE", "RUN_FILE"]
 
 STAGE_FILE = ".stage.json"
 RUN_FILE = "pipeline.json"
@@ -66,6 +66,7 @@ class RunResult:
     compare: dict[str, Any] | None = None
 
     def stage(self, name: str) -> StageResult:
+        """The result of one stage: ``result.stage("mask.pmi").status`` -> 'skipped'."""
         return next(s for s in self.stages if s.name == name)
 
 
@@ -104,7 +105,11 @@ def _jsonable(value: Any) -> Any:
 
 
 def stage_fingerprint(name: str, options: Any, inputs: dict[str, Any]) -> str:
-    """sha256 over a stage's name, options, input fingerprints and the code version."""
+    """sha256 over a stage's name, options, input fingerprints and the code version.
+
+    >>> len(stage_fingerprint("units", {"top": 5000}, {"counts": "ab12"}))
+    64
+    """
     doc = {"stage": name, "options": _jsonable(options), "inputs": inputs, "code": code_version()}
     return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
 
@@ -338,7 +343,7 @@ _MAIN_FILES = {"tokenizer": "tokenizer.json", "audit": "audit.html", "count": "c
 
 
 def format_run_summary(result: RunResult) -> str:
-    """Stage table (status, time, main output) for the terminal."""
+    """Stage table (status, time, main output) for the terminal: ``print(format_run_summary(result))``."""
     rows = [("stage", "status", "seconds", "output")]
     for s in result.stages:
         main = _MAIN_FILES.get(s.name.split(".")[0])

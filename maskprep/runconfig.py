@@ -32,7 +32,7 @@ from typing import Any, Callable, Mapping
 
 from .errors import MaskprepError
 
-__all__ = ["RunConfig", "load_run_config", "find_key_line", "SECTIONS"]
+__all__ = ["RunConfig", "load_run_config", "find_key_line", "key_error", "SECTIONS"]
 
 _MASKING = ("rate", "mix", "mix_per", "span_p", "span_max")
 _PACKING = ("seq_len", "pack")
@@ -81,10 +81,6 @@ class RunConfig:
     compare: Any = None  # CompareConfig or None
     text: str = field(default="", repr=False)
 
-    def error(self, section: str, key: str | None, problem: str) -> MaskprepError:
-        """A `MaskprepError` naming this file, the key's line and the key."""
-        return key_error(self.path, self.text, section, key, problem)
-
 
 def find_key_line(text: str, section: str, key: str | None) -> int | None:
     """The 1-based line where `key` of table `section` is set (the table header when key is None).
@@ -116,6 +112,8 @@ def find_key_line(text: str, section: str, key: str | None) -> int | None:
 
 
 def key_error(path: Path, text: str, section: str, key: str | None, problem: str) -> MaskprepError:
+    """The error for a key: ``key_error(Path("p.toml"), "[mask]\\nrate = 2\\n", "mask", "rate", "too big")``
+    -> ``MaskprepError("p.toml, line 2: [mask] rate: too big")``."""
     line = find_key_line(text, section, key)
     where = f"{path}, line {line}" if line else str(path)
     what = (f"[{section}] {key}" if section else key) if key else f"[{section}]"
