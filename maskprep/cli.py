@@ -210,6 +210,50 @@ def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, outpu
 
 # ---------------------------------------------------------------- units (units engineer)
 
+_MEASURE_HELP = ("Cohesion measure: pmi = min over segmentations of log p(g) - sum log p(parts), nats, "
+                 "(-inf, -log p(g)]; pmi-naive = log p(g) - sum log p(word), nats; npmi = pmi / -log p(g), "
+                 "[-1, 1]; llr = Dunning's log-likelihood ratio, >= 0 (weakest binary split for n > 2); "
+                 "t = t score (weakest binary split for n > 2).")
+
+
+@cli.command("units", context_settings=CONTEXT)
+@click.argument("counts_dir", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+              help="Where to write units.parquet (a readable units.tsv is written beside it).")
+@click.option("--measure", type=click.Choice(["pmi", "pmi-naive", "npmi", "llr", "t"]), default="pmi",
+              show_default=True, help=_MEASURE_HELP)
+@click.option("--top", type=int, default=50_000, show_default=True, help="Keep at most this many units, best first.")
+@click.option("--min-count", type=int, default=None,
+              help="Keep only n-grams counted at least this often (default and minimum: count's --min-count).")
+@click.option("--per-length", default=None, metavar="N:SHARE,...",
+              help="Shares of --top per unit length, e.g. 2:0.5,3:0.3,4:0.1,5:0.1 (must add up to 1).")
+@click.option("--max-n", type=int, default=None, help="Longest unit in words (default: every counted length).")
+@click.option("--show", "show_n", type=int, default=10, show_default=True,
+              help="Top units to print per length (0: none).")
+@click.pass_context
+@user_errors
+def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, top: int, min_count: int | None,
+              per_length: str | None, max_n: int | None, show_n: int) -> None:
+    """Rank the multi-word units of COUNTS_DIR (from maskprep count) by cohesion.
+
+    Units are n-grams of 2+ words whose score shows attraction (score > 0;
+    for llr: more frequent than chance on every binary split), ranked best
+    first. pmi and pmi-naive scores are in nats.
+    """
+    from .units import build_units, format_top_units, write_units
+
+    if top < 1:
+        raise MaskprepError(f"--top: expected a positive whole number, got {top}")
+    if show_n < 0:
+        raise MaskprepError(f"--show: expected 0 or more, got {show_n}")
+    vocab = build_units(counts_dir, measure=measure, top=top, min_count=min_count, per_length=per_length,
+                        max_n=max_n, quiet=is_quiet(ctx))
+    parquet, tsv = write_units(vocab, output)
+    if show_n:
+        click.echo(format_top_units(vocab, per_length=show_n))
+    click.echo(f"wrote {parquet} ({len(vocab):,} units, measure {measure}) and {tsv}")
+
+
 # ---------------------------------------------------------------- mask / show / verify (shards engineer)
 
 def _pct(x: float | None) -> str:

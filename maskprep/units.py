@@ -234,23 +234,17 @@ def _counts_meta(counts_dir: Path) -> dict[str, Any]:
 
 
 def _load_tokenizer(counts_dir: Path, expected_hash: str) -> Any:
-    import hashlib
-
-    from tokenizers import Tokenizer
+    from .tokenize import load_tokenizer
 
     path = counts_dir / "tokenizer.json"
     if not path.is_file():
         raise MaskprepError(f"COUNTS_DIR {counts_dir}: has no tokenizer.json (the copy of the tokenizer "
                             "used for counting); re-run maskprep count")
-    try:
-        tok = Tokenizer.from_file(str(path))
-    except Exception as exc:  # tokenizers raises plain Exception subclasses
-        raise MaskprepError(f"{path}: not a readable tokenizer ({exc}); re-run maskprep count") from None
-    digest = hashlib.sha256(tok.to_str().encode("utf-8")).hexdigest()
-    if digest != expected_hash:
+    info = load_tokenizer(path)  # one definition of the tokenizer hash for every stage
+    if info.hash != expected_hash:
         raise MaskprepError(f"{path}: this tokenizer does not match the tokenizer_hash in counts.json, so the "
                             "counts come from another tokenizer; re-run maskprep count")
-    return tok
+    return info.tokenizer
 
 
 def _read_ngrams(counts_dir: Path, n: int, *, with_text: bool) -> tuple[np.ndarray, np.ndarray, Any]:

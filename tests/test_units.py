@@ -20,6 +20,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
+from maskprep.tokenize import load_tokenizer
 from maskprep.cohesion import CountTable, Measure, binary_split_pmi, score_ngrams
 from maskprep.errors import MaskprepError
 from maskprep.units import (FORMAT_VERSION, _quotas, build_units, format_top_units, parse_per_length,
@@ -99,7 +100,7 @@ def make_counts_dir(path: Path, *, lines: list[str] | None = None, max_n: int = 
     meta = {"format_version": 1, "N": N, "max_n": max_n, "min_count": min_count,
             "totals": {str(n): sum(c.values()) for n, c in counters.items()},
             "distinct": {str(n): len(c) for n, c in counters.items()},
-            "tokenizer_hash": hashlib.sha256(tok.to_str().encode("utf-8")).hexdigest(),
+            "tokenizer_hash": load_tokenizer(path / "tokenizer.json").hash,
             "corpus_fingerprint": "test-fixture", "options": {"max_n": max_n, "min_count": min_count},
             "maskprep_version": "test"}
     (path / "counts.json").write_text(json.dumps(meta), encoding="utf-8")
@@ -246,7 +247,7 @@ def test_token_ids_are_the_mid_sentence_form(writable_counts):
         vocab_size=400, show_progress=False, initial_alphabet=pre_tokenizers.ByteLevel.alphabet()))
     tok.save(str(writable_counts / "tokenizer.json"))
     meta = json.loads((writable_counts / "counts.json").read_text())
-    meta["tokenizer_hash"] = hashlib.sha256(tok.to_str().encode("utf-8")).hexdigest()
+    meta["tokenizer_hash"] = load_tokenizer(writable_counts / "tokenizer.json").hash
     (writable_counts / "counts.json").write_text(json.dumps(meta))
     vocab = build_units(writable_counts, top=20, min_count=5, quiet=True)
     for text, ids in zip(vocab.text, vocab.token_ids):
