@@ -108,7 +108,9 @@ class _ParquetSink:
         self.vocab = vocab
         self.schema = pa.schema([("text", pa.string()), ("count", pa.int64())]
                                 + [(f"w{j}", pa.uint64()) for j in range(n)])
-        self.writer = pq.ParquetWriter(str(path), self.schema, compression="zstd", use_dictionary=False)
+        # word keys are hashes (incompressible): only text and count are compressed
+        compression = {"text": "zstd", "count": "zstd"} | {f"w{j}": "none" for j in range(n)}
+        self.writer = pq.ParquetWriter(str(path), self.schema, compression=compression, use_dictionary=False)
         self.pending: list[Any] = []
         self.pending_rows = 0
 

@@ -48,8 +48,8 @@ from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, it
 from .errors import MaskprepError
 from .execute import Executor, map_tasks
 from .ngram_files import Vocabulary, collision_error, write_ngrams
-from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, coarse_split, \
-    count_windows, disk_error, fine_bucket, merge_partition, plan_merges, reduce_rows
+from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, \
+    count_block, disk_error, fine_bucket, merge_partition, plan_merges, reduce_rows
 from .tokenize import SPACE, WORD, EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
     tokenizer_from_json
 
@@ -147,21 +147,30 @@ class CountSummary:
 # ---------------------------------------------------------------- counting one task
 
 def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Counted words of a batch: keys [M], words left in their run [M], run start offsets [R]."""
+    """Counted words of a batch: keys [M], words left in their run [M], run start offsets [R].
+
+    Space words are dropped; a run ends at any other non-word and at the end of a document.
+    """
     kinds = batch.word_kinds
-    doc = np.repeat(np.arange(batch.num_docs, dtype=np.int64), np.diff(batch.doc_offsets))
-    keep = kinds != SPACE
-    kept_kinds = kinds[keep]
-    kept_doc = doc[keep]
+    W = len(kinds)
+    doc_start = np.zeros(W + 1, np.int8)
+    doc_start[batch.doc_offsets[:-1]] = 1
+    keep = np.flatnonzero(kinds != SPACE)
+    if len(keep) == W:
+        kept_kinds, new_doc, keys = kinds, doc_start[:W], batch.word_keys
+    else:  # a document start on a dropped space word moves to the next kept word
+        doc = np.cumsum(doc_start[:W])[keep]
+        new_doc = np.concatenate(([1], np.diff(doc))) if len(doc) else doc
+        kept_kinds, keys = kinds[keep], batch.word_keys[keep]
     is_word = kept_kinds == WORD
     continues = np.zeros(len(kept_kinds), bool)
-    continues[1:] = is_word[:-1] & (kept_doc[1:] == kept_doc[:-1])
-    start = (is_word & ~continues)[is_word]
-    wk = batch.word_keys[keep][is_word]
-    run_starts = np.flatnonzero(start)
+    continues[1:] = is_word[:-1]
+    continues &= new_doc == 0
+    words = np.flatnonzero(is_word)
+    wk = keys[words]
+    run_starts = np.flatnonzero(~continues[words])
     run_ends = np.append(run_starts[1:], len(wk))
-    run_id = np.cumsum(start) - 1
-    rem = run_ends[run_id] - np.arange(len(wk), dtype=np.int64)
+    rem = np.repeat(run_ends, run_ends - run_starts) - np.arange(len(wk), dtype=np.int64)
     return wk, rem, run_starts
 
 
@@ -180,7 +189,7 @@ class ChunkCounter:
         self.tag = tag
         self.limit = share // 2
         self.block_words = block_words or int(np.clip(share // 256, 2048, 1 << 16))
-        self.buffers: list[list[list[np.ndarray]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
+        self.buffers: list[list[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
         self.buffer_bytes = 0
         self.totals = [0] * max_n
         self.runs: list[RunInfo] = []
@@ -202,12 +211,12 @@ class ChunkCounter:
         cuts = run_starts[np.searchsorted(run_starts, targets, side="right") - 1]
         bounds = np.unique(np.concatenate(([0], cuts, [M])))
         for a, b in zip(bounds[:-1].tolist(), bounds[1:].tolist()):  # one step per block of ~64k words
-            for n, table in enumerate(count_windows(wk[a:b], rem[a:b], self.max_n), start=1):
-                grouped, offsets = coarse_split(table, n)
+            for n, (keys, counts, fp, offsets) in enumerate(count_block(wk[a:b], rem[a:b], self.max_n), start=1):
                 buf = self.buffers[n - 1]
                 for c in np.flatnonzero(np.diff(offsets)).tolist():
-                    buf[c].append(grouped[offsets[c]:offsets[c + 1]])
-                self.buffer_bytes += grouped.nbytes
+                    lo, hi = offsets[c], offsets[c + 1]
+                    buf[c].append((keys[lo:hi], counts[lo:hi], fp[lo:hi]))
+                self.buffer_bytes += keys.nbytes + counts.nbytes + fp.nbytes
             if self.buffer_bytes >= self.limit:
                 self.flush()
 
@@ -225,9 +234,12 @@ class ChunkCounter:
                         pieces, buf[c] = buf[c], []
                         if not pieces:
                             continue
-                        table = pieces[0] if len(pieces) == 1 else np.concatenate(pieces)
+                        if len(pieces) == 1:
+                            keys, counts, fp = pieces[0]
+                        else:
+                            keys, counts, fp = (np.concatenate(p) for p in zip(*pieces))
                         del pieces
-                        out, fp = reduce_rows(table, n)
+                        out, fp = reduce_rows(keys, counts, fp=fp)
                         writer.write(out)
                         bucket_rows += np.bincount(fine_bucket(fp), minlength=FINE_BUCKETS)
                 offsets = np.concatenate(([0], np.cumsum(bucket_rows)))

