@@ -6,28 +6,57 @@ written to files by the task itself). `map_tasks` runs one function over a list
 of argument tuples and yields the results *in task order*, whatever order the
 workers finish in, so drivers are deterministic by construction.
 
-With `workers=1` tasks run in this process (no pickling, easiest to debug).
-With `workers>1` a `spawn` process pool is used (the tokenizer library's own
-threads do not survive a fork). With `dask="tcp://host:8786"` tasks go to a
-running Dask scheduler through `distributed.Client`; dask is imported only
-then. A task that raises is reported with the task's description and the run
-stops with a `MaskprepError`.
+Where tasks run:
 
-What it does not do: retry, or keep state between runs (resume state is kept
-by each stage in its output directory).
+- ``workers=1`` (or a single task): in this process, no pickling, easiest to
+  debug; the tokenizer library may use its own threads.
+- ``workers>1``: a ``spawn`` process pool (the tokenizer library's threads do
+  not survive a fork). Each worker process runs one tokenizer thread
+  (``RAYON_NUM_THREADS=1``, ``TOKENIZERS_PARALLELISM=false``): the pool is the
+  parallelism. On Linux a worker dies with the driver (``PR_SET_PDEATHSIG``),
+  so a killed run leaves no orphan still writing into the output directory.
+- ``dask="tcp://host:8786"``: a running Dask scheduler through
+  ``distributed.Client``; dask is imported only then. Arguments shared by
+  every task (the same object in every tuple, e.g. a tokenizer) are sent to
+  the cluster once. Tasks also run with one tokenizer thread each (unless the
+  worker's environment sets ``RAYON_NUM_THREADS`` / ``TOKENIZERS_PARALLELISM``).
+  With ``shared=DIR``, every connected worker must see a probe file the driver
+  writes in DIR before any task is sent: the output directory must be on a
+  filesystem shared by the driver and all workers, at the same path.
+
+A task that raises, a worker process that dies and a task lost by the cluster
+are all reported as a `MaskprepError` starting with the task's description
+(for corpus tasks: the file and byte range), and the run stops. Tasks that
+finished before keep whatever they recorded, so a stage with ``--resume`` can
+continue from there.
+
+What it does not do: retry (Dask itself reruns tasks whose worker died), or
+keep state between runs (resume state is kept by each stage in its output
+directory).
 """
 
 from __future__ import annotations
 
 import multiprocessing
 import os
+import signal
+import sys
 import traceback
+import uuid
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any, Callable, Iterator, Sequence
 
 from .errors import MaskprepError
 from .progress import Progress
+
+__all__ = ["Executor", "default_workers", "map_tasks", "DASK_INSTALL_HINT"]
+
+DASK_INSTALL_HINT = "pip install 'maskprep[dask]' (or: pip install 'dask[distributed]')"
+_ONE_THREAD = {"RAYON_NUM_THREADS": "1", "TOKENIZERS_PARALLELISM": "false"}
+_SMALL = (int, float, bool, type(None))
 
 
 @dataclass(frozen=True)
@@ -39,27 +68,26 @@ class Executor:
     quiet: bool = False
 
     def __post_init__(self) -> None:
-        if not isinstance(self.workers, int) or self.workers < 1:
+        if isinstance(self.workers, bool) or not isinstance(self.workers, int) or self.workers < 1:
             raise MaskprepError(f"--workers: expected a positive whole number, got {self.workers!r}")
         if self.workers > 1024:
             raise MaskprepError(f"--workers: {self.workers} is absurd; use at most 1024")
+        if self.dask is not None and not str(self.dask).strip():
+            raise MaskprepError("--dask: give the scheduler's address, e.g. tcp://10.0.0.5:8786")
 
 
 def default_workers() -> int:
-    """All cores this process may use."""
+    """All cores this process may use: ``default_workers()`` -> 2 on a two-core machine."""
     try:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # pragma: no cover - not Linux
         return max(1, os.cpu_count() or 1)
 
 
-def _worker_init() -> None:
-    # One tokenizer thread per worker process: the pool provides the parallelism.
-    os.environ["RAYON_NUM_THREADS"] = "1"
-    os.environ["TOKENIZERS_PARALLELISM"] = "false"
-
+# ---------------------------------------------------------------- running one task
 
 def _call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
+    """Run one task; failures come back as (False, message) so every scheduler reports them alike."""
     try:
         return True, fn(*args)
     except MaskprepError as exc:
@@ -68,21 +96,50 @@ def _call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
         return False, f"{type(exc).__name__}: {exc}\n{traceback.format_exc(limit=6)}"
 
 
+def _call_remote(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
+    """`_call` on a Dask worker: one tokenizer thread per task unless the worker's environment says otherwise."""
+    for key, value in _ONE_THREAD.items():
+        os.environ.setdefault(key, value)
+    return _call(fn, args)
+
+
+def _worker_init(parent: int) -> None:
+    """Pool worker start-up: one tokenizer thread, die with the driver, leave Ctrl-C to the driver."""
+    os.environ.update(_ONE_THREAD)
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
+        except (OSError, AttributeError):  # pragma: no cover - no prctl
+            pass
+    if os.getppid() != parent:  # the driver died before the line above took effect
+        os._exit(1)
+
+
+# ---------------------------------------------------------------- the driver side
+
 def map_tasks(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], *, executor: Executor = Executor(),
               label: str = "tasks", describe: Callable[[int], str] | None = None,
-              weights: Sequence[float] | None = None, unit: str = "tasks") -> Iterator[Any]:
+              weights: Sequence[float] | None = None, unit: str = "tasks",
+              shared: str | Path | None = None) -> Iterator[Any]:
     """Run `fn(*args)` for each args tuple; yield results in task order.
+
+    `describe(i)` names task i in error messages; `weights` drive the progress
+    line; `shared` is a directory the tasks read or write (checked on Dask).
 
     >>> list(map_tasks(pow, [(2, 3), (3, 2)]))
     [8, 9]
     """
     n = len(args_list)
-    weights = list(weights) if weights is not None else [1.0] * n
-    total = float(sum(weights))
+    weights = [float(w) for w in weights] if weights is not None else [1.0] * n
+    if len(weights) != n:
+        raise ValueError(f"map_tasks: {len(weights)} weights for {n} tasks")
     describe = describe or (lambda i: f"task {i}")
-    with Progress(label, total=total, unit=unit, quiet=executor.quiet) as progress:
+    with Progress(label, total=float(sum(weights)), unit=unit, quiet=executor.quiet) as progress:
         if executor.dask:
-            yield from _map_dask(fn, args_list, executor, describe, weights, progress)
+            yield from _map_dask(fn, args_list, executor, describe, weights, progress, shared)
             return
         if executor.workers == 1 or n <= 1:
             for i, args in enumerate(args_list):
@@ -93,9 +150,24 @@ def map_tasks(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], *, e
                 yield value
             return
         ctx = multiprocessing.get_context("spawn")
-        with ProcessPoolExecutor(max_workers=min(executor.workers, n), mp_context=ctx,
-                                 initializer=_worker_init) as pool:
+        pool = ProcessPoolExecutor(max_workers=min(executor.workers, n), mp_context=ctx,
+                                   initializer=_worker_init, initargs=(os.getpid(),))
+        try:
             yield from _ordered(pool, fn, args_list, executor.workers, describe, weights, progress)
+        except KeyboardInterrupt:
+            _terminate(pool)
+            raise
+        finally:
+            pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _terminate(pool: ProcessPoolExecutor) -> None:
+    """Stop the pool's processes now (after Ctrl-C nobody wants running tasks to finish)."""
+    for proc in list((getattr(pool, "_processes", None) or {}).values()):
+        try:
+            proc.terminate()
+        except (OSError, AttributeError):  # pragma: no cover - already gone
+            pass
 
 
 def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]],
@@ -118,8 +190,13 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
                 emit += 1
                 continue
             finished, _ = wait(list(futures.values()), return_when=FIRST_COMPLETED)
-            for i in [i for i, f in futures.items() if f in finished]:
-                ok, value = futures.pop(i).result()
+            for i in sorted(i for i, f in futures.items() if f in finished):
+                try:
+                    ok, value = futures.pop(i).result()
+                except BrokenProcessPool:
+                    raise MaskprepError(f"{describe(i)}: a worker process died while running this task "
+                                        "(killed, or out of memory?); finished tasks are kept for --resume; "
+                                        "fewer --workers or a smaller --memory may help") from None
                 if not ok:
                     raise MaskprepError(f"{describe(i)}: {value}")
                 progress.advance(weights[i])
@@ -129,28 +206,91 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
             f.cancel()
 
 
-def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], executor: Executor,
-              describe: Callable[[int], str], weights: list[float], progress: Progress) -> Iterator[Any]:
+# ---------------------------------------------------------------- Dask
+
+def _distributed() -> Any:
+    """The `distributed` package, or a clear error saying how to install it."""
     try:
-        from distributed import Client, as_completed
+        import distributed
     except ImportError:
-        raise MaskprepError("--dask needs the dask extra: pip install 'maskprep[dask]'") from None
+        raise MaskprepError(f"--dask needs the dask extra, which is not installed here: {DASK_INSTALL_HINT}; "
+                            "or drop --dask to run on local processes") from None
+    return distributed
+
+
+def _sees(path: str, token: str) -> bool:
+    """On a worker: does the driver's probe file exist here with the driver's token?"""
     try:
-        client = Client(executor.dask, timeout="10s", set_as_default=False)
+        return Path(path).read_text(encoding="utf-8") == token
+    except OSError:
+        return False
+
+
+def _check_shared(client: Any, address: str, directory: str | Path) -> None:
+    """Every connected worker must see `directory` (the shared filesystem, at the same path)."""
+    where = Path(directory).resolve()
+    workers = client.scheduler_info().get("workers", {})
+    if not workers:
+        sys.stderr.write(f"note: no Dask worker is connected to {address} yet; tasks wait until one joins "
+                         f"(each must see {where} at that path)\n")
+        return
+    where.mkdir(parents=True, exist_ok=True)
+    token = uuid.uuid4().hex
+    probe = where / f".maskprep-probe-{token}"
+    probe.write_text(token, encoding="utf-8")
+    try:
+        seen = client.run(_sees, str(probe), token)
+    finally:
+        probe.unlink(missing_ok=True)
+    blind = sorted(w for w, ok in seen.items() if not ok)
+    if blind:
+        raise MaskprepError(f"--dask {address}: {len(blind)} of {len(seen)} workers cannot see {where} "
+                            f"(first: {blind[0]}); the corpus and the output directory must be on a filesystem "
+                            "shared by this machine and every worker, at the same path")
+
+
+def _shared_args(args_list: Sequence[tuple[Any, ...]]) -> list[int]:
+    """Positions holding one and the same (non-trivial) object in every task: sent to the cluster once."""
+    if len(args_list) < 2 or len({len(a) for a in args_list}) != 1:
+        return []
+    first = args_list[0]
+    return [j for j, obj in enumerate(first) if not isinstance(obj, _SMALL)
+            and not (isinstance(obj, str) and len(obj) < 4096)
+            and all(a[j] is obj for a in args_list[1:])]
+
+
+def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], executor: Executor,
+              describe: Callable[[int], str], weights: list[float], progress: Progress,
+              shared: str | Path | None) -> Iterator[Any]:
+    distributed = _distributed()
+    address = str(executor.dask)
+    try:
+        client = distributed.Client(address, timeout="10s", set_as_default=False)
     except Exception as exc:
-        raise MaskprepError(f"--dask {executor.dask}: cannot reach the scheduler ({exc})") from None
+        raise MaskprepError(f"--dask {address}: cannot reach the scheduler ({type(exc).__name__}: {exc}); "
+                            f"start one with: dask scheduler, and workers with: dask worker {address}") from None
+    futures: list[Any] = []
     try:
-        futures = [client.submit(_call, fn, args, pure=False, key=f"maskprep-{fn.__name__}-{i}-{os.getpid()}-{id(args_list)}")
+        if shared is not None:
+            _check_shared(client, address, shared)
+        run = uuid.uuid4().hex[:12]
+        positions = _shared_args(args_list)
+        sent = client.scatter([args_list[0][j] for j in positions], hash=False) if positions else []
+        once = dict(zip(positions, sent))
+        futures = [client.submit(_call_remote, fn, *[once.get(j, a) for j, a in enumerate(args)], pure=False,
+                                 key=f"maskprep-{fn.__name__}-{run}-{i:06d}")
                    for i, args in enumerate(args_list)]
         index = {f.key: i for i, f in enumerate(futures)}
         done: dict[int, Any] = {}
         emit = 0
-        for fut in as_completed(futures, loop=client.loop):
+        for fut in distributed.as_completed(futures, loop=client.loop):
             i = index[fut.key]
-            ok, value = fut.result()
+            try:
+                ok, value = fut.result()
+            except Exception as exc:  # lost worker (KilledWorker), cancelled, unpicklable result...
+                raise MaskprepError(f"{describe(i)}: the cluster lost this task ({type(exc).__name__}: {exc}); "
+                                    "finished tasks are kept for --resume") from None
             if not ok:
-                for f in futures:
-                    f.cancel()
                 raise MaskprepError(f"{describe(i)}: {value}")
             progress.advance(weights[i])
             done[i] = value
@@ -158,4 +298,10 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
                 yield done.pop(emit)
                 emit += 1
     finally:
+        pending = [f for f in futures if not f.done()]
+        if pending:
+            try:
+                client.cancel(pending)
+            except Exception:  # pragma: no cover - the scheduler is gone already
+                pass
         client.close()

@@ -42,8 +42,10 @@ This module does not read shards back (see `maskprep.shardset`), verify or rende
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
+import os
 import shutil
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -363,8 +365,8 @@ def _prepare_dir(out: Path, *, overwrite: bool, resume: bool, options: Mapping[s
         if diffs:
             raise MaskprepError(f"--resume: the options differ from the run in {out} ("
                                 + "; ".join(diffs) + "); rerun with the same options, or use --overwrite")
-        for tmp in out.glob(".shard-*.tmp"):
-            tmp.unlink()
+        for tmp in [*out.glob(".*.tmp"), *(out / STATE_DIR).glob(".*.tmp")]:  # left by the interrupted run
+            tmp.unlink(missing_ok=True)
         return
     if entries and not overwrite:
         raise MaskprepError(f"-o {out}: directory is not empty; pass --overwrite to replace it or --resume "
@@ -459,7 +461,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                 "mask_token_id": mask_id, "special_ids": special_ids, "cls_id": cls_id, "sep_id": sep_id,
                 "pad_id": pad_id, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
                 "units_sha256": units_digest}
-    job = _Job(out=str(out), tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
+    # tasks get absolute paths: a Dask worker's working directory is not the driver's
+    job = _Job(out=os.path.abspath(out), tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
                masking=masking, packing=packing, shards=shards, corpus_options=corpus_options, units=by_length,
                units_digest=units_digest, run_digest=run_digest, metadata=metadata)
     done: dict[int, dict[str, Any]] = {}
@@ -469,8 +472,9 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
             if rec is not None:
                 done[t.index] = rec
     todo = [t for t in tasks if t.index not in done]
-    for rec in map_tasks(_shard_task, [(job, t) for t in todo], executor=executor, label="mask",
-                         describe=lambda i: todo[i].describe()):
+    args = [(job, dataclasses.replace(t, path=os.path.abspath(t.path))) for t in todo]
+    for rec in map_tasks(_shard_task, args, executor=executor, label="mask", describe=lambda i: todo[i].describe(),
+                         shared=out):
         done[rec["task"]] = rec
 
     stats, read = MaskStats(), ReadStats()
