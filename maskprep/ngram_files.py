@@ -12,6 +12,8 @@ It does not count or merge (ngrams.py, spill.py).
 
 from __future__ import annotations
 
+import os
+import re
 from pathlib import Path
 from typing import Any
 
@@ -20,7 +22,7 @@ import numpy as np
 from .errors import MaskprepError
 from .spill import PartitionResult, merge_hist, read_rows
 
-__all__ = ["Vocabulary", "write_ngrams", "collision_error", "ROW_GROUP"]
+__all__ = ["Vocabulary", "write_ngrams", "collision_error", "check_output", "publish", "fsynced_text", "ROW_GROUP"]
 
 ROW_GROUP = 1 << 17             # rows per Parquet row group (fixed, so files are byte-identical)
 
@@ -81,6 +83,15 @@ class Vocabulary:
             keys, texts = keys[keep], texts.filter(pa.array(keep))
         self.keys, self.texts = keys, texts
 
+    def save(self, path: str) -> None:
+        """Write the merged vocabulary (key, text) as an Arrow file, for tasks to load."""
+        import pyarrow as pa
+
+        self.finish()
+        table = pa.table({"key": pa.array(self.keys), "text": self.texts})
+        with pa.OSFile(path, "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
+            w.write_table(table)
+
     def join(self, rows: np.ndarray, n: int) -> Any:
         """The `text` column for rows of word keys: their words' texts joined by one space."""
         import pyarrow as pa
@@ -109,7 +120,7 @@ class _ParquetSink:
         self.schema = pa.schema([("text", pa.string()), ("count", pa.int64())]
                                 + [(f"w{j}", pa.uint64()) for j in range(n)])
         # word keys are hashes (incompressible): only text and count are compressed
-        compression = {"text": "zstd", "count": "zstd"} | {f"w{j}": "none" for j in range(n)}
+        compression = {"text": "snappy", "count": "snappy"} | {f"w{j}": "none" for j in range(n)}
         self.writer = pq.ParquetWriter(str(path), self.schema, compression=compression, use_dictionary=False)
         self.pending: list[Any] = []
         self.pending_rows = 0
@@ -198,3 +209,35 @@ def write_ngrams(path: Path, n: int, parts: list[PartitionResult], vocab: Vocabu
                 sink.append(table[_count_desc_order(table[:, n])])
     finally:
         sink.close()
+
+
+# ---------------------------------------------------------------- the directory
+
+def check_output(output: Path, overwrite: bool) -> None:
+    """Refuse a file, or a non-empty directory unless `overwrite`."""
+    if output.exists() and not output.is_dir():
+        raise MaskprepError(f"-o {output}: is a file; give a directory for the counts")
+    if output.is_dir() and any(output.iterdir()) and not overwrite:
+        raise MaskprepError(f"-o {output}: directory exists and is not empty; pass --overwrite to replace the "
+                            "counts in it, or choose another directory")
+
+
+def publish(staged: Path, output: Path, max_n: int) -> None:
+    """Rename the finished files into place; counts.json (the mark of a finished count) goes last."""
+    (output / "counts.json").unlink(missing_ok=True)
+    for n in range(1, max_n + 1):
+        os.replace(staged / f"ngrams-{n}.parquet", output / f"ngrams-{n}.parquet")
+    for stale in output.glob("ngrams-*.parquet"):
+        m = re.fullmatch(r"ngrams-(\d+)\.parquet", stale.name)
+        if m and int(m.group(1)) > max_n:
+            stale.unlink()
+    os.replace(staged / "tokenizer.json", output / "tokenizer.json")
+    os.replace(staged / "counts.json", output / "counts.json")
+
+
+def fsynced_text(path: Path, text: str) -> None:
+    """Write text and flush it to disk (before it is renamed into place)."""
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write(text)
+        fh.flush()
+        os.fsync(fh.fileno())

@@ -39,7 +39,6 @@ import time
 import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
@@ -47,14 +46,14 @@ from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, it
     resolve_inputs
 from .errors import MaskprepError
 from .execute import Executor, map_tasks
-from .ngram_files import Vocabulary, collision_error, write_ngrams
+from .ngram_files import Vocabulary, check_output, collision_error, fsynced_text, publish, write_ngrams
 from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, \
     count_block, disk_error, fine_bucket, merge_partition, plan_merges, reduce_rows
 from .tokenize import SPACE, WORD, EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
     tokenizer_from_json
 
 __all__ = ["CountConfig", "CountSummary", "ChunkCounter", "count_ngrams", "count_chunk", "merge_partition",
-           "parse_memory", "format_summary", "FORMAT_VERSION", "MIN_TASK_MEMORY", "MAX_N"]
+           "finish_counts", "task_share", "write_task", "parse_memory", "format_summary", "FORMAT_VERSION", "MIN_TASK_MEMORY", "MAX_N"]
 
 FORMAT_VERSION = 1
 MAX_N = 8
@@ -187,7 +186,7 @@ class ChunkCounter:
         self.max_n = max_n
         self.spill_dir = spill_dir
         self.tag = tag
-        self.limit = share // 2
+        self.limit = share * 5 // 8   # the rest: one batch in flight and one bucket being reduced
         self.block_words = block_words or int(np.clip(share // 256, 2048, 1 << 16))
         self.buffers: list[list[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
         self.buffer_bytes = 0
@@ -215,7 +214,7 @@ class ChunkCounter:
                 buf = self.buffers[n - 1]
                 for c in np.flatnonzero(np.diff(offsets)).tolist():
                     lo, hi = offsets[c], offsets[c + 1]
-                    buf[c].append((keys[lo:hi], counts[lo:hi], fp[lo:hi]))
+                    buf[c].append((keys[:, lo:hi], counts[lo:hi], fp[lo:hi]))
                 self.buffer_bytes += keys.nbytes + counts.nbytes + fp.nbytes
             if self.buffer_bytes >= self.limit:
                 self.flush()
@@ -237,7 +236,7 @@ class ChunkCounter:
                         if len(pieces) == 1:
                             keys, counts, fp = pieces[0]
                         else:
-                            keys, counts, fp = (np.concatenate(p) for p in zip(*pieces))
+                            keys, counts, fp = (np.concatenate(p, axis=-1) for p in zip(*pieces))
                         del pieces
                         out, fp = reduce_rows(keys, counts, fp=fp)
                         writer.write(out)
@@ -327,14 +326,6 @@ def count_chunk(task: CorpusTask, tokenizer_json: str, config: CountConfig, spil
 
 # ---------------------------------------------------------------- the driver
 
-def _check_output(output: Path, overwrite: bool) -> None:
-    if output.exists() and not output.is_dir():
-        raise MaskprepError(f"-o {output}: is a file; give a directory for the counts")
-    if output.is_dir() and any(output.iterdir()) and not overwrite:
-        raise MaskprepError(f"-o {output}: directory exists and is not empty; pass --overwrite to replace the "
-                            "counts in it, or choose another directory")
-
-
 def _task_megabytes(task: CorpusTask) -> float:
     if task.end >= 0 and task.fmt in ("txt", "jsonl"):
         return (task.end - task.start) / 1e6
@@ -342,26 +333,6 @@ def _task_megabytes(task: CorpusTask) -> float:
         return os.path.getsize(task.path) / 1e6
     except OSError:
         return 1.0
-
-
-def _publish(staged: Path, output: Path, max_n: int) -> None:
-    """Rename the finished files into place; counts.json (the mark of a finished count) goes last."""
-    (output / "counts.json").unlink(missing_ok=True)
-    for n in range(1, max_n + 1):
-        os.replace(staged / f"ngrams-{n}.parquet", output / f"ngrams-{n}.parquet")
-    for stale in output.glob("ngrams-*.parquet"):
-        m = re.fullmatch(r"ngrams-(\d+)\.parquet", stale.name)
-        if m and int(m.group(1)) > max_n:
-            stale.unlink()
-    os.replace(staged / "tokenizer.json", output / "tokenizer.json")
-    os.replace(staged / "counts.json", output / "counts.json")
-
-
-def _fsynced_text(path: Path, text: str) -> None:
-    with open(path, "w", encoding="utf-8") as fh:
-        fh.write(text)
-        fh.flush()
-        os.fsync(fh.fileno())
 
 
 def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo, output: str | Path,
@@ -376,96 +347,128 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     output = Path(output)
     files = resolve_inputs(list(corpus))
     info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
-    _check_output(output, overwrite)
+    check_output(output, overwrite)
     executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
-    memory = config.memory_bytes
     task_options = dataclasses.replace(corpus_options, chunk_bytes=min(corpus_options.chunk_bytes, TASK_BYTES))
     tasks = plan_tasks(files, task_options)
-    slots = 1 if executor.dask else executor.workers
-    share = memory // max(1, min(slots, len(tasks)))
-    if share < MIN_TASK_MEMORY:
-        need = MIN_TASK_MEMORY * min(slots, len(tasks))
-        raise MaskprepError(f"--memory {config.memory}: too small to make progress with {min(slots, len(tasks))} "
-                            f"workers; the minimum is {need >> 20} MiB ({MIN_TASK_MEMORY >> 20} MiB per worker); "
-                            "raise --memory or lower --workers")
+    share = task_share(config, executor, len(tasks))
     output.mkdir(parents=True, exist_ok=True)
     if overwrite:
         for old in output.glob(".spill-*"):
             shutil.rmtree(old, ignore_errors=True)
     spill = output / f".spill-{uuid.uuid4().hex[:12]}"
     spill.mkdir()
-    max_n = config.max_n
     try:
         results: list[ChunkResult] = list(map_tasks(
             count_chunk, [(t, info.json, config, str(spill), task_options, share) for t in tasks],
             executor=executor, label="count", describe=lambda i: tasks[i].describe(),
             weights=[_task_megabytes(t) for t in tasks], unit="MB"))
-        vocab = Vocabulary()
-        for r in results:
-            vocab.add_file(r.words_path)
-            os.unlink(r.words_path)
-        vocab.finish()
-        totals = [sum(r.totals[n - 1] for r in results) for n in range(1, max_n + 1)]
-        if totals[0] == 0:
-            raise MaskprepError(f"{', '.join(map(str, corpus))}: no words to count (every document is empty, "
-                                "whitespace or punctuation)")
-        jobs: list[MergeJob] = []
-        merge_slots = max(1, slots)
-        for n in range(1, max_n + 1):
-            runs = [run for r in results for run in r.runs if run.n == n]
-            group_rows = int(np.clip(share // (16 * (n + 1) + 64), 4096, 1 << 18))
-            jobs += plan_merges(runs, n, 2 * merge_slots, config.min_count, group_rows, spill)
-        parts: list[PartitionResult] = list(map_tasks(
-            merge_partition, [(j,) for j in jobs], executor=executor, label="merge",
-            describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}"))
-        for r in results:
-            for run in r.runs:
-                os.unlink(run.path)
-        distinct, kept = [0] * max_n, [0] * max_n
-        with_progress = _progress("write", max_n, quiet or executor.quiet)
-        for n in range(1, max_n + 1):
-            mine = [p for p in parts if p.n == n]
-            if sum(p.total for p in mine) != totals[n - 1]:
-                raise RuntimeError(f"internal error: merged {n}-gram occurrences do not add up to the counted total")
-            distinct[n - 1] = sum(p.distinct for p in mine)
-            kept[n - 1] = sum(p.kept for p in mine)
-            band_rows = max(1024, share // (24 * (n + 1) + 96))
-            try:
-                write_ngrams(spill / f"ngrams-{n}.parquet", n, mine, vocab, band_rows)
-            except OSError as exc:
-                raise disk_error(exc, output, f"writing ngrams-{n}.parquet") from None
-            for p in mine:
-                os.unlink(p.path)
-            with_progress.advance(1)
-        with_progress.finish()
-        documents = sum(r.documents for r in results)
-        meta = {
-            "format_version": FORMAT_VERSION, "N": totals[0], "max_n": max_n, "min_count": config.min_count,
-            "totals": {str(n): totals[n - 1] for n in range(1, max_n + 1)},
-            "distinct": {str(n): distinct[n - 1] for n in range(1, max_n + 1)},
-            "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
-            "documents": documents,
-            "tokenizer_hash": info.hash, "tokenizer_name": info.name,
-            "corpus_fingerprint": corpus_fingerprint(files, corpus_options),
-            "corpus_files": [str(f) for f in files],
-            "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,
-                        "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
-                        "strict": corpus_options.strict},
-            "maskprep_version": _version(),
-        }
-        try:
-            _fsynced_text(spill / "tokenizer.json", info.json)
-            _fsynced_text(spill / "counts.json", json.dumps(meta, indent=2, sort_keys=True) + "\n")
-            _publish(spill, output, max_n)
-        except OSError as exc:
-            raise disk_error(exc, output, "writing the counts") from None
+        return finish_counts(results, info=info, output=output, spill=spill, config=config, files=files,
+                             corpus_options=corpus_options, executor=executor, started=started)
     finally:
         shutil.rmtree(spill, ignore_errors=True)
+
+
+def task_share(config: CountConfig, executor: Executor, tasks: int) -> int:
+    """Bytes of --memory for each task running at once; too little raises, naming the minimum.
+
+    >>> task_share(CountConfig(memory="1GiB"), Executor(workers=2), 10) >> 20
+    512
+    """
+    slots = max(1, min(1 if executor.dask else executor.workers, tasks))
+    share = config.memory_bytes // slots
+    if share < MIN_TASK_MEMORY:
+        raise MaskprepError(f"--memory {config.memory}: too small to make progress with {slots} workers; the "
+                            f"minimum is {MIN_TASK_MEMORY * slots >> 20} MiB ({MIN_TASK_MEMORY >> 20} MiB per "
+                            "worker); raise --memory or lower --workers")
+    return share
+
+
+def write_task(path: str, n: int, parts: list[PartitionResult], vocab_path: str, band_rows: int) -> str:
+    """Task function: write ngrams-<n>.parquet from the merged key ranges of one n."""
+    vocab = Vocabulary()
+    vocab.add_file(vocab_path)
+    vocab.finish()
+    try:
+        write_ngrams(Path(path), n, parts, vocab, band_rows)
+    except OSError as exc:
+        raise disk_error(exc, Path(path).parent, f"writing {Path(path).name}") from None
+    for p in parts:
+        os.unlink(p.path)
+    return path
+
+
+def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Path, spill: Path,
+                  config: CountConfig, files: list[Path], corpus_options: CorpusOptions, executor: Executor,
+                  started: float) -> CountSummary:
+    """Merge the spilled runs of all tasks, write COUNTS_DIR and rename it into place.
+
+    >>> finish_counts(results, info=info, output=Path("counts"), spill=spill, config=config, files=files,
+    ...               corpus_options=CorpusOptions(), executor=Executor(), started=0.0)  # doctest: +SKIP
+    """
+    max_n = config.max_n
+    vocab = Vocabulary()
+    for r in results:
+        vocab.add_file(r.words_path)
+        os.unlink(r.words_path)
+    vocab.finish()
+    vocab_path = str(spill / "words.arrow")
+    try:
+        vocab.save(vocab_path)
+    except OSError as exc:
+        raise disk_error(exc, spill, "writing the word list") from None
+    totals = [sum(r.totals[n - 1] for r in results) for n in range(1, max_n + 1)]
+    if totals[0] == 0:
+        raise MaskprepError(f"{', '.join(map(str, files))}: no words to count (every document is empty, "
+                            "whitespace or punctuation)")
+    share = task_share(config, executor, 2 * max_n)
+    jobs: list[MergeJob] = []
+    for n in range(1, max_n + 1):
+        runs = [run for r in results for run in r.runs if run.n == n]
+        group_rows = int(np.clip(share // (16 * (n + 1) + 64), 4096, 1 << 18))
+        jobs += plan_merges(runs, n, 2 * max(1, executor.workers), config.min_count, group_rows, spill)
+    parts: list[PartitionResult] = list(map_tasks(
+        merge_partition, [(j,) for j in jobs], executor=executor, label="merge",
+        describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}"))
+    for r in results:
+        for run in r.runs:
+            os.unlink(run.path)
+    by_n = {n: [p for p in parts if p.n == n] for n in range(1, max_n + 1)}
+    for n in range(1, max_n + 1):
+        if sum(p.total for p in by_n[n]) != totals[n - 1]:
+            raise RuntimeError(f"internal error: merged {n}-gram occurrences do not add up to the counted total")
+    distinct = [sum(p.distinct for p in by_n[n]) for n in range(1, max_n + 1)]
+    kept = [sum(p.kept for p in by_n[n]) for n in range(1, max_n + 1)]
+    order = sorted(range(1, max_n + 1), key=lambda n: -kept[n - 1])  # biggest first: better load balance
+    list(map_tasks(write_task, [(str(spill / f"ngrams-{n}.parquet"), n, by_n[n], vocab_path,
+                                 max(1024, share // (24 * (n + 1) + 96))) for n in order],
+                   executor=executor, label="write", describe=lambda i: f"ngrams-{order[i]}.parquet"))
+    documents = sum(r.documents for r in results)
+    meta = {
+        "format_version": FORMAT_VERSION, "N": totals[0], "max_n": max_n, "min_count": config.min_count,
+        "totals": {str(n): totals[n - 1] for n in range(1, max_n + 1)},
+        "distinct": {str(n): distinct[n - 1] for n in range(1, max_n + 1)},
+        "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
+        "documents": documents,
+        "tokenizer_hash": info.hash, "tokenizer_name": info.name,
+        "corpus_fingerprint": corpus_fingerprint(files, corpus_options),
+        "corpus_files": [str(f) for f in files],
+        "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,
+                    "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
+                    "strict": corpus_options.strict},
+        "maskprep_version": _version(),
+    }
+    try:
+        fsynced_text(spill / "tokenizer.json", info.json)
+        fsynced_text(spill / "counts.json", json.dumps(meta, indent=2, sort_keys=True) + "\n")
+        publish(spill, output, max_n)
+    except OSError as exc:
+        raise disk_error(exc, output, "writing the counts") from None
     rng = range(1, max_n + 1)
     return CountSummary(output=output, N=totals[0], max_n=max_n, min_count=config.min_count,
                         totals=dict(zip(rng, totals)), distinct=dict(zip(rng, distinct)),
                         kept=dict(zip(rng, kept)), documents=documents,
-                        spill_runs=sum(len(r.runs) for r in results), tasks=len(tasks),
+                        spill_runs=sum(len(r.runs) for r in results), tasks=len(results),
                         seconds=time.monotonic() - started, files=[str(f) for f in files])
 
 
@@ -476,12 +479,6 @@ def _version() -> str:
         return version("maskprep")
     except PackageNotFoundError:
         return "unknown"
-
-
-def _progress(label: str, total: int, quiet: bool) -> Any:
-    from .progress import Progress
-
-    return Progress(label, total=total, unit="files", quiet=quiet)
 
 
 def format_summary(summary: CountSummary) -> str:

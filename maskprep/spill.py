@@ -36,7 +36,6 @@ from pathlib import Path
 from typing import BinaryIO
 
 import numpy as np
-from numpy.lib.stride_tricks import sliding_window_view
 
 from .errors import MaskprepError
 
@@ -54,48 +53,48 @@ _S29 = np.uint64(29)
 _U64 = np.dtype("<u8")
 
 
-def fingerprint(keys: np.ndarray) -> np.ndarray:
-    """Order-sensitive 64-bit mix of each row of word keys, uint64 [m].
+def fingerprint(columns: np.ndarray) -> np.ndarray:
+    """Order-sensitive 64-bit mix of n-grams given as columns (n, m) of word keys, uint64 [m].
 
     >>> f = fingerprint(np.array([[1, 2], [2, 1]], dtype=np.uint64)); bool(f[0] != f[1])
     True
     """
-    h = np.full(keys.shape[0], _SEED, dtype=np.uint64)
-    for j in range(keys.shape[1]):  # loop over the <= 8 columns, vectorised over rows
-        h ^= keys[:, j]
+    h = np.full(columns.shape[1], _SEED, dtype=np.uint64)
+    for col in columns:  # loop over the <= 8 columns, vectorised over rows
+        h ^= col
         h *= _MUL1
-    h = _finish(h)
-    return h
+    return _finish(h)
 
 
 def _bits(x: int) -> int:
     return max(1, int(x).bit_length())
 
 
-def _differs(t: np.ndarray, ncols: int) -> np.ndarray:
-    """bool [m-1]: row i+1 differs from row i in its first `ncols` columns."""
-    out = t[1:, 0] != t[:-1, 0]
-    for j in range(1, ncols):
-        out |= t[1:, j] != t[:-1, j]
+def _differs(cols: list[np.ndarray]) -> np.ndarray:
+    """bool [m-1]: row i+1 differs from row i in some column."""
+    out = cols[0][1:] != cols[0][:-1]
+    for c in cols[1:]:
+        out |= c[1:] != c[:-1]
     return out
 
 
-def reduce_rows(keys: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | None = None,
+def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | None = None,
                 index_bits: int | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Merge equal n-grams; return a (distinct, n+1) table (keys, summed count) and its fingerprints.
 
-    `keys` (m, n) uint64, `counts` (m,) uint64, `fp` their fingerprints if
-    known. Output is in canonical order (fingerprint, then keys).
-    `index_bits` only exists so tests can force fingerprint-prefix collisions.
+    `columns` (n, m) uint64 word keys (any strides), `counts` (m,) uint64,
+    `fp` their fingerprints if known. Output rows are in canonical order
+    (fingerprint, then keys). `index_bits` only exists so tests can force
+    fingerprint-prefix collisions.
 
-    >>> reduce_rows(np.array([[5], [7], [5]], np.uint64), np.array([1, 2, 3], np.uint64))[0][:, 1].tolist() in ([4, 2], [2, 4])
+    >>> reduce_rows(np.array([[5, 7, 5]], np.uint64), np.array([1, 2, 3], np.uint64))[0][:, 1].tolist() in ([4, 2], [2, 4])
     True
     """
-    m, n = keys.shape
+    n, m = columns.shape
     if m == 0:
         return np.zeros((0, n + 1), np.uint64), np.zeros(0, np.uint64)
     if fp is None:
-        fp = fingerprint(keys)
+        fp = fingerprint(columns)
     ib = index_bits if index_bits is not None else _bits(m - 1)
     if ib < _bits(m - 1):
         raise ValueError("index_bits too small for the table")
@@ -106,28 +105,28 @@ def reduce_rows(keys: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | None =
     packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
     packed.sort()
     order = (packed & low).astype(np.intp)
-    t = np.take(keys, order, axis=0)
+    cols = [col[order] for col in columns]
     c = counts[order]
     f = fp[order]
     if m > 1:
         same_prefix = (packed[1:] >> shift) == (packed[:-1] >> shift)
-        diff = _differs(t, n)
+        diff = _differs(cols)
         bad = same_prefix & diff
         if bad.any():
             # Different n-grams share a fingerprint prefix: order those groups by
             # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
             group = np.concatenate(([0], np.cumsum(~same_prefix)))
             pos = np.flatnonzero(np.isin(group, np.unique(group[1:][bad])))
-            perm = np.lexsort([t[pos, j] for j in range(n - 1, -1, -1)] + [f[pos], group[pos]])
-            t[pos] = t[pos[perm]]
-            c[pos] = c[pos[perm]]
-            f[pos] = f[pos[perm]]
-            diff = _differs(t, n)
+            perm = pos[np.lexsort([col[pos] for col in cols[::-1]] + [f[pos], group[pos]])]
+            for arr in cols + [c, f]:
+                arr[pos] = arr[perm]
+            diff = _differs(cols)
         starts = np.flatnonzero(np.concatenate(([True], diff)))
     else:
         starts = np.zeros(1, np.intp)
     out = np.empty((len(starts), n + 1), np.uint64)
-    out[:, :n] = t[starts]
+    for j, col in enumerate(cols):
+        out[:, j] = col[starts]
     out[:, n] = np.add.reduceat(c, starts) if len(starts) < m else c
     return out, f[starts]
 
@@ -159,8 +158,10 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
 
     `wk` uint64 [M]: keys of counted words, runs back to back; `rem` int64 [M]:
     words left in the run from each position (>= 1). Returns, for each n,
-    (keys (D_n, n), counts (D_n,), fingerprints (D_n,), coarse offsets
-    [COARSE_BUCKETS + 1]) of the distinct n-grams, rows grouped by bucket.
+    (key columns (n, D_n), counts (D_n,), fingerprints (D_n,), coarse offsets
+    [COARSE_BUCKETS + 1]), rows grouped by bucket. Rows are distinct n-grams
+    up to the first level that is nearly all distinct; from there on each
+    occurrence is its own row (count 1), left for the spill reduce to merge.
 
     >>> [t[1].tolist() for t in count_block(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
     [[3], [2]]
@@ -171,62 +172,90 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
     # take part, each keyed by (rank of its (n-1)-gram, id of its n-th word)
     # packed into one uint64 beside the position index, so numpy's SIMD sort
     # of plain integers yields the permutation (no argsort) and the new dense
-    # ranks. Fingerprints roll along with the levels (one xor-multiply per
+    # ranks. Once a level is nearly all distinct, longer n-grams skip the
+    # grouping (the spill reduce merges equal rows anyway). Fingerprints roll along with the levels (one xor-multiply per
     # position), so each distinct n-gram's bucket is known before its keys are
-    # gathered, and keys are gathered once, already in bucket order, as rows
-    # of a sliding-window view. Work per level is linear in the positions still
-    # valid, which shrink with n, and does not depend on how many are distinct.
+    # gathered, and keys are gathered once, already in bucket order, column by
+    # column (contiguous 1-D gathers). Work per level is linear in the
+    # positions still valid, which shrink with n, and does not depend on how
+    # many n-grams are distinct. Tables stay column-major until written.
     M = len(wk)
     out: list[tuple[np.ndarray, ...]] = []
     if M == 0:
-        return [_grouped(np.zeros((0, n), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
+        return [_grouped(np.zeros((n, 0), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
                 for n in range(1, max_n + 1)]
     ids, uniq = _dense_ids(wk)
     V = len(uniq)
-    out.append(_grouped(uniq.reshape(-1, 1), np.bincount(ids.astype(np.intp), minlength=V).astype(np.uint64),
-                        fingerprint(uniq.reshape(-1, 1))))
+    out.append(_grouped(uniq.reshape(1, -1), np.bincount(ids.astype(np.intp), minlength=V).astype(np.uint64),
+                        fingerprint(uniq.reshape(1, -1))))
     b = np.uint64(_bits(V - 1))
     padded = np.zeros(M + max_n, np.uint64)
     padded[:M] = wk
     pos = np.arange(M, dtype=np.intp)
     rank, rank_bits = ids, int(b)
     roll = (wk ^ _SEED) * _MUL1          # un-finalised fingerprint of the 1-gram at each position
+    grouping = True
     for n in range(2, max_n + 1):
         keep = np.flatnonzero(rem[pos] >= n)
-        pos, prev, roll = pos[keep], rank[keep], roll[keep]
+        pos, roll = pos[keep], roll[keep]
         m = len(pos)
         if m == 0:
-            out.extend(_grouped(np.zeros((0, k), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
+            out.extend(_grouped(np.zeros((k, 0), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
                        for k in range(n, max_n + 1))
             break
-        roll ^= padded[pos + (n - 1)]
+        last = pos + (n - 1)
+        roll ^= padded[last]
         roll *= _MUL1
-        code = (prev << b) | ids[pos + (n - 1)]
-        ib = _bits(m - 1)
-        if rank_bits + int(b) + ib <= 64:
-            srt = (code << np.uint64(ib)) | np.arange(m, dtype=np.uint64)
-            srt.sort()
-            order = (srt & np.uint64((1 << ib) - 1)).astype(np.intp)
-            sorted_code = srt >> np.uint64(ib)
-        else:  # very long runs only: exact but slower
-            order = np.argsort(code, kind="stable")
-            sorted_code = code[order]
-        step = np.empty(m, np.uint64)
-        step[0] = 0
-        np.not_equal(sorted_code[1:], sorted_code[:-1], out=step[1:], casting="unsafe")
-        starts = np.flatnonzero(np.concatenate(([True], step[1:] != 0)))
-        counts = np.diff(np.append(starts, m)).astype(np.uint64)
-        rank = np.empty(m, np.uint64)
-        rank[order] = np.cumsum(step)
-        rank_bits = _bits(len(starts) - 1)
-        first = order[starts]
-        fp = _finish(roll[first])
+        if grouping:
+            first, counts, rank, rank_bits = _group_level(rank[keep], ids[last], int(b), rank_bits, n < max_n)
+            # nearly all distinct: grouping the longer n-grams of this block would not pay (the spill
+            # reduce merges equal rows anyway), so they are emitted one per position from now on
+            grouping = len(first) < 0.85 * m
+            fp = _finish(roll[first])
+            at_first = pos[first]
+        else:
+            counts = np.ones(m, np.uint64)
+            fp = _finish(roll)
+            at_first = pos
         bucket = (fp >> np.uint64(64 - COARSE_BITS)).astype(np.uint8)
         by_bucket = np.argsort(bucket, kind="stable")
-        rep = pos[first[by_bucket]]
-        keys = np.take(sliding_window_view(padded, n), rep, axis=0)
+        at = at_first[by_bucket]
+        keys = np.empty((n, len(at)), np.uint64)
+        for k in range(n):
+            np.take(padded, at, out=keys[k])
+            at += 1
         out.append((keys, counts[by_bucket], fp[by_bucket], _offsets(bucket)))
     return out
+
+
+def _group_level(prev: np.ndarray, last: np.ndarray, b: int, rank_bits: int,
+                 want_rank: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Group positions by (rank of their (n-1)-gram, id of their n-th word).
+
+    Returns (first member of each group, group sizes, rank of each position's
+    n-gram (if wanted), bits of the largest rank).
+    """
+    m = len(prev)
+    code = (prev << np.uint64(b)) | last
+    ib = _bits(m - 1)
+    if rank_bits + b + ib <= 64:
+        srt = (code << np.uint64(ib)) | np.arange(m, dtype=np.uint64)
+        srt.sort()
+        order = (srt & np.uint64((1 << ib) - 1)).astype(np.intp)
+        sorted_code = srt >> np.uint64(ib)
+    else:  # very long runs only: exact but slower
+        order = np.argsort(code, kind="stable")
+        sorted_code = code[order]
+    step = np.empty(m, np.uint64)
+    step[0] = 0
+    np.not_equal(sorted_code[1:], sorted_code[:-1], out=step[1:], casting="unsafe")
+    starts = np.flatnonzero(np.concatenate(([True], step[1:] != 0)))
+    counts = np.diff(np.append(starts, m)).astype(np.uint64)
+    rank = prev
+    if want_rank:
+        rank = np.empty(m, np.uint64)
+        rank[order] = np.cumsum(step)
+    return order[starts], counts, rank, _bits(len(starts) - 1)
 
 
 def _finish(h: np.ndarray) -> np.ndarray:
@@ -245,16 +274,20 @@ def _offsets(bucket: np.ndarray) -> np.ndarray:
 def _grouped(keys: np.ndarray, counts: np.ndarray, fp: np.ndarray) -> tuple[np.ndarray, ...]:
     bucket = (fp >> np.uint64(64 - COARSE_BITS)).astype(np.uint8)
     order = np.argsort(bucket, kind="stable")
-    return np.take(keys, order, axis=0), counts[order], fp[order], _offsets(bucket)
+    return keys[:, order], counts[order], fp[order], _offsets(bucket)
 
 
 def count_windows(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.ndarray, np.ndarray]]:
-    """(keys (D_n, n), counts (D_n,)) of the distinct n-grams of a block, for n = 1..max_n.
+    """(keys (D_n, n) rows, counts (D_n,)) of the distinct n-grams of a block, for n = 1..max_n.
 
     >>> [c.tolist() for _, c in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
     [[3], [2]]
     """
-    return [(t[0], t[1]) for t in count_block(wk, rem, max_n)]
+    out = []
+    for keys, counts, fp, _ in count_block(wk, rem, max_n):
+        table, _ = reduce_rows(keys, counts, fp=fp)
+        out.append((table[:, :-1], table[:, -1]))
+    return out
 
 
 def fine_bucket(fp: np.ndarray) -> np.ndarray:
@@ -416,10 +449,13 @@ def merge_partition(job: MergeJob) -> PartitionResult:
             for s0, s1 in groups:
                 parts = [read_rows(path, n + 1, int(off[s0]), int(off[s1])) for path, off in job.sources
                          if off[s1] > off[s0]]
-                table = parts[0] if len(parts) == 1 else np.concatenate(parts)
-                del parts
-                out, _ = reduce_rows(table[:, :n], table[:, n])
-                del table
+                if len(parts) == 1:  # one run: already distinct and in canonical order
+                    out = parts[0]
+                else:
+                    table = np.concatenate(parts)
+                    del parts
+                    out, _ = reduce_rows(table[:, :n].T, table[:, n])
+                    del table
                 counts = out[:, n]
                 distinct += len(out)
                 total += int(counts.sum())

@@ -142,7 +142,7 @@ def test_counts_equal_counter_on_generated_documents(tmp_path_factory: pytest.Te
 @given(rows=st.lists(st.tuples(st.integers(0, 3), st.integers(0, 3), st.integers(1, 5)), min_size=1, max_size=80))
 def test_reduce_rows_is_exact_even_when_fingerprint_prefixes_collide(rows: list[tuple[int, int, int]]) -> None:
     # Source: reference implementation (a dict summing counts per key pair).
-    keys = np.array([(a, b) for a, b, _ in rows], dtype=np.uint64)
+    keys = np.array([(a, b) for a, b, _ in rows], dtype=np.uint64).T
     counts = np.array([c for *_, c in rows], dtype=np.uint64)
     want: Counter = Counter()
     for a, b, c in rows:
@@ -152,7 +152,7 @@ def test_reduce_rows_is_exact_even_when_fingerprint_prefixes_collide(rows: list[
         assert {(int(r[0]), int(r[1])): int(r[2]) for r in table} == dict(want)
         assert len(table) == len(want)
     a, _ = reduce_rows(keys, counts)
-    b, _ = reduce_rows(keys[::-1].copy(), counts[::-1].copy(), index_bits=63)
+    b, _ = reduce_rows(keys[:, ::-1], counts[::-1].copy(), index_bits=63)
     assert (a == b).all(), "canonical order must not depend on input order or index bits"
 
 
@@ -232,7 +232,7 @@ def test_identical_files_for_any_batch_size_spill_threshold_and_workers(tmp_path
                                config=CountConfig(max_n=5, min_count=2, **kw), executor=executor, quiet=True)
         runs.append(summary.spill_runs)
         results.append(_files(d))
-    assert runs[0] == 5 and runs[1] >= 4 * 5, "the tiny budget should spill several runs per n"
+    assert runs[0] == 5 and runs[1] >= 3 * 5, "the tiny budget should spill several runs per n"
     for r in results[1:]:
         assert r == results[0]
     assert set(results[0]) == {f"ngrams-{n}.parquet" for n in range(1, 6)} | {"counts.json", "tokenizer.json"}
