@@ -13,8 +13,10 @@ Where tasks run:
 - ``workers>1``: a ``spawn`` process pool (the tokenizer library's threads do
   not survive a fork). Each worker process runs one tokenizer thread
   (``RAYON_NUM_THREADS=1``, ``TOKENIZERS_PARALLELISM=false``): the pool is the
-  parallelism. On Linux a worker dies with the driver (``PR_SET_PDEATHSIG``),
-  so a killed run leaves no orphan still writing into the output directory.
+  parallelism. The pool is kept for the life of the process, so the stages
+  of one run share warm workers. On Linux a worker dies with the driver
+  (``PR_SET_PDEATHSIG``), so a killed run leaves no orphan still writing
+  into the output directory.
 - ``dask="tcp://host:8786"``: a running Dask scheduler through
   ``distributed.Client``; dask is imported only then. Arguments shared by
   every task (the same object in every tuple, e.g. a tokenizer) are sent to
@@ -52,7 +54,7 @@ from typing import Any, Callable, Iterator, Sequence
 from .errors import MaskprepError
 from .progress import Progress
 
-__all__ = ["Executor", "default_workers", "map_tasks", "DASK_INSTALL_HINT"]
+__all__ = ["Executor", "default_workers", "map_tasks", "shutdown_pools", "DASK_INSTALL_HINT"]
 
 DASK_INSTALL_HINT = "pip install 'maskprep[dask]' (or: pip install 'dask[distributed]')"
 _ONE_THREAD = {"RAYON_NUM_THREADS": "1", "TOKENIZERS_PARALLELISM": "false"}
@@ -94,6 +96,13 @@ def _call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
         return False, str(exc)
     except Exception as exc:  # reported with the task's description by the driver
         return False, f"{type(exc).__name__}: {exc}\n{traceback.format_exc(limit=6)}"
+
+
+def _call_local(cwd: str, fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
+    """`_call` in a pool worker, from the driver's current directory (a kept pool outlives a chdir)."""
+    if os.getcwd() != cwd:
+        os.chdir(cwd)
+    return _call(fn, args)
 
 
 def _call_remote(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
@@ -149,25 +158,47 @@ def map_tasks(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], *, e
                 progress.advance(weights[i])
                 yield value
             return
-        ctx = multiprocessing.get_context("spawn")
-        pool = ProcessPoolExecutor(max_workers=min(executor.workers, n), mp_context=ctx,
-                                   initializer=_worker_init, initargs=(os.getpid(),))
+        pool = _pool(executor.workers)
         try:
             yield from _ordered(pool, fn, args_list, executor.workers, describe, weights, progress)
-        except KeyboardInterrupt:
-            _terminate(pool)
+        except BaseException as exc:
+            if isinstance(exc, KeyboardInterrupt) or getattr(pool, "_broken", False):
+                _drop_pool(executor.workers, terminate=True)
             raise
-        finally:
-            pool.shutdown(wait=True, cancel_futures=True)
 
 
-def _terminate(pool: ProcessPoolExecutor) -> None:
-    """Stop the pool's processes now (after Ctrl-C nobody wants running tasks to finish)."""
-    for proc in list((getattr(pool, "_processes", None) or {}).values()):
-        try:
-            proc.terminate()
-        except (OSError, AttributeError):  # pragma: no cover - already gone
-            pass
+_POOLS: dict[int, ProcessPoolExecutor] = {}
+
+
+def _pool(workers: int) -> ProcessPoolExecutor:
+    """One spawn pool per worker count, kept for the life of the process: the stages of a run (count
+    then merge, say) share its warm workers instead of paying the start-up of fresh ones."""
+    pool = _POOLS.get(workers)
+    if pool is None or getattr(pool, "_broken", False) or getattr(pool, "_shutdown_thread", False):
+        pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn"),
+                                   initializer=_worker_init, initargs=(os.getpid(),))
+        _POOLS[workers] = pool
+    return pool
+
+
+def _drop_pool(workers: int, *, terminate: bool) -> None:
+    """Forget a pool; with `terminate`, stop its processes now (after Ctrl-C or a dead worker)."""
+    pool = _POOLS.pop(workers, None)
+    if pool is None:
+        return
+    if terminate:
+        for proc in list((getattr(pool, "_processes", None) or {}).values()):
+            try:
+                proc.terminate()
+            except (OSError, AttributeError):  # pragma: no cover - already gone
+                pass
+    pool.shutdown(wait=not terminate, cancel_futures=True)
+
+
+def shutdown_pools() -> None:
+    """Stop the kept worker processes (they also stop when this process exits): ``shutdown_pools()``."""
+    for workers in list(_POOLS):
+        _drop_pool(workers, terminate=False)
 
 
 def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]],
@@ -180,10 +211,20 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
     done: dict[int, Any] = {}
     nxt = 0
     emit = 0
+    cwd = os.getcwd()
+
+    def died(i: int) -> MaskprepError:
+        return MaskprepError(f"{describe(i)}: a worker process died while running this task (killed, or out of "
+                             "memory?); finished tasks are kept for --resume; fewer --workers or a smaller "
+                             "--memory may help")
+
     try:
         while emit < n:
             while nxt < n and len(futures) + len(done) < window:
-                futures[nxt] = pool.submit(_call, fn, args_list[nxt])
+                try:
+                    futures[nxt] = pool.submit(_call_local, cwd, fn, args_list[nxt])
+                except BrokenProcessPool:
+                    raise died(nxt) from None
                 nxt += 1
             if emit in done:
                 yield done.pop(emit)
@@ -194,16 +235,20 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
                 try:
                     ok, value = futures.pop(i).result()
                 except BrokenProcessPool:
-                    raise MaskprepError(f"{describe(i)}: a worker process died while running this task "
-                                        "(killed, or out of memory?); finished tasks are kept for --resume; "
-                                        "fewer --workers or a smaller --memory may help") from None
+                    raise died(i) from None
                 if not ok:
                     raise MaskprepError(f"{describe(i)}: {value}")
                 progress.advance(weights[i])
                 done[i] = value
-    finally:
+    except KeyboardInterrupt:
         for f in futures.values():
             f.cancel()
+        raise
+    except BaseException:  # a failed task, or the caller stopped early
+        running = [f for f in futures.values() if not f.cancel()]
+        if running and not getattr(pool, "_broken", False):
+            wait(running)  # tasks already running finish and record their work (for --resume)
+        raise
 
 
 # ---------------------------------------------------------------- Dask
