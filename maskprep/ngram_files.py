@@ -121,7 +121,8 @@ class _ParquetSink:
                                 + [(f"w{j}", pa.uint64()) for j in range(n)])
         # word keys are hashes (incompressible): only text and count are compressed
         compression = {"text": "snappy", "count": "snappy"} | {f"w{j}": "none" for j in range(n)}
-        self.writer = pq.ParquetWriter(str(path), self.schema, compression=compression, use_dictionary=False)
+        self.writer = pq.ParquetWriter(str(path), self.schema, compression=compression, use_dictionary=False,
+                                      write_statistics=["count"])
         self.pending: list[Any] = []
         self.pending_rows = 0
 

@@ -58,7 +58,8 @@ __all__ = ["CountConfig", "CountSummary", "ChunkCounter", "count_ngrams", "count
 FORMAT_VERSION = 1
 MAX_N = 8
 MIN_TASK_MEMORY = 4 << 20       # below this a task cannot hold a batch and a buffer at once
-TASK_BYTES = 16 << 20           # text files are split into tasks of about this size
+TASK_BYTES = 8 << 20            # text files are split into tasks of about this size
+POOL_ROWS = 8_000_000           # merges / writes smaller than this run in the driver (a pool costs ~1-2 s to start)
 _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
           "kib": 1 << 10, "mib": 1 << 20, "gib": 1 << 30, "tib": 1 << 40,
           "kb": 10 ** 3, "mb": 10 ** 6, "gb": 10 ** 9, "tb": 10 ** 12}
@@ -187,7 +188,7 @@ class ChunkCounter:
         self.spill_dir = spill_dir
         self.tag = tag
         self.limit = share * 5 // 8   # the rest: one batch in flight and one bucket being reduced
-        self.block_words = block_words or int(np.clip(share // 256, 2048, 1 << 16))
+        self.block_words = block_words or int(np.clip(share // 256, 2048, 1 << 17))
         self.buffers: list[list[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
         self.buffer_bytes = 0
         self.totals = [0] * max_n
@@ -398,6 +399,13 @@ def write_task(path: str, n: int, parts: list[PartitionResult], vocab_path: str,
     return path
 
 
+def _for_rows(executor: Executor, rows: int) -> Executor:
+    """The executor for a phase of `rows` rows: small phases run in this process (same results)."""
+    if executor.dask or executor.workers == 1 or rows >= POOL_ROWS:
+        return executor
+    return dataclasses.replace(executor, workers=1)
+
+
 def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Path, spill: Path,
                   config: CountConfig, files: list[Path], corpus_options: CorpusOptions, executor: Executor,
                   started: float) -> CountSummary:
@@ -427,8 +435,9 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
         runs = [run for r in results for run in r.runs if run.n == n]
         group_rows = int(np.clip(share // (16 * (n + 1) + 64), 4096, 1 << 18))
         jobs += plan_merges(runs, n, 2 * max(1, executor.workers), config.min_count, group_rows, spill)
+    run_rows = sum(run.rows for r in results for run in r.runs)
     parts: list[PartitionResult] = list(map_tasks(
-        merge_partition, [(j,) for j in jobs], executor=executor, label="merge",
+        merge_partition, [(j,) for j in jobs], executor=_for_rows(executor, run_rows), label="merge",
         describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}"))
     for r in results:
         for run in r.runs:
@@ -442,7 +451,8 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
     order = sorted(range(1, max_n + 1), key=lambda n: -kept[n - 1])  # biggest first: better load balance
     list(map_tasks(write_task, [(str(spill / f"ngrams-{n}.parquet"), n, by_n[n], vocab_path,
                                  max(1024, share // (24 * (n + 1) + 96))) for n in order],
-                   executor=executor, label="write", describe=lambda i: f"ngrams-{order[i]}.parquet"))
+                   executor=_for_rows(executor, 2 * sum(kept)), label="write",
+                   describe=lambda i: f"ngrams-{order[i]}.parquet"))
     documents = sum(r.documents for r in results)
     meta = {
         "format_version": FORMAT_VERSION, "N": totals[0], "max_n": max_n, "min_count": config.min_count,

@@ -102,32 +102,41 @@ def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | Non
     low = np.uint64((1 << ib) - 1)
     # Sort fingerprint prefixes with the row index packed into the low bits: a
     # plain (SIMD) sort of uint64 gives the permutation, much faster than argsort.
+    # Only neighbours with equal prefixes are compared word by word; if they
+    # all match, each prefix group is one n-gram and rows are gathered once.
     packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
     packed.sort()
     order = (packed & low).astype(np.intp)
+    prefix = packed >> shift
+    same = prefix[1:] == prefix[:-1]
+    pairs = np.flatnonzero(same)
+    a, b = order[pairs], order[pairs + 1]
+    equal = np.ones(len(pairs), bool)
+    for col in columns:
+        equal &= col[a] == col[b]
+    if equal.all():
+        starts = np.flatnonzero(np.concatenate(([True], ~same)))
+        rep = order[starts]
+        out = np.empty((len(starts), n + 1), np.uint64)
+        for j, col in enumerate(columns):
+            out[:, j] = col[rep]
+        out[:, n] = np.add.reduceat(counts[order], starts) if len(starts) < m else counts[rep]
+        return out, fp[rep]
+    # Different n-grams share a fingerprint prefix: order those groups by
+    # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
     cols = [col[order] for col in columns]
     c = counts[order]
     f = fp[order]
-    if m > 1:
-        same_prefix = (packed[1:] >> shift) == (packed[:-1] >> shift)
-        diff = _differs(cols)
-        bad = same_prefix & diff
-        if bad.any():
-            # Different n-grams share a fingerprint prefix: order those groups by
-            # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
-            group = np.concatenate(([0], np.cumsum(~same_prefix)))
-            pos = np.flatnonzero(np.isin(group, np.unique(group[1:][bad])))
-            perm = pos[np.lexsort([col[pos] for col in cols[::-1]] + [f[pos], group[pos]])]
-            for arr in cols + [c, f]:
-                arr[pos] = arr[perm]
-            diff = _differs(cols)
-        starts = np.flatnonzero(np.concatenate(([True], diff)))
-    else:
-        starts = np.zeros(1, np.intp)
+    group = np.concatenate(([0], np.cumsum(~same)))
+    pos = np.flatnonzero(np.isin(group, np.unique(group[1:][pairs[~equal]])))
+    perm = pos[np.lexsort([col[pos] for col in cols[::-1]] + [f[pos], group[pos]])]
+    for arr in cols + [c, f]:
+        arr[pos] = arr[perm]
+    starts = np.flatnonzero(np.concatenate(([True], _differs(cols))))
     out = np.empty((len(starts), n + 1), np.uint64)
     for j, col in enumerate(cols):
         out[:, j] = col[starts]
-    out[:, n] = np.add.reduceat(c, starts) if len(starts) < m else c
+    out[:, n] = np.add.reduceat(c, starts)
     return out, f[starts]
 
 

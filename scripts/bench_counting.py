@@ -9,11 +9,14 @@ first copy while occurrences grow with the size. A WordPiece tokenizer
 Three measurements, printed as a table:
 
 1. speed: counting n = 1..5 from `EncodedBatch`es onwards (the tokenization
-   is shared and excluded for both sides: the corpus is encoded once, before
-   either clock starts) with maskprep's engine (count, spill, merge, write
-   Parquet; one process) against a plain Python `collections.Counter` over
-   word tuples (``Counter.update(zip(...))`` per run of words, per n), and a
-   check that both give the same counts for every n-gram kept;
+   is shared and excluded for both sides: the corpus is encoded once, task by
+   task as `count` splits it, before either clock starts) with maskprep's
+   engine -- the same count tasks, merges and Parquet writes as `count`, run
+   through `map_tasks` with 1 and with 2 workers (the command's default here
+   is all cores), loading the encoded batches inside the tasks (counted
+   against maskprep) -- against a plain Python `collections.Counter` over word
+   tuples in one process (``Counter.update(zip(...))`` per run of words, per
+   n); and a check that both give the same counts for every n-gram kept;
 2. memory: peak RSS of the whole process tree of ``maskprep --workers 1
    count --memory 64MiB`` (sampled with psutil) when the counts need several
    times that budget;
@@ -28,8 +31,9 @@ Three measurements, printed as a table:
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
-import os
+import pickle
 import shutil
 import subprocess
 import sys
@@ -48,11 +52,10 @@ sys.path.insert(0, str(ROOT / "tests"))
 from conftest import shakespeare_files, speeches  # noqa: E402
 
 from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
-from maskprep.ngram_files import Vocabulary, write_ngrams  # noqa: E402
-from maskprep.ngrams import ChunkCounter  # noqa: E402
-from maskprep.spill import merge_partition, plan_merges  # noqa: E402
+from maskprep.execute import Executor, map_tasks  # noqa: E402
+from maskprep.ngrams import TASK_BYTES, ChunkCounter, CountConfig, finish_counts, task_share  # noqa: E402
 from maskprep.tokenize import WORD, SPACE, TrainConfig, encode_stream, load_tokenizer, save_tokenizer, \
-    train_tokenizer  # noqa: E402
+    tokenizer_from_json, train_tokenizer  # noqa: E402
 
 MAX_N = 5
 MIN_COUNT = 10
@@ -87,63 +90,85 @@ def tokenizer(work: Path) -> Path:
     return path
 
 
-def encode_all(corpus: Path, tok: Path) -> tuple[Any, list[Any]]:
-    info = load_tokenizer(tok)
-    opts = CorpusOptions()
-    batches = [b for task in plan_tasks(resolve_inputs([str(corpus)]), opts)
-               for b in encode_stream(info, iter_batches(task, opts, batch_chars=1 << 20))]
-    return info, batches
-
-
-def engine(info: Any, batches: list[Any], work: Path) -> tuple[float, dict[int, dict[str, int]]]:
-    """maskprep's counting path from EncodedBatch to Parquet, in this process; returns (seconds, counts)."""
-    import pyarrow.parquet as pq
-
-    spill = Path(tempfile.mkdtemp(dir=work, prefix=".spill-"))
-    share = 1 << 30
+def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[Path], float]:
+    """Encode the corpus once, task by task as `count` splits it; save each task's batches and word types."""
+    files = resolve_inputs([str(corpus)])
+    opts = dataclasses.replace(CorpusOptions(), chunk_bytes=TASK_BYTES)
     start = time.perf_counter()
-    counter = ChunkCounter(info, max_n=MAX_N, spill_dir=spill, share=share, tag="t000000")
+    paths = []
+    for task in plan_tasks(files, opts):
+        info = load_tokenizer(tok)
+        batches = list(encode_stream(info, iter_batches(task, opts, batch_chars=1 << 20)))
+        path = work / f"encoded-{task.index:03d}.pkl"
+        with open(path, "wb") as fh:
+            pickle.dump((task.index, batches, info._types), fh, protocol=5)
+        paths.append(path)
+    return paths, files, time.perf_counter() - start
+
+
+def count_encoded(path: str, tokenizer_json: str, max_n: int, spill_dir: str, share: int) -> Any:
+    """Task function: `count_chunk` from already encoded batches (the tokenizer's word types come along)."""
+    with open(path, "rb") as fh:
+        index, batches, types = pickle.load(fh)
+    info = tokenizer_from_json(tokenizer_json)
+    info._types.update(types)
+    counter = ChunkCounter(info, max_n=max_n, spill_dir=Path(spill_dir), share=share, tag=f"t{index:06d}")
     for b in batches:
         counter.add(b)
-    result = counter.finish()
-    vocab = Vocabulary()
-    vocab.add_file(result.words_path)
-    vocab.finish()
-    for n in range(1, MAX_N + 1):
-        runs = [r for r in result.runs if r.n == n]
-        parts = [merge_partition(job) for job in plan_merges(runs, n, 1, MIN_COUNT, 1 << 18, spill)]
-        write_ngrams(spill / f"ngrams-{n}.parquet", n, parts, vocab, 1 << 22)
+    return counter.finish(task_index=index)
+
+
+def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, workers: int) -> tuple[float, dict]:
+    """maskprep's path from EncodedBatch to COUNTS_DIR (count tasks, merges, Parquet writes); (seconds, counts)."""
+    import pyarrow.parquet as pq
+
+    info = load_tokenizer(tok)
+    config = CountConfig(max_n=MAX_N, min_count=MIN_COUNT, memory="1GiB")
+    executor = Executor(workers=workers, quiet=True)
+    out = work / f"counts-engine-{workers}"
+    out.mkdir()
+    spill = out / ".spill-bench"
+    spill.mkdir()
+    start = time.perf_counter()
+    share = task_share(config, executor, len(encoded))
+    results = list(map_tasks(count_encoded, [(str(p), info.json, MAX_N, str(spill), share) for p in encoded],
+                             executor=executor))
+    finish_counts(results, info=info, output=out, spill=spill, config=config, files=files,
+                  corpus_options=CorpusOptions(), executor=executor, started=time.monotonic())
     seconds = time.perf_counter() - start
+    shutil.rmtree(spill, ignore_errors=True)
     counts = {}
     for n in range(1, MAX_N + 1):
-        t = pq.read_table(spill / f"ngrams-{n}.parquet", columns=["text", "count"])
+        t = pq.read_table(out / f"ngrams-{n}.parquet", columns=["text", "count"])
         counts[n] = dict(zip(t.column("text").to_pylist(), t.column("count").to_pylist()))
-    shutil.rmtree(spill)
     return seconds, counts
 
 
-def word_runs(info: Any, batches: list[Any]) -> list[list[str]]:
+def word_runs(encoded: list[Path]) -> list[list[str]]:
     """Runs of counted words as Python strings (prepared before the baseline's clock starts)."""
-    text = {t.key: t.text for t in info._types.values()}
     runs: list[list[str]] = []
-    for b in batches:
-        kinds = b.word_kinds.tolist()
-        keys = b.word_keys.tolist()
-        offs = b.doc_offsets.tolist()
-        for d in range(b.num_docs):
-            cur: list[str] = []
-            for w in range(offs[d], offs[d + 1]):
-                k = kinds[w]
-                if k == SPACE:
-                    continue
-                if k == WORD:
-                    cur.append(text[keys[w]])
-                else:
-                    if cur:
-                        runs.append(cur)
-                    cur = []
-            if cur:
-                runs.append(cur)
+    for path in encoded:
+        with open(path, "rb") as fh:
+            _, batches, types = pickle.load(fh)
+        text = {t.key: t.text for t in types.values()}
+        for b in batches:
+            kinds = b.word_kinds.tolist()
+            keys = b.word_keys.tolist()
+            offs = b.doc_offsets.tolist()
+            for d in range(b.num_docs):
+                cur: list[str] = []
+                for w in range(offs[d], offs[d + 1]):
+                    k = kinds[w]
+                    if k == SPACE:
+                        continue
+                    if k == WORD:
+                        cur.append(text[keys[w]])
+                    else:
+                        if cur:
+                            runs.append(cur)
+                        cur = []
+                if cur:
+                    runs.append(cur)
     return runs
 
 
@@ -197,23 +222,26 @@ def main() -> None:
         corpus = build_corpus(work, args.speed_mb)
         mb = corpus.stat().st_size / 1e6
         if "speed" not in skip:
-            t0 = time.perf_counter()
-            info, batches = encode_all(corpus, tok)
-            t_encode = time.perf_counter() - t0
-            words = sum(int((b.word_kinds == WORD).sum()) for b in batches)
-            t_engine, ours = engine(info, batches, work)
-            runs = word_runs(info, batches)
-            del batches
+            encoded, files, t_encode = encode_tasks(corpus, tok, work)
+            runs = word_runs(encoded)
+            words = sum(map(len, runs))
             t_base, ref = baseline(runs)
             del runs
-            same = all(ours[n] == {" ".join(k): v for k, v in ref[n - 1].items() if v >= MIN_COUNT}
-                       for n in range(1, MAX_N + 1))
-            print(f"speed, {mb:.1f} MB of text ({words:,} counted words), n = 1..{MAX_N}, from EncodedBatch on "
-                  f"(shared tokenization excluded: {t_encode:.1f}s)")
-            print(f"  maskprep engine   {t_engine:8.2f}s   ({t_engine / words * 1e9:6.0f} ns/word)")
-            print(f"  Python Counter    {t_base:8.2f}s   ({t_base / words * 1e9:6.0f} ns/word)")
-            print(f"  ratio             {t_base / t_engine:8.1f}x   same counts for every kept n-gram: {same}")
-            del ref, ours
+            want = {n: {" ".join(k): v for k, v in ref[n - 1].items() if v >= MIN_COUNT} for n in range(1, MAX_N + 1)}
+            del ref
+            print(f"speed, {mb:.1f} MB of text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
+                  f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, {t_encode:.0f}s, "
+                  "is excluded for both)")
+            print(f"  Python Counter, 1 process      {t_base:8.2f}s   ({t_base / words * 1e9:6.0f} ns/word)")
+            for workers in (1, 2):
+                t_engine, ours = engine(encoded, files, tok, work, workers)
+                same = all(ours[n] == want[n] for n in range(1, MAX_N + 1))
+                print(f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t_engine:8.2f}s   "
+                      f"({t_engine / words * 1e9:6.0f} ns/word)   {t_base / t_engine:5.1f}x faster   "
+                      f"same counts for every kept n-gram: {same}")
+                del ours
+            for p in encoded:
+                p.unlink()
         if "memory" not in skip:
             out = work / "counts-mem"
             secs, peak = peak_rss(count_cmd(corpus, tok, out, args.memory, 1))

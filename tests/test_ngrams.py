@@ -239,8 +239,11 @@ def test_identical_files_for_any_batch_size_spill_threshold_and_workers(tmp_path
 
 
 def test_workers_split_tasks_yet_files_are_identical(tmp_path: Path, shakespeare_small: Path,
-                                                     small_wordpiece: Path) -> None:
+                                                     small_wordpiece: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # Source: the contract itself (byte-identical outputs for any worker count and task split).
+    import maskprep.ngrams
+
+    monkeypatch.setattr(maskprep.ngrams, "POOL_ROWS", 0)  # merges and writes in the pool too
     half = tmp_path / "parts"
     half.mkdir()
     lines = shakespeare_small.read_text(encoding="utf-8").splitlines(keepends=True)
