@@ -18,7 +18,8 @@ Where tasks run:
   (``PR_SET_PDEATHSIG``), so a killed run leaves no orphan still writing
   into the output directory.
 - ``dask="tcp://host:8786"``: a running Dask scheduler through
-  ``distributed.Client``; dask is imported only then. Arguments shared by
+  ``distributed.Client`` (or ``dask="/shared/scheduler.json"``, the file
+  written by ``dask scheduler --scheduler-file``); dask is imported only then. Arguments shared by
   every task (the same object in every tuple, e.g. a tokenizer) are sent to
   the cluster once. Tasks also run with one tokenizer thread each (unless the
   worker's environment sets ``RAYON_NUM_THREADS`` / ``TOKENIZERS_PARALLELISM``).
@@ -309,8 +310,12 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
               shared: str | Path | None) -> Iterator[Any]:
     distributed = _distributed()
     address = str(executor.dask)
+    target = {"scheduler_file": address} if address.endswith(".json") else {"address": address}
+    if "scheduler_file" in target and not Path(address).is_file():
+        raise MaskprepError(f"--dask {address}: no such scheduler file (written by dask scheduler "
+                            "--scheduler-file FILE); or give the scheduler's address, e.g. tcp://10.0.0.5:8786")
     try:
-        client = distributed.Client(address, timeout="10s", set_as_default=False)
+        client = distributed.Client(**target, timeout="10s", set_as_default=False)
     except Exception as exc:
         raise MaskprepError(f"--dask {address}: cannot reach the scheduler ({type(exc).__name__}: {exc}); "
                             f"start one with: dask scheduler, and workers with: dask worker {address}") from None

@@ -152,6 +152,14 @@ def test_results_come_back_in_task_order_on_dask(cluster_address):
     assert got == [i ** 3 for i in range(40)]
 
 
+def test_a_scheduler_file_is_accepted_in_place_of_an_address(tmp_path, cluster_address):
+    path = tmp_path / "scheduler.json"  # the shape `dask scheduler --scheduler-file` writes
+    path.write_text(json.dumps({"type": "Scheduler", "address": cluster_address}))
+    assert list(map_tasks(pow, [(2, 5), (3, 3)], executor=Executor(dask=str(path), quiet=True))) == [32, 27]
+    with pytest.raises(MaskprepError, match="no such scheduler file"):
+        list(map_tasks(pow, [(2, 5)], executor=Executor(dask=str(tmp_path / "missing.json"), quiet=True)))
+
+
 # ---------------------------------------------------------------- a failing task
 
 def _bad_corpus(directory: Path, files: list[str]) -> tuple[list[str], str]:
