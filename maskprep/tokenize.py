@@ -509,11 +509,41 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
 
     # One save/load round trip settles float formatting, so the hash of the
     # tokenizer in memory equals the hash of the file it is saved to.
-    tok = Tokenizer.from_str(tok.to_str())
+    tok = Tokenizer.from_str(_canonical_ids(tok.to_str()))
     info = TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
     if check_size:
         check_trained_size(info, config)
     return info
+
+
+def _canonical_ids(text: str) -> str:
+    """Give a trained WordPiece vocabulary ids in a fixed order.
+
+    The library's WordPiece trainer finds the same tokens on every run but
+    numbers them in an order that varies from run to run (its alphabet comes
+    from a hash map). WordPiece encoding depends only on which tokens exist, so
+    special tokens keep their ids and the other tokens are numbered in sorted
+    order: the same corpus then always gives the same tokenizer.json. (BPE
+    training is reproducible as it is; Unigram training is not bit-for-bit,
+    its scores vary in the last digits between runs.)
+    """
+    spec = json.loads(text)
+    model = spec.get("model") or {}
+    if model.get("type") != "WordPiece":
+        return text
+    special = {t["content"]: t["id"] for t in spec.get("added_tokens", []) if t.get("special")}
+    vocab = model["vocab"]
+    rest = sorted(t for t in vocab if t not in special)
+    renumbered = dict(sorted(special.items(), key=lambda kv: kv[1]))
+    next_id = 0
+    taken = set(renumbered.values())
+    for t in rest:
+        while next_id in taken:
+            next_id += 1
+        renumbered[t] = next_id
+        next_id += 1
+    model["vocab"] = dict(sorted(renumbered.items(), key=lambda kv: kv[1]))
+    return json.dumps(spec, ensure_ascii=False)
 
 
 def check_trained_size(info: TokenizerInfo, config: TrainConfig) -> None:

@@ -130,3 +130,14 @@ def test_vocab_size_beyond_corpus_says_what_it_reached() -> None:
         train_tokenizer(["a tiny corpus of few words"] * 3, TrainConfig(vocab_size=5000))
     with pytest.raises(MaskprepError, match=r"--model: expected one of wordpiece, bpe, unigram"):
         TrainConfig(model="char")
+
+
+@pytest.mark.parametrize("family", ["wordpiece", "bpe"])
+def test_training_is_reproducible(shakespeare_small: Path, family: str) -> None:
+    # Same corpus and options must give a byte-identical tokenizer, or every later output would
+    # differ between runs (WordPiece ids are renumbered in a fixed order after training).
+    from maskprep.corpus import iter_corpus
+
+    a = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model=family, vocab_size=3000))
+    b = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model=family, vocab_size=3000))
+    assert a.json == b.json and a.hash == b.hash
