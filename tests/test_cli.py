@@ -55,3 +55,10 @@ def test_workers_must_be_positive(tmp_path) -> None:
     r = CliRunner().invoke(cli, ["--workers", "0", "count", str(corpus), "-t", "x.json", "-o", str(tmp_path / "o")])
     assert r.exit_code == 1
     assert "--workers: expected a positive whole number, got 0" in r.output
+
+
+def test_public_api_names_resolve() -> None:
+    import maskprep
+
+    for name in maskprep.__all__:
+        assert getattr(maskprep, name) is not None, name
