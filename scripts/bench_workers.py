@@ -39,6 +39,7 @@ from __future__ import annotations
 import argparse
 import hashlib
 import os
+import resource
 import shutil
 import subprocess
 import sys
@@ -87,15 +88,19 @@ def digest(directory: Path) -> str:
     return h.hexdigest()
 
 
-def timed(where: list[str], command: list[str], out: Path, env: dict[str, str]) -> tuple[float, str]:
+def timed(where: list[str], command: list[str], out: Path, env: dict[str, str]) -> tuple[float, float, str]:
+    """Wall seconds, CPU seconds of the command's processes (driver and pool; not Dask's workers), digest."""
     shutil.rmtree(out, ignore_errors=True)
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
     done = subprocess.run([sys.executable, "-m", "maskprep", "--quiet", *where, *command, "-o", str(out)],
                           cwd=ROOT, env=env, capture_output=True, text=True)
     seconds = time.perf_counter() - t0
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
     if done.returncode != 0:
         sys.exit(f"failed: maskprep {' '.join(where + command)}\n{done.stderr}")
-    return seconds, digest(out)
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+    return seconds, cpu, digest(out)
 
 
 def main() -> None:
@@ -132,18 +137,23 @@ def main() -> None:
         print(f"corpus: {copies} cop{'y' if copies == 1 else 'ies'} of the plays, {size:.1f} MB in {args.files} "
               f"files; {os.cpu_count()} cores; best of {repeat} run(s), interleaved", flush=True)
         best: dict[tuple[str, str], float] = {}
+        cpu: dict[tuple[str, str], float] = {}
         digests: dict[str, set[str]] = {name: set() for name in commands}
+        load = [os.getloadavg()[0]]
         for _ in range(repeat):
             for name, command in commands.items():
                 for label, (where, env) in setups.items():
-                    seconds, d = timed(where, command, work / f"out-{name}", env)
-                    best[name, label] = min(best.get((name, label), seconds), seconds)
+                    seconds, used, d = timed(where, command, work / f"out-{name}", env)
+                    if seconds < best.get((name, label), float("inf")):
+                        best[name, label], cpu[name, label] = seconds, used
                     digests[name].add(d)
+        load.append(os.getloadavg()[0])
         for name, command in commands.items():
             print(f"\nmaskprep [--workers N | --dask ADDRESS] {command[0]} CORPUS -t tokenizer.json "
                   + " ".join(command[1 + len(corpus) + 2:]))
             for label in setups:
-                print(f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} MB/s")
+                share = "" if label.startswith("dask") else f"  (CPU {cpu[name, label]:6.1f} s)"
+                print(f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} MB/s{share}")
             w1, w1t, w2 = best[name, "workers 1"], best[name, "workers 1, one thread"], best[name, "workers 2"]
             print(f"  speed-up --workers 2 vs --workers 1, one thread: {w1t / w2:.2f}x (target >= 1.6x)")
             print(f"  speed-up --workers 2 vs --workers 1 (default):   {w1 / w2:.2f}x")
@@ -151,6 +161,8 @@ def main() -> None:
             if dask_label:
                 print(f"  Dask / local pool (same 2 processes):          {best[name, dask_label] / w2:.2f}x the time")
             print(f"  outputs identical across set-ups: {'yes' if len(digests[name]) == 1 else 'NO'}")
+        print(f"\nload average (1 min) before / after: {load[0]:.1f} / {load[1]:.1f} on {os.cpu_count()} cores; "
+              "other processes competing for the cores make the ratios smaller")
         if any(len(d) != 1 for d in digests.values()):
             sys.exit("outputs differ between set-ups")
     finally:
