@@ -42,6 +42,7 @@ from pathlib import Path
 
 import numpy as np
 
+from . import __version__
 from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, iter_batches, plan_tasks, \
     resolve_inputs
 from .errors import MaskprepError
@@ -466,7 +467,7 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
         "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,
                     "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
                     "strict": corpus_options.strict},
-        "maskprep_version": _version(),
+        "maskprep_version": __version__,
     }
     try:
         fsynced_text(spill / "tokenizer.json", info.json)
@@ -481,14 +482,6 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
                         spill_runs=sum(len(r.runs) for r in results), tasks=len(results),
                         seconds=time.monotonic() - started, files=[str(f) for f in files])
 
-
-def _version() -> str:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version("maskprep")
-    except PackageNotFoundError:
-        return "unknown"
 
 
 def format_summary(summary: CountSummary) -> str:

@@ -80,9 +80,8 @@ def code_version() -> str:
     True
     """
     if not _CODE:
-        from .shards import _version
+        from . import __version__
 
-        __version__ = _version()
         h = hashlib.sha256()
         for p in sorted(Path(__file__).parent.glob("*.py")):
             h.update(p.name.encode() + b"\0" + p.read_bytes() + b"\0")

@@ -53,6 +53,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import __version__
 from .errors import MaskprepError
 from .io import atomic_path, atomic_write_text, read_json
 from .masking import MaskingConfig, Strategy, mask_batch, strategy_units
@@ -147,14 +148,6 @@ class ShardManifest:
         except (KeyError, TypeError) as exc:
             raise MaskprepError(f"{path}: incomplete manifest ({exc})") from None
 
-
-def _version() -> str:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version("maskprep")
-    except PackageNotFoundError:
-        return "unknown"
 
 
 def _dump(obj: Any) -> str:
@@ -449,7 +442,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                "dynamic": shards.dynamic, "units_sha256": units_digest, "tokenizer_hash": info.hash,
                "corpus_fingerprint": fingerprint, "doc_sep": corpus_options.doc_sep,
                "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
-               "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": _version()}
+               "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__}
     run_digest = hashlib.sha256(json.dumps(options, sort_keys=True).encode()).hexdigest()
     out = Path(output)
     _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
@@ -490,7 +483,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     manifest = ShardManifest(
         options=options, tokenizer={**info.describe(), "mask_token_id": mask_id, "special_ids": special_ids},
         corpus={"files": [str(f) for f in files], "tasks": len(tasks), **read.to_dict()},
-        totals=totals, shards=tuple(records), maskprep_version=_version())
+        totals=totals, shards=tuple(records), maskprep_version=__version__)
     stats_doc = stats.to_dict(seed=shards.seed, layout=metadata["layout"], options=options,
                               note="rate is over maskable (non-special) tokens; each sequence's budget is "
                                    "round(rate x its maskable tokens), so per-sequence rates vary"

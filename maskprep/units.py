@@ -38,6 +38,7 @@ from typing import Any, Mapping, Union
 
 import numpy as np
 
+from . import __version__
 from .cohesion import MAX_N, Measure, NgramIndex, score_ngrams, score_with_split_pmi
 from .errors import MaskprepError
 from .io import atomic_path, read_json
@@ -447,7 +448,7 @@ def write_units(vocab: UnitVocabulary, path: Union[str, Path]) -> tuple[Path, Pa
     n = np.asarray(vocab.n, dtype=np.int64)
     meta = {"kind": _KIND, "format_version": FORMAT_VERSION, "measure": vocab.measure.value,
             "options": dict(vocab.options), "tokenizer_hash": vocab.tokenizer_hash,
-            "source": dict(vocab.source), "maskprep_version": _version()}
+            "source": dict(vocab.source), "maskprep_version": __version__}
     schema = pa.schema([("text", pa.string()), ("n", pa.int32()), ("count", pa.int64()),
                         ("score", pa.float64()), ("token_ids", pa.list_(pa.int32())),
                         ("word_keys", pa.list_(pa.uint64()))],
@@ -524,14 +525,6 @@ def _split_lists(column: Any, dtype: Any) -> tuple[np.ndarray, ...]:
     values = arr.values.to_numpy(zero_copy_only=False).astype(dtype)
     return tuple(np.split(values[offsets[0]:offsets[-1]], offsets[1:-1] - offsets[0]))
 
-
-def _version() -> str:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version("maskprep")
-    except PackageNotFoundError:
-        return "unknown"
 
 
 def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
