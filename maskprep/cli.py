@@ -86,6 +86,27 @@ def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     return fn
 
 
+def masking_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """The masking and packing options shared by mask and compare."""
+    for opt in reversed([
+        click.option("--rate", type=float, default=0.15, show_default=True,
+                     help="Share of maskable (non-special) tokens made targets, per sequence."),
+        click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
+                     help="How targets are shown: mask token, random token, unchanged."),
+        click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
+                     help="Draw the mix per target token or once per masked unit."),
+        click.option("--span-p", type=float, default=0.2, show_default=True,
+                     help="span: geometric parameter of span lengths."),
+        click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words."),
+        click.option("--seq-len", type=int, default=128, show_default=True,
+                     help="Tokens per sequence, special tokens included."),
+        click.option("--no-pack", is_flag=True,
+                     help="One document per sequence (split when too long) instead of packing."),
+    ]):
+        fn = opt(fn)
+    return fn
+
+
 def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict: bool) -> Any:
     from .corpus import CorpusOptions
 
@@ -268,16 +289,7 @@ def _pct(x: float | None) -> str:
               help="How tokens are grouped into the units the sampler masks.")
 @click.option("--units", "units_path", type=click.Path(), default=None,
               help="Unit vocabulary (units.parquet from maskprep units); needed by --strategy pmi.")
-@click.option("--rate", type=float, default=0.15, show_default=True,
-              help="Share of maskable (non-special) tokens made targets, per sequence.")
-@click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
-              help="How targets are shown: mask token, random token, unchanged.")
-@click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
-              help="Draw the mix per target token or once per masked unit.")
-@click.option("--span-p", type=float, default=0.2, show_default=True, help="span: geometric parameter of span lengths.")
-@click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words.")
-@click.option("--seq-len", type=int, default=128, show_default=True, help="Tokens per sequence, special tokens included.")
-@click.option("--no-pack", is_flag=True, help="One document per sequence (split when too long) instead of packing.")
+@masking_options
 @click.option("--copies", type=int, default=1, show_default=True,
               help="Differently masked copies of every sequence (one set of shard files each).")
 @click.option("--seed", type=int, default=0, show_default=True, help="Seed of all random draws.")
@@ -388,16 +400,7 @@ def _parse_sample(text: str) -> int | None:
               help="Unit vocabulary (units.parquet from maskprep units): enables pmi and within-unit leakage.")
 @click.option("--strategies", default=None, metavar="S,S,...",
               help="Strategies to compare, from token,word,span,pmi (default: all; pmi only with --units).")
-@click.option("--rate", type=float, default=0.15, show_default=True,
-              help="Share of maskable (non-special) tokens made targets, per sequence.")
-@click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
-              help="How targets are shown: mask token, random token, unchanged.")
-@click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
-              help="Draw the mix per target token or once per masked unit.")
-@click.option("--span-p", type=float, default=0.2, show_default=True, help="span: geometric parameter of span lengths.")
-@click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words.")
-@click.option("--seq-len", type=int, default=128, show_default=True, help="Tokens per sequence, special tokens included.")
-@click.option("--no-pack", is_flag=True, help="One document per sequence (split when too long) instead of packing.")
+@masking_options
 @click.option("--sample", default="10000", show_default=True, metavar="N|all",
               help="Most sequences compared, spread over the corpus by size; 'all' for every sequence.")
 @click.option("--seed", type=int, default=0, show_default=True, help="Seed of all random draws (as for maskprep mask).")
