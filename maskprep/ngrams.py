@@ -19,8 +19,9 @@ driver writes ``ngrams-<n>.parquet`` (count descending, then fingerprint, then
 keys), ``counts.json`` and a copy of the tokenizer, renaming each into place
 only when all are complete; ``counts.json`` is renamed last.
 
-Memory: every task keeps to ``memory / workers``; merges and the final write
-work in blocks of that size. What is not bounded by ``--memory``: one batch
+Memory: every task keeps to ``memory / workers`` (with ``--dask``, each task
+gets all of ``--memory``: it is then the budget per running task); merges and
+the final write work in blocks of that size. What is not bounded by ``--memory``: one batch
 holds at least one whole document, and the driver keeps the word vocabulary
 (distinct words and their texts) to write the ``text`` column.
 
@@ -69,8 +70,8 @@ _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
 def parse_memory(text: str | int, *, option: str = "--memory") -> int:
     """Bytes from "1GiB", "512MiB", "2G" (K/M/G/T and KiB.. are powers of 1024; KB/MB/GB of 1000) or an int.
 
-    >>> parse_memory("512MiB"), parse_memory("2G"), parse_memory("1.5kb")
-    (536870912, 2147483648, 1500)
+    >>> parse_memory("512MiB"), parse_memory("2G"), parse_memory("10MB")
+    (536870912, 2147483648, 10000000)
     """
     if isinstance(text, int) and not isinstance(text, bool):
         value = text
