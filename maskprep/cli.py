@@ -207,11 +207,13 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
               help="Memory for counting, shared by the workers; beyond it sorted runs spill to COUNTS_DIR. "
                    "K/M/G/T and KiB..TiB are powers of 1024, KB/MB/GB/TB of 1000, a plain number is bytes.")
 @click.option("--overwrite", is_flag=True, help="Replace the counts in an existing, non-empty COUNTS_DIR.")
+@click.option("--resume", is_flag=True,
+              help="Finish an interrupted count with the same options and inputs; finished tasks are not redone.")
 @corpus_options
 @click.pass_context
 @user_errors
 def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output: str, max_n: int, min_count: int,
-              memory: str, overwrite: bool, **copts: Any) -> None:
+              memory: str, overwrite: bool, resume: bool, **copts: Any) -> None:
     """Count word n-grams of CORPUS exactly, in bounded memory.
 
     Words are the tokenizer's pre-tokenization pieces. N-grams never contain or
@@ -225,7 +227,7 @@ def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, outpu
     config = CountConfig(max_n=max_n, min_count=min_count, memory=memory)
     summary = count_ngrams(list(corpus), tokenizer=tokenizer, output=Path(output), config=config,
                            corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
-                           overwrite=overwrite, quiet=is_quiet(ctx))
+                           overwrite=overwrite, quiet=is_quiet(ctx), resume=resume)
     click.echo(format_summary(summary))
 
 

@@ -10,14 +10,16 @@ How: the corpus is split into tasks (`corpus.plan_tasks`). `count_chunk`
 encodes a task batch by batch and counts all n = 1..max_n at once with numpy
 (`spill.count_windows`), buffers the distinct n-grams per coarse key range,
 and when its share of ``--memory`` is used, reduces the buffer and spills one
-sorted run per n to ``COUNTS_DIR/.spill-*/``. Every run is sorted by the
+sorted run per n to ``COUNTS_DIR/.maskprep-count/`` (each finished task is
+recorded there for ``--resume``, see `maskprep.count_state`). Every run is sorted by the
 n-grams' fingerprints, so a key range (fine bucket) is one slice of each run.
 `merge_partition` then reduces one key range of one n at a time, in small
 cache-sized groups, so no process ever holds all keys; pruning by
 ``min_count`` happens there, exactly, after all occurrences are summed. The
 driver writes ``ngrams-<n>.parquet`` (count descending, then fingerprint, then
 keys), ``counts.json`` and a copy of the tokenizer, renaming each into place
-only when all are complete; ``counts.json`` is renamed last.
+only when all are complete; ``counts.json`` is renamed last, and then the
+state directory (runs included) is removed.
 
 Memory: every task keeps to ``memory / workers`` (with ``--dask``, each task
 gets all of ``--memory``: it is then the budget per running task); merges and
@@ -35,9 +37,7 @@ import itertools
 import json
 import os
 import re
-import shutil
 import time
-import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -48,7 +48,7 @@ from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, it
     resolve_inputs
 from .errors import MaskprepError
 from .execute import Executor, map_tasks
-from .ngram_files import Vocabulary, check_output, collision_error, fsynced_text, publish, write_ngrams
+from .ngram_files import Vocabulary, collision_error, fsynced_text, publish, write_ngrams
 from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, \
     count_block, disk_error, fine_bucket, merge_partition, plan_merges, reduce_rows
 from .tokenize import SPACE, WORD, EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
@@ -340,36 +340,50 @@ def _task_megabytes(task: CorpusTask) -> float:
 
 def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo, output: str | Path,
                  config: CountConfig = CountConfig(), corpus_options: CorpusOptions = CorpusOptions(),
-                 executor: Executor = Executor(), overwrite: bool = False, quiet: bool = False) -> CountSummary:
-    """Count the word n-grams of a corpus exactly into COUNTS_DIR `output`.
+                 executor: Executor = Executor(), overwrite: bool = False, quiet: bool = False,
+                 resume: bool = False) -> CountSummary:
+    """Count the word n-grams of a corpus exactly into COUNTS_DIR `output`; `resume` finishes an interrupted count.
+
+    Finished tasks are recorded in ``COUNTS_DIR/.maskprep-count/`` (see `maskprep.count_state`).
 
     >>> count_ngrams(["plays.txt"], tokenizer="tokenizer.json", output="counts", config=CountConfig(max_n=3))  # doctest: +SKIP
     CountSummary(output=PosixPath('counts'), N=860226, ...)
     """
+    from .count_state import finished_summary, open_state, count_recorded
+
     started = time.monotonic()
     output = Path(output)
     files = resolve_inputs(list(corpus))
     info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
-    check_output(output, overwrite)
     executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
     task_options = dataclasses.replace(corpus_options, chunk_bytes=min(corpus_options.chunk_bytes, TASK_BYTES))
     tasks = plan_tasks(files, task_options)
     share = task_share(config, executor, len(tasks))
-    output.mkdir(parents=True, exist_ok=True)
-    if overwrite:
-        for old in output.glob(".spill-*"):
-            shutil.rmtree(old, ignore_errors=True)
-    spill = output / f".spill-{uuid.uuid4().hex[:12]}"
-    spill.mkdir()
-    try:
-        results: list[ChunkResult] = list(map_tasks(
-            count_chunk, [(t, info.json, config, str(spill), task_options, share) for t in tasks],
-            executor=executor, label="count", describe=lambda i: tasks[i].describe(),
-            weights=[_task_megabytes(t) for t in tasks], unit="MB"))
-        return finish_counts(results, info=info, output=output, spill=spill, config=config, files=files,
-                             corpus_options=corpus_options, executor=executor, started=started)
-    finally:
-        shutil.rmtree(spill, ignore_errors=True)
+    fingerprint = corpus_fingerprint(files, corpus_options)
+    identity = {"state_version": 1, "format_version": FORMAT_VERSION, "maskprep_version": __version__,
+                "max_n": config.max_n, "min_count": config.min_count, "tokenizer_hash": info.hash,
+                "corpus_fingerprint": fingerprint, "doc_sep": corpus_options.doc_sep,
+                "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
+                "task_bytes": task_options.chunk_bytes}
+    state = open_state(output, identity, resume=resume, overwrite=overwrite)
+    if state is None:  # --resume on counts finished with these options: nothing to do
+        return finished_summary(output, tasks=len(tasks), started=started)
+    done = state.finished([t.index for t in tasks]) if resume else {}
+    state.clean(done)
+    todo = [t for t in tasks if t.index not in done]
+    root = os.path.abspath(state.root)  # tasks get absolute paths: a Dask worker's cwd is not the driver's
+    args = [(dataclasses.replace(t, path=os.path.abspath(t.path)), info.json, config, root, task_options, share,
+             state.digest) for t in todo]
+    for result in map_tasks(count_recorded, args, executor=executor, label="count",
+                            describe=lambda i: todo[i].describe(), weights=[_task_megabytes(t) for t in todo],
+                            unit="MB", shared=output):
+        done[result.task_index] = result
+    summary = finish_counts([done[t.index] for t in tasks], info=info, output=output,
+                            spill=state.merge_dir().resolve(), config=config, files=files,
+                            corpus_options=corpus_options, executor=executor, started=started,
+                            fingerprint=fingerprint)
+    state.remove()
+    return summary
 
 
 def task_share(config: CountConfig, executor: Executor, tasks: int) -> int:
@@ -410,7 +424,7 @@ def _for_rows(executor: Executor, rows: int) -> Executor:
 
 def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Path, spill: Path,
                   config: CountConfig, files: list[Path], corpus_options: CorpusOptions, executor: Executor,
-                  started: float) -> CountSummary:
+                  started: float, fingerprint: str | None = None) -> CountSummary:
     """Merge the spilled runs of all tasks, write COUNTS_DIR and rename it into place.
 
     >>> finish_counts(results, info=info, output=Path("counts"), spill=spill, config=config, files=files,
@@ -419,8 +433,7 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
     max_n = config.max_n
     vocab = Vocabulary()
     for r in results:
-        vocab.add_file(r.words_path)
-        os.unlink(r.words_path)
+        vocab.add_file(r.words_path)  # kept: a resumed count merges the recorded tasks again
     vocab.finish()
     vocab_path = str(spill / "words.arrow")
     try:
@@ -441,9 +454,6 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
     parts: list[PartitionResult] = list(map_tasks(
         merge_partition, [(j,) for j in jobs], executor=_for_rows(executor, run_rows), label="merge",
         describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}"))
-    for r in results:
-        for run in r.runs:
-            os.unlink(run.path)
     by_n = {n: [p for p in parts if p.n == n] for n in range(1, max_n + 1)}
     for n in range(1, max_n + 1):
         if sum(p.total for p in by_n[n]) != totals[n - 1]:
@@ -463,7 +473,7 @@ def finish_counts(results: list[ChunkResult], *, info: TokenizerInfo, output: Pa
         "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
         "documents": documents,
         "tokenizer_hash": info.hash, "tokenizer_name": info.name,
-        "corpus_fingerprint": corpus_fingerprint(files, corpus_options),
+        "corpus_fingerprint": fingerprint or corpus_fingerprint(files, corpus_options),
         "corpus_files": [str(f) for f in files],
         "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,
                     "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,

@@ -423,8 +423,9 @@ class MergeJob:
 def disk_error(exc: OSError, where: Path, doing: str) -> MaskprepError:
     if exc.errno in (errno.ENOSPC, errno.EDQUOT):
         return MaskprepError(f"{where}: no space left on device while {doing}; free disk space, write "
-                             "COUNTS_DIR (-o) on a larger disk, or raise --memory so fewer runs are spilled "
-                             "(temporary files were removed)")
+                             "COUNTS_DIR (-o) on a larger disk, or raise --memory so fewer runs are spilled; "
+                             "finished tasks are kept in COUNTS_DIR/.maskprep-count for --resume (delete it to "
+                             "free their space)")
     return MaskprepError(f"{where}: cannot write while {doing} ({exc.strerror or exc})")
 
 

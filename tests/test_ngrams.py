@@ -381,7 +381,7 @@ def test_cli_input_errors(tmp_path: Path, shakespeare_small: Path, small_wordpie
 
 def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path,
                                       monkeypatch: pytest.MonkeyPatch) -> None:
-    # Source: the command contract (clear message, temporary files removed).
+    # Source: the command contract (clear message, nothing that looks finished, resumable once space is free).
     import maskprep.spill
 
     calls = {"n": 0}
@@ -399,4 +399,13 @@ def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, s
     assert r.exit_code == 1
     assert "no space left on device while spilling" in r.output
     assert calls["n"] > 3
-    assert list(out.iterdir()) == []  # no spill directory, no partial counts
+    assert [p.name for p in out.iterdir()] == [".maskprep-count"]  # no partial counts, only the resume state
+    assert [p.name for p in (out / ".maskprep-count").iterdir()] == ["run.json"]  # the failed attempt is gone
+    monkeypatch.setattr(maskprep.spill, "write_block", real)  # space freed
+    r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--memory", "4MiB",
+               "--resume")
+    assert r.exit_code == 0, r.output
+    fresh = tmp_path / "fresh"
+    assert invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(fresh)).exit_code == 0
+    assert sorted(p.name for p in out.iterdir()) == sorted(p.name for p in fresh.iterdir())
+    assert all((out / p.name).read_bytes() == p.read_bytes() for p in fresh.iterdir())

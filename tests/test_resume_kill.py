@@ -122,3 +122,47 @@ def test_mask_killed_three_times_then_resumed_equals_an_uninterrupted_run(tmp_pa
     run_to_end(["mask", *args, "-o", str(out), "--resume"])
     assert temp_files(out) == []
     assert all_files(out) == all_files(ref)
+
+
+def count_records(out: Path) -> dict[str, int]:
+    return {p.name: p.stat().st_mtime_ns for p in (out / ".maskprep-count").glob("task-*.json")}
+
+
+def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_uninterrupted_run(
+        tmp_path, plays_in_files, small_wordpiece):
+    args = [*plays_in_files, "-t", str(small_wordpiece), "--max-n", "5", "--min-count", "1", "--memory", "64MiB"]
+    ref, out = tmp_path / "ref", tmp_path / "out"
+    run_to_end(["count", *args, "-o", str(ref)])
+    state = out / ".maskprep-count"
+    finished = ["counts.json", *(f"ngrams-{n}.parquet" for n in range(1, 6))]
+
+    def nothing_finished() -> bool:
+        return not any((out / f).exists() for f in finished)
+
+    # 1: while counting, with two tasks recorded
+    kill_when(["count", *args, "-o", str(out)], lambda: len(count_records(out)) >= 2, what="2 tasks counted")
+    assert nothing_finished()
+    early = count_records(out)
+    assert 2 <= len(early) < len(plays_in_files)
+    # 2: while merging the runs (merged key ranges being written)
+    kill_when(["count", *args, "-o", str(out), "--resume"], lambda: any(state.glob("merge-*/kept-*")),
+              what="merge phase")
+    assert nothing_finished()
+    records = count_records(out)
+    assert len(records) == len(plays_in_files)
+    assert all(records[name] == mtime for name, mtime in early.items())  # recorded tasks were not counted again
+    # 3: while writing the Parquet files
+    kill_when(["count", *args, "-o", str(out), "--resume"], lambda: any(state.glob("merge-*/ngrams-*.parquet")),
+              what="write phase")
+    assert nothing_finished()
+    assert count_records(out) == records
+    # other options are refused, naming the difference
+    refused = subprocess.run(command("count", *args, "-o", str(out), "--resume", "--max-n", "4"), cwd=ROOT,
+                             capture_output=True, text=True, timeout=TIMEOUT)
+    assert refused.returncode == 1 and "--max-n: 5 before, 4 now" in refused.stderr
+    run_to_end(["count", *args, "-o", str(out), "--resume"])
+    assert not state.exists() and temp_files(out) == []
+    assert all_files(out) == all_files(ref)
+    # a finished count resumed again is left as it is
+    run_to_end(["count", *args, "-o", str(out), "--resume"])
+    assert all_files(out) == all_files(ref)
