@@ -29,6 +29,7 @@ from maskprep.corpus import CorpusOptions, plan_tasks
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor, map_tasks
 from maskprep.masking import MaskingConfig
+from maskprep.ngrams import CountConfig, count_ngrams
 from maskprep.packing import PackingConfig
 from maskprep.shards import ShardConfig, write_shards
 
@@ -178,55 +179,66 @@ def _bad_corpus(directory: Path, files: list[str]) -> tuple[list[str], str]:
     return copies, copies[0]
 
 
+def _stage(command: str, files: list[str], tokenizer: Path, out: Path, options: CorpusOptions, executor: Executor,
+           resume: bool = False) -> None:
+    if command == "mask":
+        write_shards(files, tokenizer=str(tokenizer), output=out, masking=MaskingConfig(strategy="word"),
+                     packing=PackingConfig(seq_len=64), shards=ShardConfig(shard_rows=200),
+                     corpus_options=options, executor=executor, resume=resume)
+    else:
+        count_ngrams(files, tokenizer=str(tokenizer), output=out, config=CountConfig(max_n=3, min_count=1),
+                     corpus_options=options, executor=executor, resume=resume, quiet=True)
+
+
+RECORD_OF_TASK_0 = {"mask": ".maskprep/task-00000.json", "count": ".maskprep-count/task-000000.json"}
+FINISHED = {"mask": "manifest.json", "count": "counts.json"}
+
+
 @pytest.mark.parametrize("where", ["workers-1", "workers-2", "dask"])
+@pytest.mark.parametrize("command", ["mask", "count"])
 def test_a_failing_chunk_is_named_and_the_run_resumes(tmp_path, cluster_address, tiny_files, small_wordpiece,
-                                                      where):
+                                                      command, where):
     files, bad = _bad_corpus(tmp_path / "corpus", tiny_files)
     strict = CorpusOptions(strict=True, chunk_bytes=4096)
     tasks = plan_tasks([Path(f) for f in files], strict)
     second = next(t for t in tasks if t.path == bad and t.start == 4096)
     executor = {"workers-1": Executor(workers=1, quiet=True), "workers-2": Executor(workers=2, quiet=True),
                 "dask": Executor(dask=cluster_address, quiet=True)}[where]
-
-    def run(out: Path, options: CorpusOptions, resume: bool = False) -> None:
-        write_shards(files, tokenizer=str(small_wordpiece), output=out, masking=MaskingConfig(strategy="word"),
-                     packing=PackingConfig(seq_len=64), shards=ShardConfig(shard_rows=200),
-                     corpus_options=options, executor=executor, resume=resume)
-
     out = tmp_path / "out"
     with pytest.raises(MaskprepError) as failure:
-        run(out, strict)
+        _stage(command, files, small_wordpiece, out, strict, executor)
     message = str(failure.value)
     assert message.startswith(f"{bad} (bytes {second.start}-{second.end}): ")  # CorpusTask.describe()
     assert "invalid UTF-8 at byte offset" in message
-    assert not (out / "manifest.json").exists() and not (out / "stats.json").exists()
-    assert (out / ".maskprep" / "run.json").is_file()
-    first = out / ".maskprep" / "task-00000.json"
+    assert not (out / FINISHED[command]).exists()
+    first = out / RECORD_OF_TASK_0[command]
     deadline = time.monotonic() + 30  # on Dask a task already running when another fails still finishes
     while not first.is_file() and time.monotonic() < deadline:
         time.sleep(0.05)
     assert first.is_file()  # the chunk before the bad one finished and is recorded
     recorded = first.stat().st_mtime_ns
-    # without --strict the bad byte is replaced; resuming finishes the run and reuses finished tasks
-    lenient = CorpusOptions(chunk_bytes=4096)
-    run(out, lenient, resume=True)
+    # resumed, still --strict: task 0 is not redone, the bad chunk fails again
+    with pytest.raises(MaskprepError, match=r"\(bytes 4096-8192\): "):
+        _stage(command, files, small_wordpiece, out, strict, executor, resume=True)
     assert first.stat().st_mtime_ns == recorded
-    write_shards(files, tokenizer=str(small_wordpiece), output=tmp_path / "ref", masking=MaskingConfig(strategy="word"),
-                 packing=PackingConfig(seq_len=64), shards=ShardConfig(shard_rows=200), corpus_options=lenient,
-                 executor=Executor(workers=1, quiet=True))
+    # without --strict the bad byte is replaced; resuming finishes the run
+    lenient = CorpusOptions(chunk_bytes=4096)
+    _stage(command, files, small_wordpiece, out, lenient, executor, resume=True)
+    _stage(command, files, small_wordpiece, tmp_path / "ref", lenient, Executor(workers=1, quiet=True))
     assert all_files(out) == all_files(tmp_path / "ref")
 
 
 def test_the_cli_exits_1_naming_the_file_of_the_failing_task(tmp_path, cluster_address, tiny_files,
                                                              small_wordpiece):
     files, bad = _bad_corpus(tmp_path / "corpus", tiny_files)
-    for where in (["--workers", "2"], ["--dask", cluster_address]):
-        out = tmp_path / where[0].strip("-")
-        result = CliRunner().invoke(cli, ["--quiet", *where, "mask", "--strict", *files, "-t", str(small_wordpiece),
+    for where, command in ((["--workers", "2"], "mask"), (["--dask", cluster_address], "mask"),
+                           (["--workers", "2"], "count"), (["--dask", cluster_address], "count")):
+        out = tmp_path / f"{where[0].strip('-')}-{command}"
+        result = CliRunner().invoke(cli, ["--quiet", *where, command, "--strict", *files, "-t", str(small_wordpiece),
                                           "-o", str(out)])
         assert result.exit_code == 1, result.output
         assert result.output.startswith(f"Error: {bad} (bytes 0-")
-        assert not (out / "manifest.json").exists()
-        again = CliRunner().invoke(cli, ["--quiet", *where, "mask", *files, "-t", str(small_wordpiece), "-o", str(out),
+        assert not (out / FINISHED[command]).exists()
+        again = CliRunner().invoke(cli, ["--quiet", *where, command, *files, "-t", str(small_wordpiece), "-o", str(out),
                                          "--resume"])
         assert again.exit_code == 0, again.output

