@@ -519,13 +519,14 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
 def _canonical_ids(text: str) -> str:
     """Give a trained WordPiece vocabulary ids in a fixed order.
 
-    The library's WordPiece trainer finds the same tokens on every run but
-    numbers them in an order that varies from run to run (its alphabet comes
-    from a hash map). WordPiece encoding depends only on which tokens exist, so
-    special tokens keep their ids and the other tokens are numbered in sorted
-    order: the same corpus then always gives the same tokenizer.json. (BPE
-    training is reproducible as it is; Unigram training is not bit-for-bit,
-    its scores vary in the last digits between runs.)
+    The library's WordPiece trainer numbers its tokens in an order that varies
+    from run to run (its alphabet comes from a hash map), and breaks ties
+    between equally frequent merges differently, so a few tokens can differ.
+    WordPiece encoding depends only on which tokens exist, so special tokens
+    keep their ids and the others are numbered in sorted order: ids are then a
+    function of the token set. (Byte-level BPE training is reproducible as it
+    is; Unigram scores vary in their last digits between runs.) Train once and
+    reuse the file when outputs must be byte-identical across runs.
     """
     spec = json.loads(text)
     model = spec.get("model") or {}
