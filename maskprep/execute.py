@@ -282,7 +282,7 @@ def _check_shared(client: Any, address: str, directory: str | Path) -> None:
         return
     where.mkdir(parents=True, exist_ok=True)
     token = uuid.uuid4().hex
-    probe = where / f".maskprep-probe-{token}"
+    probe = where / f".maskprep-probe-{token}.tmp"
     probe.write_text(token, encoding="utf-8")
     try:
         seen = client.run(_sees, str(probe), token)
