@@ -29,7 +29,7 @@ from .errors import MaskprepError
 from .io import atomic_write_json
 from .progress import Progress
 from .tokenize import PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, TrainConfig, check_trained_size, encode_stream, \
-    load_tokenizer, save_tokenizer, train_tokenizer
+    load_tokenizer, save_tokenizer, train_tokenizer, unique_rows
 
 BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
 
@@ -141,7 +141,8 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
                 cont_total += int((lk - 1).clip(min=0).sum())
                 # Reduce this batch to distinct words before merging (numpy, no per-word Python).
                 keys = batch.word_keys[keep]
-                uniq, first, inv = np.unique(keys, return_index=True, return_inverse=True)
+                rows, first, inv = unique_rows(keys.reshape(-1, 1))
+                uniq = rows[:, 0]
                 n = len(uniq)
                 pending.append((uniq,
                                 np.bincount(inv, minlength=n).astype(np.int64),
