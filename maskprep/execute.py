@@ -149,7 +149,7 @@ def map_tasks(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], *, e
     describe = describe or (lambda i: f"task {i}")
     with Progress(label, total=float(sum(weights)), unit=unit, quiet=executor.quiet) as progress:
         if executor.dask:
-            yield from _map_dask(fn, args_list, executor, describe, weights, progress, shared)
+            yield from _map_dask(fn, args_list, executor, describe, weights, progress, shared, label)
             return
         if executor.workers == 1 or n <= 1:
             for i, args in enumerate(args_list):
@@ -307,7 +307,7 @@ def _shared_args(args_list: Sequence[tuple[Any, ...]]) -> list[int]:
 
 def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], executor: Executor,
               describe: Callable[[int], str], weights: list[float], progress: Progress,
-              shared: str | Path | None) -> Iterator[Any]:
+              shared: str | Path | None, label: str) -> Iterator[Any]:
     distributed = _distributed()
     address = str(executor.dask)
     target = {"scheduler_file": address} if address.endswith(".json") else {"address": address}
@@ -325,11 +325,16 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
             _check_shared(client, address, shared)
         run = uuid.uuid4().hex[:12]
         positions = _shared_args(args_list)
-        sent = client.scatter([args_list[0][j] for j in positions], hash=False) if positions else []
-        once = dict(zip(positions, sent))
-        futures = [client.submit(_call_remote, fn, *[once.get(j, a) for j, a in enumerate(args)], pure=False,
-                                 key=f"maskprep-{fn.__name__}-{run}-{i:06d}")
-                   for i, args in enumerate(args_list)]
+        try:
+            sent = client.scatter([args_list[0][j] for j in positions], hash=False) if positions else []
+            once = dict(zip(positions, sent))
+            futures = [client.submit(_call_remote, fn, *[once.get(j, a) for j, a in enumerate(args)], pure=False,
+                                     key=f"maskprep-{fn.__name__}-{run}-{i:06d}")
+                       for i, args in enumerate(args_list)]
+        except Exception as exc:  # e.g. a worker that cannot unpickle maskprep's objects
+            raise MaskprepError(f"--dask {address}: sending the {label} tasks to the cluster failed "
+                                f"({type(exc).__name__}: {str(exc)[:300]}); every worker must have the same "
+                                "maskprep and library versions as this machine") from None
         index = {f.key: i for i, f in enumerate(futures)}
         done: dict[int, Any] = {}
         emit = 0
