@@ -43,6 +43,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from .io import file_sha256
 from .errors import MaskprepError
 from .io import atomic_write_text, read_json
 
@@ -56,15 +57,6 @@ _LABELS = {"max_n": "--max-n", "min_count": "--min-count", "tokenizer_hash": "to
            "text_field": "--text-field", "text_column": "--text-column", "task_bytes": "task size",
            "format_version": "counts format version", "maskprep_version": "maskprep version",
            "state_version": "resume state version"}
-
-
-def file_sha256(path: str | Path) -> str:
-    """Hex sha256 of a file's bytes: ``file_sha256("counts/ngrams-1.parquet")``."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        while chunk := fh.read(1 << 22):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 def _digest(identity: Mapping[str, Any]) -> str:

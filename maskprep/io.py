@@ -63,6 +63,17 @@ def atomic_write_json(path: str | Path, obj: Any) -> None:
     atomic_write_text(path, json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n")
 
 
+def file_sha256(path: str | Path) -> str:
+    """Hex sha256 of a file's bytes: ``file_sha256("counts/ngrams-1.parquet")``."""
+    import hashlib
+
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while chunk := fh.read(1 << 22):
+            h.update(chunk)
+    return h.hexdigest()
+
+
 def read_json(path: str | Path, *, what: str = "file") -> Any:
     """Read a JSON file; a missing or broken file raises `MaskprepError` naming it."""
     from .errors import MaskprepError

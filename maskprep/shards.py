@@ -53,6 +53,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from .io import file_sha256
 from . import __version__
 from .errors import MaskprepError
 from .io import atomic_path, atomic_write_text, read_json
@@ -175,15 +176,6 @@ def _readable(path: str | Path) -> None:
 def _write_text(path: Path, text: str) -> None:
     atomic_write_text(path, text)
     _readable(path)
-
-
-def file_sha256(path: str | Path) -> str:
-    """Hex sha256 of a file's bytes."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        while chunk := fh.read(1 << 22):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 # ------------------------------------------------------------------ writing one file
