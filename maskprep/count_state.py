@@ -43,11 +43,11 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .io import file_sha256
+from . import __version__
 from .errors import MaskprepError
-from .io import atomic_write_text, read_json
+from .io import atomic_write_text, file_sha256, read_json
 
-__all__ = ["STATE_DIR", "CountState", "open_state", "count_recorded", "finished_summary", "file_sha256"]
+__all__ = ["STATE_DIR", "CountState", "run_identity", "open_state", "count_recorded", "finished_summary", "file_sha256"]
 
 STATE_DIR = ".maskprep-count"
 STATE_VERSION = 1
@@ -78,6 +78,19 @@ def _differences(old: Mapping[str, Any], new: Mapping[str, Any]) -> list[str]:
 def _refuse(output: Path, diffs: list[str]) -> MaskprepError:
     return MaskprepError(f"--resume: the count in {output} was made with other options or inputs ("
                          + "; ".join(diffs) + "); rerun with the same ones, or use --overwrite to count again")
+
+
+def run_identity(config: Any, info: Any, fingerprint: str, task_options: Any, *, format_version: int) -> dict[str, Any]:
+    """What must not change between the attempts of one count (not --memory, --workers or --strict).
+
+    >>> run_identity(CountConfig(), info, corpus_fingerprint(files), CorpusOptions(), format_version=1)["max_n"]  # doctest: +SKIP
+    5
+    """
+    return {"state_version": STATE_VERSION, "format_version": format_version, "maskprep_version": __version__,
+            "max_n": config.max_n, "min_count": config.min_count, "tokenizer_hash": info.hash,
+            "corpus_fingerprint": fingerprint, "doc_sep": task_options.doc_sep,
+            "text_field": task_options.text_field, "text_column": task_options.text_column,
+            "task_bytes": task_options.chunk_bytes}
 
 
 class CountState:

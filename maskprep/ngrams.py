@@ -349,7 +349,7 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     >>> count_ngrams(["plays.txt"], tokenizer="tokenizer.json", output="counts", config=CountConfig(max_n=3))  # doctest: +SKIP
     CountSummary(output=PosixPath('counts'), N=860226, ...)
     """
-    from .count_state import finished_summary, open_state, count_recorded
+    from .count_state import count_recorded, finished_summary, open_state, run_identity
 
     started = time.monotonic()
     output = Path(output)
@@ -360,11 +360,7 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     tasks = plan_tasks(files, task_options)
     share = task_share(config, executor, len(tasks))
     fingerprint = corpus_fingerprint(files, corpus_options)
-    identity = {"state_version": 1, "format_version": FORMAT_VERSION, "maskprep_version": __version__,
-                "max_n": config.max_n, "min_count": config.min_count, "tokenizer_hash": info.hash,
-                "corpus_fingerprint": fingerprint, "doc_sep": corpus_options.doc_sep,
-                "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
-                "task_bytes": task_options.chunk_bytes}
+    identity = run_identity(config, info, fingerprint, task_options, format_version=FORMAT_VERSION)
     state = open_state(output, identity, resume=resume, overwrite=overwrite)
     if state is None:  # --resume on counts finished with these options: nothing to do
         return finished_summary(output, tasks=len(tasks), started=started)
