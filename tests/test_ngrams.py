@@ -19,7 +19,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 from click.testing import CliRunner
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from maskprep.cli import cli
@@ -121,6 +121,8 @@ VOCAB = ["the", "king", "lord", "of", "and", "thee", "my", "love", ",", ".", "!"
 @given(docs=st.lists(st.lists(st.sampled_from(VOCAB), min_size=1, max_size=40), min_size=1, max_size=30),
        max_n=st.integers(1, 6), min_count=st.integers(1, 3), double_spaces=st.booleans(),
        batch_chars=st.sampled_from([None, 30, 400]), use_bpe=st.booleans())
+@example(docs=[["the"] * 8, [","]], max_n=1, min_count=1, double_spaces=False, batch_chars=30,
+         use_bpe=False)  # a batch holding only punctuation: no words, no runs
 def test_counts_equal_counter_on_generated_documents(tmp_path_factory: pytest.TempPathFactory,
                                                      small_wordpiece: Path, small_bpe: Path, docs: list[list[str]],
                                                      max_n: int, min_count: int, double_spaces: bool,
