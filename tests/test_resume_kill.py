@@ -54,12 +54,20 @@ def run_to_end(args: list[str]) -> None:
     assert done.returncode == 0, done.stderr
 
 
+def _safely(ready: Callable[[], bool]) -> bool:
+    """`ready()`, False while the run is removing what it looks at (a resume clears the old attempts)."""
+    try:
+        return ready()
+    except FileNotFoundError:
+        return False
+
+
 def kill_when(args: list[str], ready: Callable[[], bool], *, what: str) -> None:
     """Start the command, SIGKILL it as soon as `ready()`; the kill must land before the run ends."""
     proc = subprocess.Popen(command(*args), cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     try:
         deadline = time.monotonic() + TIMEOUT
-        while not ready():
+        while not _safely(ready):
             if proc.poll() is not None:
                 pytest.fail(f"the run ended (status {proc.returncode}) before the kill point: {what}; "
                             f"stderr: {proc.stderr.read().decode()[-2000:]}")
