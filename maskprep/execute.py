@@ -12,9 +12,9 @@ Where tasks run:
   debug; the tokenizer library may use its own threads.
 - ``workers>1``: a ``spawn`` process pool (the tokenizer library's threads do
   not survive a fork). Each worker process runs one tokenizer thread
-  (``RAYON_NUM_THREADS=1``, ``TOKENIZERS_PARALLELISM=false``): the pool is the
-  parallelism. The pool is kept for the life of the process, so the stages
-  of one run share warm workers. On Linux a worker dies with the driver
+  (``RAYON_NUM_THREADS=1``, ``TOKENIZERS_PARALLELISM=false``) and no
+  encoding look-ahead thread: the pool is the parallelism. The pool is kept
+  for the life of the process, so the stages of one run share warm workers. On Linux a worker dies with the driver
   (``PR_SET_PDEATHSIG``), so a killed run leaves no orphan still writing
   into the output directory.
 - ``dask="tcp://host:8786"``: a running Dask scheduler through
@@ -110,12 +110,21 @@ def _call_remote(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
     """`_call` on a Dask worker: one tokenizer thread per task unless the worker's environment says otherwise."""
     for key, value in _ONE_THREAD.items():
         os.environ.setdefault(key, value)
+    _no_lookahead()
     return _call(fn, args)
+
+
+def _no_lookahead() -> None:
+    """Workers share the cores with other workers: no encoding thread beside the task's own."""
+    from .tokenize import set_encode_ahead
+
+    set_encode_ahead(False)
 
 
 def _worker_init(parent: int) -> None:
     """Pool worker start-up: one tokenizer thread, die with the driver, leave Ctrl-C to the driver."""
     os.environ.update(_ONE_THREAD)
+    _no_lookahead()
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     if sys.platform.startswith("linux"):
         try:

@@ -21,6 +21,7 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable, Iterator
@@ -215,11 +216,25 @@ def encode_documents(info: TokenizerInfo, texts: list[str]) -> EncodedBatch:
     return _from_encodings(info, info.tokenizer.encode_batch(texts, add_special_tokens=False))
 
 
+_ENCODE_AHEAD = [True]
+
+
+def set_encode_ahead(enabled: bool) -> None:
+    """Turn the look-ahead thread of `encode_stream` on or off for this process.
+
+    Off in pool and Dask workers, where other processes already keep every
+    core busy: there the helper thread only adds contention (measured with
+    ``scripts/bench_workers.py``: about 8% more CPU and 3x the system time).
+    """
+    _ENCODE_AHEAD[0] = bool(enabled)
+
+
 def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator[EncodedBatch]:
     """Encode batches of documents, encoding the next batch while this one is grouped.
 
     The tokenizer releases the GIL while it encodes, so one batch of look-ahead
-    in a helper thread overlaps its work with the numpy grouping here.
+    in a helper thread overlaps its work with the numpy grouping here (unless
+    `set_encode_ahead(False)`, or this process may use only one core).
 
     >>> sum(b.num_words for b in encode_stream(info, iter_batches(task)))  # doctest: +SKIP
     120345
@@ -230,6 +245,10 @@ def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator
         return info.tokenizer.encode_batch(texts, add_special_tokens=False)
 
     it = iter(batches)
+    if not _ENCODE_AHEAD[0] or _usable_cores() < 2:
+        for texts in it:
+            yield _from_encodings(info, raw(texts))
+        return
     with ThreadPoolExecutor(max_workers=1) as pool:
         first = next(it, None)
         if first is None:
@@ -240,6 +259,13 @@ def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator
             pending = pool.submit(raw, texts)
             yield _from_encodings(info, encs)
         yield _from_encodings(info, pending.result())
+
+
+def _usable_cores() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        return os.cpu_count() or 1
 
 
 def _from_encodings(info: TokenizerInfo, encs: list[Any]) -> EncodedBatch:

@@ -15,10 +15,11 @@ load from other processes hits them alike:
 - ``--workers 1``: tasks run in the driver process, and the tokenizer may use
   its own threads (the default behaviour of the command);
 - ``--workers 1``, one thread: the same with ``RAYON_NUM_THREADS=1
-  TOKENIZERS_PARALLELISM=false``, the settings of a pool worker (one
-  tokenizer thread; `tokenize.encode_stream` still encodes the next batch in
-  a helper thread while the previous one is grouped, so this run keeps about
-  1.2 cores busy);
+  TOKENIZERS_PARALLELISM=false`` (one tokenizer thread;
+  `tokenize.encode_stream` still encodes the next batch in a helper thread
+  while the previous one is grouped, so this run keeps about 1.2 cores busy;
+  pool workers do without that thread, since the other workers keep the
+  cores busy);
 - ``--workers 1``, one core: the same, pinned to one CPU
   (``sched_setaffinity``): the same code on one core;
 - ``--workers 2``: a local pool of two processes, one tokenizer thread each;

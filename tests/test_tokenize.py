@@ -153,3 +153,27 @@ def test_wordpiece_ids_are_a_function_of_the_token_set(shakespeare_small: Path) 
     assert by_id[:5] == ["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]"]
     assert by_id[5:] == sorted(by_id[5:])
     assert sorted(vocab.values()) == list(range(len(vocab)))
+
+
+def test_encode_stream_same_words_with_and_without_lookahead(small_wordpiece: Path,
+                                                             shakespeare_small: Path) -> None:
+    """Pool workers encode without the look-ahead thread; the words must not depend on it."""
+    from maskprep.corpus import iter_batches, plan_tasks, resolve_inputs
+    from maskprep.tokenize import encode_stream, set_encode_ahead
+
+    info = load_tokenizer(small_wordpiece)
+    task = plan_tasks(resolve_inputs([str(shakespeare_small)]))[0]
+
+    def words() -> list[np.ndarray]:
+        return [np.concatenate([b.ids, b.word_offsets, b.word_keys.view(np.int64)])
+                for b in encode_stream(info, iter_batches(task, batch_chars=50_000))]
+
+    try:
+        set_encode_ahead(True)
+        ahead = words()
+        set_encode_ahead(False)
+        inline = words()
+    finally:
+        set_encode_ahead(True)
+    assert len(ahead) == len(inline) > 3
+    assert all(np.array_equal(a, b) for a, b in zip(ahead, inline))
