@@ -39,6 +39,30 @@ def speeches(path: Path) -> list[str]:
     return out
 
 
+def deal_lines(lines: list[str], directory: Path, files: int, name: str) -> list[str]:
+    """Deal `lines` round-robin into `files` new text files in `directory`, named ``name.format(i)``.
+
+    File i holds lines i, i + files, i + 2 * files, ... each ended by a newline; the paths are returned as strings.
+    """
+    paths = []
+    for i in range(files):
+        p = directory / name.format(i)
+        p.write_text("\n".join(lines[i::files]) + "\n", encoding="utf-8")
+        paths.append(str(p))
+    return paths
+
+
+def trained_tokenizer(corpus: Path, directory: Path, *, model: str, vocab_size: int) -> Path:
+    """A tokenizer of `model` with `vocab_size` tokens trained on the corpus file, saved as directory/tokenizer.json."""
+    from maskprep.corpus import iter_corpus
+    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
+
+    info = train_tokenizer(iter_corpus([str(corpus)]), TrainConfig(model=model, vocab_size=vocab_size))
+    out = directory / "tokenizer.json"
+    save_tokenizer(info, out)
+    return out
+
+
 @pytest.fixture(scope="session")
 def shakespeare_text_files() -> list[Path]:
     files = shakespeare_files()
@@ -72,10 +96,4 @@ def shakespeare_small(tmp_path_factory: pytest.TempPathFactory, shakespeare_text
 @pytest.fixture(scope="session")
 def small_wordpiece(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
     """A 4,000-token WordPiece tokenizer trained on `shakespeare_small`, saved as tokenizer.json."""
-    from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
-
-    info = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="wordpiece", vocab_size=4000))
-    out = tmp_path_factory.mktemp("tok") / "tokenizer.json"
-    save_tokenizer(info, out)
-    return out
+    return trained_tokenizer(shakespeare_small, tmp_path_factory.mktemp("tok"), model="wordpiece", vocab_size=4000)

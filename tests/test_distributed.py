@@ -33,6 +33,8 @@ from maskprep.ngrams import CountConfig, count_ngrams
 from maskprep.packing import PackingConfig
 from maskprep.shards import ShardConfig, write_shards
 
+from conftest import deal_lines
+
 distributed = pytest.importorskip("distributed")
 
 MODULE_TIME_LIMIT = 600  # seconds: a hung scheduler fails the run instead of stalling CI
@@ -56,13 +58,7 @@ def cluster_address():
 @pytest.fixture(scope="module")
 def three_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
     lines = [ln for ln in shakespeare_small.read_text(encoding="utf-8").splitlines() if ln.strip()]
-    out = tmp_path_factory.mktemp("three")
-    paths = []
-    for i in range(3):
-        p = out / f"part{i}.txt"
-        p.write_text("\n".join(lines[i::3]) + "\n", encoding="utf-8")
-        paths.append(str(p))
-    return paths
+    return deal_lines(lines, tmp_path_factory.mktemp("three"), 3, "part{}.txt")
 
 
 @pytest.fixture(scope="module")

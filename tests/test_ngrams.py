@@ -29,8 +29,9 @@ from maskprep.execute import Executor
 from maskprep.ngram_files import Vocabulary
 from maskprep.ngrams import ChunkCounter, CountConfig, count_ngrams, parse_memory
 from maskprep.spill import count_windows, reduce_rows
-from maskprep.tokenize import SPACE, WORD, TrainConfig, encode_documents, load_tokenizer, save_tokenizer, \
-    train_tokenizer
+from maskprep.tokenize import SPACE, WORD, encode_documents, load_tokenizer
+
+from conftest import trained_tokenizer
 
 FILES = ("ngrams-1.parquet", "counts.json", "tokenizer.json")
 
@@ -100,10 +101,7 @@ def run(tmp: Path, corpus: list[Path], tokenizer: Path, **kw: object) -> Path:
 @pytest.fixture(scope="session")
 def small_bpe(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
     """A byte-level BPE tokenizer: its pre-tokenization yields whitespace-only words for runs of spaces."""
-    info = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=600))
-    out = tmp_path_factory.mktemp("bpe") / "tokenizer.json"
-    save_tokenizer(info, out)
-    return out
+    return trained_tokenizer(shakespeare_small, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=600)
 
 
 # ---------------------------------------------------------------- counts equal the reference

@@ -26,6 +26,8 @@ from typing import Callable
 
 import pytest
 
+from conftest import deal_lines
+
 psutil = pytest.importorskip("psutil")
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -36,13 +38,7 @@ TIMEOUT = 180.0
 def plays_in_files(tmp_path_factory, shakespeare_corpus: Path) -> list[str]:
     """Half the plays' lines (about 450k words), dealt round-robin into 6 files (6 tasks)."""
     lines = shakespeare_corpus.read_text(encoding="utf-8").splitlines()[::2]
-    out = tmp_path_factory.mktemp("plays6")
-    paths = []
-    for i in range(6):
-        p = out / f"plays-{i}.txt"
-        p.write_text("\n".join(lines[i::6]) + "\n", encoding="utf-8")
-        paths.append(str(p))
-    return paths
+    return deal_lines(lines, tmp_path_factory.mktemp("plays6"), 6, "plays-{}.txt")
 
 
 def command(*args: str) -> list[str]:

@@ -23,20 +23,15 @@ from maskprep.packing import PackingConfig, pack_batches
 from maskprep.shards import ShardConfig, open_shards, write_shards
 from maskprep.tokenize import load_tokenizer
 
+from conftest import deal_lines
+
 QUIET = Executor(workers=1, quiet=True)
 
 
 @pytest.fixture(scope="module")
 def three_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
     lines = [ln for ln in shakespeare_small.read_text(encoding="utf-8").splitlines() if ln.strip()]
-    lines = lines[:3000]
-    out = tmp_path_factory.mktemp("three")
-    paths = []
-    for i in range(3):
-        p = out / f"part{i}.txt"
-        p.write_text("\n".join(lines[i::3]) + "\n", encoding="utf-8")
-        paths.append(str(p))
-    return paths
+    return deal_lines(lines[:3000], tmp_path_factory.mktemp("three"), 3, "part{}.txt")
 
 
 @pytest.fixture(scope="module")
