@@ -76,23 +76,28 @@ def _value_bins(hists: Sequence[dict[str, int]], *, most: int = 30) -> tuple[lis
 
 
 def _summary(doc: dict[str, Any], order: list[str]) -> str:
-    rows = []
+    """Two tables, so each fits the page: what the strategies hide, then what leaks and how targets are shown."""
+    pct = "{:.2%}"
+    hidden, leaks = [], []
     for name in order:
         f = doc["strategies"][name]
-        rows.append([name, f["targets"], f["masking_rate"]["corpus"], f["unit_lengths"]["mean_tokens"],
-                     f["unit_lengths"]["mean_words"], f["multiword_share"], f["within_word_leakage"],
-                     f["within_unit_leakage"], f["easy_target_share"], f["targets_per_sequence"]["mean"],
-                     f["mix"]["mask"], f["mix"]["random"], f["mix"]["keep"]])
-    pct = "{:.2%}"
-    headers = ["strategy", "targets", "masking rate", "tokens/unit", "words/unit", "multi-word share",
-               "within-word leakage", "within-unit leakage", "easy targets", "targets/sequence", "shown as mask",
-               "random", "kept"]
-    fmts = {h: pct for h in headers if h not in ("strategy", "targets", "tokens/unit", "words/unit",
-                                                  "targets/sequence")}
-    fmts.update({"tokens/unit": ".2f", "words/unit": ".2f", "targets/sequence": ".1f"})
-    return report.table(headers=headers, rows=rows, column_formats=fmts,
-                        caption=f"{doc['sample']['sequences']:,} sequences, the same for every strategy; "
-                                "an empty cell was not measured")
+        hidden.append([name, f["targets"], f["masking_rate"]["corpus"], f["unit_lengths"]["mean_tokens"],
+                       f["unit_lengths"]["mean_words"], f["multiword_share"], f["targets_per_sequence"]["mean"]])
+        leaks.append([name, f["within_word_leakage"], f["within_unit_leakage"], f["easy_target_share"],
+                      f["mix"]["mask"], f["mix"]["random"], f["mix"]["keep"]])
+    first = report.table(
+        headers=["strategy", "targets", "masking rate", "tokens/unit", "words/unit", "multi-word share",
+                 "targets/sequence"], rows=hidden,
+        column_formats={"masking rate": pct, "multi-word share": pct, "tokens/unit": ".2f", "words/unit": ".2f",
+                        "targets/sequence": ".1f"},
+        caption=f"What is hidden: {doc['sample']['sequences']:,} sequences, the same for every strategy")
+    second = report.table(
+        headers=["strategy", "within-word leakage", "within-unit leakage", "easy targets", "shown as mask",
+                 "random", "kept"], rows=leaks,
+        column_formats={h: pct for h in ("within-word leakage", "within-unit leakage", "easy targets",
+                                          "shown as mask", "random", "kept")},
+        caption="What stays visible and how targets are shown (shares of targets); an empty cell was not measured")
+    return first + second
 
 
 def _bands(doc: dict[str, Any], order: list[str]) -> str:
@@ -167,7 +172,7 @@ def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any
         if all(v[0] is None for v in values.values()):
             continue
         charts.append(report.bar_chart(title=title, categories=[title.split(":")[0]], series=values,
-                                       y_label=axis, percent=percent))
+                                       y_label=axis, percent=percent, name_bars=True))
     mix = report.bar_chart(title="How targets are shown", categories=["mask token", "random token", "unchanged"],
                            series={n: [doc["strategies"][n]["mix"][k] for k in ("mask", "random", "keep")]
                                    for n in order}, y_label="share of targets", percent=True)
@@ -177,8 +182,8 @@ def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any
                 ("Replacement mix", mix), ("Example sequences", _examples(doc, order, examples, tokenizer))]
     skipped = [f"{name}: {why}" for name, why in doc.get("skipped", {}).items()]
     units = doc.get("units")
-    subtitle = (f"Corpus: {', '.join(doc['corpus']['files'])} — tokenizer {doc['tokenizer']['name']} "
-                f"({doc['tokenizer']['vocab_size']:,} tokens)"
-                + (f" — units: {units['path']} ({units['units']:,}, {units['measure']})" if units else ""))
+    subtitle = (f"Corpus: {', '.join(doc['corpus']['files'])}. Tokenizer: {doc['tokenizer']['name']} "
+                f"({doc['tokenizer']['vocab_size']:,} tokens)."
+                + (f" Units: {units['path']} ({units['units']:,} units, {units['measure']})." if units else ""))
     return report.page(title="Masking strategies compared", subtitle=subtitle, sections=sections,
                        notes=list(doc["notes"]) + skipped)

@@ -278,14 +278,16 @@ def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequ
 
 
 def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequence[float | None]],
-          y_label: str, x_label: str, percent: bool, fill: float, turn_labels: bool) -> str:
+          y_label: str, x_label: str, percent: bool, fill: float, turn_labels: bool,
+          name_bars: bool = False) -> str:
     rows = _columns(series, len(categories), "categories")
     present = [v for row in rows for v in row if v is not None]
     if not present:
         return _empty_chart(title)
     lo, hi = min(0.0, *present), max(0.0, *present)
     ticks = _nice_ticks(lo, hi if hi > lo else 1.0)
-    args = dict(title=title, names=list(series), x_labels=categories, y_label=y_label, x_label=x_label,
+    x_labels = [""] * len(categories) if name_bars else categories
+    args = dict(title=title, names=list(series), x_labels=x_labels, y_label=y_label, x_label=x_label,
                 ticks=ticks, domain=(ticks[0], ticks[-1]), percent=percent, swatch="bar")
     frame = _Frame(**args)  # type: ignore[arg-type]
     width = frame.slot * fill / max(len(rows), 1)
@@ -320,23 +322,28 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
                 dy = 3.5 if mode == "up" else 0.0
                 group.append(f'<text class="value" x="{cx:.1f}" y="{ly + dy:.1f}" font-size="10" '
                              f'text-anchor="{anchor}"{turn}>{_esc(labels[k][i])}</text>')
+            if name_bars:
+                group.append(_svg_text(name, x=x + width / 2, y=frame.label_y, size=11, max_w=width,
+                                       anchor="middle"))
         out.append("".join(group) + "</g>")
     out.append("</svg>")
     return "\n".join(out)
 
 
 def bar_chart(*, title: str, categories: Sequence[str], series: Mapping[str, Sequence[float | None]],
-              y_label: str, percent: bool = False, x_label: str = "") -> str:
+              y_label: str, percent: bool = False, x_label: str = "", name_bars: bool = False) -> str:
     """Inline SVG of grouped bars: per category, one bar per series side by side, labelled.
 
     With ``percent=True`` values are fractions (0.15) shown as percentages (15.0%).
-    Bars always start at zero. A None value leaves its bar out.
+    Bars always start at zero. A None value leaves its bar out. With
+    ``name_bars=True`` each bar is named by its series below it, in place of
+    the category labels (for a chart of one measure).
 
     >>> bar_chart(title="Masking rate", categories=["rate"], series={"token": [0.15], "pmi": [0.149]}, y_label="share", percent=True)[:4]
     '<svg'
     """
     return _bars(title=title, categories=categories, series=series, y_label=y_label,
-                 x_label=x_label, percent=percent, fill=0.8, turn_labels=True)
+                 x_label=x_label, percent=percent, fill=0.8, turn_labels=True, name_bars=name_bars)
 
 
 def histogram_chart(*, title: str, bins: Sequence[str], series: Mapping[str, Sequence[float]],

@@ -125,6 +125,21 @@ def test_bar_chart_has_one_group_per_series_with_labelled_bars() -> None:
     assert all(xs[i] + widths[i] <= xs[i + 1] for i in range(3))
 
 
+def test_one_measure_chart_names_each_bar_under_it() -> None:
+    root = parse(report.bar_chart(title="Within-word leakage", categories=["Within-word leakage"],
+                                  series={"token": [0.16], "word": [0.0], "span": [0.0]}, y_label="share",
+                                  percent=True, name_bars=True))
+    bars = [r for r in root.iter("rect") if r.get("class") == "bar"]
+    centres = [float(r.get("x", 0)) + float(r.get("width", 0)) / 2 for r in bars]
+    bottom = max(float(r.get("y", 0)) + float(r.get("height", 0)) for r in bars)
+    under = {t.text: float(t.get("x", 0)) for g in series_groups(root) for t in g.iter("text")
+             if t.get("class") != "value" and float(t.get("y", 0)) > bottom}
+    assert list(under) == ["token", "word", "span"]
+    assert [under[n] for n in under] == pytest.approx(centres, abs=0.2)
+    # the category label is not repeated under the bars
+    assert not any(t.text == "Within-word leakage" and float(t.get("y", 0)) > bottom for t in root.iter("text"))
+
+
 def test_bar_heights_are_proportional_and_start_at_zero() -> None:
     root = parse(report.bar_chart(title="t", categories=["a", "b"], series={"s": [10.0, 40.0]}, y_label="n"))
     a, b = [r for r in root.iter("rect") if r.get("class") == "bar"]
