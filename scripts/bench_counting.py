@@ -281,11 +281,20 @@ def main() -> None:
             print(f"  Python Counter, 1 process      {t_base:8.2f}s   ({t_base / words * 1e9:6.0f} ns/word)")
             for workers in (1, 2):
                 t_engine, ours = engine(encoded, files, tok, work, workers)
+                if workers == 1:
+                    t_one = t_engine
                 same = all(ours[n] == want[n] for n in range(1, MAX_N + 1))
                 print(f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t_engine:8.2f}s   "
                       f"({t_engine / words * 1e9:6.0f} ns/word)   {t_base / t_engine:5.1f}x faster   "
                       f"same counts for every kept n-gram: {same}")
                 del ours
+            start = time.perf_counter()
+            for p in encoded:
+                with open(p, "rb") as fh:
+                    pickle.load(fh)
+            t_load = time.perf_counter() - start
+            print(f"  (of the engine's time, loading the pickled batches, which `count` itself never does, takes "
+                  f"{t_load:.2f}s in one process; without it, 1 worker would be {t_base / max(t_one - t_load, 1e-9):.1f}x)")
             for p in encoded:
                 p.unlink()
         if "memory" not in skip:
