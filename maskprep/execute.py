@@ -14,9 +14,9 @@ Where tasks run:
   not survive a fork). Each worker process runs one tokenizer thread
   (``RAYON_NUM_THREADS=1``, ``TOKENIZERS_PARALLELISM=false``) and no
   encoding look-ahead thread: the pool is the parallelism. The pool is kept
-  for the life of the process, so the stages of one run share warm workers. On Linux a worker dies with the driver
-  (``PR_SET_PDEATHSIG``), so a killed run leaves no orphan still writing
-  into the output directory.
+  for the life of the process, so the stages of one run share warm workers.
+  On Linux a worker dies with the driver (``PR_SET_PDEATHSIG``), so a killed
+  run leaves no orphan still writing into the output directory.
 - ``dask="tcp://host:8786"``: a running Dask scheduler through
   ``distributed.Client`` (or ``dask="/shared/scheduler.json"``, the file
   written by ``dask scheduler --scheduler-file``); dask is imported only then. Arguments shared by

@@ -21,7 +21,6 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable, Iterator
@@ -244,8 +243,10 @@ def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator
     def raw(texts: list[str]) -> list[Any]:
         return info.tokenizer.encode_batch(texts, add_special_tokens=False)
 
+    from .execute import default_workers
+
     it = iter(batches)
-    if not _ENCODE_AHEAD[0] or _usable_cores() < 2:
+    if not _ENCODE_AHEAD[0] or default_workers() < 2:
         for texts in it:
             yield _from_encodings(info, raw(texts))
         return
@@ -259,13 +260,6 @@ def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator
             pending = pool.submit(raw, texts)
             yield _from_encodings(info, encs)
         yield _from_encodings(info, pending.result())
-
-
-def _usable_cores() -> int:
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not Linux
-        return os.cpu_count() or 1
 
 
 def _from_encodings(info: TokenizerInfo, encs: list[Any]) -> EncodedBatch:

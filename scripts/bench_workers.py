@@ -25,8 +25,7 @@ load from other processes hits them alike:
 - ``--workers 2``: a local pool of two processes, one tokenizer thread each;
 - ``--dask ADDRESS``: a `distributed.LocalCluster` of two worker processes
   with one thread each on 127.0.0.1, started before the clock (a cluster is
-  started once and serves many runs).
-
+  started once and serves many runs);
 - two halves at once: the corpus's files split in two halves, each half run
   as its own ``--workers 1`` one-core command, both at the same time, pinned
   to different CPUs (the wall time is the later one's): the most two
@@ -140,7 +139,7 @@ def halves_at_once(command: list[str], corpus: list[str], out: Path, env: dict[s
             [sys.executable, "-m", "maskprep", "--quiet", "--workers", "1", *head, *half, *tail, "-o", str(target)],
             cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
             preexec_fn=lambda c=cpu: os.sched_setaffinity(0, {c}))))
-    for target, proc in procs:
+    for _, proc in procs:
         _, err = proc.communicate()
         if proc.returncode != 0:
             sys.exit(f"failed: half of maskprep {' '.join(command[:1])}\n{err.decode()}")
