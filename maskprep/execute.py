@@ -55,7 +55,7 @@ from typing import Any, Callable, Iterator, Sequence
 from .errors import MaskprepError
 from .progress import Progress
 
-__all__ = ["Executor", "default_workers", "map_tasks", "shutdown_pools", "DASK_INSTALL_HINT"]
+__all__ = ["Executor", "default_workers", "map_tasks", "pool_running", "shutdown_pools", "DASK_INSTALL_HINT"]
 
 DASK_INSTALL_HINT = "pip install 'maskprep[dask]' (or: pip install 'dask[distributed]')"
 _ONE_THREAD = {"RAYON_NUM_THREADS": "1", "TOKENIZERS_PARALLELISM": "false"}
@@ -189,6 +189,12 @@ def _pool(workers: int) -> ProcessPoolExecutor:
                                    initializer=_worker_init, initargs=(os.getpid(),))
         _POOLS[workers] = pool
     return pool
+
+
+def pool_running(workers: int) -> bool:
+    """Is a kept pool of `workers` processes already started (so more tasks on it cost no start-up)?"""
+    pool = _POOLS.get(workers)
+    return pool is not None and not getattr(pool, "_broken", False) and not getattr(pool, "_shutdown_thread", False)
 
 
 def _drop_pool(workers: int, *, terminate: bool) -> None:

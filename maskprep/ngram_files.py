@@ -98,14 +98,15 @@ class Vocabulary:
         import pyarrow.compute as pc
 
         m = rows.shape[0]
-        query = np.ascontiguousarray(rows[:, :n].T).ravel()
+        query = np.ascontiguousarray(rows[:, :n]).ravel()  # row by row: the words of an n-gram side by side
         index = pc.index_in(pa.array(query), value_set=pa.array(self.keys))
         if index.null_count:
             raise RuntimeError("internal error: an n-gram word has no text in the vocabulary")
         words = self.texts.take(index)
-        cols = [words.slice(j * m, m) for j in range(n)]
-        joined = cols[0] if n == 1 else pc.binary_join_element_wise(*cols, pa.scalar(" ", pa.large_string()))
-        return joined.cast(pa.string())
+        if n == 1:
+            return words.cast(pa.string())
+        lists = pa.LargeListArray.from_arrays(pa.array(np.arange(0, m * n + 1, n, dtype=np.int64)), words)
+        return pc.binary_join(lists, pa.scalar(" ", pa.large_string())).cast(pa.string())
 
 
 class _ParquetSink:

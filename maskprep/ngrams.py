@@ -47,7 +47,7 @@ from . import __version__
 from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, iter_batches, plan_tasks, \
     resolve_inputs
 from .errors import MaskprepError
-from .execute import Executor, map_tasks
+from .execute import Executor, map_tasks, pool_running
 from .ngram_files import Vocabulary, collision_error, fsynced_text, publish, write_ngrams
 from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, \
     count_block, disk_error, fine_bucket, merge_partition, plan_merges, reduce_rows
@@ -61,7 +61,8 @@ FORMAT_VERSION = 1
 MAX_N = 8
 MIN_TASK_MEMORY = 4 << 20       # below this a task cannot hold a batch and a buffer at once
 TASK_BYTES = 8 << 20            # text files are split into tasks of about this size
-POOL_ROWS = 8_000_000           # merges / writes smaller than this run in the driver (a pool costs ~1-2 s to start)
+POOL_ROWS = 8_000_000           # merges / writes smaller than this run in the driver unless the pool is
+                                # already running (starting one costs ~1-2 s)
 _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
           "kib": 1 << 10, "mib": 1 << 20, "gib": 1 << 30, "tib": 1 << 40,
           "kb": 10 ** 3, "mb": 10 ** 6, "gb": 10 ** 9, "tb": 10 ** 12}
@@ -412,8 +413,9 @@ def write_task(path: str, n: int, parts: list[PartitionResult], vocab_path: str,
 
 
 def _for_rows(executor: Executor, rows: int) -> Executor:
-    """The executor for a phase of `rows` rows: small phases run in this process (same results)."""
-    if executor.dask or executor.workers == 1 or rows >= POOL_ROWS:
+    """The executor for a phase of `rows` rows: small phases run in this process (same results), unless
+    the counting tasks already started the pool."""
+    if executor.dask or executor.workers == 1 or rows >= POOL_ROWS or pool_running(executor.workers):
         return executor
     return dataclasses.replace(executor, workers=1)
 

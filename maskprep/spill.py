@@ -109,23 +109,22 @@ def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | Non
     order = (packed & low).astype(np.intp)
     prefix = packed >> shift
     same = prefix[1:] == prefix[:-1]
+    # Columns are gathered once into sorted order and neighbours compared in place, contiguously
+    # (gathering both rows of every equal-prefix pair costs more once many rows repeat, as in a merge).
+    cols = [np.take(col, order) for col in columns]
+    c = np.take(counts, order)
+    differ = np.zeros(m - 1, bool)
+    if same.any():
+        for col in cols:
+            differ |= col[1:] != col[:-1]
+    clash = same & differ
+    if not clash.any():
+        starts = np.flatnonzero(np.concatenate(([True], ~same))) if same.any() else None
+        return _table(cols, c, starts, n), (fp[order] if starts is None else fp[order[starts]])
     pairs = np.flatnonzero(same)
-    a, b = order[pairs], order[pairs + 1]
-    equal = np.ones(len(pairs), bool)
-    for col in columns:
-        equal &= col[a] == col[b]
-    if equal.all():
-        starts = np.flatnonzero(np.concatenate(([True], ~same)))
-        rep = order[starts]
-        out = np.empty((len(starts), n + 1), np.uint64)
-        for j, col in enumerate(columns):
-            out[:, j] = col[rep]
-        out[:, n] = np.add.reduceat(counts[order], starts) if len(starts) < m else counts[rep]
-        return out, fp[rep]
+    equal = ~differ[pairs]
     # Different n-grams share a fingerprint prefix: order those groups by
     # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
-    cols = [col[order] for col in columns]
-    c = counts[order]
     f = fp[order]
     group = np.concatenate(([0], np.cumsum(~same)))
     pos = np.flatnonzero(np.isin(group, np.unique(group[1:][pairs[~equal]])))
@@ -133,11 +132,33 @@ def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | Non
     for arr in cols + [c, f]:
         arr[pos] = arr[perm]
     starts = np.flatnonzero(np.concatenate(([True], _differs(cols))))
-    out = np.empty((len(starts), n + 1), np.uint64)
+    return _table(cols, c, starts, n), f[starts]
+
+
+def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray | None, n: int) -> np.ndarray:
+    """(rows, n + 1) table of the first row of each group of sorted rows and the group's summed count.
+
+    `starts` are the groups' first rows (None: every row is its own group).
+    Sums are differences of a running sum (faster than reduceat on many small groups).
+    """
+    m = len(counts)
+    rows = m if starts is None else len(starts)
+    out = np.empty((rows, n + 1), np.uint64)
+    if starts is None:
+        for j, col in enumerate(cols):
+            out[:, j] = col
+        out[:, n] = counts
+        return out
     for j, col in enumerate(cols):
-        out[:, j] = col[starts]
-    out[:, n] = np.add.reduceat(c, starts)
-    return out, f[starts]
+        np.take(col, starts, out=out[:, j])
+    run = np.cumsum(counts)
+    ends = np.empty(rows, np.intp)
+    ends[:-1] = starts[1:] - 1
+    ends[-1] = m - 1
+    sums = out[:, n]
+    np.take(run, ends, out=sums)
+    sums[1:] -= run[ends[:-1]]
+    return out
 
 
 def _dense_ids(wk: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -21,8 +21,9 @@ Three measurements, printed as a table:
    task as `count` splits it, before either clock starts) with maskprep's
    engine -- the same count tasks, merges and Parquet writes as `count`, run
    through `map_tasks` with 1 and with 2 workers (the command's default here
-   is all cores), loading the encoded batches inside the tasks (counted
-   against maskprep) -- against a plain Python `collections.Counter` over word
+   is all cores; the pool is started before the clock, as `count` has it
+   running for the tokenization), loading the encoded batches inside the
+   tasks (counted against maskprep) -- against a plain Python `collections.Counter` over word
    tuples in one process (``Counter.update(zip(...))`` per run of words, per
    n); and a check that both give the same counts for every n-gram kept;
 2. memory: peak RSS of the whole process tree of ``maskprep --workers 1
@@ -41,6 +42,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import json
+import os
 import pickle
 import re
 import shutil
@@ -138,8 +140,9 @@ def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[
         info = load_tokenizer(tok)
         batches = list(encode_stream(info, iter_batches(task, opts, batch_chars=1 << 20)))
         path = work / f"encoded-{task.index:03d}.pkl"
+        words = [(t.key, t.kind, t.text) for t in info._types.values()]  # what count's word list reads
         with open(path, "wb") as fh:
-            pickle.dump((task.index, batches, info._types), fh, protocol=5)
+            pickle.dump((task.index, batches, words), fh, protocol=5)
         paths.append(path)
     return paths, files, time.perf_counter() - start
 
@@ -147,22 +150,42 @@ def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[
 def count_encoded(path: str, tokenizer_json: str, max_n: int, spill_dir: str, share: int) -> Any:
     """Task function: `count_chunk` from already encoded batches (the tokenizer's word types come along)."""
     with open(path, "rb") as fh:
-        index, batches, types = pickle.load(fh)
+        index, batches, words = pickle.load(fh)
     info = tokenizer_from_json(tokenizer_json)
-    info._types.update(types)
     counter = ChunkCounter(info, max_n=max_n, spill_dir=Path(spill_dir), share=share, tag=f"t{index:06d}")
+    # The word types come as (key, kind, text) tuples, not as the tokenizer's cached objects (unpickling
+    # those cost more than counting); the counter's word list is filled with the same check it makes
+    # when it reads them from the cache.
+    vocab = counter.vocab
+    for key, kind, text in words:
+        if kind == WORD and vocab.setdefault(key, text) != text:
+            raise RuntimeError(f"two words share the key {key}")
     for b in batches:
         counter.add(b)
     return counter.finish(task_index=index)
 
 
+def warm(_: int) -> int:
+    """Task function: import what the counting tasks use (a pool worker starts with nothing loaded)."""
+    import pyarrow.parquet  # noqa: F401
+
+    import maskprep.ngram_files  # noqa: F401
+    return os.getpid()
+
+
 def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, workers: int) -> tuple[float, dict]:
-    """maskprep's path from EncodedBatch to COUNTS_DIR (count tasks, merges, Parquet writes); (seconds, counts)."""
+    """maskprep's path from EncodedBatch to COUNTS_DIR (count tasks, merges, Parquet writes); (seconds, counts).
+
+    With workers > 1 the process pool is started before the clock starts: in `count` the same pool
+    has been running the tokenization, whose cost both sides exclude.
+    """
     import pyarrow.parquet as pq
 
     info = load_tokenizer(tok)
     config = CountConfig(max_n=MAX_N, min_count=MIN_COUNT, memory="1GiB")
     executor = Executor(workers=workers, quiet=True)
+    if workers > 1:
+        list(map_tasks(warm, [(i,) for i in range(4 * workers)], executor=executor))
     out = work / f"counts-engine-{workers}"
     out.mkdir()
     spill = out / ".spill-bench"
@@ -187,8 +210,8 @@ def word_runs(encoded: list[Path]) -> list[list[str]]:
     runs: list[list[str]] = []
     for path in encoded:
         with open(path, "rb") as fh:
-            _, batches, types = pickle.load(fh)
-        text = {t.key: t.text for t in types.values()}
+            _, batches, words = pickle.load(fh)
+        text = {key: t for key, _, t in words}
         for b in batches:
             kinds = b.word_kinds.tolist()
             keys = b.word_keys.tolist()
