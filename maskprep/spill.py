@@ -150,13 +150,13 @@ def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray | None
         out[:, n] = counts
         return out
     for j, col in enumerate(cols):
-        np.take(col, starts, out=out[:, j])
+        np.take(col, starts, out=out[:, j], mode="clip")  # clip: indices are in range; no buffered copy
     run = np.cumsum(counts)
     ends = np.empty(rows, np.intp)
     ends[:-1] = starts[1:] - 1
     ends[-1] = m - 1
     sums = out[:, n]
-    np.take(run, ends, out=sums)
+    np.take(run, ends, out=sums, mode="clip")
     sums[1:] -= run[ends[:-1]]
     return out
 
@@ -252,7 +252,7 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
         at = at_first[by_bucket]
         keys = np.empty((n, len(at)), np.uint64)
         for k in range(n):
-            np.take(padded, at, out=keys[k])
+            np.take(padded, at, out=keys[k], mode="clip")
             at += 1
         out.append((keys, counts[by_bucket], fp[by_bucket], _offsets(bucket)))
     return out

@@ -35,12 +35,14 @@ Three measurements, printed as a table:
 
     python scripts/bench_counting.py                   # 50 MB speed, memory, scaling 10/50/200 MB
     python scripts/bench_counting.py --sizes 10,50     # shorter scaling range
+    python scripts/bench_counting.py --quick           # 10 MB, one round (what scripts/bench.py --quick runs)
 """
 
 from __future__ import annotations
 
 import argparse
 import dataclasses
+import gc
 import json
 import os
 import pickle
@@ -170,6 +172,7 @@ def warm(_: int) -> int:
     import pyarrow.parquet  # noqa: F401
 
     import maskprep.ngram_files  # noqa: F401
+    time.sleep(0.2)  # long enough that every worker of the pool takes one
     return os.getpid()
 
 
@@ -185,8 +188,15 @@ def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, worker
     config = CountConfig(max_n=MAX_N, min_count=MIN_COUNT, memory="1GiB")
     executor = Executor(workers=workers, quiet=True)
     if workers > 1:
-        list(map_tasks(warm, [(i,) for i in range(4 * workers)], executor=executor))
+        while len(set(map_tasks(warm, [(i,) for i in range(2 * workers)], executor=executor))) < workers:
+            pass
+    # The baseline's dictionaries (millions of objects) stay in this process; freezing them keeps the
+    # garbage collector from walking them again whenever the engine allocates (`count` has no such heap).
+    gc.collect()
+    gc.freeze()
+    os.sync()  # the encoded batches were just written: their write-back must not land inside the clock
     out = work / f"counts-engine-{workers}"
+    shutil.rmtree(out, ignore_errors=True)  # the previous round's
     out.mkdir()
     spill = out / ".spill-bench"
     spill.mkdir()
@@ -197,6 +207,7 @@ def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, worker
     finish_counts(results, info=info, output=out, spill=spill, config=config, files=files,
                   corpus_options=CorpusOptions(), executor=executor, started=time.monotonic())
     seconds = time.perf_counter() - start
+    gc.unfreeze()
     shutil.rmtree(spill, ignore_errors=True)
     counts = {}
     for n in range(1, MAX_N + 1):
@@ -282,8 +293,14 @@ def main() -> None:
     ap.add_argument("--memory", default="8MiB", help="--memory of the RSS run (the repeated text has few distinct n-grams)")
     ap.add_argument("--text", choices=("repeated", "varied"), default="repeated",
                     help="corpus: the plays repeated, or copies with renamed word types (see above)")
+    ap.add_argument("--repeat", type=int, default=3, help="rounds of the speed section (Counter, 1 worker, "
+                    "2 workers in turn); the figures are the best round of each and the ratios within a round")
     ap.add_argument("--skip", default="", help="comma list of sections to skip: speed,memory,scaling")
+    ap.add_argument("--quick", action="store_true", help="10 MB speed run, one round, scaling over 5/10/20 MB "
+                    "(fixed costs weigh more; figures are noisier)")
     args = ap.parse_args()
+    if args.quick:
+        args.speed_mb, args.sizes, args.repeat = 10, "5,10,20", 1
     skip = set(filter(None, args.skip.split(",")))
     work = Path(tempfile.mkdtemp(prefix="bench-counting-"))
     try:
@@ -294,30 +311,46 @@ def main() -> None:
             encoded, files, t_encode = encode_tasks(corpus, tok, work)
             runs = word_runs(encoded)
             words = sum(map(len, runs))
-            t_base, ref = baseline(runs)
-            del runs
-            want = {n: {" ".join(k): v for k, v in ref[n - 1].items() if v >= MIN_COUNT} for n in range(1, MAX_N + 1)}
-            del ref
             print(f"speed, {mb:.1f} MB of {args.text} text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
                   f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, {t_encode:.0f}s, "
-                  "is excluded for both)")
-            print(f"  Python Counter, 1 process      {t_base:8.2f}s   ({t_base / words * 1e9:6.0f} ns/word)")
+                  f"is excluded for both); {args.repeat} round(s), each runs all three in turn")
+            times: dict[str, list[float]] = {"counter": [], "1": [], "2": []}
+            for rnd in range(args.repeat):
+                t_base, ref = baseline(runs)
+                times["counter"].append(t_base)
+                want = None
+                if rnd == 0:
+                    want = {n: {" ".join(k): v for k, v in ref[n - 1].items() if v >= MIN_COUNT}
+                            for n in range(1, MAX_N + 1)}
+                del ref
+                line = f"  round {rnd + 1}: Counter {t_base:6.2f}s"
+                for workers in (1, 2):
+                    t_engine, ours = engine(encoded, files, tok, work, workers)
+                    times[str(workers)].append(t_engine)
+                    line += f"   {workers} worker{'s' if workers > 1 else ''} {t_engine:5.2f}s = {t_base / t_engine:4.1f}x"
+                    if want is not None:
+                        same = all(ours[n] == want[n] for n in range(1, MAX_N + 1))
+                        line += f" (same counts for every kept n-gram: {same})"
+                    del ours
+                del want
+                print(line, flush=True)
+            del runs
+            best = {k: min(v) for k, v in times.items()}
+            print(f"  Python Counter, 1 process      {best['counter']:8.2f}s   ({best['counter'] / words * 1e9:6.0f} ns/word)"
+                  "   best of the rounds")
             for workers in (1, 2):
-                t_engine, ours = engine(encoded, files, tok, work, workers)
-                if workers == 1:
-                    t_one = t_engine
-                same = all(ours[n] == want[n] for n in range(1, MAX_N + 1))
-                print(f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t_engine:8.2f}s   "
-                      f"({t_engine / words * 1e9:6.0f} ns/word)   {t_base / t_engine:5.1f}x faster   "
-                      f"same counts for every kept n-gram: {same}")
-                del ours
+                t = best[str(workers)]
+                paired = [c / e for c, e in zip(times["counter"], times[str(workers)])]
+                print(f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t:8.2f}s   "
+                      f"({t / words * 1e9:6.0f} ns/word)   best vs best {best['counter'] / t:5.1f}x faster;   "
+                      f"same round: median {float(np.median(paired)):.1f}x, lowest {min(paired):.1f}x")
             start = time.perf_counter()
             for p in encoded:
                 with open(p, "rb") as fh:
                     pickle.load(fh)
             t_load = time.perf_counter() - start
             print(f"  (of the engine's time, loading the pickled batches, which `count` itself never does, takes "
-                  f"{t_load:.2f}s in one process; without it, 1 worker would be {t_base / max(t_one - t_load, 1e-9):.1f}x)")
+                  f"{t_load:.2f}s in one process)")
             for p in encoded:
                 p.unlink()
         if "memory" not in skip:
