@@ -283,13 +283,9 @@ def _load_units(units: str | Path | None, info: Any) -> tuple[Any, str | None, d
     if units is None:
         return None, None, None
     from .shards import file_sha256
-    from .units import read_units
+    from .units import read_units_for
 
-    vocab = read_units(units)
-    if vocab.tokenizer_hash != info.hash:
-        raise MaskprepError(f"--units {units}: the units were built with another tokenizer (hash "
-                            f"{vocab.tokenizer_hash[:12] or 'unknown'}, this one {info.hash[:12]}); rebuild them "
-                            "with maskprep count and maskprep units using this tokenizer")
+    vocab = read_units_for(units, info.hash)
     digest = file_sha256(units)
     lengths = {str(k): int(v) for k, v in zip(*np.unique(np.asarray(vocab.n), return_counts=True))}
     return vocab.by_length(), digest, {"path": str(units), "sha256": digest, "units": len(vocab),

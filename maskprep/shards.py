@@ -412,13 +412,9 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
         if units is None:
             raise MaskprepError("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
                                 "(made by maskprep units)")
-        from .units import read_units
+        from .units import read_units_for
 
-        vocab = read_units(units)
-        if vocab.tokenizer_hash != info.hash:
-            raise MaskprepError(f"--units {units}: the units were built with another tokenizer (hash "
-                                f"{vocab.tokenizer_hash[:12] or 'unknown'}, this one {info.hash[:12]}); rebuild "
-                                "them with maskprep count and maskprep units using this tokenizer")
+        vocab = read_units_for(units, info.hash)
         by_length, units_digest = vocab.by_length(), file_sha256(units)
     elif units is not None:
         raise MaskprepError(f"--units is only used by --strategy pmi (this run uses {masking.strategy.value}); "

@@ -44,7 +44,7 @@ from .errors import MaskprepError
 from .io import atomic_path, read_json
 from .progress import Progress
 
-__all__ = ["UnitVocabulary", "UnitOptions", "build_units", "write_units", "read_units",
+__all__ = ["UnitVocabulary", "UnitOptions", "build_units", "write_units", "read_units", "read_units_for",
            "format_top_units", "parse_per_length", "DEFAULT_TOP", "FORMAT_VERSION", "OPTION_HELP"]
 
 FORMAT_VERSION = 1
@@ -515,6 +515,19 @@ def read_units(path: Union[str, Path]) -> UnitVocabulary:
         word_keys=_split_lists(table.column("word_keys"), np.uint64),
         measure=measure, options=meta.get("options", {}), tokenizer_hash=meta.get("tokenizer_hash", ""),
         source=meta.get("source", {}))
+
+
+def read_units_for(path: Union[str, Path], tokenizer_hash: str) -> UnitVocabulary:
+    """`read_units`, refusing units built with a tokenizer other than the one of this run (its hash).
+
+    >>> vocab = read_units_for("units.parquet", info.hash)  # doctest: +SKIP
+    """
+    vocab = read_units(path)
+    if vocab.tokenizer_hash != tokenizer_hash:
+        raise MaskprepError(f"--units {path}: the units were built with another tokenizer (hash "
+                            f"{vocab.tokenizer_hash[:12] or 'unknown'}, this one {tokenizer_hash[:12]}); rebuild "
+                            "them with maskprep count and maskprep units using this tokenizer")
+    return vocab
 
 
 def _split_lists(column: Any, dtype: Any) -> tuple[np.ndarray, ...]:
