@@ -8,7 +8,8 @@ Three kernels, all vectorised (no Python loop per word or per n-gram):
   fixes each n-gram's bucket (its "key range") and its canonical order;
 - `reduce_rows`: merge equal rows of a (rows, n + 1) table of word keys and
   counts, exactly: rows are grouped by fingerprint and then compared word by
-  word, so two different n-grams are never merged, whatever the hash does.
+  word, so two different n-grams are never merged, whatever the hash does
+  (`reduce_table`: the same for the row-major tables read back from runs).
 
 Tables are uint64 arrays of shape (m, n + 1): columns 0..n-1 are word keys,
 column n is the count. The canonical order of distinct rows is (fingerprint,
@@ -133,6 +134,51 @@ def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | Non
         arr[pos] = arr[perm]
     starts = np.flatnonzero(np.concatenate(([True], _differs(cols))))
     return _table(cols, c, starts, n), f[starts]
+
+
+def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) -> np.ndarray:
+    """`reduce_rows` for a row-major (m, n + 1) table of keys and counts, as read from runs.
+
+    Whole rows are gathered into sorted order (one cache line each instead of
+    n + 1 strided column gathers); a fingerprint-prefix clash falls back to
+    `reduce_rows`. Returns the reduced table in canonical order. `index_bits`
+    only exists so tests can force prefix clashes.
+
+    >>> reduce_table(np.array([[5, 1], [7, 2], [5, 3]], np.uint64), 1)[:, 1].tolist() in ([4, 2], [2, 4])
+    True
+    """
+    m = table.shape[0]
+    if m == 0:
+        return np.zeros((0, n + 1), np.uint64)
+    fp = fingerprint(table[:, :n].T)
+    ib = index_bits if index_bits is not None else _bits(m - 1)
+    if ib < _bits(m - 1):
+        raise ValueError("index_bits too small for the table")
+    low = np.uint64((1 << ib) - 1)
+    packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
+    packed.sort()
+    order = (packed & low).astype(np.intp)
+    prefix = packed >> np.uint64(ib)
+    same = prefix[1:] == prefix[:-1]
+    if not same.any():
+        return np.take(table, order, axis=0)
+    srt = np.take(table, order, axis=0)
+    keys = srt[:, :n]
+    differ = keys[1:, 0] != keys[:-1, 0]
+    for j in range(1, n):
+        differ |= keys[1:, j] != keys[:-1, j]
+    if (same & differ).any():
+        return reduce_rows(table[:, :n].T, table[:, n], fp=fp, index_bits=index_bits)[0]
+    starts = np.flatnonzero(np.concatenate(([True], ~same)))
+    out = np.take(srt, starts, axis=0)
+    run = np.cumsum(srt[:, n])
+    ends = np.empty(len(starts), np.intp)
+    ends[:-1] = starts[1:] - 1
+    ends[-1] = m - 1
+    sums = np.take(run, ends)
+    sums[1:] -= run[ends[:-1]]
+    out[:, n] = sums
+    return out
 
 
 def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray | None, n: int) -> np.ndarray:
@@ -485,7 +531,7 @@ def merge_partition(job: MergeJob) -> PartitionResult:
                 else:
                     table = np.concatenate(parts)
                     del parts
-                    out, _ = reduce_rows(table[:, :n].T, table[:, n])
+                    out = reduce_table(table, n)
                     del table
                 counts = out[:, n]
                 distinct += len(out)

@@ -28,7 +28,7 @@ from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
 from maskprep.ngram_files import Vocabulary
 from maskprep.ngrams import ChunkCounter, CountConfig, count_ngrams, parse_memory
-from maskprep.spill import count_windows, reduce_rows
+from maskprep.spill import count_windows, reduce_rows, reduce_table
 from maskprep.tokenize import SPACE, WORD, encode_documents, load_tokenizer
 
 from conftest import trained_tokenizer
@@ -154,6 +154,10 @@ def test_reduce_rows_is_exact_even_when_fingerprint_prefixes_collide(rows: list[
     a, _ = reduce_rows(keys, counts)
     b, _ = reduce_rows(keys[:, ::-1], counts[::-1].copy(), index_bits=63)
     assert (a == b).all(), "canonical order must not depend on input order or index bits"
+    # the merge's row-major variant gives the same table, clashes or not
+    rowwise = np.ascontiguousarray(np.vstack([keys, counts[None, :]]).T)
+    for index_bits in (None, 63):
+        assert (reduce_table(rowwise, 2, index_bits=index_bits) == a).all()
 
 
 def test_count_windows_on_one_block_by_hand() -> None:
