@@ -4,10 +4,10 @@
 raises if two different texts share one key (they are never merged).
 `write_ngrams` turns the merged, pruned key ranges of one n into a Parquet
 file with columns `text`, `count`, `w0`..`w{n-1}`, ordered by count
-descending, then by the canonical (fingerprint, keys) order of spill.py,
+descending, then by the canonical (fingerprint, keys) order of ngram_kernels.py,
 using a fixed row-group size so the bytes never depend on memory or workers.
 
-It does not count or merge (ngrams.py, spill.py).
+It does not count or merge (ngrams.py, ngram_kernels.py, spill.py).
 """
 
 from __future__ import annotations

@@ -8,7 +8,7 @@ positions, and every count divides by N.
 
 How: the corpus is split into tasks (`corpus.plan_tasks`). `count_chunk`
 encodes a task batch by batch and counts all n = 1..max_n at once with numpy
-(`spill.count_windows`), buffers the distinct n-grams per coarse key range,
+(`ngram_kernels.count_block`), buffers the distinct n-grams per coarse key range,
 and when its share of ``--memory`` is used, reduces the buffer and spills one
 sorted run per n to ``COUNTS_DIR/.maskprep-count/`` (each finished task is
 recorded there for ``--resume``, see `maskprep.count_state`). Every run is sorted by the
@@ -49,8 +49,8 @@ from .corpus import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, it
 from .errors import MaskprepError
 from .execute import Executor, map_tasks, pool_running
 from .ngram_files import Vocabulary, collision_error, fsynced_text, publish, write_ngrams
-from .spill import COARSE_BUCKETS, FINE_BUCKETS, MergeJob, PartitionResult, RunInfo, RunWriter, \
-    count_block, disk_error, fine_bucket, merge_partition, plan_merges, reduce_rows
+from .ngram_kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, reduce_rows
+from .spill import MergeJob, PartitionResult, RunInfo, RunWriter, disk_error, merge_partition, plan_merges
 from .tokenize import SPACE, WORD, EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
     tokenizer_from_json
 

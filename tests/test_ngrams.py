@@ -28,7 +28,7 @@ from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
 from maskprep.ngram_files import Vocabulary
 from maskprep.ngrams import ChunkCounter, CountConfig, count_ngrams, parse_memory
-from maskprep.spill import count_windows, reduce_rows, reduce_table
+from maskprep.ngram_kernels import count_windows, reduce_rows, reduce_table
 from maskprep.tokenize import SPACE, WORD, encode_documents, load_tokenizer
 
 from conftest import trained_tokenizer
