@@ -83,33 +83,23 @@ def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | Non
     ib = index_bits if index_bits is not None else _bits(m - 1)
     if ib < _bits(m - 1):
         raise ValueError("index_bits too small for the table")
-    shift = np.uint64(ib)
-    low = np.uint64((1 << ib) - 1)
-    # Sort fingerprint prefixes with the row index packed into the low bits: a
-    # plain (SIMD) sort of uint64 gives the permutation, much faster than argsort.
-    # Only neighbours with equal prefixes are compared word by word; if they
-    # all match, each prefix group is one n-gram and rows are gathered once.
-    packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
-    packed.sort()
-    order = (packed & low).astype(np.intp)
-    prefix = packed >> shift
-    same = prefix[1:] == prefix[:-1]
-    # Columns are gathered once into sorted order and neighbours compared in place, contiguously
-    # (gathering both rows of every equal-prefix pair costs more once many rows repeat, as in a merge).
+    table = np.empty((m, n + 1), np.uint64)
+    for j, col in enumerate(columns):
+        table[:, j] = col
+    table[:, n] = counts
+    fast = _reduce_sorted(table, fp, n, ib)
+    if fast is not None:
+        return fast
+    # Different n-grams share a fingerprint prefix: order those groups by
+    # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
+    order, same = _sorted_prefixes(fp, ib)
     cols = [np.take(col, order) for col in columns]
     c = np.take(counts, order)
     differ = np.zeros(m - 1, bool)
-    if same.any():
-        for col in cols:
-            differ |= col[1:] != col[:-1]
-    clash = same & differ
-    if not clash.any():
-        starts = np.flatnonzero(np.concatenate(([True], ~same))) if same.any() else None
-        return _table(cols, c, starts, n), (fp[order] if starts is None else fp[order[starts]])
+    for col in cols:
+        differ |= col[1:] != col[:-1]
     pairs = np.flatnonzero(same)
     equal = ~differ[pairs]
-    # Different n-grams share a fingerprint prefix: order those groups by
-    # (full fingerprint, keys) so equal rows are adjacent and the order is canonical.
     f = fp[order]
     group = np.concatenate(([0], np.cumsum(~same)))
     pos = np.flatnonzero(np.isin(group, np.unique(group[1:][pairs[~equal]])))
@@ -123,10 +113,8 @@ def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | Non
 def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) -> np.ndarray:
     """`reduce_rows` for a row-major (m, n + 1) table of keys and counts, as read from runs.
 
-    Whole rows are gathered into sorted order (one cache line each instead of
-    n + 1 strided column gathers); a fingerprint-prefix clash falls back to
-    `reduce_rows`. Returns the reduced table in canonical order. `index_bits`
-    only exists so tests can force prefix clashes.
+    Returns the reduced table in canonical order. `index_bits` only exists so
+    tests can force prefix clashes.
 
     >>> reduce_table(np.array([[5, 1], [7, 2], [5, 3]], np.uint64), 1)[:, 1].tolist() in ([4, 2], [2, 4])
     True
@@ -138,21 +126,43 @@ def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) ->
     ib = index_bits if index_bits is not None else _bits(m - 1)
     if ib < _bits(m - 1):
         raise ValueError("index_bits too small for the table")
+    fast = _reduce_sorted(table, fp, n, ib)
+    if fast is not None:
+        return fast[0]
+    return reduce_rows(table[:, :n].T, table[:, n], fp=fp, index_bits=index_bits)[0]
+
+
+def _sorted_prefixes(fp: np.ndarray, ib: int) -> tuple[np.ndarray, np.ndarray]:
+    """Row order by fingerprint prefix (top 64 - ib bits), and whether each row's prefix equals the next's.
+
+    The row index is packed into the low `ib` bits, so a plain (SIMD) sort of
+    uint64 gives the permutation, much faster than argsort.
+    """
     low = np.uint64((1 << ib) - 1)
-    packed = (fp & ~low) | np.arange(m, dtype=np.uint64)
+    packed = (fp & ~low) | np.arange(len(fp), dtype=np.uint64)
     packed.sort()
-    order = (packed & low).astype(np.intp)
     prefix = packed >> np.uint64(ib)
-    same = prefix[1:] == prefix[:-1]
-    if not same.any():
-        return np.take(table, order, axis=0)
+    return (packed & low).astype(np.intp), prefix[1:] == prefix[:-1]
+
+
+def _reduce_sorted(table: np.ndarray, fp: np.ndarray, n: int, ib: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """Reduce a row-major (m, n + 1) table when every equal-prefix group is one n-gram; None if two differ.
+
+    Whole rows are gathered into sorted order (one cache line each, about
+    twice as fast as n + 1 column gathers) and neighbours with equal prefixes
+    are compared word by word in place; sums are differences of a running sum
+    (faster than reduceat on many small groups).
+    """
+    m = table.shape[0]
+    order, same = _sorted_prefixes(fp, ib)
     srt = np.take(table, order, axis=0)
-    keys = srt[:, :n]
-    differ = keys[1:, 0] != keys[:-1, 0]
+    if not same.any():  # all distinct
+        return srt, fp[order]
+    differ = srt[1:, 0] != srt[:-1, 0]
     for j in range(1, n):
-        differ |= keys[1:, j] != keys[:-1, j]
+        differ |= srt[1:, j] != srt[:-1, j]
     if (same & differ).any():
-        return reduce_rows(table[:, :n].T, table[:, n], fp=fp, index_bits=index_bits)[0]
+        return None
     starts = np.flatnonzero(np.concatenate(([True], ~same)))
     out = np.take(srt, starts, axis=0)
     run = np.cumsum(srt[:, n])
@@ -162,32 +172,19 @@ def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) ->
     sums = np.take(run, ends)
     sums[1:] -= run[ends[:-1]]
     out[:, n] = sums
-    return out
+    return out, fp[order[starts]]
 
 
-def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray | None, n: int) -> np.ndarray:
-    """(rows, n + 1) table of the first row of each group of sorted rows and the group's summed count.
-
-    `starts` are the groups' first rows (None: every row is its own group).
-    Sums are differences of a running sum (faster than reduceat on many small groups).
-    """
+def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray, n: int) -> np.ndarray:
+    """(groups, n + 1) table: the first row of each group of sorted rows (`starts`) and its summed count."""
     m = len(counts)
-    rows = m if starts is None else len(starts)
-    out = np.empty((rows, n + 1), np.uint64)
-    if starts is None:
-        for j, col in enumerate(cols):
-            out[:, j] = col
-        out[:, n] = counts
-        return out
+    out = np.empty((len(starts), n + 1), np.uint64)
     for j, col in enumerate(cols):
         np.take(col, starts, out=out[:, j], mode="clip")  # clip: indices are in range; no buffered copy
     run = np.cumsum(counts)
-    ends = np.empty(rows, np.intp)
-    ends[:-1] = starts[1:] - 1
-    ends[-1] = m - 1
-    sums = out[:, n]
-    np.take(run, ends, out=sums, mode="clip")
-    sums[1:] -= run[ends[:-1]]
+    ends = np.append(starts[1:], m) - 1
+    out[:, n] = run[ends]
+    out[1:, n] -= run[ends[:-1]]
     return out
 
 
