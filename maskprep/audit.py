@@ -28,8 +28,9 @@ from .corpus import CorpusOptions, ReadStats, iter_batches, iter_corpus, plan_ta
 from .errors import MaskprepError
 from .io import atomic_write_json
 from .progress import Progress
-from .tokenize import PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, TrainConfig, check_trained_size, encode_stream, \
-    load_tokenizer, save_tokenizer, train_tokenizer, unique_rows
+from .tokenize import PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, encode_stream, load_tokenizer, save_tokenizer, \
+    unique_rows
+from .train import TrainConfig, check_trained_size, train_tokenizer
 
 BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
 

@@ -182,7 +182,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     import tomllib
 
     from .corpus import CorpusOptions, resolve_inputs
-    from .tokenize import TrainConfig
+    from .train import TrainConfig
 
     path = Path(path)
     if not path.is_file():
@@ -242,7 +242,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
 
 def _audit(c: _Checker) -> dict[str, Any] | None:
     from .audit import AuditConfig
-    from .tokenize import TrainConfig
+    from .train import TrainConfig
 
     a = c.table("audit")
     if a is None:

@@ -25,7 +25,7 @@ from conftest import shakespeare_files, speeches  # noqa: E402
 
 from maskprep.audit import audit_tokenizer  # noqa: E402
 from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
-from maskprep.tokenize import TrainConfig, train_tokenizer  # noqa: E402
+from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
 
 
 def build_corpus(directory: Path, repeat: int) -> Path:

@@ -68,8 +68,9 @@ from conftest import shakespeare_files, speeches  # noqa: E402
 from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
 from maskprep.execute import Executor, map_tasks  # noqa: E402
 from maskprep.ngrams import TASK_BYTES, ChunkCounter, CountConfig, finish_counts, task_share  # noqa: E402
-from maskprep.tokenize import WORD, SPACE, TrainConfig, encode_stream, load_tokenizer, save_tokenizer, \
-    tokenizer_from_json, train_tokenizer  # noqa: E402
+from maskprep.tokenize import WORD, SPACE, encode_stream, load_tokenizer, save_tokenizer, \
+    tokenizer_from_json  # noqa: E402
+from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
 
 MAX_N = 5
 MIN_COUNT = 10

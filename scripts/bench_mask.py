@@ -29,7 +29,8 @@ from maskprep.corpus import CorpusOptions, iter_batches, iter_corpus, plan_tasks
 from maskprep.execute import Executor
 from maskprep.masking import MaskingConfig
 from maskprep.shards import ShardConfig, write_shards
-from maskprep.tokenize import TrainConfig, encode_documents, load_tokenizer, save_tokenizer, train_tokenizer
+from maskprep.tokenize import encode_documents, load_tokenizer, save_tokenizer
+from maskprep.train import TrainConfig, train_tokenizer
 
 
 def bare_encode(info, files, options) -> tuple[int, float]:

@@ -90,7 +90,8 @@ def make_corpus(directory: Path, copies: int, files: int) -> list[str]:
 
 def train(corpus: list[str], out: Path) -> Path:
     from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
+    from maskprep.tokenize import save_tokenizer
+    from maskprep.train import TrainConfig, train_tokenizer
 
     save_tokenizer(train_tokenizer(iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=8000)), out)
     return out

@@ -36,7 +36,8 @@ from maskprep.ngrams import CountConfig, count_ngrams  # noqa: E402
 from maskprep.packing import PackingConfig, TaskPacker  # noqa: E402
 from maskprep.segment import UnitTable  # noqa: E402
 from maskprep.targetstats import TargetStats  # noqa: E402
-from maskprep.tokenize import TrainConfig, encode_stream, load_tokenizer, save_tokenizer, train_tokenizer  # noqa: E402
+from maskprep.tokenize import encode_stream, load_tokenizer, save_tokenizer  # noqa: E402
+from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
 from maskprep.units import build_units, write_units  # noqa: E402
 
 

@@ -177,7 +177,8 @@ def test_target_stats_match_a_plain_recount():
 
 def test_markup_in_the_corpus_is_escaped_in_the_page(tmp_path, shakespeare_small):
     from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
+    from maskprep.tokenize import save_tokenizer
+    from maskprep.train import TrainConfig, train_tokenizer
 
     corpus = tmp_path / "<b>markup & co<i>.txt"
     plays = shakespeare_small.read_text(encoding="utf-8").splitlines()[:200]
@@ -228,7 +229,8 @@ def test_cli_errors_name_the_option(tmp_path, shakespeare_small, small_wordpiece
 
 def test_units_of_another_tokenizer_are_refused(tmp_path, shakespeare_small, units_path):
     from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import TrainConfig, save_tokenizer, train_tokenizer
+    from maskprep.tokenize import save_tokenizer
+    from maskprep.train import TrainConfig, train_tokenizer
 
     other = tmp_path / "other.json"
     save_tokenizer(train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(vocab_size=1000)), other)

@@ -11,8 +11,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from maskprep.errors import MaskprepError
-from maskprep.tokenize import PUNCT, SPACE, WORD, TrainConfig, encode_documents, load_tokenizer, save_tokenizer, \
-    train_tokenizer
+from maskprep.tokenize import PUNCT, SPACE, WORD, encode_documents, load_tokenizer, save_tokenizer
+from maskprep.train import TrainConfig, train_tokenizer
 
 from conftest import speeches
 
