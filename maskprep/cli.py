@@ -263,7 +263,8 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
     for llr: more frequent than chance on every binary split), ranked best
     first. pmi and pmi-naive scores are in nats.
     """
-    from .units import build_units, format_top_units, write_units
+    from .unit_files import format_top_units, write_units
+    from .units import build_units
 
     if top < 1:
         raise MaskprepError(f"--top: expected a positive whole number, got {top}")

@@ -283,7 +283,7 @@ def _load_units(units: str | Path | None, info: Any) -> tuple[Any, str | None, d
     if units is None:
         return None, None, None
     from .shards import file_sha256
-    from .units import read_units_for
+    from .unit_files import read_units_for
 
     vocab = read_units_for(units, info.hash)
     digest = file_sha256(units)

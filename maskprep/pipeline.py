@@ -251,7 +251,8 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
             u = cfg.units
 
             def run_units(d: Path) -> list[str]:
-                from .units import build_units, write_units
+                from .unit_files import write_units
+                from .units import build_units
 
                 vocab = build_units(counts_dir, measure=u["measure"], top=u["top"], min_count=u["min_count"],
                                     per_length=u["per_length"], max_n=u["max_n"], quiet=quiet)

@@ -412,7 +412,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
         if units is None:
             raise MaskprepError("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
                                 "(made by maskprep units)")
-        from .units import read_units_for
+        from .unit_files import read_units_for
 
         vocab = read_units_for(units, info.hash)
         by_length, units_digest = vocab.by_length(), file_sha256(units)

@@ -38,7 +38,8 @@ from maskprep.segment import UnitTable  # noqa: E402
 from maskprep.targetstats import TargetStats  # noqa: E402
 from maskprep.tokenize import encode_stream, load_tokenizer, save_tokenizer  # noqa: E402
 from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
-from maskprep.units import build_units, write_units  # noqa: E402
+from maskprep.unit_files import write_units  # noqa: E402
+from maskprep.units import build_units  # noqa: E402
 
 
 def multiword(units: np.ndarray, word_ids: np.ndarray) -> np.ndarray:

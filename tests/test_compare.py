@@ -32,7 +32,8 @@ ONE = Executor(workers=1, quiet=True)
 def units_path(tmp_path_factory, shakespeare_small: Path, small_wordpiece: Path) -> Path:
     """pmi units of the four plays: exact counts up to trigrams (min count 3), best 5,000 n-grams."""
     from maskprep.ngrams import CountConfig, count_ngrams
-    from maskprep.units import build_units, write_units
+    from maskprep.unit_files import write_units
+    from maskprep.units import build_units
 
     d = tmp_path_factory.mktemp("units")
     count_ngrams([str(shakespeare_small)], tokenizer=small_wordpiece, output=d / "counts",

@@ -208,7 +208,8 @@ def limited_tokenizer(tmp_path_factory, small_wordpiece: Path) -> Path:
 @pytest.fixture(scope="module")
 def foreign_units(tmp_path_factory) -> Path:
     from maskprep.cohesion import Measure
-    from maskprep.units import UnitVocabulary, write_units
+    from maskprep.unit_files import write_units
+    from maskprep.units import UnitVocabulary
 
     vocab = UnitVocabulary(text=("new york",), n=np.array([2]), count=np.array([5]), score=np.array([3.0]),
                            token_ids=(np.array([1, 2], np.int32),), word_keys=(np.array([1, 2], np.uint64),),

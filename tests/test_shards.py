@@ -44,7 +44,8 @@ def units_file(tmp_path_factory, info, three_files) -> Path:
     """A small unit vocabulary: the 300 most frequent adjacent word pairs of the text, scored by log count."""
     from maskprep.cohesion import Measure
     from maskprep.tokenize import WORD
-    from maskprep.units import UnitVocabulary, write_units
+    from maskprep.unit_files import write_units
+    from maskprep.units import UnitVocabulary
 
     batch = info.encode([ln for f in three_files for ln in Path(f).read_text(encoding="utf-8").splitlines()])
     keys, kinds = batch.word_keys, batch.word_kinds

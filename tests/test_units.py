@@ -1,4 +1,4 @@
-"""Tests of maskprep.units: building, ranking, quotas, files and errors.
+"""Tests of maskprep.units and maskprep.unit_files: building, ranking, quotas, files and errors.
 
 The counts directory here is built in the test from invented lines with planted
 multi-word terms (demo / planted-unit data, never a reference), using a real
@@ -23,8 +23,8 @@ import pytest
 from maskprep.tokenize import load_tokenizer
 from maskprep.cohesion import CountTable, Measure, binary_split_pmi, score_ngrams
 from maskprep.errors import MaskprepError
-from maskprep.units import (FORMAT_VERSION, _quotas, build_units, format_top_units, parse_per_length,
-                            read_units, write_units)
+from maskprep.unit_files import FORMAT_VERSION, format_top_units, read_units, write_units
+from maskprep.units import _quotas, build_units, parse_per_length
 
 PLANTED = ["machine learning", "ice cream", "new york city", "prime minister", "red blood cell count"]
 FILLER = ("the a of and to in is it that was he for on are with as his they be at one have this from "
