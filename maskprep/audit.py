@@ -291,14 +291,14 @@ def _format_rows(rows: list[tuple[str, ...]]) -> str:
 
 def render_audit_html(doc: dict[str, Any]) -> str:
     """The audit page: chart of tokens per word by band, one line per tokenizer, and tables."""
-    from . import report
+    from . import charts, report
 
     toks = doc["tokenizers"]
-    chart = report.line_chart(
+    chart = charts.line_chart(
         title="Tokens per word by frequency band of word types", x_labels=list(doc["bands"]),
         series={r["name"]: [b["tokens_per_word"] for b in r["bands"]] for r in toks},
         y_label="tokens per word", y_min=1.0)
-    split_chart = report.bar_chart(
+    split_chart = charts.bar_chart(
         title="Share of word occurrences split into 2+ tokens, by band", categories=list(doc["bands"]),
         series={r["name"]: [b["split_share"] for b in r["bands"]] for r in toks},
         y_label="split share", percent=True)

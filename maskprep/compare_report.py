@@ -1,13 +1,14 @@
 """The compare.html page: what each masking strategy hides, side by side.
 
 `render_compare_html` turns the JSON of `compare.compare_strategies` into one
-self-contained page built with `maskprep.report`: a summary table, one bar
-chart per measure (strategies side by side), targets by word-frequency band
-against the band's share of all tokens, unit-length and targets-per-sequence
-histograms, the replacement mix, and example sequences with every masked unit
-highlighted (the tokenizer's tokens, originals under masked ones). All corpus
-text goes through `report`, which escapes it. This module computes no
-statistic: every number shown is read from the comparison's JSON.
+self-contained page built with `maskprep.report` and `maskprep.charts`: a
+summary table, one bar chart per measure (strategies side by side), targets
+by word-frequency band against the band's share of all tokens, unit-length
+and targets-per-sequence histograms, the replacement mix, and example
+sequences with every masked unit highlighted (the tokenizer's tokens,
+originals under masked ones). All corpus text goes through `report`'s
+escaping (charts use it too). This module computes no statistic: every
+number shown is read from the comparison's JSON.
 """
 
 from __future__ import annotations
@@ -15,7 +16,7 @@ from __future__ import annotations
 import html
 from typing import Any, Sequence
 
-from . import report
+from . import charts, report
 
 __all__ = ["render_compare_html", "length_bins"]
 
@@ -106,7 +107,7 @@ def _bands(doc: dict[str, Any], order: list[str]) -> str:
     series: dict[str, list[float | None]] = {"all maskable tokens": [b["token_share"] for b in first]}
     for name in order:
         series[name] = [b["target_share"] for b in doc["strategies"][name]["targets_by_band"]]
-    chart = report.bar_chart(title="Targets by word-frequency band (ranks counted in the sample)",
+    chart = charts.bar_chart(title="Targets by word-frequency band (ranks counted in the sample)",
                              categories=labels, series=series, y_label="share", percent=True)
     rows = []
     for i, b in enumerate(first):
@@ -125,11 +126,11 @@ def _histograms(doc: dict[str, Any], order: list[str]) -> str:
     out = []
     for what, cap in (("tokens", 13), ("words", 11)):
         labels, rows = length_bins([f["unit_lengths"][what] for f in figs], cap=cap)
-        out.append(report.histogram_chart(title=f"Length of masked units in {what}", bins=labels,
+        out.append(charts.histogram_chart(title=f"Length of masked units in {what}", bins=labels,
                                           series=dict(zip(order, rows)), y_label="share of masked units",
                                           normalize=True, x_label=what))
     labels, rows = _value_bins([f["targets_per_sequence"]["histogram"] for f in figs])
-    out.append(report.histogram_chart(title="Targets per sequence", bins=labels, series=dict(zip(order, rows)),
+    out.append(charts.histogram_chart(title="Targets per sequence", bins=labels, series=dict(zip(order, rows)),
                                       y_label="share of sequences", normalize=True, x_label="targets"))
     return "".join(out)
 
@@ -166,17 +167,17 @@ def _examples(doc: dict[str, Any], order: list[str], examples: Sequence[dict[str
 def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any]], tokenizer: Any) -> str:
     """The whole page: ``write_page("cmp/compare.html", render_compare_html(doc, examples=ex, tokenizer=info))``."""
     order = list(doc["order"])
-    charts = []
+    measure_charts = []
     for path, title, axis, percent in _MEASURES:
         values = {n: [_get(doc["strategies"][n], path)] for n in order}
         if all(v[0] is None for v in values.values()):
             continue
-        charts.append(report.bar_chart(title=title, categories=[title.split(":")[0]], series=values,
-                                       y_label=axis, percent=percent, name_bars=True))
-    mix = report.bar_chart(title="How targets are shown", categories=["mask token", "random token", "unchanged"],
+        measure_charts.append(charts.bar_chart(title=title, categories=[title.split(":")[0]], series=values,
+                                               y_label=axis, percent=percent, name_bars=True))
+    mix = charts.bar_chart(title="How targets are shown", categories=["mask token", "random token", "unchanged"],
                            series={n: [doc["strategies"][n]["mix"][k] for k in ("mask", "random", "keep")]
                                    for n in order}, y_label="share of targets", percent=True)
-    sections = [("Summary", _summary(doc, order)), ("Measures, strategy by strategy", "".join(charts)),
+    sections = [("Summary", _summary(doc, order)), ("Measures, strategy by strategy", "".join(measure_charts)),
                 ("Targets by word frequency", _bands(doc, order)), ("Unit lengths and targets per sequence",
                                                                      _histograms(doc, order)),
                 ("Replacement mix", mix), ("Example sequences", _examples(doc, order, examples, tokenizer))]

@@ -1,4 +1,4 @@
-"""Tests for the HTML report toolkit: structure, escaping, gaps, formatting, determinism."""
+"""Tests for the HTML report toolkit (report and charts): structure, escaping, gaps, formatting, determinism."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from maskprep import report
+from maskprep import charts, report
 from maskprep.errors import MaskprepError
 
 EVIL = "<script>alert(1)</script> & \"quoted\" 'single'"
@@ -36,20 +36,20 @@ def all_text(root: ET.Element) -> list[str]:
 
 
 def sample_line() -> str:
-    return report.line_chart(title="Tokens per word", x_labels=BANDS, y_label="tokens per word",
+    return charts.line_chart(title="Tokens per word", x_labels=BANDS, y_label="tokens per word",
                              series={"wp-2k": [1.1, 1.6, 2.4, 3.1], "wp-8k": [1.0, 1.2, 1.9, 2.7],
                                      "wp-30k": [1.0, 1.0, 1.3, 2.0]})
 
 
 def sample_bars() -> str:
-    return report.bar_chart(title="Masking", categories=["rate", "leakage", "easy targets"],
+    return charts.bar_chart(title="Masking", categories=["rate", "leakage", "easy targets"],
                             series={"token": [0.15, 0.3, 0.4], "word": [0.15, 0.0, 0.35],
                                     "span": [0.15, 0.0, 0.3], "pmi": [0.15, 0.0, 0.2]},
                             y_label="share", percent=True)
 
 
 def sample_histogram() -> str:
-    return report.histogram_chart(title="Unit length", bins=["1", "2", "3", "4+"], y_label="units",
+    return charts.histogram_chart(title="Unit length", bins=["1", "2", "3", "4+"], y_label="units",
                                   series={"word": [70, 20, 8, 2], "span": [20, 30, 30, 20]})
 
 
@@ -69,7 +69,7 @@ def test_line_chart_has_one_path_per_series_and_one_marker_per_value() -> None:
 
 def test_line_chart_series_differ_in_colour_marker_and_dash() -> None:
     names = [f"s{k}" for k in range(8)]
-    root = parse(report.line_chart(title="t", x_labels=["a", "b"], y_label="y",
+    root = parse(charts.line_chart(title="t", x_labels=["a", "b"], y_label="y",
                                    series={n: [float(k), k + 1.0] for k, n in enumerate(names)}))
     looks = set()
     for g in series_groups(root):
@@ -82,7 +82,7 @@ def test_line_chart_series_differ_in_colour_marker_and_dash() -> None:
 
 
 def test_line_chart_none_is_a_gap_not_zero() -> None:
-    svg = report.line_chart(title="t", x_labels=["a", "b", "c", "d", "e"], y_label="y",
+    svg = charts.line_chart(title="t", x_labels=["a", "b", "c", "d", "e"], y_label="y",
                             series={"s": [2.0, 3.0, None, 4.0, 5.0], "nan": [2.0, float("nan"), 3.0, 3.0, 3.0]})
     root = parse(svg)
     first, second = series_groups(root)
@@ -104,7 +104,7 @@ def test_line_chart_none_is_a_gap_not_zero() -> None:
 
 
 def test_line_chart_y_min_sets_axis_bottom() -> None:
-    root = parse(report.line_chart(title="t", x_labels=["a", "b"], y_label="y", y_min=0,
+    root = parse(charts.line_chart(title="t", x_labels=["a", "b"], y_label="y", y_min=0,
                                    series={"s": [1.2, 1.8]}))
     labels = [t.text for t in root.iter("text") if t.get("text-anchor") == "end"]
     assert labels[0] in {"0", "0.0"}
@@ -126,7 +126,7 @@ def test_bar_chart_has_one_group_per_series_with_labelled_bars() -> None:
 
 
 def test_one_measure_chart_names_each_bar_under_it() -> None:
-    root = parse(report.bar_chart(title="Within-word leakage", categories=["Within-word leakage"],
+    root = parse(charts.bar_chart(title="Within-word leakage", categories=["Within-word leakage"],
                                   series={"token": [0.16], "word": [0.0], "span": [0.0]}, y_label="share",
                                   percent=True, name_bars=True))
     bars = [r for r in root.iter("rect") if r.get("class") == "bar"]
@@ -141,7 +141,7 @@ def test_one_measure_chart_names_each_bar_under_it() -> None:
 
 
 def test_bar_heights_are_proportional_and_start_at_zero() -> None:
-    root = parse(report.bar_chart(title="t", categories=["a", "b"], series={"s": [10.0, 40.0]}, y_label="n"))
+    root = parse(charts.bar_chart(title="t", categories=["a", "b"], series={"s": [10.0, 40.0]}, y_label="n"))
     a, b = [r for r in root.iter("rect") if r.get("class") == "bar"]
     assert float(b.get("height", 0)) == pytest.approx(4 * float(a.get("height", 0)), rel=0.01)
     bottom_a = float(a.get("y", 0)) + float(a.get("height", 0))
@@ -150,7 +150,7 @@ def test_bar_heights_are_proportional_and_start_at_zero() -> None:
 
 
 def test_negative_bars_hang_below_zero() -> None:
-    root = parse(report.bar_chart(title="t", categories=["a", "b"], series={"s": [-5.0, 5.0]}, y_label="n"))
+    root = parse(charts.bar_chart(title="t", categories=["a", "b"], series={"s": [-5.0, 5.0]}, y_label="n"))
     neg, pos = [r for r in root.iter("rect") if r.get("class") == "bar"]
     assert float(neg.get("y", 0)) == pytest.approx(float(pos.get("y", 0)) + float(pos.get("height", 0)), abs=0.11)
 
@@ -159,33 +159,33 @@ def test_histogram_groups_and_normalisation() -> None:
     root = parse(sample_histogram())
     assert len(series_groups(root)) == 2
     assert all(len(list(g.iter("rect"))) == 4 for g in series_groups(root))
-    shares = parse(report.histogram_chart(title="t", bins=["1", "2"], series={"a": [3, 1], "b": [10, 30]},
+    shares = parse(charts.histogram_chart(title="t", bins=["1", "2"], series={"a": [3, 1], "b": [10, 30]},
                                           y_label="share", normalize=True))
     tips = [t.text for t in shares.iter("title") if t.text and " \u2014 " in t.text]
     assert tips == ["a \u2014 1: 0.75 (75.00%)", "a \u2014 2: 0.25 (25.00%)",
                     "b \u2014 1: 0.25 (25.00%)", "b \u2014 2: 0.75 (75.00%)"]
     with pytest.raises(ValueError, match="negative"):
-        report.histogram_chart(title="t", bins=["1"], series={"a": [-1]}, y_label="n", normalize=True)
+        charts.histogram_chart(title="t", bins=["1"], series={"a": [-1]}, y_label="n", normalize=True)
 
 
 def test_tick_labels_are_round_readable_numbers() -> None:
     for lo, hi in [(0, 0.37), (1.0, 3.1), (0, 1234567), (-3000, 13580), (0.001, 0.0042), (5, 5)]:
-        ticks = report._nice_ticks(lo, hi)
+        ticks = charts._nice_ticks(lo, hi)
         assert ticks[0] <= lo and ticks[-1] >= hi and 3 <= len(ticks) <= 12
         step = ticks[1] - ticks[0]
         mantissa = step / 10 ** __import__("math").floor(__import__("math").log10(step))
         assert any(abs(mantissa - m) < 1e-6 for m in (1, 2, 2.5, 5))
-    assert report._tick_labels([0.0, 0.1, 0.2], percent=True) == ["0%", "10%", "20%"]
-    assert report._tick_labels([0.0, 2.5e6, 5e6], percent=False) == ["0", "2.5M", "5.0M"]
-    assert report._tick_labels([0.0, 5000.0, 10000.0], percent=False) == ["0", "5,000", "10,000"]
-    assert report._tick_labels([1.0, 1.25, 1.5], percent=False) == ["1.00", "1.25", "1.50"]
+    assert charts._tick_labels([0.0, 0.1, 0.2], percent=True) == ["0%", "10%", "20%"]
+    assert charts._tick_labels([0.0, 2.5e6, 5e6], percent=False) == ["0", "2.5M", "5.0M"]
+    assert charts._tick_labels([0.0, 5000.0, 10000.0], percent=False) == ["0", "5,000", "10,000"]
+    assert charts._tick_labels([1.0, 1.25, 1.5], percent=False) == ["1.00", "1.25", "1.50"]
 
 
 def test_mismatched_lengths_and_non_numbers_raise() -> None:
     with pytest.raises(ValueError, match="3 values for 2"):
-        report.line_chart(title="t", x_labels=["a", "b"], series={"s": [1, 2, 3]}, y_label="y")
+        charts.line_chart(title="t", x_labels=["a", "b"], series={"s": [1, 2, 3]}, y_label="y")
     with pytest.raises(ValueError, match="numbers"):
-        report.bar_chart(title="t", categories=["a"], series={"s": ["1"]}, y_label="y")  # type: ignore[list-item]
+        charts.bar_chart(title="t", categories=["a"], series={"s": ["1"]}, y_label="y")  # type: ignore[list-item]
     with pytest.raises(ValueError, match="2 entries for 3 tokens"):
         report.highlighted_sequence(["a", "b", "c"], masked=[True, False])
     with pytest.raises(ValueError, match="row 0"):
@@ -193,14 +193,14 @@ def test_mismatched_lengths_and_non_numbers_raise() -> None:
 
 
 def test_empty_data_still_renders_valid_svg() -> None:
-    root = parse(report.line_chart(title="nothing", x_labels=["a"], series={"s": [None]}, y_label="y"))
+    root = parse(charts.line_chart(title="nothing", x_labels=["a"], series={"s": [None]}, y_label="y"))
     assert "no data" in all_text(root)[0]
-    parse(report.bar_chart(title="nothing", categories=[], series={}, y_label="y"))
+    parse(charts.bar_chart(title="nothing", categories=[], series={}, y_label="y"))
 
 
 def test_long_labels_are_clipped_with_full_text_in_tooltip() -> None:
     long = "a very long category label " * 6
-    root = parse(report.bar_chart(title="t", categories=[long, "b"], series={"s": [1.0, 2.0]}, y_label="y"))
+    root = parse(charts.bar_chart(title="t", categories=[long, "b"], series={"s": [1.0, 2.0]}, y_label="y"))
     label = next(t for t in root.iter("text") if any(x.text == long for x in t.iter("title")))
     assert "".join(label.itertext()).endswith("\u2026")
 
@@ -211,10 +211,10 @@ def every_output() -> dict[str, str]:
     seq = report.highlighted_sequence([EVIL, "[MASK]", "b"], masked=[False, True, False],
                                       unit_ids=[0, 1, 2], originals=[EVIL, EVIL, "b"])
     outputs = {
-        "line": report.line_chart(title=EVIL, x_labels=[EVIL, "b"], series={EVIL: [1.0, 2.0]},
+        "line": charts.line_chart(title=EVIL, x_labels=[EVIL, "b"], series={EVIL: [1.0, 2.0]},
                                   y_label=EVIL, x_label=EVIL),
-        "bar": report.bar_chart(title=EVIL, categories=[EVIL], series={EVIL: [1.0]}, y_label=EVIL, x_label=EVIL),
-        "histogram": report.histogram_chart(title=EVIL, bins=[EVIL], series={EVIL: [3.0]}, y_label=EVIL),
+        "bar": charts.bar_chart(title=EVIL, categories=[EVIL], series={EVIL: [1.0]}, y_label=EVIL, x_label=EVIL),
+        "histogram": charts.histogram_chart(title=EVIL, bins=[EVIL], series={EVIL: [3.0]}, y_label=EVIL),
         "table": report.table(headers=[EVIL, "n"], rows=[[EVIL, 1.5]], caption=EVIL),
         "sequence": seq,
         "paragraph": report.paragraph(EVIL),
@@ -242,7 +242,7 @@ def test_fragments_parse_as_xml_and_text_round_trips(name: str) -> None:
 
 def test_characters_xml_forbids_are_replaced() -> None:
     bad = "nul\x00 bell\x07 esc\x1b surrogate\udcff"
-    root = parse(report.line_chart(title=bad, x_labels=[bad], series={bad: [1.0]}, y_label=bad))
+    root = parse(charts.line_chart(title=bad, x_labels=[bad], series={bad: [1.0]}, y_label=bad))
     assert "nul\ufffd bell\ufffd esc\ufffd surrogate\ufffd" in all_text(root)[0]
     ET.fromstring(report.highlighted_sequence([bad, "\n", ""], masked=[True, False, False]))
 
@@ -374,14 +374,14 @@ def test_crowded_x_labels_turn_stay_inside_and_thin_out() -> None:
     import math
 
     labels = [f"category number {i} with a long label" for i in range(12)]
-    root = parse(report.bar_chart(title="t", categories=labels, series={"s": [1.0] * 12}, y_label="y"))
+    root = parse(charts.bar_chart(title="t", categories=labels, series={"s": [1.0] * 12}, y_label="y"))
     turned = [t for t in root.iter("text") if "rotate(-40" in t.get("transform", "")]
     assert len(turned) == 12
     for t in turned:
         shown = "".join(x for x in t.itertext() if x not in labels)  # drop tooltip text
-        assert float(t.get("x", 0)) - report._text_w(shown, 11) * math.cos(math.radians(40)) >= 0
+        assert float(t.get("x", 0)) - charts._text_w(shown, 11) * math.cos(math.radians(40)) >= 0
     many = [f"label {i}" for i in range(120)]
-    root = parse(report.line_chart(title="t", x_labels=many, series={"s": [float(i) for i in range(120)]},
+    root = parse(charts.line_chart(title="t", x_labels=many, series={"s": [float(i) for i in range(120)]},
                                    y_label="y"))
     drawn = [t.text for t in root.iter("text") if t.text in set(many)]
     assert 10 <= len(drawn) < 120 and drawn[0] == "label 0"
