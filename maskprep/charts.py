@@ -19,7 +19,7 @@ import numbers
 import unicodedata
 from collections.abc import Mapping, Sequence
 
-from maskprep.report import _esc
+from maskprep.report import esc
 
 #: Series colours: the Okabe-Ito set, safe for the common colour-vision
 #: deficiencies. Slot 7 is the text colour (black on light pages, light on dark
@@ -56,9 +56,9 @@ def _clip(text: str, size: float, max_w: float) -> str:
 def _svg_text(text: str, *, x: float, y: float, size: float, max_w: float,
               anchor: str = "start", extra: str = "") -> str:
     shown = _clip(text, size, max_w)
-    tip = f"<title>{_esc(text)}</title>" if shown != text else ""
+    tip = f"<title>{esc(text)}</title>" if shown != text else ""
     return (f'<text x="{x:.1f}" y="{y:.1f}" font-size="{size:g}" text-anchor="{anchor}"{extra}>'
-            f"{tip}{_esc(shown)}</text>")
+            f"{tip}{esc(shown)}</text>")
 
 
 def _columns(series: Mapping[str, Sequence[object]], count: int, what: str) -> list[list[float | None]]:
@@ -183,8 +183,8 @@ class _Frame:
         out = [f'<svg class="chart" role="img" width="{_WIDTH:g}" height="{self.height}" '
                f'viewBox="0 0 {_WIDTH:g} {self.height}" fill="currentColor" '
                'font-family="system-ui, -apple-system, Segoe UI, Helvetica, Arial, sans-serif">',
-               f"<title>{_esc(self.title)}</title>",
-               f"<desc>{_esc(f'Series: {listed}.' if listed else 'No series.')}</desc>",
+               f"<title>{esc(self.title)}</title>",
+               f"<desc>{esc(f'Series: {listed}.' if listed else 'No series.')}</desc>",
                _svg_text(self.title, x=_PAD, y=_PAD + 16, size=15, max_w=_WIDTH - 2 * _PAD,
                          extra=' font-weight="600"')]
         for x, y, k in self.legend:
@@ -201,7 +201,7 @@ class _Frame:
             out.append(f'<line x1="{self.left:.1f}" y1="{yy:.1f}" x2="{self.left + self.plot_w:.1f}" '
                        f'y2="{yy:.1f}" stroke="currentColor" stroke-opacity="{0.5 if strong else 0.15}"/>')
             out.append(f'<text x="{self.left - 6:.1f}" y="{yy + 4:.1f}" font-size="11" '
-                       f'text-anchor="end">{_esc(text)}</text>')
+                       f'text-anchor="end">{esc(text)}</text>')
         if self.y_label:
             cy = self.top + _PLOT_H / 2
             out.append(_svg_text(self.y_label, x=_PAD + 10, y=cy, size=12, max_w=_PLOT_H,
@@ -220,7 +220,7 @@ class _Frame:
 
 def _empty_chart(title: str) -> str:
     return (f'<svg class="chart" role="img" width="{_WIDTH:g}" height="90" viewBox="0 0 {_WIDTH:g} 90" '
-            f'fill="currentColor" font-family="system-ui, sans-serif"><title>{_esc(title)}</title>'
+            f'fill="currentColor" font-family="system-ui, sans-serif"><title>{esc(title)}</title>'
             + _svg_text(title, x=_PAD, y=_PAD + 16, size=15, max_w=_WIDTH - 2 * _PAD, extra=' font-weight="600"')
             + f'<text x="{_WIDTH / 2:g}" y="64" font-size="13" text-anchor="middle">no data</text></svg>')
 
@@ -255,10 +255,10 @@ def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequ
             x, y = frame.xc(i), frame.y(value)
             path.append(f"{'L' if pen_down else 'M'}{x:.1f} {y:.1f}")
             pen_down = True
-            tip = _esc(f"{name} \u2014 {x_labels[i]}: {_exact(value)}")
+            tip = esc(f"{name} \u2014 {x_labels[i]}: {_exact(value)}")
             points.append(f'<g class="point"><title>{tip}</title>{_marker(k, x, y)}'
                           f'<circle cx="{x:.1f}" cy="{y:.1f}" r="9" fill="#000" fill-opacity="0"/></g>')
-        out.append(f'<g class="series" data-series="{_esc(name)}">'
+        out.append(f'<g class="series" data-series="{esc(name)}">'
                    f'<path class="line" d="{" ".join(path)}" fill="none" stroke="{PALETTE[k % 8]}" '
                    f'stroke-width="2.2" stroke-linejoin="round"{_dash(k)}/>' + "".join(points) + "</g>")
     out.append("</svg>")
@@ -292,13 +292,13 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
     frame = _Frame(**args, top_extra=above, bottom_extra=below)  # type: ignore[arg-type]
     out, zero = frame.open(), frame.y(0.0)
     for k, (name, row) in enumerate(zip(series, rows)):
-        group = [f'<g class="series" data-series="{_esc(name)}">']
+        group = [f'<g class="series" data-series="{esc(name)}">']
         for i, value in enumerate(row):
             if value is None:
                 continue
             x = frame.left + i * frame.slot + frame.slot * (1 - fill) / 2 + k * width
             top, bar_h = min(frame.y(value), zero), abs(frame.y(value) - zero)
-            tip = _esc(f"{name} \u2014 {categories[i]}: {_exact(value, percent=percent)}")
+            tip = esc(f"{name} \u2014 {categories[i]}: {_exact(value, percent=percent)}")
             group.append(f'<rect class="bar" x="{x + width * 0.06:.1f}" y="{top:.1f}" '
                          f'width="{max(width * 0.88, 1.0):.1f}" height="{bar_h:.1f}" fill="{PALETTE[k % 8]}" '
                          f'stroke="currentColor" stroke-opacity="0.4" stroke-width="0.6"><title>{tip}</title></rect>')
@@ -309,7 +309,7 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
                 anchor = "middle" if mode == "flat" else "start" if up else "end"
                 dy = 3.5 if mode == "up" else 0.0
                 group.append(f'<text class="value" x="{cx:.1f}" y="{ly + dy:.1f}" font-size="10" '
-                             f'text-anchor="{anchor}"{turn}>{_esc(labels[k][i])}</text>')
+                             f'text-anchor="{anchor}"{turn}>{esc(labels[k][i])}</text>')
             if name_bars:
                 group.append(_svg_text(name, x=x + width / 2, y=frame.label_y, size=11, max_w=width,
                                        anchor="middle"))

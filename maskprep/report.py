@@ -31,7 +31,7 @@ _SHOWN = str.maketrans({"\n": "\u21b5", "\r": "\u240d", "\t": "\u21e5"})
 Format = str | Callable[[float], str]
 
 
-def _esc(value: object) -> str:
+def esc(value: object) -> str:
     return _html.escape(_XML_BAD.sub("\ufffd", str(value)), quote=True)
 
 
@@ -66,16 +66,16 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
                 chosen = formats.get(headers[c]) or (integer_format if is_int else numeric_format)
                 text = _formatted(int(value) if is_int else float(value), chosen)
                 has_number[c] = True
-                cells.append(f'<td class="num">{_esc(text)}</td>')
+                cells.append(f'<td class="num">{esc(text)}</td>')
             else:
                 text = "" if value is None else ("yes" if value else "no") if isinstance(value, bool) else str(value)
                 has_text[c] = has_text[c] or value is not None
-                cells.append(f"<td>{_esc(text)}</td>")
+                cells.append(f"<td>{esc(text)}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     right = ' class="num"'
-    head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">{_esc(h)}</th>'
+    head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">{esc(h)}</th>'
                    for c, h in enumerate(headers))
-    cap = f"<caption>{_esc(caption)}</caption>" if caption else ""
+    cap = f"<caption>{esc(caption)}</caption>" if caption else ""
     return (f'<div class="tablewrap"><table>{cap}<thead><tr>{head}</tr></thead>'
             f'<tbody>{"".join(body)}</tbody></table></div>')
 
@@ -107,7 +107,7 @@ def highlighted_sequence(tokens: Sequence[str], *, masked: Sequence[bool], unit_
         unit = -1 if unit_ids is None else int(unit_ids[i])
         if not masked[i]:
             special = ' sp' if unit_ids is not None and unit < 0 else ''
-            out.append(f'<span class="t{special}">{_esc(_shown(tokens[i]))}</span>')
+            out.append(f'<span class="t{special}">{esc(_shown(tokens[i]))}</span>')
             i += 1
             continue
         j = i + 1
@@ -116,9 +116,9 @@ def highlighted_sequence(tokens: Sequence[str], *, masked: Sequence[bool], unit_
                 j += 1
         tip = f"masked unit {unit}" if unit_ids is not None and unit >= 0 else "masked token"
         tip += f", {j - i} token{'s' if j - i > 1 else ''}" + (": " + " ".join(originals[i:j]) if originals else "")
-        boxed = (_esc(_shown(tokens[p])) + ("" if originals is None else
-                 f'<span class="o">{_esc(_shown(originals[p]))}</span>') for p in range(i, j))
-        out.append(f'<mark title="{_esc(tip)}">' + "".join(f'<span class="t m">{b}</span>' for b in boxed) + "</mark>")
+        boxed = (esc(_shown(tokens[p])) + ("" if originals is None else
+                 f'<span class="o">{esc(_shown(originals[p]))}</span>') for p in range(i, j))
+        out.append(f'<mark title="{esc(tip)}">' + "".join(f'<span class="t m">{b}</span>' for b in boxed) + "</mark>")
         i = j
     out.append("</div>")
     return "".join(out)
@@ -126,7 +126,7 @@ def highlighted_sequence(tokens: Sequence[str], *, masked: Sequence[bool], unit_
 
 def paragraph(text: str) -> str:
     """Escaped text as one HTML paragraph: ``paragraph("a < b") == "<p>a &lt; b</p>"``."""
-    return f"<p>{_esc(text)}</p>"
+    return f"<p>{esc(text)}</p>"
 
 
 _CSS = """
@@ -171,18 +171,18 @@ def page(*, title: str, sections: Sequence[tuple[str, str]], subtitle: str = "",
            '<meta name="viewport" content="width=device-width, initial-scale=1">',
            '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
            'style-src \'unsafe-inline\'; img-src data:">',
-           '<meta name="generator" content="maskprep">', f"<title>{_esc(title)}</title>",
-           f"<style>{_CSS}</style>", "</head>", "<body>", "<main>", "<header>", f"<h1>{_esc(title)}</h1>"]
+           '<meta name="generator" content="maskprep">', f"<title>{esc(title)}</title>",
+           f"<style>{_CSS}</style>", "</head>", "<body>", "<main>", "<header>", f"<h1>{esc(title)}</h1>"]
     if subtitle:
-        out.append(f'<p class="subtitle">{_esc(subtitle)}</p>')
+        out.append(f'<p class="subtitle">{esc(subtitle)}</p>')
     out.append("</header>")
     if len(sections) >= 3:
-        links = "".join(f'<li><a href="#section-{k}">{_esc(h)}</a></li>' for k, (h, _) in enumerate(sections, 1))
+        links = "".join(f'<li><a href="#section-{k}">{esc(h)}</a></li>' for k, (h, _) in enumerate(sections, 1))
         out.append(f'<nav aria-label="Contents"><strong>Contents</strong><ol>{links}</ol></nav>')
     for k, (heading, body) in enumerate(sections, 1):
-        out.append(f'<section id="section-{k}">\n<h2>{_esc(heading)}</h2>\n{body}\n</section>')
+        out.append(f'<section id="section-{k}">\n<h2>{esc(heading)}</h2>\n{body}\n</section>')
     if notes:
-        items = "".join(f"<li>{_esc(n)}</li>" for n in notes)
+        items = "".join(f"<li>{esc(n)}</li>" for n in notes)
         out.append(f'<section class="notes">\n<h2>Notes</h2>\n<ul>{items}</ul>\n</section>')
     out += ["<footer>Written by maskprep. This page is self-contained: it loads nothing and runs no scripts."
             "</footer>", "</main>", "</body>", "</html>", ""]

@@ -84,6 +84,7 @@ class UnitOptions:
 class UnitVocabulary:
     """Ranked units, best first; arrays are aligned (unit i is row i).
 
+    >>> from maskprep.unit_files import read_units
     >>> vocab = read_units("units.parquet")  # doctest: +SKIP
     >>> vocab.text[0], vocab.n[0], vocab.by_length()[2][0].shape  # doctest: +SKIP
     ('new york', 2, (812, 2))

@@ -14,7 +14,7 @@ import zstandard
 from maskprep.corpus import CorpusOptions, ReadStats, iter_corpus, iter_documents, plan_tasks, resolve_inputs
 from maskprep.errors import MaskprepError
 
-from conftest import shakespeare_files, speeches
+from conftest import speeches
 
 
 @pytest.fixture(scope="module")

@@ -16,7 +16,6 @@ again.
 
 from __future__ import annotations
 
-import os
 import signal
 import subprocess
 import sys
