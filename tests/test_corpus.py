@@ -144,3 +144,58 @@ def test_missing_and_empty_inputs(tmp_path: Path) -> None:
         resolve_inputs([str(tmp_path / "empty_dir")])
     with pytest.raises(MaskprepError, match=r"unknown corpus format"):
         resolve_inputs([str(tmp_path / "empty_dir" / "readme.md")])
+
+
+def test_compressed_tables_and_arrow_streams_read_like_plain_files(tmp_path: Path, real_docs: list[str],
+                                                                    monkeypatch: pytest.MonkeyPatch) -> None:
+    # Parquet and Arrow need random access: a .gz or .zst one is decompressed to a temporary file first
+    import tempfile
+
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(scratch))
+    paths = _write_all_formats(tmp_path, real_docs[:300])
+    zc = zstandard.ZstdCompressor()
+    (tmp_path / "c.parquet.zst").write_bytes(zc.compress(paths["parquet"].read_bytes()))
+    (tmp_path / "c.arrow.gz").write_bytes(gzip.compress(paths["arrow"].read_bytes(), mtime=0))
+    table = pa.table({"text": real_docs[:300]})
+    with pa.OSFile(str(tmp_path / "s.arrow"), "wb") as sink, pa.ipc.new_stream(sink, table.schema) as w:
+        w.write_table(table, max_chunksize=64)  # the Arrow IPC stream format, not the file format
+    for name in ("c.parquet.zst", "c.arrow.gz", "s.arrow"):
+        assert list(iter_corpus([str(tmp_path / name)])) == real_docs[:300], name
+    assert not list(scratch.iterdir())  # the temporary copies are removed
+
+
+@pytest.mark.parametrize("name, content, message", [
+    ("bad.parquet", b"PAR1 this is not parquet", r"bad\.parquet: not a readable Parquet file"),
+    ("bad.arrow", b"ARROW1 nor arrow", r"bad\.arrow: not a readable Arrow IPC file"),
+    ("empty.parquet", b"", r"empty\.parquet: not a readable Parquet file"),
+])
+def test_corrupt_table_files_name_the_file(tmp_path: Path, name: str, content: bytes, message: str) -> None:
+    (tmp_path / name).write_bytes(content)
+    with pytest.raises(MaskprepError, match=message):
+        list(iter_corpus([str(tmp_path / name)]))
+
+
+def test_truncated_parquet_names_the_file(tmp_path: Path, real_docs: list[str]) -> None:
+    whole = _write_all_formats(tmp_path, real_docs[:500])["parquet"].read_bytes()
+    (tmp_path / "cut.parquet").write_bytes(whole[: len(whole) // 2])
+    with pytest.raises(MaskprepError, match=r"cut\.parquet: not a readable Parquet file"):
+        list(iter_corpus([str(tmp_path / "cut.parquet")]))
+
+
+def test_text_column_of_another_type_is_refused(tmp_path: Path) -> None:
+    pq.write_table(pa.table({"text": [1, 2, 3]}), tmp_path / "ints.parquet")
+    with pytest.raises(MaskprepError, match=r"ints\.parquet: column is int64, expected strings"):
+        list(iter_corpus([str(tmp_path / "ints.parquet")]))
+
+
+def test_no_input_empty_glob_and_bad_options(tmp_path: Path) -> None:
+    with pytest.raises(MaskprepError, match=r"no corpus given"):
+        resolve_inputs([])
+    with pytest.raises(MaskprepError, match=r"\*\.jsonl: pattern matches no corpus files"):
+        resolve_inputs([str(tmp_path / "*.jsonl")])
+    with pytest.raises(MaskprepError, match=r"--doc-sep: expected 'line' or 'blank', got 'para'"):
+        CorpusOptions(doc_sep="para")
+    with pytest.raises(MaskprepError, match=r"chunk size 10 bytes is too small; use at least 1024"):
+        CorpusOptions(chunk_bytes=10)

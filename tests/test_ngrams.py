@@ -383,6 +383,20 @@ def test_cli_input_errors(tmp_path: Path, shakespeare_small: Path, small_wordpie
     assert (full / "notes.txt").read_text(encoding="utf-8") == "mine"
 
 
+def test_cli_corrupt_corpus_file_fails_cleanly(tmp_path: Path, shakespeare_small: Path,
+                                               small_wordpiece: Path) -> None:
+    # Source: the command contract (exit status 1, the file named, nothing that looks finished).
+    bad = tmp_path / "later.parquet"
+    bad.write_bytes(b"PAR1" + b"\x00" * 64)
+    out = tmp_path / "c"
+    r = invoke("count", str(shakespeare_small), str(bad), "-t", str(small_wordpiece), "-o", str(out))
+    assert r.exit_code == 1
+    assert "later.parquet: not a readable Parquet file" in r.output
+    assert r.output.count("later.parquet") == 1  # one message, not a traceback
+    left = sorted(p.name for p in out.rglob("*")) if out.exists() else []
+    assert not [name for name in left if name == "counts.json" or name.startswith("ngrams-")], left
+
+
 def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path,
                                       monkeypatch: pytest.MonkeyPatch) -> None:
     # Source: the command contract (clear message, nothing that looks finished, resumable once space is free).
