@@ -292,3 +292,35 @@ def test_verify_reports_counts_that_differ_from_the_manifest(tmp_path, strategy_
     r = CliRunner().invoke(cli, ["verify", str(d)])
     name = doc["shards"][1]["file"]
     assert r.exit_code == 1 and f"{name}: targets {doc['shards'][1]['targets'] - 1}, manifest.json says" in r.output
+
+
+@pytest.mark.parametrize("damage, message", [
+    ("delete-shard", "shard-00001-00-0000.arrow: listed in manifest.json but missing"),
+    ("extra-shard", "shard-00099-00-0000.arrow: shard file not listed in manifest.json"),
+    ("truncate-shard", "shard-00000-00-0000.arrow: unreadable"),
+    ("delete-stats", "stats.json: missing"),
+    ("edit-totals", "manifest.json: totals.rows is"),
+])
+def test_verify_names_each_kind_of_damage(tmp_path, strategy_runs, damage, message):
+    # Source: the shard contract (manifest lists every shard with its counts; stats.json beside them).
+    import shutil
+
+    d = tmp_path / damage
+    shutil.copytree(strategy_runs["token"][0], d)
+    if damage == "delete-shard":
+        (d / "shard-00001-00-0000.arrow").unlink()
+    elif damage == "extra-shard":
+        shutil.copy(d / "shard-00000-00-0000.arrow", d / "shard-00099-00-0000.arrow")
+    elif damage == "truncate-shard":
+        data = (d / "shard-00000-00-0000.arrow").read_bytes()
+        (d / "shard-00000-00-0000.arrow").write_bytes(data[: len(data) // 3])
+    elif damage == "delete-stats":
+        (d / "stats.json").unlink()
+    else:
+        doc = json.loads((d / "manifest.json").read_text())
+        doc["totals"]["rows"] += 7
+        (d / "manifest.json").write_text(json.dumps(doc))
+    r = CliRunner().invoke(cli, ["verify", str(d)])
+    assert r.exit_code == 1, r.output
+    assert message in r.output, r.output
+    assert "Traceback" not in r.output
