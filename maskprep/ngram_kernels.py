@@ -51,6 +51,19 @@ def fingerprint(columns: np.ndarray) -> np.ndarray:
     return _finish(h)
 
 
+def _row_fingerprints(table: np.ndarray, n: int, step: int = 1 << 15) -> np.ndarray:
+    """`fingerprint` of the rows of a row-major (m, n + 1) table, in slices of `step` rows.
+
+    Each column pass over a slice stays in cache; over the whole table every
+    pass would read all of its memory again (measured about twice as slow).
+    """
+    m = table.shape[0]
+    out = np.empty(m, np.uint64)
+    for s in range(0, m, step):
+        out[s:s + step] = fingerprint(table[s:s + step, :n].T)
+    return out
+
+
 def _bits(x: int) -> int:
     return max(1, int(x).bit_length())
 
@@ -122,7 +135,7 @@ def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) ->
     m = table.shape[0]
     if m == 0:
         return np.zeros((0, n + 1), np.uint64)
-    fp = fingerprint(table[:, :n].T)
+    fp = _row_fingerprints(table, n)
     ib = index_bits if index_bits is not None else _bits(m - 1)
     if ib < _bits(m - 1):
         raise ValueError("index_bits too small for the table")
