@@ -13,7 +13,8 @@ outputs), best of ``--repeat`` runs, the runs of all set-ups interleaved so
 load from other processes hits them alike:
 
 - ``--workers 1``: tasks run in the driver process, and the tokenizer may use
-  its own threads (the default behaviour of the command);
+  its own threads (what `--workers 1` does unless told otherwise; the command's
+  own default is all cores, i.e. `--workers 2` here);
 - ``--workers 1``, one thread: the same with ``RAYON_NUM_THREADS=1
   TOKENIZERS_PARALLELISM=false`` (one tokenizer thread;
   `tokenize.encode_stream` still encodes the next batch in a helper thread
@@ -36,8 +37,8 @@ The pool's speed-up is reported against all three one-worker runs. The
 target (>= 1.6x on two cores) is judged against the one-core run: that is
 the speed-up in its usual sense, the same work on two cores instead of one.
 Against the one-thread run the ceiling is about 2 / 1.2 = 1.65x, since that
-run already overlaps encoding with grouping. Against the default `--workers
-1` the gain is small on two cores, because the tokenizer there already
+run already overlaps encoding with grouping. Against a plain `--workers
+1` run the gain is small on two cores, because the tokenizer there already
 spreads batch encoding over both cores; it grows with the cores, since the
 rest of the work (packing, masking, counting, writing) runs on one core in a
 single process. The fixed cost of a run (start-up, worker processes
@@ -220,7 +221,7 @@ def main() -> None:
                       f"the pool reaches {hv / w2:.0%} of it")
             print(f"  speed-up --workers 2 vs --workers 1, one core:   {w1c / w2:.2f}x (target >= 1.6x)")
             print(f"  speed-up --workers 2 vs --workers 1, one thread: {w1t / w2:.2f}x")
-            print(f"  speed-up --workers 2 vs --workers 1 (default):   {w1 / w2:.2f}x")
+            print(f"  speed-up --workers 2 vs --workers 1 (plain):     {w1 / w2:.2f}x")
             dask_label = next((lb for lb in setups if lb.startswith("dask")), None)
             if dask_label:
                 print(f"  Dask / local pool (same 2 processes):          {best[name, dask_label] / w2:.2f}x the time")
