@@ -1,68 +1,40 @@
 """maskprep: prepare text corpora for masked-language-model pretraining.
 
-The public API, in data-flow order. Heavy modules are imported on first use.
+The public API, in data-flow order: read a corpus, load or train a tokenizer, audit
+it, count n-grams, choose units, mask, write and read shards, compare strategies,
+and run the whole pipeline from one file.
+
+>>> import maskprep
+>>> maskprep.MaskingConfig().rate
+0.15
 """
 
-from __future__ import annotations
+from ._version import __version__
+from .audit import AuditConfig, run_audit
+from .compare import CompareConfig, compare_strategies
+from .corpus import CorpusOptions, iter_corpus
+from .count import CountConfig, count_ngrams
+from .errors import MaskprepError
+from .masking import MaskingConfig, MixPer, Strategy, mask_batch, strategy_units
+from .packing import PackingConfig, pack_batches
+from .pipeline import load_run_config, run_demo, run_pipeline
+from .shards import ShardConfig, ShardManifest, ShardSet, open_shards, verify_shards, write_shards
+from .tokenizer import EncodedBatch, TokenizerInfo, TrainConfig, encode_documents, load_tokenizer, \
+    train_tokenizer
+from .units import Measure, UnitVocabulary, build_units, read_units, score_ngrams, write_units
 
-from importlib import import_module
-from typing import Any
-
-__version__ = "0.1.0"
-
-# name -> module that defines it
-_EXPORTS = {
-    "MaskprepError": "errors",
-    "CorpusOptions": "corpus",
-    "iter_corpus": "corpus",
-    "resolve_inputs": "corpus",
-    "plan_tasks": "corpus",
-    "load_tokenizer": "tokenize",
-    "train_tokenizer": "train",
-    "TrainConfig": "train",
-    "encode_documents": "tokenize",
-    "EncodedBatch": "tokenize",
-    "run_audit": "audit",
-    "AuditConfig": "audit",
-    "count_ngrams": "ngrams",
-    "CountConfig": "ngrams",
-    "Measure": "cohesion",
-    "score_ngrams": "cohesion",
-    "build_units": "units",
-    "read_units": "unit_files",
-    "write_units": "unit_files",
-    "UnitVocabulary": "units",
-    "Strategy": "masking",
-    "MaskingConfig": "masking",
-    "MixPer": "masking",
-    "strategy_units": "masking",
-    "mask_batch": "masking",
-    "PackingConfig": "packing",
-    "pack_batches": "packing",
-    "ShardConfig": "shards",
-    "ShardManifest": "shards",
-    "write_shards": "shards",
-    "open_shards": "shards",
-    "ShardSet": "shardset",
-    "verify_shards": "shardcheck",
-    "format_examples": "shardcheck",
-    "MaskStats": "stats",
-    "compare_strategies": "compare",
-    "CompareConfig": "compare",
-    "load_run_config": "runconfig",
-    "run_pipeline": "pipeline",
-    "run_demo": "pipeline",
-    "Executor": "execute",
-    "map_tasks": "execute",
-}
-
-__all__ = sorted(_EXPORTS) + ["__version__"]
-
-
-def __getattr__(name: str) -> Any:
-    module = _EXPORTS.get(name)
-    if module is None:
-        raise AttributeError(f"module 'maskprep' has no attribute {name!r}")
-    value = getattr(import_module(f".{module}", __name__), name)
-    globals()[name] = value
-    return value
+__all__ = [
+    "__version__",
+    "MaskprepError",
+    "CorpusOptions", "iter_corpus",
+    "TokenizerInfo", "EncodedBatch", "load_tokenizer", "encode_documents", "TrainConfig",
+    "train_tokenizer",
+    "AuditConfig", "run_audit",
+    "CountConfig", "count_ngrams",
+    "Measure", "score_ngrams", "UnitVocabulary", "build_units", "read_units", "write_units",
+    "Strategy", "MixPer", "MaskingConfig", "strategy_units", "mask_batch",
+    "PackingConfig", "pack_batches",
+    "ShardConfig", "ShardManifest", "write_shards", "open_shards", "ShardSet", "verify_shards",
+    "CompareConfig", "compare_strategies",
+    "load_run_config", "run_pipeline", "run_demo",
+]

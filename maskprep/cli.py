@@ -108,7 +108,7 @@ def masking_options(fn: Callable[..., Any]) -> Callable[..., Any]:
 
 
 def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict: bool) -> Any:
-    from .corpus import CorpusOptions
+    from .corpus.reader import CorpusOptions
 
     return CorpusOptions(doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict)
 
@@ -132,7 +132,7 @@ def train_tokenizer_cmd(ctx: click.Context, corpus: tuple[str, ...], output: str
     The tokenizer gets five special tokens, recorded in the file: padding,
     unknown, sequence start, separator and mask.
     """
-    from .audit import train_on_corpus
+    from .audit.measure import train_on_corpus
 
     info = train_on_corpus(list(corpus), model=model, vocab_size=vocab_size, lowercase=lowercase,
                            corpus_options=make_corpus_options(**copts), output=Path(output),
@@ -179,7 +179,7 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
     Writes DIR/audit.json, DIR/audit.html (chart of tokens per word by
     frequency band) and prints a table.
     """
-    from .audit import AuditConfig, format_audit_table, run_audit
+    from .audit.measure import AuditConfig, format_audit_table, run_audit
 
     sizes = parse_vocab_sizes(vocab_sizes)
     if not tokenizers and not sizes:
@@ -222,7 +222,7 @@ def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, outpu
     distinct and kept per n, corpus fingerprint, tokenizer hash) and a copy of
     the tokenizer.
     """
-    from .ngrams import CountConfig, count_ngrams, format_summary
+    from .count.driver import CountConfig, count_ngrams, format_summary
 
     config = CountConfig(max_n=max_n, min_count=min_count, memory=memory)
     summary = count_ngrams(list(corpus), tokenizer=tokenizer, output=Path(output), config=config,
@@ -263,8 +263,8 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
     for llr: more frequent than chance on every binary split), ranked best
     first. pmi and pmi-naive scores are in nats.
     """
-    from .unit_files import format_top_units, write_units
-    from .units import build_units
+    from .units.files import format_top_units, write_units
+    from .units.select import build_units
 
     if top < 1:
         raise MaskprepError(f"--top: expected a positive whole number, got {top}")
@@ -316,9 +316,9 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output
     and a copy of the tokenizer. Same inputs, options and seed give
     byte-identical shards whatever the number of workers.
     """
-    from .masking import MaskingConfig
+    from .masking.sampler import MaskingConfig
     from .packing import PackingConfig
-    from .shards import ShardConfig, write_shards
+    from .shards.write import ShardConfig, write_shards
 
     if overwrite and resume:
         raise MaskprepError("--overwrite and --resume exclude each other: pick one")
@@ -362,7 +362,7 @@ def show_cmd(directory: str, count: int) -> None:
 
     On a terminal masked runs are coloured; when piped they are put in {braces}.
     """
-    from .shardcheck import format_examples
+    from .shards.check import format_examples
 
     if count < 1:
         raise MaskprepError(f"-n must be at least 1, got {count}")
@@ -375,7 +375,7 @@ def show_cmd(directory: str, count: int) -> None:
 @user_errors
 def verify_cmd(directory: str) -> None:
     """Check shards against manifest.json (sha256, counts) and the row invariants; exit 1 on any fault."""
-    from .shardcheck import verify_shards
+    from .shards.check import verify_shards
 
     report = verify_shards(directory)
     if not report.ok:
@@ -423,7 +423,7 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, uni
     within-unit leakage, easy-target share, targets by word-frequency band and per
     sequence. Writes DIR/compare.json and DIR/compare.html and prints a table.
     """
-    from .compare import CompareConfig, compare_strategies, format_compare_table
+    from .compare.run import CompareConfig, compare_strategies, format_compare_table
 
     config = CompareConfig(strategies=strategies, rate=rate, mix=mix, mix_per=mix_per, span_p=span_p,
                            span_max=span_max, seq_len=seq_len, pack=not no_pack, seed=seed,
@@ -435,8 +435,8 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, uni
 
 
 def _print_run(result: Any) -> None:
-    from .compare import format_compare_table
-    from .pipeline import format_run_summary
+    from .compare.run import format_compare_table
+    from .pipeline.runner import format_run_summary
 
     click.echo(format_run_summary(result))
     if result.compare is not None:
@@ -461,7 +461,7 @@ def run_cmd(ctx: click.Context, config: str, output: str | None, force: bool) ->
     whose inputs, options and code are unchanged is skipped; a changed option reruns
     that stage and the stages downstream of it. See sample_corpus/*.toml for examples.
     """
-    from .pipeline import run_pipeline
+    from .pipeline.runner import run_pipeline
 
     result = run_pipeline(config, output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
     _print_run(result)
@@ -480,7 +480,7 @@ def demo_cmd(ctx: click.Context, output: str, force: bool) -> None:
     strategy and compares them. The sample text is synthetic: its figures show how
     the tool works, not how real text behaves.
     """
-    from .pipeline import run_demo
+    from .pipeline.runner import run_demo
 
     result = run_demo(output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
     _print_run(result)

@@ -116,7 +116,7 @@ def _call_remote(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
 
 def _no_lookahead() -> None:
     """Workers share the cores with other workers: no encoding thread beside the task's own."""
-    from .tokenize import set_encode_ahead
+    from .tokenizer.encoding import set_encode_ahead
 
     set_encode_ahead(False)
 

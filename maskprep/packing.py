@@ -43,7 +43,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from .errors import MaskprepError
-from .tokenize import WORD, EncodedBatch, TokenizerInfo
+from .tokenizer.encoding import WORD, EncodedBatch, TokenizerInfo
 
 __all__ = ["PackingConfig", "PackedBatch", "TaskPacker", "pack_batches", "MIN_SEQ_LEN",
            "check_packing_tokenizer"]

@@ -23,9 +23,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 
 from conftest import shakespeare_files, speeches  # noqa: E402
 
-from maskprep.audit import audit_tokenizer  # noqa: E402
-from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
-from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
+from maskprep.audit.measure import audit_tokenizer  # noqa: E402
+from maskprep.corpus.reader import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
+from maskprep.tokenizer.train import TrainConfig, train_tokenizer  # noqa: E402
 
 
 def build_corpus(directory: Path, repeat: int) -> Path:

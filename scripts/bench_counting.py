@@ -65,12 +65,12 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from conftest import shakespeare_files, speeches  # noqa: E402
 
-from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
+from maskprep.corpus.reader import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
 from maskprep.execute import Executor, map_tasks  # noqa: E402
-from maskprep.ngrams import TASK_BYTES, ChunkCounter, CountConfig, finish_counts, task_share  # noqa: E402
-from maskprep.tokenize import WORD, SPACE, encode_stream, load_tokenizer, save_tokenizer, \
+from maskprep.count.driver import TASK_BYTES, ChunkCounter, CountConfig, finish_counts, task_share  # noqa: E402
+from maskprep.tokenizer.encoding import WORD, SPACE, encode_stream, load_tokenizer, save_tokenizer, \
     tokenizer_from_json  # noqa: E402
-from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
+from maskprep.tokenizer.train import TrainConfig, train_tokenizer  # noqa: E402
 
 MAX_N = 5
 MIN_COUNT = 10
@@ -172,7 +172,7 @@ def warm(_: int) -> int:
     """Task function: import what the counting tasks use (a pool worker starts with nothing loaded)."""
     import pyarrow.parquet  # noqa: F401
 
-    import maskprep.ngram_files  # noqa: F401
+    import maskprep.count.files  # noqa: F401
     time.sleep(0.2)  # long enough that every worker of the pool takes one
     return os.getpid()
 
@@ -359,7 +359,7 @@ def main() -> None:
             secs, peak, _ = peak_rss(count_cmd(corpus, tok, out, args.memory, 1))
             meta = json.loads((out / "counts.json").read_text())
             need = sum(meta["distinct"][str(n)] * 8 * (n + 1) for n in range(1, MAX_N + 1))
-            from maskprep.ngrams import parse_memory
+            from maskprep.count.driver import parse_memory
 
             budget = parse_memory(args.memory)
             print(f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need {need / 2**20:.0f} MiB as "

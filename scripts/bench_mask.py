@@ -25,12 +25,12 @@ import tempfile
 import time
 from pathlib import Path
 
-from maskprep.corpus import CorpusOptions, iter_batches, iter_corpus, plan_tasks, resolve_inputs
+from maskprep.corpus.reader import CorpusOptions, iter_batches, iter_corpus, plan_tasks, resolve_inputs
 from maskprep.execute import Executor
-from maskprep.masking import MaskingConfig
-from maskprep.shards import ShardConfig, write_shards
-from maskprep.tokenize import encode_documents, load_tokenizer, save_tokenizer
-from maskprep.train import TrainConfig, train_tokenizer
+from maskprep.masking.sampler import MaskingConfig
+from maskprep.shards.write import ShardConfig, write_shards
+from maskprep.tokenizer.encoding import encode_documents, load_tokenizer, save_tokenizer
+from maskprep.tokenizer.train import TrainConfig, train_tokenizer
 
 
 def bare_encode(info, files, options) -> tuple[int, float]:

@@ -17,7 +17,7 @@ import time
 
 import numpy as np
 
-from maskprep.masking import MaskingConfig, Strategy, UnitTable, mask_batch, strategy_units
+from maskprep.masking.sampler import MaskingConfig, Strategy, UnitTable, mask_batch, strategy_units
 
 CLS, SEP, PAD, MASK = 1, 2, 0, 3
 

@@ -90,9 +90,9 @@ def make_corpus(directory: Path, copies: int, files: int) -> list[str]:
 
 
 def train(corpus: list[str], out: Path) -> Path:
-    from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import save_tokenizer
-    from maskprep.train import TrainConfig, train_tokenizer
+    from maskprep.corpus.reader import iter_corpus
+    from maskprep.tokenizer.encoding import save_tokenizer
+    from maskprep.tokenizer.train import TrainConfig, train_tokenizer
 
     save_tokenizer(train_tokenizer(iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=8000)), out)
     return out

@@ -28,18 +28,18 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from conftest import shakespeare_files, speeches  # noqa: E402
 
-from maskprep.compare import _load_units  # noqa: E402
-from maskprep.corpus import iter_batches, iter_corpus, plan_tasks, resolve_inputs  # noqa: E402
+from maskprep.compare.run import _load_units  # noqa: E402
+from maskprep.corpus.reader import iter_batches, iter_corpus, plan_tasks, resolve_inputs  # noqa: E402
 from maskprep.execute import Executor  # noqa: E402
-from maskprep.masking import MaskingConfig, strategy_units  # noqa: E402
-from maskprep.ngrams import CountConfig, count_ngrams  # noqa: E402
+from maskprep.masking.sampler import MaskingConfig, strategy_units  # noqa: E402
+from maskprep.count.driver import CountConfig, count_ngrams  # noqa: E402
 from maskprep.packing import PackingConfig, TaskPacker  # noqa: E402
-from maskprep.segment import UnitTable  # noqa: E402
-from maskprep.targetstats import TargetStats  # noqa: E402
-from maskprep.tokenize import encode_stream, load_tokenizer, save_tokenizer  # noqa: E402
-from maskprep.train import TrainConfig, train_tokenizer  # noqa: E402
-from maskprep.unit_files import write_units  # noqa: E402
-from maskprep.units import build_units  # noqa: E402
+from maskprep.masking.strategies import UnitTable  # noqa: E402
+from maskprep.stats.targets import TargetStats  # noqa: E402
+from maskprep.tokenizer.encoding import encode_stream, load_tokenizer, save_tokenizer  # noqa: E402
+from maskprep.tokenizer.train import TrainConfig, train_tokenizer  # noqa: E402
+from maskprep.units.files import write_units  # noqa: E402
+from maskprep.units.select import build_units  # noqa: E402
 
 
 def multiword(units: np.ndarray, word_ids: np.ndarray) -> np.ndarray:

@@ -54,9 +54,9 @@ def deal_lines(lines: list[str], directory: Path, files: int, name: str) -> list
 
 def trained_tokenizer(corpus: Path, directory: Path, *, model: str, vocab_size: int) -> Path:
     """A tokenizer of `model` with `vocab_size` tokens trained on the corpus file, saved as directory/tokenizer.json."""
-    from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import save_tokenizer
-    from maskprep.train import TrainConfig, train_tokenizer
+    from maskprep.corpus.reader import iter_corpus
+    from maskprep.tokenizer.encoding import save_tokenizer
+    from maskprep.tokenizer.train import TrainConfig, train_tokenizer
 
     info = train_tokenizer(iter_corpus([str(corpus)]), TrainConfig(model=model, vocab_size=vocab_size))
     out = directory / "tokenizer.json"

@@ -8,9 +8,9 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
-from maskprep.audit import AuditConfig, audit_tokenizer, run_audit
+from maskprep.audit.measure import AuditConfig, audit_tokenizer, run_audit
 from maskprep.cli import cli
-from maskprep.tokenize import load_tokenizer
+from maskprep.tokenizer.encoding import load_tokenizer
 
 
 @pytest.mark.slow

@@ -1,4 +1,4 @@
-"""Tests of maskprep.cohesion against outside references (NLTK, textbook values)."""
+"""Tests of maskprep.units.cohesion against outside references (NLTK, textbook values)."""
 
 from __future__ import annotations
 
@@ -17,7 +17,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from maskprep.cohesion import (CountTable, Measure, NgramIndex, binary_split_pmi, score_ngrams,
+from maskprep.units.cohesion import (CountTable, Measure, NgramIndex, binary_split_pmi, score_ngrams,
                                score_with_split_pmi)
 from maskprep.errors import MaskprepError
 
@@ -297,7 +297,7 @@ def test_duplicate_rows_and_missing_parts_raise():
 def test_tuple_tables_and_chunking_agree(shakespeare_counts, monkeypatch):
     # Same scores whether tables are given as (keys, counts) pairs or CountTables,
     # and for any chunk size (chunking is an implementation detail).
-    import maskprep.cohesion as cohesion
+    import maskprep.units.cohesion as cohesion
 
     c = shakespeare_counts
     N = sum(c[1].values())

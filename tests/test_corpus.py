@@ -11,7 +11,7 @@ import pyarrow.parquet as pq
 import pytest
 import zstandard
 
-from maskprep.corpus import CorpusOptions, ReadStats, iter_corpus, iter_documents, plan_tasks, resolve_inputs
+from maskprep.corpus.reader import CorpusOptions, ReadStats, iter_corpus, iter_documents, plan_tasks, resolve_inputs
 from maskprep.errors import MaskprepError
 
 from conftest import speeches

@@ -25,13 +25,13 @@ import pytest
 from click.testing import CliRunner
 
 from maskprep.cli import cli
-from maskprep.corpus import CorpusOptions, plan_tasks
+from maskprep.corpus.reader import CorpusOptions, plan_tasks
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor, map_tasks
-from maskprep.masking import MaskingConfig
-from maskprep.ngrams import CountConfig, count_ngrams
+from maskprep.masking.sampler import MaskingConfig
+from maskprep.count.driver import CountConfig, count_ngrams
 from maskprep.packing import PackingConfig
-from maskprep.shards import ShardConfig, write_shards
+from maskprep.shards.write import ShardConfig, write_shards
 
 from conftest import deal_lines
 

@@ -16,7 +16,7 @@ import pytest
 from click.testing import CliRunner
 
 from maskprep.cli import cli
-from maskprep.shards import open_shards
+from maskprep.shards.write import open_shards
 
 
 @pytest.fixture(scope="module")
@@ -207,9 +207,9 @@ def limited_tokenizer(tmp_path_factory, small_wordpiece: Path) -> Path:
 
 @pytest.fixture(scope="module")
 def foreign_units(tmp_path_factory) -> Path:
-    from maskprep.cohesion import Measure
-    from maskprep.unit_files import write_units
-    from maskprep.units import UnitVocabulary
+    from maskprep.units.cohesion import Measure
+    from maskprep.units.files import write_units
+    from maskprep.units.select import UnitVocabulary
 
     vocab = UnitVocabulary(text=("new york",), n=np.array([2]), count=np.array([5]), score=np.array([3.0]),
                            token_ids=(np.array([1, 2], np.int32),), word_keys=(np.array([1, 2], np.uint64),),
@@ -275,7 +275,7 @@ def test_verify_and_show_refuse_a_directory_without_manifest(tmp_path):
 
 
 def test_show_colours_on_a_terminal(strategy_runs):
-    from maskprep.shardcheck import format_examples
+    from maskprep.shards.check import format_examples
 
     text = format_examples(strategy_runs["span"][0], n=1, color=True)
     assert "\x1b[" in text and "{" not in text.split("\n", 2)[2].split("targets:")[0]

@@ -1,4 +1,4 @@
-"""Tests for the masking units (maskprep.segment) and the sampler (maskprep.masking)."""
+"""Tests for the masking units (maskprep.masking.strategies) and the sampler (maskprep.masking.sampler)."""
 
 from __future__ import annotations
 
@@ -12,12 +12,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from maskprep.errors import MaskprepError
-from maskprep.masking import (
+from maskprep.masking.sampler import (
     MaskingConfig, MixPer, Strategy, mask_batch, pmi_word_starts, select_targets, span_lengths,
     span_units, span_word_starts, strategy_units, token_units, units_from_word_starts,
     word_starts_from_units, word_units,
 )
-from maskprep.segment import (
+from maskprep.masking.strategies import (
     GOLDEN, TAG_MIX, TAG_MIX_UNIT, TAG_PRIORITY, TAG_RANDOM, UnitTable, absorb, document_breaks,
 )
 

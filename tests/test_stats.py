@@ -1,4 +1,4 @@
-"""Tests for the masking statistics (maskprep.stats).
+"""Tests for the masking statistics (maskprep.stats.masks).
 
 The figures are checked against a plain-Python recomputation written here from
 the definitions (one row and one token at a time), on rows masked from real
@@ -14,10 +14,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from maskprep.masking import MaskingConfig, mask_batch, strategy_units
+from maskprep.masking.sampler import MaskingConfig, mask_batch, strategy_units
 from maskprep.packing import PackingConfig, pack_batches
-from maskprep.stats import MaskStats, batch_stats
-from maskprep.tokenize import load_tokenizer
+from maskprep.stats.masks import MaskStats, batch_stats
+from maskprep.tokenizer.encoding import load_tokenizer
 
 
 @pytest.fixture(scope="module")

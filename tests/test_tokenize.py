@@ -11,8 +11,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from maskprep.errors import MaskprepError
-from maskprep.tokenize import PUNCT, SPACE, SPECIAL, WORD, encode_documents, load_tokenizer, save_tokenizer
-from maskprep.train import SPECIALS, TrainConfig, train_tokenizer
+from maskprep.tokenizer.encoding import PUNCT, SPACE, SPECIAL, WORD, encode_documents, load_tokenizer, save_tokenizer
+from maskprep.tokenizer.train import SPECIALS, TrainConfig, train_tokenizer
 
 from conftest import speeches
 
@@ -157,7 +157,7 @@ def test_vocab_size_beyond_corpus_says_what_it_reached() -> None:
 
 def test_bpe_training_is_reproducible(shakespeare_small: Path) -> None:
     # Same corpus and options give a byte-identical byte-level BPE tokenizer (checked five times by hand).
-    from maskprep.corpus import iter_corpus
+    from maskprep.corpus.reader import iter_corpus
 
     a = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=3000))
     b = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=3000))
@@ -168,7 +168,7 @@ def test_wordpiece_ids_are_a_function_of_the_token_set(shakespeare_small: Path) 
     # The WordPiece trainer breaks ties between equally frequent merges differently from run to
     # run, so two trainings may differ in a few tokens; the ids, though, never depend on the run:
     # special tokens first, then every other token in sorted order.
-    from maskprep.corpus import iter_corpus
+    from maskprep.corpus.reader import iter_corpus
 
     info = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="wordpiece", vocab_size=3000))
     vocab = json.loads(info.json)["model"]["vocab"]
@@ -181,8 +181,8 @@ def test_wordpiece_ids_are_a_function_of_the_token_set(shakespeare_small: Path) 
 def test_encode_stream_same_words_with_and_without_lookahead(small_wordpiece: Path,
                                                              shakespeare_small: Path) -> None:
     """Pool workers encode without the look-ahead thread; the words must not depend on it."""
-    from maskprep.corpus import iter_batches, plan_tasks, resolve_inputs
-    from maskprep.tokenize import encode_stream, set_encode_ahead
+    from maskprep.corpus.reader import iter_batches, plan_tasks, resolve_inputs
+    from maskprep.tokenizer.encoding import encode_stream, set_encode_ahead
 
     info = load_tokenizer(small_wordpiece)
     task = plan_tasks(resolve_inputs([str(shakespeare_small)]))[0]

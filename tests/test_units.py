@@ -1,4 +1,4 @@
-"""Tests of maskprep.units and maskprep.unit_files: building, ranking, quotas, files and errors.
+"""Tests of maskprep.units.select and maskprep.units.files: building, ranking, quotas, files and errors.
 
 The counts directory here is built in the test from invented lines with planted
 multi-word terms (demo / planted-unit data, never a reference), using a real
@@ -20,11 +20,11 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
-from maskprep.tokenize import load_tokenizer
-from maskprep.cohesion import CountTable, Measure, binary_split_pmi, score_ngrams
+from maskprep.tokenizer.encoding import load_tokenizer
+from maskprep.units.cohesion import CountTable, Measure, binary_split_pmi, score_ngrams
 from maskprep.errors import MaskprepError
-from maskprep.unit_files import FORMAT_VERSION, format_top_units, read_units, write_units
-from maskprep.units import _quotas, build_units, parse_per_length
+from maskprep.units.files import FORMAT_VERSION, format_top_units, read_units, write_units
+from maskprep.units.select import _quotas, build_units, parse_per_length
 
 PLANTED = ["machine learning", "ice cream", "new york city", "prime minister", "red blood cell count"]
 FILLER = ("the a of and to in is it that was he for on are with as his they be at one have this from "
@@ -256,7 +256,7 @@ def test_token_ids_are_the_mid_sentence_form(writable_counts):
 
 
 def test_option_help_names_every_measure_range():
-    from maskprep.units import OPTION_HELP
+    from maskprep.units.select import OPTION_HELP
 
     assert all(m.range_text in OPTION_HELP["measure"] for m in Measure)
 

@@ -1,0 +1,502 @@
+"""Stream documents from corpus files.
+
+Reads `.txt` (one document per line, or blank-line separated paragraphs),
+`.jsonl` (a text field per line) and `.parquet` / `.arrow` (a text column),
+each optionally compressed as `.gz` or `.zst`; inputs may be files,
+directories (searched recursively) or glob patterns. Nothing is loaded whole:
+text files are read line by line, Parquet by row group, Arrow by record batch.
+
+Inputs are split into `CorpusTask`s (a whole file, a byte range aligned to line
+boundaries, or a range of row groups) so that later stages can work on them in
+parallel. The split depends only on the files and `chunk_bytes`, never on the
+number of workers, and tasks are numbered in corpus order.
+
+What it does not do: tokenize, deduplicate or clean text. Invalid UTF-8 is
+replaced (U+FFFD) and counted, or with ``strict=True`` reported with file, line
+and byte offset. Empty documents are skipped and counted.
+"""
+
+from __future__ import annotations
+
+import glob
+import gzip
+import hashlib
+import io
+import json
+import os
+import zlib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import IO, Iterator
+
+from ..errors import MaskprepError
+
+TEXT_FORMATS = ("txt", "jsonl")
+TABLE_FORMATS = ("parquet", "arrow")
+_SUFFIX_FORMAT = {".txt": "txt", ".text": "txt", ".jsonl": "jsonl", ".ndjson": "jsonl",
+                  ".parquet": "parquet", ".arrow": "arrow", ".feather": "arrow"}
+_COMPRESSION = {".gz": "gzip", ".zst": "zstd"}
+
+
+@dataclass(frozen=True)
+class CorpusOptions:
+    """How to read corpus files.
+
+    >>> CorpusOptions(doc_sep="blank").doc_sep
+    'blank'
+    """
+
+    doc_sep: str = "line"          # "line": one document per line; "blank": blank-line separated
+    text_field: str = "text"       # JSONL field holding the text
+    text_column: str = "text"      # Parquet / Arrow column holding the text
+    strict: bool = False           # invalid UTF-8 is an error instead of being replaced
+    chunk_bytes: int = 64 << 20    # uncompressed text files are split into ranges of about this size
+
+    def __post_init__(self) -> None:
+        if self.doc_sep not in ("line", "blank"):
+            raise MaskprepError(f"--doc-sep: expected 'line' or 'blank', got {self.doc_sep!r}")
+        if self.chunk_bytes < 1024:
+            raise MaskprepError(f"chunk size {self.chunk_bytes} bytes is too small; use at least 1024")
+
+
+@dataclass(frozen=True)
+class CorpusTask:
+    """One unit of reading work: a file, or a part of one.
+
+    `start`/`end` are byte offsets for uncompressed text files (the task owns
+    the lines that begin in [start, end)), row-group indices for Parquet and
+    record-batch indices for Arrow; `end = -1` means "to the end".
+    """
+
+    index: int
+    path: str
+    fmt: str
+    compression: str | None
+    start: int = 0
+    end: int = -1
+
+    def describe(self) -> str:
+        if self.start == 0 and self.end == -1:
+            return self.path
+        unit = "bytes" if self.fmt in TEXT_FORMATS else ("row groups" if self.fmt == "parquet" else "batches")
+        return f"{self.path} ({unit} {self.start}-{self.end})"
+
+
+@dataclass
+class ReadStats:
+    """Counts gathered while reading; add them up across tasks with `merge`."""
+
+    documents: int = 0
+    empty_skipped: int = 0
+    invalid_utf8: int = 0   # documents (lines) in which invalid bytes were replaced
+    bytes_read: int = 0
+
+    def merge(self, other: "ReadStats") -> None:
+        self.documents += other.documents
+        self.empty_skipped += other.empty_skipped
+        self.invalid_utf8 += other.invalid_utf8
+        self.bytes_read += other.bytes_read
+
+    def to_dict(self) -> dict[str, int]:
+        return {"documents": self.documents, "empty_skipped": self.empty_skipped,
+                "invalid_utf8_replaced": self.invalid_utf8, "bytes_read": self.bytes_read}
+
+
+def detect_format(path: str | Path) -> tuple[str, str | None] | None:
+    """Return (format, compression) from a file name, or None if not a corpus file.
+
+    >>> detect_format("news.jsonl.zst")
+    ('jsonl', 'zstd')
+    """
+    name = Path(path).name.lower()
+    suffixes = Path(name).suffixes
+    compression = None
+    if suffixes and suffixes[-1] in _COMPRESSION:
+        compression = _COMPRESSION[suffixes[-1]]
+        suffixes = suffixes[:-1]
+    if not suffixes or suffixes[-1] not in _SUFFIX_FORMAT:
+        return None
+    return _SUFFIX_FORMAT[suffixes[-1]], compression
+
+
+def resolve_inputs(inputs: list[str] | tuple[str, ...]) -> list[Path]:
+    """Expand files, directories and globs into a sorted list of corpus files.
+
+    >>> resolve_inputs(["sample_corpus"])  # doctest: +SKIP
+    [PosixPath('sample_corpus/bulletins.jsonl.gz'), PosixPath('sample_corpus/logbooks.txt.gz')]
+    """
+    if not inputs:
+        raise MaskprepError("no corpus given: pass one or more files, directories or glob patterns")
+    files: list[Path] = []
+    for item in inputs:
+        p = Path(item)
+        if p.is_dir():
+            found = sorted(q for q in p.rglob("*") if q.is_file() and detect_format(q)
+                           and not any(part.startswith(".") for part in q.relative_to(p).parts))
+            if not found:
+                raise MaskprepError(
+                    f"{item}: directory holds no readable corpus files "
+                    "(expected .txt, .jsonl, .parquet or .arrow, optionally .gz or .zst)")
+            files.extend(found)
+        elif p.is_file():
+            if detect_format(p) is None:
+                raise MaskprepError(
+                    f"{item}: unknown corpus format; name it .txt, .jsonl, .parquet or .arrow "
+                    "(optionally with .gz or .zst)")
+            files.append(p)
+        elif any(ch in item for ch in "*?["):
+            matched = sorted(Path(m) for m in glob.glob(item, recursive=True)
+                             if Path(m).is_file() and detect_format(m))
+            if not matched:
+                raise MaskprepError(f"{item}: pattern matches no corpus files")
+            files.extend(matched)
+        else:
+            raise MaskprepError(f"{item}: file not found")
+    seen: set[Path] = set()
+    unique = []
+    for f in files:
+        r = f.resolve()
+        if r not in seen:
+            seen.add(r)
+            unique.append(f)
+    return unique
+
+
+def plan_tasks(files: list[Path], options: CorpusOptions = CorpusOptions()) -> list[CorpusTask]:
+    """Split corpus files into tasks, in corpus order, independent of worker count.
+
+    >>> [t.describe() for t in plan_tasks(resolve_inputs(["a.txt"]))]  # doctest: +SKIP
+    ['a.txt']
+    """
+    tasks: list[CorpusTask] = []
+    for f in files:
+        fmt, comp = detect_format(f)  # type: ignore[misc]
+        path = str(f)
+        if fmt in TEXT_FORMATS and comp is None and options.doc_sep == "line":
+            size = os.path.getsize(path)
+            if size == 0:
+                tasks.append(CorpusTask(len(tasks), path, fmt, comp))
+                continue
+            for start in range(0, size, options.chunk_bytes):
+                end = min(start + options.chunk_bytes, size)
+                tasks.append(CorpusTask(len(tasks), path, fmt, comp, start, end))
+        elif fmt == "parquet" and comp is None:
+            groups = _parquet_row_groups(path)
+            per = max(1, _groups_per_task(path, groups, options.chunk_bytes))
+            if groups == 0:
+                tasks.append(CorpusTask(len(tasks), path, fmt, comp))
+            for g in range(0, groups, per):
+                tasks.append(CorpusTask(len(tasks), path, fmt, comp, g, min(g + per, groups)))
+        else:
+            tasks.append(CorpusTask(len(tasks), path, fmt, comp))
+    return tasks
+
+
+def iter_documents(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
+                   stats: ReadStats | None = None) -> Iterator[str]:
+    """Yield the non-empty documents of one task, in file order.
+
+    >>> list(iter_documents(plan_tasks([Path("a.txt")])[0]))  # doctest: +SKIP
+    ['first document', 'second document']
+    """
+    stats = stats if stats is not None else ReadStats()
+    if task.fmt in TEXT_FORMATS:
+        source = _iter_text_documents(task, options, stats)
+    else:
+        source = _iter_table_documents(task, options, stats)
+    for doc in source:
+        if doc.strip():
+            stats.documents += 1
+            yield doc
+        else:
+            stats.empty_skipped += 1
+
+
+def iter_batches(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
+                 stats: ReadStats | None = None, *, batch_chars: int = 1 << 20) -> Iterator[list[str]]:
+    """Yield lists of documents of about `batch_chars` characters in total.
+
+    >>> sum(len(b) for b in iter_batches(task))  # doctest: +SKIP
+    1000
+    """
+    batch: list[str] = []
+    size = 0
+    for doc in iter_documents(task, options, stats):
+        batch.append(doc)
+        size += len(doc)
+        if size >= batch_chars:
+            yield batch
+            batch, size = [], 0
+    if batch:
+        yield batch
+
+
+def iter_corpus(inputs: list[str] | tuple[str, ...], options: CorpusOptions = CorpusOptions(),
+                stats: ReadStats | None = None) -> Iterator[str]:
+    """All documents of a corpus, in order: ``for text in iter_corpus(["data/"]): ...``."""
+    for task in plan_tasks(resolve_inputs(inputs), options):
+        yield from iter_documents(task, options, stats)
+
+
+def corpus_fingerprint(files: list[Path], options: CorpusOptions = CorpusOptions()) -> str:
+    """A sha256 over file names, sizes and contents, and the reading options.
+
+    >>> len(corpus_fingerprint([]))
+    64
+    """
+    h = hashlib.sha256()
+    h.update(json.dumps([options.doc_sep, options.text_field, options.text_column]).encode())
+    for f in files:
+        h.update(f.name.encode() + b"\0" + str(os.path.getsize(f)).encode() + b"\0")
+        with open(f, "rb") as fh:
+            while chunk := fh.read(1 << 22):
+                h.update(chunk)
+    return h.hexdigest()
+
+
+# ---------------------------------------------------------------- text files
+
+def _open_binary(path: str, compression: str | None) -> IO[bytes]:
+    if compression == "gzip":
+        return gzip.open(path, "rb")
+    if compression == "zstd":
+        return io.BufferedReader(_ZstdReader(path), buffer_size=1 << 20)
+    return open(path, "rb")
+
+
+class _ZstdReader(io.RawIOBase):
+    """Streaming zstd reader that notices a truncated last frame (EOFError)."""
+
+    def __init__(self, path: str) -> None:
+        import zstandard
+
+        self._zstd = zstandard
+        self._fh = open(path, "rb")
+        self._dctx = zstandard.ZstdDecompressor()
+        self._dobj = self._dctx.decompressobj()
+        self._buf = b""
+        self._pending = False  # bytes fed to a frame that has not ended
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, b: "bytearray | memoryview") -> int:  # type: ignore[override]
+        while not self._buf:
+            chunk = self._fh.read(1 << 20)
+            if not chunk:
+                if self._pending:
+                    raise EOFError("zstd stream ended in the middle of a frame")
+                return 0
+            parts = []
+            while chunk:
+                parts.append(self._dobj.decompress(chunk))
+                self._pending = True
+                if self._dobj.eof:  # frame complete; the rest starts another frame
+                    chunk = self._dobj.unused_data
+                    self._dobj = self._dctx.decompressobj()
+                    self._pending = False
+                else:
+                    chunk = b""
+            self._buf = b"".join(parts)
+        n = min(len(b), len(self._buf))
+        b[:n] = self._buf[:n]
+        self._buf = self._buf[n:]
+        return n
+
+    def close(self) -> None:
+        self._fh.close()
+        super().close()
+
+
+def _raw_lines(task: CorpusTask) -> Iterator[tuple[int, bytes]]:
+    """Yield (byte offset of line start, line bytes without newline) for a task."""
+    try:
+        with _open_binary(task.path, task.compression) as fh:
+            pos = 0
+            if task.start > 0:
+                fh.seek(task.start - 1)
+                prev = fh.read(1)
+                pos = task.start
+                if prev != b"\n":
+                    skipped = fh.readline()
+                    pos += len(skipped)
+            while task.end < 0 or pos < task.end:
+                line = fh.readline()
+                if not line:
+                    break
+                start = pos
+                pos += len(line)
+                yield start, line.rstrip(b"\r\n") if line.endswith(b"\n") else line.rstrip(b"\r")
+    except EOFError as exc:
+        if task.compression == "zstd":
+            raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
+        raise MaskprepError(f"{task.path}: compressed file is truncated ({exc}); re-create or re-download it") from None
+    except (gzip.BadGzipFile, zlib.error) as exc:
+        raise MaskprepError(f"{task.path}: not a valid gzip file ({exc})") from None
+    except OSError as exc:
+        if "zstd" in type(exc).__module__.lower() or "zstd" in str(exc).lower() or task.compression == "zstd":
+            raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
+        raise MaskprepError(f"{task.path}: cannot read ({exc.strerror or exc})") from None
+    except Exception as exc:  # zstandard.ZstdError is not an OSError
+        if type(exc).__name__ == "ZstdError":
+            raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
+        raise
+
+
+def _line_number(task: CorpusTask, offset: int) -> int:
+    """1-based line number of the line starting at `offset` (only computed for error messages)."""
+    n = 1
+    with _open_binary(task.path, task.compression) as fh:
+        remaining = offset
+        while remaining > 0:
+            chunk = fh.read(min(remaining, 1 << 20))
+            if not chunk:
+                break
+            n += chunk.count(b"\n")
+            remaining -= len(chunk)
+    return n
+
+
+def _decode(task: CorpusTask, offset: int, raw: bytes, options: CorpusOptions, stats: ReadStats) -> str:
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        if options.strict:
+            line = _line_number(task, offset)
+            raise MaskprepError(
+                f"{task.path}:{line}: invalid UTF-8 at byte offset {offset + exc.start} "
+                f"(byte 0x{raw[exc.start]:02x}); fix the file or drop --strict to replace invalid bytes") from None
+        stats.invalid_utf8 += 1
+        return raw.decode("utf-8", errors="replace")
+
+
+def _iter_text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+    lines = _raw_lines(task)
+    if task.fmt == "txt" and options.doc_sep == "line":
+        for offset, raw in lines:
+            stats.bytes_read += len(raw) + 1
+            yield _decode(task, offset, raw, options, stats)
+    elif task.fmt == "txt":
+        para: list[str] = []
+        for offset, raw in lines:
+            stats.bytes_read += len(raw) + 1
+            text = _decode(task, offset, raw, options, stats)
+            if text.strip():
+                para.append(text)
+            elif para:
+                yield "\n".join(para)
+                para = []
+        if para:
+            yield "\n".join(para)
+    else:
+        field_name = options.text_field
+        for offset, raw in lines:
+            stats.bytes_read += len(raw) + 1
+            if not raw.strip():
+                continue
+            text = _decode(task, offset, raw, options, stats)
+            try:
+                obj = json.loads(text)
+            except json.JSONDecodeError as exc:
+                line = _line_number(task, offset)
+                raise MaskprepError(f"{task.path}:{line}: not valid JSON ({exc.msg} at column {exc.colno})") from None
+            if not isinstance(obj, dict) or field_name not in obj:
+                line = _line_number(task, offset)
+                have = ", ".join(sorted(obj)) if isinstance(obj, dict) else type(obj).__name__
+                raise MaskprepError(
+                    f"{task.path}:{line}: no field {field_name!r} (has: {have}); "
+                    "choose the field with --text-field")
+            value = obj[field_name]
+            if value is None:
+                value = ""
+            if not isinstance(value, str):
+                line = _line_number(task, offset)
+                raise MaskprepError(
+                    f"{task.path}:{line}: field {field_name!r} is {type(value).__name__}, expected a string")
+            yield value
+
+
+# ---------------------------------------------------------------- tables
+
+def _parquet_row_groups(path: str) -> int:
+    import pyarrow.parquet as pq
+
+    try:
+        return pq.ParquetFile(path).num_row_groups
+    except Exception as exc:
+        raise MaskprepError(f"{path}: not a readable Parquet file ({exc})") from None
+
+
+def _groups_per_task(path: str, groups: int, chunk_bytes: int) -> int:
+    if groups == 0:
+        return 1
+    size = os.path.getsize(path)
+    return max(1, int(groups * chunk_bytes / max(size, 1)))
+
+
+def _check_column(path: str, names: list[str], column: str) -> None:
+    if column not in names:
+        raise MaskprepError(
+            f"{path}: no column {column!r} (columns: {', '.join(names) or 'none'}); "
+            "choose one with --text-column")
+
+
+def _iter_table_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    column = options.text_column
+    tmp_path = None
+    path = task.path
+    try:
+        if task.compression is not None:
+            # Parquet and Arrow files need random access: decompress to a temporary file.
+            import tempfile
+
+            fd, tmp_path = tempfile.mkstemp(suffix="." + task.fmt, prefix=".maskprep-")
+            with os.fdopen(fd, "wb") as out, _open_binary(task.path, task.compression) as src:
+                while chunk := src.read(1 << 22):
+                    out.write(chunk)
+            path = tmp_path
+        if task.fmt == "parquet":
+            try:
+                pf = pq.ParquetFile(path)
+            except Exception as exc:
+                raise MaskprepError(f"{task.path}: not a readable Parquet file ({exc})") from None
+            _check_column(task.path, pf.schema_arrow.names, column)
+            end = pf.num_row_groups if task.end < 0 else task.end
+            for g in range(task.start, end):
+                col = pf.read_row_group(g, columns=[column]).column(0)
+                yield from _column_texts(task, col, stats)
+        else:
+            try:
+                reader = pa.ipc.open_file(path)
+                batches = (reader.get_batch(i) for i in range(reader.num_record_batches))
+                names = reader.schema.names
+            except pa.ArrowInvalid:
+                try:
+                    stream = pa.ipc.open_stream(path)
+                except Exception as exc:
+                    raise MaskprepError(f"{task.path}: not a readable Arrow IPC file ({exc})") from None
+                batches = iter(stream)
+                names = stream.schema.names
+            _check_column(task.path, names, column)
+            for batch in batches:
+                yield from _column_texts(task, batch.column(names.index(column)), stats)
+    except (EOFError, gzip.BadGzipFile, zlib.error) as exc:
+        raise MaskprepError(f"{task.path}: compressed file is truncated or corrupt ({exc})") from None
+    finally:
+        if tmp_path is not None:
+            os.unlink(tmp_path)
+
+
+def _column_texts(task: CorpusTask, col: object, stats: ReadStats) -> Iterator[str]:
+    import pyarrow as pa
+
+    if not (pa.types.is_string(col.type) or pa.types.is_large_string(col.type)):  # type: ignore[attr-defined]
+        raise MaskprepError(f"{task.path}: column is {col.type}, expected strings")  # type: ignore[attr-defined]
+    for value in col.to_pylist():  # type: ignore[attr-defined]
+        if value is None:
+            value = ""
+        stats.bytes_read += len(value)
+        yield value

@@ -1,0 +1,245 @@
+"""The files of a counts directory: word texts, and `ngrams-<n>.parquet` in final order.
+
+`Vocabulary` gathers word key -> canonical text from every counting task and
+raises if two different texts share one key (they are never merged).
+`write_ngrams` turns the merged, pruned key ranges of one n into a Parquet
+file with columns `text`, `count`, `w0`..`w{n-1}`, ordered by count
+descending, then by the canonical (fingerprint, keys) order of ngram_kernels.py,
+using a fixed row-group size so the bytes never depend on memory or workers.
+
+It does not count or merge (ngrams.py, ngram_kernels.py, spill.py).
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import MaskprepError
+from .spills import PartitionResult, merge_hist, read_rows
+
+__all__ = ["Vocabulary", "write_ngrams", "collision_error", "check_output", "publish", "fsynced_text", "ROW_GROUP"]
+
+ROW_GROUP = 1 << 17             # rows per Parquet row group (fixed, so files are byte-identical)
+
+
+def collision_error(key: int, a: str, b: str) -> MaskprepError:
+    """The error for two different word texts under one 64-bit key."""
+    return MaskprepError(f"word key collision: {a!r} and {b!r} share the 64-bit key {key:#018x}; the counts "
+                         "would merge two different words, so counting stopped (please report this)")
+
+
+class Vocabulary:
+    """Word key -> canonical text over all tasks; two texts under one key raise.
+
+    >>> v = Vocabulary(); v.add_file("spill/t000000-words.arrow"); v.finish()  # doctest: +SKIP
+    >>> v.join(np.array([[key_to, key_be, 3]], np.uint64), 2).to_pylist()  # doctest: +SKIP
+    ['to be']
+    """
+
+    def __init__(self) -> None:
+        import pyarrow as pa
+
+        self.keys = np.zeros(0, np.uint64)
+        self.texts: Any = pa.array([], type=pa.large_string())
+        self._pending: list[Any] = []
+        self._pending_rows = 0
+
+    def add_file(self, path: str) -> None:
+        import pyarrow as pa
+
+        with pa.memory_map(path) as source:
+            table = pa.ipc.open_file(source).read_all()
+        self._pending.append(table)
+        self._pending_rows += table.num_rows
+        if self._pending_rows > len(self.keys):  # merge when the pending words double the vocabulary
+            self.finish()
+
+    def finish(self) -> None:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        if not self._pending:
+            return
+        keys = np.concatenate([self.keys] + [t.column("key").to_numpy() for t in self._pending])
+        texts = pa.concat_arrays([self.texts] + [c for t in self._pending for c in t.column("text").chunks])
+        self._pending, self._pending_rows = [], 0
+        order = np.argsort(keys, kind="stable")
+        keys = keys[order]
+        texts = texts.take(pa.array(order))
+        dup = np.flatnonzero(keys[1:] == keys[:-1])
+        if len(dup):
+            differ = pc.not_equal(texts.take(pa.array(dup)), texts.take(pa.array(dup + 1))).to_numpy(
+                zero_copy_only=False)
+            if differ.any():
+                i = int(dup[np.flatnonzero(differ)[0]])
+                raise collision_error(int(keys[i]), texts[i].as_py(), texts[i + 1].as_py())
+            keep = np.ones(len(keys), bool)
+            keep[dup + 1] = False
+            keys, texts = keys[keep], texts.filter(pa.array(keep))
+        self.keys, self.texts = keys, texts
+
+    def save(self, path: str) -> None:
+        """Write the merged vocabulary (key, text) as an Arrow file, for tasks to load."""
+        import pyarrow as pa
+
+        self.finish()
+        table = pa.table({"key": pa.array(self.keys), "text": self.texts})
+        with pa.OSFile(path, "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
+            w.write_table(table)
+
+    def join(self, rows: np.ndarray, n: int) -> Any:
+        """The `text` column for rows of word keys: their words' texts joined by one space."""
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        m = rows.shape[0]
+        query = np.ascontiguousarray(rows[:, :n]).ravel()  # row by row: the words of an n-gram side by side
+        index = pc.index_in(pa.array(query), value_set=pa.array(self.keys))
+        if index.null_count:
+            raise RuntimeError("internal error: an n-gram word has no text in the vocabulary")
+        words = self.texts.take(index)
+        if n == 1:
+            return words.cast(pa.string())
+        lists = pa.LargeListArray.from_arrays(pa.array(np.arange(0, m * n + 1, n, dtype=np.int64)), words)
+        return pc.binary_join(lists, pa.scalar(" ", pa.large_string())).cast(pa.string())
+
+
+class _ParquetSink:
+    """Write rows in order as fixed-size row groups, so the file does not depend on how rows arrive."""
+
+    def __init__(self, path: Path, n: int, vocab: Vocabulary) -> None:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        self.n = n
+        self.vocab = vocab
+        self.schema = pa.schema([("text", pa.string()), ("count", pa.int64())]
+                                + [(f"w{j}", pa.uint64()) for j in range(n)])
+        # word keys are hashes (incompressible): only text and count are compressed
+        compression = {"text": "snappy", "count": "snappy"} | {f"w{j}": "none" for j in range(n)}
+        self.writer = pq.ParquetWriter(str(path), self.schema, compression=compression, use_dictionary=False,
+                                      write_statistics=["count"])
+        self.pending: list[Any] = []
+        self.pending_rows = 0
+
+    def append(self, rows: np.ndarray) -> None:
+        import pyarrow as pa
+
+        if rows.shape[0] == 0:
+            return
+        n = self.n
+        arrays = [self.vocab.join(rows, n), pa.array(rows[:, n].astype(np.int64))]
+        arrays += [pa.array(np.ascontiguousarray(rows[:, j])) for j in range(n)]
+        self.pending.append(pa.Table.from_arrays(arrays, schema=self.schema))
+        self.pending_rows += rows.shape[0]
+        if self.pending_rows >= ROW_GROUP:
+            self._emit(final=False)
+
+    def _emit(self, *, final: bool) -> None:
+        import pyarrow as pa
+
+        table = pa.concat_tables(self.pending)
+        k = table.num_rows if final else (table.num_rows // ROW_GROUP) * ROW_GROUP
+        if k:
+            self.writer.write_table(table.slice(0, k), row_group_size=ROW_GROUP)
+        rest = table.slice(k)
+        self.pending = [rest] if rest.num_rows else []
+        self.pending_rows = rest.num_rows
+
+    def close(self) -> None:
+        if self.pending_rows:
+            self._emit(final=True)
+        self.writer.close()
+
+
+def _count_desc_order(counts: np.ndarray) -> np.ndarray:
+    """Stable order by count descending (a plain sort with the index packed in the low bits)."""
+    m = len(counts)
+    if m == 0:
+        return np.zeros(0, np.intp)
+    hi, lo = int(counts.max()), int(counts.min())
+    ib = max(1, (m - 1).bit_length())
+    if (hi - lo).bit_length() + ib > 64:
+        return np.argsort(-counts.astype(np.int64), kind="stable")
+    packed = (np.uint64(hi) - counts.astype(np.uint64)) << np.uint64(ib) | np.arange(m, dtype=np.uint64)
+    packed.sort()
+    return (packed & np.uint64((1 << ib) - 1)).astype(np.intp)
+
+
+def write_ngrams(path: Path, n: int, parts: list[PartitionResult], vocab: Vocabulary, band_rows: int) -> None:
+    """Write the kept rows of one n, count descending, ties in canonical (fingerprint, keys) order.
+
+    >>> write_ngrams(Path("ngrams-2.parquet"), 2, parts, vocab, 1 << 20)  # doctest: +SKIP
+
+    Partitions hold kept rows in canonical order, so a stable sort by count of
+    their concatenation is the final order. Rows are handled in bands of count
+    values of at most `band_rows` rows; a single count value with more rows is
+    already in order and is streamed.
+    """
+    values, rows = merge_hist([p.hist_values for p in parts], [p.hist_rows for p in parts])
+    bands: list[tuple[int, int]] = []
+    acc = 0
+    for v, r in zip(values[::-1].tolist(), rows[::-1].tolist()):  # one step per distinct count value
+        if bands and acc + r <= band_rows:
+            bands[-1] = (bands[-1][0], v)
+            acc += r
+        else:
+            bands.append((v, v))
+            acc = r
+    sink = _ParquetSink(path, n, vocab)
+    try:
+        for hi, lo in bands:
+            pieces = []
+            for p in parts:
+                for s in range(0, p.kept, band_rows):
+                    block = read_rows(p.path, n + 1, s, min(s + band_rows, p.kept))
+                    if len(bands) > 1:
+                        c = block[:, n]
+                        block = block[(c >= np.uint64(lo)) & (c <= np.uint64(hi))]
+                    if hi == lo:
+                        sink.append(block)
+                    else:
+                        pieces.append(block)
+            if hi != lo and pieces:
+                table = np.concatenate(pieces)
+                del pieces
+                sink.append(table[_count_desc_order(table[:, n])])
+    finally:
+        sink.close()
+
+
+# ---------------------------------------------------------------- the directory
+
+def check_output(output: Path, overwrite: bool) -> None:
+    """Refuse a file, or a non-empty directory unless `overwrite`."""
+    if output.exists() and not output.is_dir():
+        raise MaskprepError(f"-o {output}: is a file; give a directory for the counts")
+    if output.is_dir() and any(output.iterdir()) and not overwrite:
+        raise MaskprepError(f"-o {output}: directory exists and is not empty; pass --overwrite to replace the "
+                            "counts in it, or choose another directory")
+
+
+def publish(staged: Path, output: Path, max_n: int) -> None:
+    """Rename the finished files into place; counts.json (the mark of a finished count) goes last."""
+    (output / "counts.json").unlink(missing_ok=True)
+    for n in range(1, max_n + 1):
+        os.replace(staged / f"ngrams-{n}.parquet", output / f"ngrams-{n}.parquet")
+    for stale in output.glob("ngrams-*.parquet"):
+        m = re.fullmatch(r"ngrams-(\d+)\.parquet", stale.name)
+        if m and int(m.group(1)) > max_n:
+            stale.unlink()
+    os.replace(staged / "tokenizer.json", output / "tokenizer.json")
+    os.replace(staged / "counts.json", output / "counts.json")
+
+
+def fsynced_text(path: Path, text: str) -> None:
+    """Write text and flush it to disk (before it is renamed into place)."""
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write(text)
+        fh.flush()
+        os.fsync(fh.fileno())

@@ -1,0 +1,348 @@
+"""Read and check a pipeline file (TOML) for `maskprep run`.
+
+`load_run_config` parses the file with `tomllib` and checks every key and
+value before anything runs. A bad key or value raises `MaskprepError` naming
+the file, the line (found by scanning the file text for the key in its
+table) and the key, with the reason given by the stage's own config class
+(`MaskingConfig`, `TrainConfig`, `CountConfig`, ...), so the rules live in one
+place. Relative paths are relative to the file's directory.
+
+The file (every table but ``[corpus]`` is optional; a stage runs when its
+table is present)::
+
+    output = "prep"                     # or -o DIR on the command line
+    [corpus]    paths = ["data/"], doc_sep, text_field, text_column, strict
+    [tokenizer] path = "tokenizer.json" | model, vocab_size, lowercase (train one)
+    [audit]     vocab_sizes, tokenizers, model, lowercase, top_words, include_tokenizer
+    [count]     max_n, min_count, memory
+    [units]     measure, top, min_count, per_length, max_n
+    [mask]      strategies, rate, mix, mix_per, span_p, span_max, seq_len, pack, copies, seed,
+                format, shard_rows, dynamic
+    [compare]   strategies, sample, examples, top_words, and rate ... seed (default: [mask]'s)
+
+This module runs nothing (see `maskprep.pipeline.runner`).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Mapping
+
+from ..errors import MaskprepError
+
+__all__ = ["RunConfig", "load_run_config", "find_key_line", "key_error", "SECTIONS"]
+
+_MASKING = ("rate", "mix", "mix_per", "span_p", "span_max")
+_PACKING = ("seq_len", "pack")
+_SHARDS = ("copies", "seed", "format", "shard_rows", "dynamic")
+# Allowed keys per table, with the TOML types accepted for each.
+SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
+    "": {"output": (str,)},
+    "corpus": {"paths": (list, str), "doc_sep": (str,), "text_field": (str,), "text_column": (str,),
+               "strict": (bool,)},
+    "tokenizer": {"path": (str,), "model": (str,), "vocab_size": (int,), "lowercase": (bool,)},
+    "audit": {"vocab_sizes": (list,), "tokenizers": (list,), "model": (str,), "lowercase": (bool,),
+              "top_words": (int,), "include_tokenizer": (bool,)},
+    "count": {"max_n": (int,), "min_count": (int,), "memory": (str, int)},
+    "units": {"measure": (str,), "top": (int,), "min_count": (int,), "per_length": (str, dict),
+              "max_n": (int,)},
+    "mask": {"strategies": (list, str), "rate": (float, int), "mix": (list, str), "mix_per": (str,),
+             "span_p": (float, int), "span_max": (int,), "seq_len": (int,), "pack": (bool,), "copies": (int,),
+             "seed": (int,), "format": (str,), "shard_rows": (int,), "dynamic": (bool,)},
+    "compare": {"strategies": (list, str), "sample": (int, str), "examples": (int,), "top_words": (int,),
+                "rate": (float, int), "mix": (list, str), "mix_per": (str,), "span_p": (float, int),
+                "span_max": (int,), "seq_len": (int,), "pack": (bool,), "seed": (int,)},
+}
+_TYPE_NAMES = {list: "a list", str: "a string", int: "a whole number", float: "a number", bool: "true or false",
+               dict: "a table"}
+
+
+@dataclass(frozen=True)
+class RunConfig:
+    """A checked pipeline file: every stage's options, paths made absolute.
+
+    >>> cfg = load_run_config("sample_corpus/demo.toml")  # doctest: +SKIP
+    >>> cfg.mask["strategies"]  # doctest: +SKIP
+    ('token', 'word', 'span', 'pmi')
+    """
+
+    path: Path
+    output: Path | None
+    corpus: tuple[str, ...]
+    corpus_options: Any
+    tokenizer_path: Path | None
+    train: Any  # TrainConfig or None
+    audit: Mapping[str, Any] | None = None
+    count: Any = None  # CountConfig or None
+    units: Mapping[str, Any] | None = None
+    mask: Mapping[str, Any] | None = None
+    compare: Any = None  # CompareConfig or None
+    text: str = field(default="", repr=False)
+
+
+def find_key_line(text: str, section: str, key: str | None) -> int | None:
+    """The 1-based line where `key` of table `section` is set (the table header when key is None).
+
+    Dotted keys (``mask.rate = 0.2``) and inline tables (``mask = {rate = 0.2}``)
+    are found too; None when nothing matches.
+
+    >>> find_key_line("[mask]\\nrate = 2\\n", "mask", "rate")
+    2
+    """
+    table, fallback = "", None
+    header = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(#.*)?$")
+    for i, line in enumerate(text.splitlines(), 1):
+        m = header.match(line)
+        if m:
+            table = m.group(1).replace('"', "").replace("'", "").strip()
+            if (key is None and table == section) or (not section and table == key):
+                return i
+            continue
+        name = r"\s*[\"']?%s[\"']?\s*"
+        if key is not None and table == section and re.match(rf"^{name % re.escape(key)}[=.]", line):
+            return i
+        if table == "" and section:
+            if key is not None and re.match(rf"^\s*{re.escape(section)}\s*\.{name % re.escape(key)}=", line):
+                return i
+            if re.match(rf"^{name % re.escape(section)}[=.]", line) and fallback is None:
+                fallback = i
+    return fallback
+
+
+def key_error(path: Path, text: str, section: str, key: str | None, problem: str) -> MaskprepError:
+    """The error for a key: ``key_error(Path("p.toml"), "[mask]\\nrate = 2\\n", "mask", "rate", "too big")``
+    -> ``MaskprepError("p.toml, line 2: [mask] rate: too big")``."""
+    line = find_key_line(text, section, key)
+    where = f"{path}, line {line}" if line else str(path)
+    what = (f"[{section}] {key}" if section else key) if key else f"[{section}]"
+    return MaskprepError(f"{where}: {what}: {problem}")
+
+
+class _Checker:
+    def __init__(self, path: Path, text: str, doc: Mapping[str, Any]) -> None:
+        self.path, self.text, self.doc, self.base = path, text, doc, path.parent
+
+    def fail(self, section: str, key: str | None, problem: str) -> MaskprepError:
+        return key_error(self.path, self.text, section, key, problem)
+
+    def table(self, section: str) -> dict[str, Any] | None:
+        value = self.doc.get(section)
+        if value is None:
+            return None
+        if not isinstance(value, dict):
+            raise self.fail("", section, f"must be a table ([{section}]), got {_shown(value)}")
+        allowed = SECTIONS[section]
+        for key, v in value.items():
+            if key not in allowed:
+                raise self.fail(section, key, f"unknown key; [{section}] takes {', '.join(allowed)}")
+            types = allowed[key]
+            if isinstance(v, bool) and bool not in types or not isinstance(v, types):
+                names = " or ".join(_TYPE_NAMES[t] for t in types)
+                raise self.fail(section, key, f"must be {names}, got {_shown(v)}")
+        return dict(value)
+
+    def check(self, section: str, key: str, value: Any, fn: Callable[[Any], Any]) -> Any:
+        """fn(value), with its MaskprepError re-raised naming the key and line."""
+        try:
+            return fn(value)
+        except MaskprepError as exc:
+            # The config classes name command-line options (--max-n); here the key is the name.
+            names = "|".join(re.escape(n) for n in (key, key.replace("_", "-")))
+            problem = re.sub(rf"^(?:--)?(?:{names})\b:?\s*", "", str(exc), count=1)
+            raise self.fail(section, key, f"{_shown(value)}: {problem}") from None
+
+    def path_of(self, section: str, key: str, value: str, *, must_exist: bool = True) -> Path:
+        p = Path(value).expanduser()
+        p = p if p.is_absolute() else (self.base / p)
+        if must_exist and not p.exists():
+            raise self.fail(section, key, f"{value!r}: {p} not found (paths are relative to {self.base})")
+        return p
+
+
+def _shown(value: Any) -> str:
+    text = repr(value) if not isinstance(value, bool) else str(value).lower()
+    return text if len(text) <= 80 else text[:77] + "..."
+
+
+def _each(c: _Checker, section: str, key: str, values: dict[str, Any], make: Callable[..., Any]) -> None:
+    """Check each given key alone through `make(**{key: value})` (the config class's own rules)."""
+    for k in key.split(","):
+        if k in values:
+            c.check(section, k, values[k], lambda v, k=k: make(**{k: v}))
+
+
+def load_run_config(path: str | Path, *, output: str | Path | None = None) -> RunConfig:
+    """Parse and check a pipeline file; `output` (from -o) overrides its ``output`` key.
+
+    >>> load_run_config("sample_corpus/demo.toml", output="out").output  # doctest: +SKIP
+    PosixPath('out')
+    """
+    import tomllib
+
+    from ..corpus.reader import CorpusOptions, resolve_inputs
+    from ..tokenizer.train import TrainConfig
+
+    path = Path(path)
+    if not path.is_file():
+        raise MaskprepError(f"{path}: pipeline file not found")
+    try:
+        text = path.read_text(encoding="utf-8")
+        doc = tomllib.loads(text)
+    except UnicodeDecodeError as exc:
+        raise MaskprepError(f"{path}: not UTF-8 text ({exc})") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise MaskprepError(f"{path}: not valid TOML: {exc}") from None
+    c = _Checker(path, text, doc)
+    for key, value in doc.items():
+        if key not in SECTIONS and key not in SECTIONS[""]:
+            raise c.fail("", key, "unknown key or table; the tables are " + ", ".join(f"[{s}]" for s in SECTIONS
+                                                                                         if s))
+    top = {k: v for k, v in doc.items() if k in SECTIONS[""]}
+    for key, value in top.items():
+        if not isinstance(value, SECTIONS[""][key]):
+            raise c.fail("", key, f"must be a string, got {_shown(value)}")
+    out = Path(output) if output is not None else (c.path_of("", "output", top["output"], must_exist=False)
+                                                   if "output" in top else None)
+
+    corpus = c.table("corpus")
+    if corpus is None or "paths" not in corpus:
+        raise c.fail("corpus", None if corpus is not None else None,
+                     "missing: add a [corpus] table with paths = [\"file or directory\", ...]")
+    paths = corpus["paths"] if isinstance(corpus["paths"], list) else [corpus["paths"]]
+    if not paths or not all(isinstance(p, str) for p in paths):
+        raise c.fail("corpus", "paths", "must be a non-empty list of file, directory or glob strings")
+    files = tuple(str(p if Path(p).is_absolute() else c.base / p) for p in paths)
+    c.check("corpus", "paths", corpus["paths"], lambda v: resolve_inputs(list(files)))
+    _each(c, "corpus", "doc_sep,text_field,text_column,strict", corpus, CorpusOptions)
+    corpus_options = CorpusOptions(**{k: v for k, v in corpus.items() if k != "paths"})
+
+    tok = c.table("tokenizer") or {}
+    tokenizer_path, train = None, None
+    if "path" in tok:
+        extra = [k for k in tok if k != "path"]
+        if extra:
+            raise c.fail("tokenizer", extra[0], "give either path (load a tokenizer) or model / vocab_size / "
+                                                "lowercase (train one), not both")
+        tokenizer_path = c.path_of("tokenizer", "path", tok["path"])
+    else:
+        _each(c, "tokenizer", "model,vocab_size,lowercase", tok, TrainConfig)
+        train = TrainConfig(**tok)
+
+    audit = _audit(c)
+    count = _count(c)
+    units = _units(c, count)
+    mask = _mask(c, units is not None)
+    compare = _compare(c, mask, units is not None)
+    return RunConfig(path=path, output=out, corpus=files, corpus_options=corpus_options,
+                     tokenizer_path=tokenizer_path, train=train, audit=audit, count=count, units=units,
+                     mask=mask, compare=compare, text=text)
+
+
+def _audit(c: _Checker) -> dict[str, Any] | None:
+    from ..audit.measure import AuditConfig
+    from ..tokenizer.train import TrainConfig
+
+    a = c.table("audit")
+    if a is None:
+        return None
+    sizes = a.get("vocab_sizes", [])
+    for v in sizes:
+        c.check("audit", "vocab_sizes", sizes, lambda _, v=v: TrainConfig(vocab_size=v))
+    tokenizers = a.get("tokenizers", [])
+    if not all(isinstance(t, str) for t in tokenizers):
+        raise c.fail("audit", "tokenizers", "must be a list of tokenizer.json paths")
+    paths = [str(c.path_of("audit", "tokenizers", t)) for t in tokenizers]
+    _each(c, "audit", "model,lowercase", a, TrainConfig)
+    top = a.get("top_words", 25)
+    if not 1 <= top <= 10000:
+        raise c.fail("audit", "top_words", f"{top}: expected 1 to 10000")
+    include = a.get("include_tokenizer", True)
+    if not sizes and not paths and not include:
+        raise c.fail("audit", None, "nothing to audit: give vocab_sizes or tokenizers, or include_tokenizer = true")
+    AuditConfig(vocab_sizes=tuple(sizes))
+    return {"vocab_sizes": tuple(sizes), "tokenizers": tuple(paths), "model": a.get("model", "wordpiece"),
+            "lowercase": a.get("lowercase", True), "top_words": top, "include_tokenizer": include}
+
+
+def _count(c: _Checker) -> Any:
+    t = c.table("count")
+    if t is None:
+        return None
+    from ..count.driver import CountConfig
+
+    _each(c, "count", "max_n,min_count,memory", t, CountConfig)
+    return CountConfig(**t)
+
+
+def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
+    t = c.table("units")
+    if t is None:
+        return None
+    if count is None:
+        raise c.fail("units", None, "needs a [count] table: units are chosen from the n-gram counts")
+    from ..units.cohesion import Measure
+    from ..units.select import DEFAULT_TOP, parse_per_length
+
+    out: dict[str, Any] = {"measure": c.check("units", "measure", t.get("measure", "pmi"),
+                                              lambda v: Measure.parse(v, option="measure").value),
+                           "top": t.get("top", DEFAULT_TOP), "min_count": t.get("min_count"),
+                           "max_n": t.get("max_n")}
+    for key, low in (("top", 1), ("min_count", count.min_count)):
+        if out[key] is not None and out[key] < low:
+            raise c.fail("units", key, f"{out[key]}: must be at least {low}"
+                         + (" (the [count] min_count: rarer n-grams were not kept)" if key == "min_count" else ""))
+    if out["max_n"] is not None and not 2 <= out["max_n"] <= count.max_n:
+        raise c.fail("units", "max_n", f"{out['max_n']}: must be in 2..{count.max_n} (the [count] max_n)")
+    per = t.get("per_length")
+    out["per_length"] = None if per is None else c.check(
+        "units", "per_length", per, lambda v: ",".join(f"{n}:{s!r}" for n, s in parse_per_length(
+            v, max_n=out["max_n"] or count.max_n, option="per_length")))
+    return out
+
+
+def _mask(c: _Checker, has_units: bool) -> dict[str, Any] | None:
+    from ..compare.run import parse_strategies
+    from ..masking.sampler import MaskingConfig
+    from ..packing import PackingConfig
+    from ..shards.write import ShardConfig
+
+    t = c.table("mask")
+    if t is None:
+        return None
+    strategies = c.check("mask", "strategies", t.get("strategies", "token"),
+                         lambda v: parse_strategies(v, option="strategies"))
+    if any(s.value == "pmi" for s in strategies) and not has_units:
+        raise c.fail("mask", "strategies", "pmi needs a unit vocabulary: add [count] and [units] tables")
+    _each(c, "mask", ",".join(_MASKING), t, MaskingConfig)
+    _each(c, "mask", ",".join(_PACKING), t, PackingConfig)
+    _each(c, "mask", ",".join(_SHARDS), t, ShardConfig)
+    masking = MaskingConfig(**{k: t[k] for k in _MASKING if k in t})
+    packing = PackingConfig(**{k: t[k] for k in _PACKING if k in t})
+    shards = ShardConfig(**{k: t[k] for k in _SHARDS if k in t})
+    return {"strategies": tuple(s.value for s in strategies), "masking": masking, "packing": packing,
+            "shards": shards}
+
+
+def _compare(c: _Checker, mask: Mapping[str, Any] | None, has_units: bool) -> Any:
+    from ..compare.run import CompareConfig
+
+    t = c.table("compare")
+    if t is None:
+        return None
+    if t.get("sample") == "all":
+        t["sample"] = None
+    elif isinstance(t.get("sample"), str):
+        raise c.fail("compare", "sample", f"{t['sample']!r}: give a whole number of sequences or \"all\"")
+    _each(c, "compare", "strategies,sample,examples,top_words," + ",".join(_MASKING + _PACKING) + ",seed", t,
+          CompareConfig)
+    base: dict[str, Any] = {}
+    if mask is not None:  # defaults from [mask], so the comparison describes the shards written
+        m, p = mask["masking"], mask["packing"]
+        base = {"rate": m.rate, "mix": m.mix, "mix_per": m.mix_per, "span_p": m.span_p, "span_max": m.span_max,
+                "seq_len": p.seq_len, "pack": p.pack, "seed": mask["shards"].seed}
+    config = CompareConfig(**{**base, **t})
+    if config.strategies and any(s.value == "pmi" for s in config.strategies) and not has_units:
+        raise c.fail("compare", "strategies", "pmi needs a unit vocabulary: add [count] and [units] tables")
+    return config

@@ -1,0 +1,359 @@
+"""Run the whole preparation from one pipeline file, skipping stages that are up to date.
+
+`run_pipeline` reads a checked `RunConfig` (see `maskprep.pipeline.config`) and runs,
+in data-flow order, the stages whose tables are present: tokenizer (train one,
+or load the given file), audit, count, units, mask (one stage per strategy)
+and compare, each writing into its own directory of the run's output
+directory::
+
+    OUT/tokenizer/tokenizer.json   OUT/audit/   OUT/counts/   OUT/units/units.parquet
+    OUT/mask/<strategy>/           OUT/compare/ OUT/pipeline.json
+
+Each stage directory holds ``.stage.json``: a fingerprint over the stage's
+options, the fingerprints of its inputs (corpus contents, tokenizer hash,
+upstream stages) and the code version (package version and a hash of the
+package's source files), plus the files it wrote. A stage whose fingerprint is
+unchanged and whose files are all present is skipped; otherwise its directory
+is replaced. A changed option therefore reruns that stage and the stages that
+use its output or inherit the option (e.g. [mask] rate also reaches compare),
+nothing else. ``force=True`` reruns everything.
+
+`run_demo` runs ``sample_corpus/demo.toml`` from the repository checkout.
+This module computes nothing itself; it calls each stage's library function.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import shutil
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Sequence
+
+from ..errors import MaskprepError
+from .._files import atomic_write_json as write_json
+from .._files import read_json
+from .config import RunConfig, load_run_config
+
+__all__ = ["StageResult", "RunResult", "run_pipeline", "run_demo", "sample_corpus_dir", "code_version",
+           "stage_fingerprint", "format_run_summary", "STAGE_FILE", "RUN_FILE"]
+
+STAGE_FILE = ".stage.json"
+RUN_FILE = "pipeline.json"
+
+
+@dataclass(frozen=True)
+class StageResult:
+    """One stage of a run: ``StageResult("count", "skipped", 0.0, Path("out/counts"), "ab12...")``."""
+
+    name: str
+    status: str  # "ran" or "skipped"
+    seconds: float
+    output: Path
+    fingerprint: str
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """What `run_pipeline` did: stages in order, and the comparison's JSON if compare ran or was kept."""
+
+    output: Path
+    config: Path
+    stages: tuple[StageResult, ...]
+    tokenizer: Path
+    compare: dict[str, Any] | None = None
+
+    def stage(self, name: str) -> StageResult:
+        """The result of one stage: ``result.stage("mask.pmi").status`` -> 'skipped'."""
+        return next(s for s in self.stages if s.name == name)
+
+
+_CODE: list[str] = []
+
+
+def code_version() -> str:
+    """Package version plus sha256 of every source file of the package (any code change reruns stages).
+
+    >>> len(code_version()) > 10
+    True
+    """
+    if not _CODE:
+        from .._version import __version__
+
+        h = hashlib.sha256()
+        package = Path(__file__).resolve().parent.parent
+        for p in sorted(package.rglob("*.py")):
+            h.update(p.relative_to(package).as_posix().encode() + b"\0" + p.read_bytes() + b"\0")
+        _CODE.append(f"{__version__}+{h.hexdigest()[:16]}")
+    return _CODE[0]
+
+
+def _jsonable(value: Any) -> Any:
+    if hasattr(value, "value") and not isinstance(value, (int, float, str)):
+        return value.value
+    if isinstance(value, (tuple, list)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if hasattr(value, "__dataclass_fields__"):
+        return {k: _jsonable(getattr(value, k)) for k in value.__dataclass_fields__}
+    if isinstance(value, Path):
+        return str(value)
+    return value
+
+
+def stage_fingerprint(name: str, options: Any, inputs: dict[str, Any]) -> str:
+    """sha256 over a stage's name, options, input fingerprints and the code version.
+
+    >>> len(stage_fingerprint("units", {"top": 5000}, {"counts": "ab12"}))
+    64
+    """
+    doc = {"stage": name, "options": _jsonable(options), "inputs": inputs, "code": code_version()}
+    return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
+
+
+class _Runner:
+    def __init__(self, out: Path, *, force: bool, quiet: bool) -> None:
+        self.out, self.force, self.quiet = out, force, quiet
+        self.results: list[StageResult] = []
+
+    def stage(self, name: str, subdir: str, options: Any, inputs: dict[str, Any],
+              run: Callable[[Path], Sequence[str]]) -> StageResult:
+        """Run `run(dir)` (returning the files it wrote, relative to dir) unless up to date."""
+        d = self.out / subdir
+        fp = stage_fingerprint(name, options, inputs)
+        record = d / STAGE_FILE
+        if not self.force and record.is_file():
+            try:
+                old = json.loads(record.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                old = {}
+            if old.get("fingerprint") == fp and all((d / f).exists() for f in old.get("files", ["?"])):
+                result = StageResult(name, "skipped", 0.0, d, fp)
+                self._log(result)
+                self.results.append(result)
+                return result
+        if d.exists():
+            shutil.rmtree(d)
+        d.mkdir(parents=True)
+        if not self.quiet:
+            import sys
+
+            print(f"[{name}] running", file=sys.stderr, flush=True)
+        start = time.monotonic()
+        files = sorted(run(d))
+        seconds = time.monotonic() - start
+        write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
+                                   "inputs": inputs, "code": code_version(), "files": files})
+        result = StageResult(name, "ran", seconds, d, fp)
+        self._log(result)
+        self.results.append(result)
+        return result
+
+    def _log(self, r: StageResult) -> None:
+        if not self.quiet:
+            import sys
+
+            how = "up to date, skipped" if r.status == "skipped" else f"done in {r.seconds:.1f}s"
+            print(f"[{r.name}] {how}: {r.output}", file=sys.stderr, flush=True)
+
+
+def _files_in(d: Path) -> list[str]:
+    return [str(p.relative_to(d)) for p in d.rglob("*") if p.is_file() and p.name != STAGE_FILE
+            and not any(part.startswith(".") for part in p.relative_to(d).parts)]
+
+
+def _prepare_output(out: Path, config: RunConfig) -> None:
+    if out.exists() and not out.is_dir():
+        raise MaskprepError(f"-o {out}: exists and is not a directory")
+    if out.is_dir() and any(out.iterdir()) and not (out / RUN_FILE).is_file():
+        raise MaskprepError(f"-o {out}: directory is not empty and holds no {RUN_FILE}, so it is not the output "
+                            "of maskprep run; choose a new or empty directory (stages replace their own "
+                            "subdirectories)")
+    out.mkdir(parents=True, exist_ok=True)
+    if not (out / RUN_FILE).is_file():
+        write_json(out / RUN_FILE, {"format": "maskprep-run", "config": str(config.path), "stages": []})
+
+
+def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = None, force: bool = False,
+                 executor: Any = None, quiet: bool = False) -> RunResult:
+    """Run every stage of a pipeline file that is not up to date; return what ran and what was skipped.
+
+    >>> result = run_pipeline("sample_corpus/demo.toml", output="demo-out")  # doctest: +SKIP
+    >>> [s.status for s in result.stages]  # doctest: +SKIP
+    ['ran', 'ran', 'ran', 'ran', 'ran', 'ran', 'ran', 'ran', 'ran']
+    """
+    from ..corpus.reader import corpus_fingerprint, resolve_inputs
+    from ..execute import Executor
+    from ..tokenizer.encoding import load_tokenizer
+
+    cfg = config if isinstance(config, RunConfig) else load_run_config(config, output=output)
+    out = Path(output) if output is not None else cfg.output
+    if out is None:
+        raise MaskprepError(f"{cfg.path}: no output directory: add output = \"DIR\" to the file or pass -o DIR")
+    executor = executor or Executor()
+    _prepare_output(out, cfg)
+    runner = _Runner(out, force=force, quiet=quiet)
+    corpus = list(cfg.corpus)
+    copts = cfg.corpus_options
+    corpus_fp = corpus_fingerprint(resolve_inputs(corpus), copts)
+    read_opts = {"doc_sep": copts.doc_sep, "text_field": copts.text_field, "text_column": copts.text_column,
+                 "strict": copts.strict}
+    base_inputs = {"corpus": corpus_fp, "reading": read_opts}
+
+    # tokenizer
+    if cfg.train is not None:
+        from ..audit.measure import train_on_corpus
+
+        train = cfg.train
+
+        def run_tok(d: Path) -> list[str]:
+            train_on_corpus(corpus, model=train.model, vocab_size=train.vocab_size, lowercase=train.lowercase,
+                            corpus_options=copts, output=d / "tokenizer.json", quiet=quiet,
+                            name=f"{train.model}-{train.vocab_size}")
+            return ["tokenizer.json"]
+
+        runner.stage("tokenizer", "tokenizer", train, base_inputs, run_tok)
+        tok_path = out / "tokenizer" / "tokenizer.json"
+    else:
+        assert cfg.tokenizer_path is not None
+        tok_path = cfg.tokenizer_path
+    info = load_tokenizer(tok_path)
+    inputs = {**base_inputs, "tokenizer": info.hash}
+
+    if cfg.audit is not None:
+        from ..audit.measure import AuditConfig, run_audit
+        from ..shards.write import file_sha256
+
+        a = cfg.audit
+        given = ((str(tok_path),) if a["include_tokenizer"] else ()) + tuple(a["tokenizers"])
+        audit_cfg = AuditConfig(tokenizers=given, vocab_sizes=tuple(a["vocab_sizes"]), model=a["model"],
+                                lowercase=a["lowercase"], top_words=a["top_words"])
+        extra = {"audited": [file_sha256(p) for p in a["tokenizers"]]}
+
+        def run_aud(d: Path) -> list[str]:
+            run_audit(corpus, audit_cfg, output=d, corpus_options=copts, quiet=quiet)
+            return _files_in(d)
+
+        runner.stage("audit", "audit", {**a, "tokenizers": len(a["tokenizers"])}, {**inputs, **extra}, run_aud)
+
+    counts_dir, units_path, units_fp = out / "counts", None, None
+    if cfg.count is not None:
+        count_cfg = cfg.count
+
+        def run_cnt(d: Path) -> list[str]:
+            _count(corpus, tok_path, d, count_cfg, copts, executor, quiet)
+            return _files_in(d)
+
+        counts_fp = runner.stage("count", "counts", count_cfg, inputs, run_cnt).fingerprint
+        if cfg.units is not None:
+            u = cfg.units
+
+            def run_units(d: Path) -> list[str]:
+                from ..units.files import write_units
+                from ..units.select import build_units
+
+                vocab = build_units(counts_dir, measure=u["measure"], top=u["top"], min_count=u["min_count"],
+                                    per_length=u["per_length"], max_n=u["max_n"], quiet=quiet)
+                write_units(vocab, d / "units.parquet")
+                return ["units.parquet", "units.tsv"]
+
+            units_fp = runner.stage("units", "units", u, {"counts": counts_fp}, run_units).fingerprint
+            units_path = out / "units" / "units.parquet"
+
+    if cfg.mask is not None:
+        from ..masking.sampler import MaskingConfig
+        from ..shards.write import write_shards
+
+        m = cfg.mask
+        for strategy in m["strategies"]:
+            masking = MaskingConfig(**{**{k: getattr(m["masking"], k) for k in
+                                          ("rate", "mix", "mix_per", "span_p", "span_max")}, "strategy": strategy})
+            pmi = strategy == "pmi"
+
+            def run_mask(d: Path, masking: MaskingConfig = masking, pmi: bool = pmi) -> list[str]:
+                write_shards(corpus, tokenizer=info, output=d, masking=masking, packing=m["packing"],
+                             shards=m["shards"], units=units_path if pmi else None, corpus_options=copts,
+                             executor=executor, overwrite=True)
+                return _files_in(d)
+
+            runner.stage(f"mask.{strategy}", f"mask/{strategy}",
+                         {"masking": masking, "packing": m["packing"], "shards": m["shards"]},
+                         {**inputs, "units": units_fp if pmi else None}, run_mask)
+
+    compare_doc = None
+    if cfg.compare is not None:
+        from ..compare.run import compare_strategies
+
+        cc = cfg.compare
+
+        def run_cmp(d: Path) -> list[str]:
+            compare_strategies(corpus, tokenizer=info, output=d, config=cc, units=units_path, corpus_options=copts,
+                               executor=executor)
+            return ["compare.json", "compare.html"]
+
+        r = runner.stage("compare", "compare", cc, {**inputs, "units": units_fp}, run_cmp)
+        compare_doc = read_json(r.output / "compare.json", what="comparison")
+
+    result = RunResult(output=out, config=cfg.path, stages=tuple(runner.results), tokenizer=tok_path,
+                       compare=compare_doc)
+    write_json(out / RUN_FILE, {
+        "format": "maskprep-run", "config": str(cfg.path), "code": code_version(),
+        "stages": [{"name": s.name, "status": s.status, "output": str(s.output.relative_to(out)),
+                    "fingerprint": s.fingerprint} for s in result.stages]})
+    return result
+
+
+def _count(corpus: list[str], tokenizer: Path, output: Path, config: Any, corpus_options: Any, executor: Any,
+           quiet: bool) -> None:
+    from ..count.driver import count_ngrams
+
+    count_ngrams(corpus, tokenizer=tokenizer, output=output, config=config, corpus_options=corpus_options,
+                 executor=executor, overwrite=True, quiet=quiet)
+
+
+def sample_corpus_dir() -> Path:
+    """The bundled sample corpus of a repository checkout (``<repo>/sample_corpus``).
+
+    >>> sample_corpus_dir().name  # doctest: +SKIP
+    'sample_corpus'
+    """
+    d = Path(__file__).resolve().parents[2] / "sample_corpus"  # the package's parent: the checkout
+    if not (d / "demo.toml").is_file():
+        raise MaskprepError(f"{d}: the sample corpus (with demo.toml) is not there; maskprep demo runs from a "
+                            "clone of the repository installed with pip install -e . (a wheel does not ship "
+                            "sample_corpus/)")
+    return d
+
+
+def run_demo(*, output: str | Path = "maskprep-demo", force: bool = False, executor: Any = None,
+             quiet: bool = False) -> RunResult:
+    """The whole pipeline on sample_corpus/ (``demo.toml``) into `output`.
+
+    >>> run_demo(output="maskprep-demo").stage("compare").output  # doctest: +SKIP
+    PosixPath('maskprep-demo/compare')
+    """
+    return run_pipeline(sample_corpus_dir() / "demo.toml", output=output, force=force, executor=executor,
+                        quiet=quiet)
+
+
+_MAIN_FILES = {"tokenizer": "tokenizer.json", "audit": "audit.html", "count": "counts.json",
+               "units": "units.tsv", "compare": "compare.html"}
+
+
+def format_run_summary(result: RunResult) -> str:
+    """Stage table (status, time, main output) for the terminal: ``print(format_run_summary(result))``."""
+    rows = [("stage", "status", "seconds", "output")]
+    for s in result.stages:
+        main = _MAIN_FILES.get(s.name.split(".")[0])
+        where = s.output / main if main and (s.output / main).exists() else s.output
+        rows.append((s.name, s.status, f"{s.seconds:.1f}" if s.status == "ran" else "-", str(where)))
+    widths = [max(len(r[i]) for r in rows) for i in range(4)]
+    lines = []
+    for j, r in enumerate(rows):
+        lines.append("  ".join(c.ljust(w) if i != 2 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))))
+        if j == 0:
+            lines.append("  ".join("-" * w for w in widths))
+    return "\n".join(lines)

@@ -1,0 +1,492 @@
+"""Write training-ready shards (Arrow IPC or Parquet) and read them back.
+
+`write_shards` runs one task per corpus task (`corpus.plan_tasks`) through
+`execute.map_tasks`: the task encodes its documents, packs them
+(`packing.TaskPacker`), computes units (`masking.strategy_units`), masks every
+sequence `copies` times with `masking.mask_batch` (copy index k enters the
+counter-based random draws) and writes its own shard files. The driver then
+writes `stats.json` and, last of all, `manifest.json`: a directory with a
+manifest is complete.
+
+Files in SHARDS_DIR:
+
+- ``shard-TTTTT-CC-PPPP.arrow`` (or ``.parquet``): corpus task T, copy C,
+  part P of at most ``shard_rows`` rows; names depend only on the corpus and
+  the options. Columns, one row per sequence, every list ``seq_len`` long:
+  static: ``input_ids`` list<int32> (after masking), ``labels`` list<int32>
+  (original id at targets, -100 elsewhere), ``attention_mask`` list<int8>,
+  ``sequence_id`` uint64; ``--dynamic``: ``input_ids`` unmasked and
+  ``unit_ids`` list<int32> (-1 on special tokens) instead of ``labels``.
+  Schema metadata (key ``maskprep``, JSON): mask token id, special ids,
+  strategy, rate, mix, seed, copies, this file's copy, and more. Arrow files
+  hold record batches of 1024 rows, Parquet files (zstd) row groups of 8192
+  rows, so files are byte-identical whatever the number of workers;
+- ``manifest.json``: per shard file, rows, tokens, maskable tokens, targets,
+  bytes and sha256; the run's options, tokenizer hash, seed, package version
+  and corpus fingerprint; ``stats.json``: see `maskprep.stats.masks`;
+  ``tokenizer.json``: a copy of the tokenizer the ids belong to;
+- ``.maskprep/``: the run's options and one done-record per finished task,
+  used by ``resume``.
+
+Every file is written under a temporary name and renamed when complete.
+
+Masking on the fly from ``--dynamic`` shards uses the same sampler
+(`ShardSet.mask`, see `maskprep.shards.read` for a training-loop example), so it
+gives exactly the static rows for the same seed and copy. For dynamic span
+masking the spans themselves are those of the shard's copy; only the choice
+of spans and the replacement change with ``copy``.
+
+This module does not read shards back (see `maskprep.shards.read`), verify or render them
+(see `maskprep.shards.check`).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import os
+import shutil
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+
+from .._files import file_sha256
+from .._version import __version__
+from ..errors import MaskprepError
+from .._files import atomic_path, atomic_write_text, read_json
+from ..masking.sampler import MaskingConfig, Strategy, mask_batch, strategy_units
+from ..packing import PackingConfig, TaskPacker, check_packing_tokenizer
+from ..stats.masks import MaskStats
+
+__all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards", "open_shards",
+           "FORMAT_VERSION", "METADATA_KEY"]
+
+FORMAT_VERSION = 1
+METADATA_KEY = b"maskprep"
+ARROW_BATCH_ROWS = 1024
+PARQUET_GROUP_ROWS = 8192
+STATE_DIR = ".maskprep"
+_FORMATS = {"arrow": ".arrow", "parquet": ".parquet"}
+
+
+@dataclass(frozen=True)
+class ShardConfig:
+    """How shards are written: ``ShardConfig(format="parquet", copies=2, seed=1)``.
+
+    >>> ShardConfig(copies=3).copies
+    3
+    """
+
+    format: str = "arrow"
+    shard_rows: int = 16384
+    copies: int = 1
+    seed: int = 0
+    dynamic: bool = False
+
+    def __post_init__(self) -> None:
+        if self.format not in _FORMATS:
+            raise MaskprepError(f"--format must be arrow or parquet, got {self.format!r}")
+        for name, value, low, high in (("--shard-rows", self.shard_rows, 1, 1 << 24),
+                                       ("--copies", self.copies, 1, 1000), ("--seed", self.seed, 0, (1 << 64) - 1)):
+            if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or not low <= value <= high:
+                raise MaskprepError(f"{name} must be a whole number from {low} to {high}, got {value!r}")
+        object.__setattr__(self, "dynamic", bool(self.dynamic))
+
+
+@dataclass(frozen=True)
+class ShardRecord:
+    """One shard file as listed in the manifest."""
+
+    file: str
+    task: int
+    copy: int
+    part: int
+    rows: int
+    tokens: int
+    maskable: int
+    targets: int
+    bytes: int
+    sha256: str
+
+
+@dataclass(frozen=True)
+class ShardManifest:
+    """The contents of manifest.json: ``ShardManifest.read("shards/").totals["rows"]``."""
+
+    options: Mapping[str, Any]
+    tokenizer: Mapping[str, Any]
+    corpus: Mapping[str, Any]
+    totals: Mapping[str, Any]
+    shards: tuple[ShardRecord, ...]
+    maskprep_version: str = ""
+    format_version: int = FORMAT_VERSION
+
+    def to_json(self) -> dict[str, Any]:
+        return {"format": "maskprep-shards", "format_version": self.format_version,
+                "maskprep_version": self.maskprep_version, "options": dict(self.options),
+                "tokenizer": dict(self.tokenizer), "corpus": dict(self.corpus), "totals": dict(self.totals),
+                "shards": [asdict(s) for s in self.shards]}
+
+    @classmethod
+    def read(cls, directory: str | Path) -> "ShardManifest":
+        path = Path(directory) / "manifest.json"
+        if not path.is_file():
+            raise MaskprepError(f"{directory}: no manifest.json; not a finished shards directory "
+                                "(write one with maskprep mask, or finish it with maskprep mask ... --resume)")
+        doc = read_json(path, what="shard manifest")
+        if not isinstance(doc, dict) or doc.get("format") != "maskprep-shards":
+            raise MaskprepError(f"{path}: not a maskprep shard manifest")
+        if doc.get("format_version") != FORMAT_VERSION:
+            raise MaskprepError(f"{path}: format_version {doc.get('format_version')!r}; this maskprep reads "
+                                f"version {FORMAT_VERSION}")
+        try:
+            shards = tuple(ShardRecord(**s) for s in doc["shards"])
+            return cls(options=doc["options"], tokenizer=doc["tokenizer"], corpus=doc["corpus"],
+                       totals=doc["totals"], shards=shards, maskprep_version=doc.get("maskprep_version", ""))
+        except (KeyError, TypeError) as exc:
+            raise MaskprepError(f"{path}: incomplete manifest ({exc})") from None
+
+
+
+def _dump(obj: Any) -> str:
+    return json.dumps(obj, indent=2, ensure_ascii=False) + "\n"
+
+
+def shard_name(task: int, copy: int, part: int, fmt: str) -> str:
+    """File name of a shard: ``shard_name(3, 0, 1, "arrow")`` -> 'shard-00003-00-0001.arrow'."""
+    return f"shard-{task:05d}-{copy:02d}-{part:04d}{_FORMATS[fmt]}"
+
+
+_UMASK: list[int] = []
+
+
+def _readable(path: str | Path) -> None:
+    """Give a written file the usual permissions (temporary files are created private)."""
+    import os
+
+    if not _UMASK:
+        _UMASK.append(os.umask(0o022))
+        os.umask(_UMASK[0])
+    os.chmod(path, 0o666 & ~_UMASK[0])
+
+
+def _write_text(path: Path, text: str) -> None:
+    atomic_write_text(path, text)
+    _readable(path)
+
+
+# ------------------------------------------------------------------ writing one file
+
+def _list_column(values: np.ndarray) -> Any:
+    import pyarrow as pa
+
+    n, L = values.shape
+    offsets = pa.array(np.arange(0, (n + 1) * L, L, dtype=np.int32))
+    return pa.ListArray.from_arrays(offsets, pa.array(np.ascontiguousarray(values).ravel()))
+
+
+def _write_file(path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, metadata: Mapping[str, Any]) -> None:
+    import pyarrow as pa
+
+    arrays = [_list_column(v) if v.ndim == 2 else pa.array(v) for v in columns.values()]
+    meta = {METADATA_KEY: json.dumps(metadata, sort_keys=True).encode("utf-8")}
+    schema = pa.schema([pa.field(k, a.type, nullable=False) for k, a in zip(columns, arrays)], metadata=meta)
+    table = pa.Table.from_arrays(arrays, schema=schema)
+    with atomic_path(path) as tmp:
+        if fmt == "arrow":
+            with pa.OSFile(str(tmp), "wb") as sink, pa.ipc.new_file(sink, schema) as writer:
+                writer.write_table(table, max_chunksize=ARROW_BATCH_ROWS)
+        else:
+            import pyarrow.parquet as pq
+
+            pq.write_table(table, str(tmp), row_group_size=PARQUET_GROUP_ROWS, compression="zstd")
+        _readable(tmp)
+
+
+class _ShardWriter:
+    """Buffers rows of one (task, copy) and writes files of exactly shard_rows rows (the last may be short)."""
+
+    def __init__(self, out: Path, *, task: int, copy: int, config: ShardConfig, metadata: Mapping[str, Any]) -> None:
+        self.out, self.task, self.copy, self.config = out, task, copy, config
+        self.metadata = {**metadata, "task": task, "copy": copy}
+        self.pending: list[dict[str, np.ndarray]] = []
+        self.rows = 0
+        self.records: list[ShardRecord] = []
+
+    def add(self, columns: dict[str, np.ndarray]) -> None:
+        self.pending.append(columns)
+        self.rows += len(columns["sequence_id"])
+        while self.rows >= self.config.shard_rows:
+            self._flush(self.config.shard_rows)
+
+    def close(self) -> list[ShardRecord]:
+        if self.rows:
+            self._flush(self.rows)
+        return self.records
+
+    def _flush(self, n: int) -> None:
+        cols = {k: np.concatenate([p[k] for p in self.pending]) for k in self.pending[0]}
+        head = {k: v[:n] for k, v in cols.items() if not k.startswith("_")}
+        rest = {k: v[n:] for k, v in cols.items()}
+        self.pending = [rest] if len(rest["sequence_id"]) else []
+        self.rows -= n
+        name = shard_name(self.task, self.copy, len(self.records), self.config.format)
+        path = self.out / name
+        _write_file(path, head, fmt=self.config.format, metadata=self.metadata)
+        self.records.append(ShardRecord(
+            file=name, task=self.task, copy=self.copy, part=len(self.records), rows=n,
+            tokens=int(head["attention_mask"].sum(dtype=np.int64)),
+            maskable=int(cols["_maskable"][:n].sum()), targets=int(cols["_targets"][:n].sum()),
+            bytes=path.stat().st_size, sha256=file_sha256(path)))
+
+
+# ------------------------------------------------------------------ the task function
+
+@dataclass(frozen=True)
+class _Job:
+    out: str
+    tokenizer_json: str
+    tokenizer_name: str
+    tokenizer_hash: str
+    masking: MaskingConfig
+    packing: PackingConfig
+    shards: ShardConfig
+    corpus_options: Any
+    units: Any  # {n: (keys, scores)} or None
+    units_digest: str | None
+    run_digest: str
+    metadata: Mapping[str, Any] = field(default_factory=dict)
+
+
+_CACHE: dict[tuple[str, str], Any] = {}
+
+
+def _cached(kind: str, digest: str, make: Any) -> Any:
+    key = (kind, digest)
+    if key not in _CACHE:
+        if len(_CACHE) > 8:
+            _CACHE.clear()
+        _CACHE[key] = make()
+    return _CACHE[key]
+
+
+def _done_path(out: Path, task: int) -> Path:
+    return out / STATE_DIR / f"task-{task:05d}.json"
+
+
+def _shard_task(job: _Job, task: Any) -> dict[str, Any]:
+    """Encode, pack, mask and write one corpus task; returns its done-record."""
+    from ..corpus.reader import ReadStats, iter_batches
+    from ..masking.strategies import UnitTable
+    from ..tokenizer.encoding import encode_stream, tokenizer_from_json
+
+    out = Path(job.out)
+    info = _cached("tok", job.tokenizer_hash, lambda: tokenizer_from_json(job.tokenizer_json,
+                                                                          name=job.tokenizer_name))
+    table = None
+    if job.units is not None:
+        table = _cached("units", job.units_digest or "", lambda: UnitTable.from_by_length(job.units))
+    for stale in out.glob(f"shard-{task.index:05d}-*"):
+        stale.unlink()
+    mask_id = info.require_mask()
+    random_ids = info.normal_ids()
+    cfg, mcfg = job.shards, job.masking
+    writers = [_ShardWriter(out, task=task.index, copy=c, config=cfg, metadata=job.metadata)
+               for c in range(cfg.copies)]
+    stats = MaskStats()
+    read = ReadStats()
+    packer = TaskPacker(info, job.packing, task_index=task.index)
+
+    def emit(pb: Any) -> None:
+        units = None
+        for c, writer in enumerate(writers):
+            if units is None or mcfg.strategy is Strategy.SPAN:
+                units = strategy_units(pb.special, pb.word_ids, config=mcfg, sequence_ids=pb.sequence_ids,
+                                       seed=cfg.seed, copy=c, word_keys=pb.word_keys, word_kinds=pb.word_kinds,
+                                       units=table)
+            masked, labels = mask_batch(pb.input_ids, units, sequence_ids=pb.sequence_ids, seed=cfg.seed, copy=c,
+                                        config=mcfg, mask_token_id=mask_id, random_token_ids=random_ids)
+            stats.add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
+                      attention_mask=pb.attention_mask, mask_token_id=mask_id, first_copy=c == 0)
+            cols: dict[str, np.ndarray] = {"input_ids": pb.input_ids if cfg.dynamic else masked}
+            cols["unit_ids" if cfg.dynamic else "labels"] = units if cfg.dynamic else labels
+            cols["attention_mask"] = pb.attention_mask
+            cols["sequence_id"] = pb.sequence_ids
+            cols["_maskable"] = (units >= 0).sum(axis=1, dtype=np.int64)
+            cols["_targets"] = (labels != -100).sum(axis=1, dtype=np.int64)
+            writer.add(cols)
+
+    for encoded in encode_stream(info, iter_batches(task, job.corpus_options, read)):
+        for pb in packer.add(encoded):
+            emit(pb)
+    for pb in packer.finish():
+        emit(pb)
+    records = [r for w in writers for r in w.close()]
+    done = {"task": task.index, "run": job.run_digest, "shards": [asdict(r) for r in records],
+            "stats": stats.to_state(), "read": read.to_dict()}
+    atomic_write_text(_done_path(out, task.index), json.dumps(done, sort_keys=True) + "\n")
+    return done
+
+
+# ------------------------------------------------------------------ the driver
+
+def _prepare_dir(out: Path, *, overwrite: bool, resume: bool, options: Mapping[str, Any]) -> None:
+    if overwrite and resume:
+        raise MaskprepError("--overwrite and --resume exclude each other: pick one")
+    if out.exists() and not out.is_dir():
+        raise MaskprepError(f"-o {out}: exists and is not a directory")
+    entries = sorted(out.iterdir()) if out.is_dir() else []
+    state = out / STATE_DIR / "run.json"
+    if entries and resume:
+        if not state.is_file():
+            raise MaskprepError(f"--resume: {out} holds no unfinished maskprep mask run to resume "
+                                "(no .maskprep/run.json); use --overwrite to replace its contents")
+        old = read_json(state, what="run options")
+        diffs = [f"{k}: {json.dumps(old.get(k))} before, {json.dumps(options.get(k))} now"
+                 for k in sorted(set(old) | set(options)) if old.get(k) != options.get(k)]
+        if diffs:
+            raise MaskprepError(f"--resume: the options differ from the run in {out} ("
+                                + "; ".join(diffs) + "); rerun with the same options, or use --overwrite")
+        for tmp in [*out.glob(".*.tmp"), *(out / STATE_DIR).glob(".*.tmp")]:  # left by the interrupted run
+            tmp.unlink(missing_ok=True)
+        return
+    if entries and not overwrite:
+        raise MaskprepError(f"-o {out}: directory is not empty; pass --overwrite to replace it or --resume "
+                            "to finish an interrupted run")
+    if overwrite:
+        for p in entries:
+            if p.name in ("manifest.json", "stats.json", "tokenizer.json") or (p.name.startswith("shard-") and p.suffix in
+                                                              (".arrow", ".parquet")) \
+                    or (p.name.startswith(".shard-") and p.name.endswith(".tmp")) \
+                    or any(p.name.startswith(f".{n}.") for n in ("manifest.json", "stats.json", "tokenizer.json")):
+                p.unlink()
+            elif p.name == STATE_DIR and p.is_dir():
+                shutil.rmtree(p)
+    out.mkdir(parents=True, exist_ok=True)
+    atomic_write_text(state, _dump(dict(options)))
+
+
+def _finished(out: Path, task: int, run_digest: str) -> dict[str, Any] | None:
+    """The done-record of a task whose shard files all exist with the recorded sha256, else None."""
+    path = _done_path(out, task)
+    try:
+        rec = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    if rec.get("run") != run_digest:
+        return None
+    for s in rec.get("shards", []):
+        p = out / s["file"]
+        if not p.is_file() or p.stat().st_size != s["bytes"] or file_sha256(p) != s["sha256"]:
+            return None
+    return rec
+
+
+def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
+                 masking: MaskingConfig = MaskingConfig(), packing: PackingConfig = PackingConfig(),
+                 shards: ShardConfig = ShardConfig(), units: str | Path | None = None,
+                 corpus_options: Any = None, executor: Any = None, overwrite: bool = False,
+                 resume: bool = False) -> tuple[ShardManifest, dict[str, Any]]:
+    """Write masked (or unit-annotated) shards of a corpus; returns (manifest, stats).
+
+    >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json", output="shards")  # doctest: +SKIP
+    """
+    from ..corpus.reader import CorpusOptions, ReadStats, corpus_fingerprint, plan_tasks, resolve_inputs
+    from ..execute import Executor, map_tasks
+    from ..tokenizer.encoding import TokenizerInfo, load_tokenizer
+
+    corpus_options = corpus_options or CorpusOptions()
+    executor = executor or Executor()
+    info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
+    mask_id = info.require_mask()
+    cls_id, sep_id, pad_id = check_packing_tokenizer(info)
+    packing.check(info)
+    if shards.shard_rows * packing.seq_len >= 1 << 31:
+        raise MaskprepError(f"--shard-rows {shards.shard_rows} x --seq-len {packing.seq_len} tokens is too many "
+                            "for one shard; use fewer rows per shard")
+    by_length, units_digest = None, None
+    if masking.strategy is Strategy.PMI:
+        if units is None:
+            raise MaskprepError("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
+                                "(made by maskprep units)")
+        from ..units.files import read_units_for
+
+        vocab = read_units_for(units, info.hash)
+        by_length, units_digest = vocab.by_length(), file_sha256(units)
+    elif units is not None:
+        raise MaskprepError(f"--units is only used by --strategy pmi (this run uses {masking.strategy.value}); "
+                            "drop --units or pass --strategy pmi")
+
+    files = resolve_inputs(list(corpus))
+    tasks = plan_tasks(files, corpus_options)
+    fingerprint = corpus_fingerprint(files, corpus_options)
+    mcfg = {"strategy": masking.strategy.value, "rate": masking.rate, "mix": list(masking.mix),
+            "mix_per": masking.mix_per.value, "span_p": masking.span_p, "span_max": masking.span_max}
+    options = {**mcfg, "seq_len": packing.seq_len, "pack": packing.pack, "copies": shards.copies,
+               "seed": shards.seed, "format": shards.format, "shard_rows": shards.shard_rows,
+               "dynamic": shards.dynamic, "units_sha256": units_digest, "tokenizer_hash": info.hash,
+               "corpus_fingerprint": fingerprint, "doc_sep": corpus_options.doc_sep,
+               "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
+               "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__}
+    run_digest = hashlib.sha256(json.dumps(options, sort_keys=True).encode()).hexdigest()
+    out = Path(output)
+    _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
+
+    special_ids = [int(i) for i in info.special_ids]
+    metadata = {"kind": "maskprep-shard", "format_version": FORMAT_VERSION,
+                "layout": "dynamic" if shards.dynamic else "static", **mcfg, "seed": shards.seed,
+                "copies": shards.copies, "seq_len": packing.seq_len, "pack": packing.pack,
+                "mask_token_id": mask_id, "special_ids": special_ids, "cls_id": cls_id, "sep_id": sep_id,
+                "pad_id": pad_id, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
+                "units_sha256": units_digest}
+    # tasks get absolute paths: a Dask worker's working directory is not the driver's
+    job = _Job(out=os.path.abspath(out), tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
+               masking=masking, packing=packing, shards=shards, corpus_options=corpus_options, units=by_length,
+               units_digest=units_digest, run_digest=run_digest, metadata=metadata)
+    done: dict[int, dict[str, Any]] = {}
+    if resume:
+        for t in tasks:
+            rec = _finished(out, t.index, run_digest)
+            if rec is not None:
+                done[t.index] = rec
+    todo = [t for t in tasks if t.index not in done]
+    args = [(job, dataclasses.replace(t, path=os.path.abspath(t.path))) for t in todo]
+    for rec in map_tasks(_shard_task, args, executor=executor, label="mask", describe=lambda i: todo[i].describe(),
+                         shared=out):
+        done[rec["task"]] = rec
+
+    stats, read = MaskStats(), ReadStats()
+    records: list[ShardRecord] = []
+    for t in tasks:
+        rec = done[t.index]
+        stats.merge(MaskStats.from_state(rec["stats"]))
+        r = rec["read"]
+        read.merge(ReadStats(r["documents"], r["empty_skipped"], r["invalid_utf8_replaced"], r["bytes_read"]))
+        records.extend(ShardRecord(**s) for s in rec["shards"])
+    totals = {"shards": len(records), "rows": stats.rows, "sequences": stats.sequences, "tokens": stats.tokens,
+              "maskable": stats.maskable, "targets": stats.targets}
+    manifest = ShardManifest(
+        options=options, tokenizer={**info.describe(), "mask_token_id": mask_id, "special_ids": special_ids},
+        corpus={"files": [str(f) for f in files], "tasks": len(tasks), **read.to_dict()},
+        totals=totals, shards=tuple(records), maskprep_version=__version__)
+    stats_doc = stats.to_dict(seed=shards.seed, layout=metadata["layout"], options=options,
+                              note="rate is over maskable (non-special) tokens; each sequence's budget is "
+                                   "round(rate x its maskable tokens), so per-sequence rates vary"
+                                   + ("; dynamic shards: figures of mask_batch with copy = the shard's copy"
+                                      if shards.dynamic else ""))
+    _write_text(out / "tokenizer.json", info.json)
+    _write_text(out / "stats.json", _dump(stats_doc))
+    _write_text(out / "manifest.json", _dump(manifest.to_json()))
+    return manifest, stats_doc
+
+
+# ------------------------------------------------------------------ reading
+
+def open_shards(directory: str | Path) -> Any:
+    """Open a finished shards directory (a `maskprep.shards.read.ShardSet`): ``for batch in open_shards("shards/"): ...``."""
+    from .read import ShardSet
+
+    return ShardSet(directory)

@@ -1,0 +1,156 @@
+"""Train tokenizers for the later stages: WordPiece, byte-level BPE or Unigram.
+
+`train_tokenizer` trains on an iterable of documents and gives each tokenizer
+the five special tokens the later stages need (padding, unknown, sequence
+start, separator, mask) and a post-processor template that puts the start
+and separator tokens around a sequence. `TrainConfig` says which family and
+size; `check_trained_size` refuses a tokenizer that stopped short of it.
+WordPiece vocabularies are renumbered in a fixed order after training, so
+ids depend only on which tokens exist.
+
+It does not load, save or encode with tokenizers (see tokenize.py).
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+from dataclasses import dataclass
+from typing import Any, Iterable, Iterator
+
+from ..errors import MaskprepError
+from .encoding import TokenizerInfo
+
+MODELS = ("wordpiece", "bpe", "unigram")
+# Special tokens of tokenizers trained here, by role.
+SPECIALS = {
+    "wordpiece": {"pad": "[PAD]", "unk": "[UNK]", "cls": "[CLS]", "sep": "[SEP]", "mask": "[MASK]"},
+    "bpe": {"pad": "<pad>", "unk": "<unk>", "cls": "<s>", "sep": "</s>", "mask": "<mask>"},
+    "unigram": {"pad": "<pad>", "unk": "<unk>", "cls": "<s>", "sep": "</s>", "mask": "<mask>"},
+}
+
+
+@dataclass(frozen=True)
+class TrainConfig:
+    """How to train a tokenizer: ``TrainConfig(model="wordpiece", vocab_size=8000)``."""
+
+    model: str = "wordpiece"
+    vocab_size: int = 30000
+    lowercase: bool = True
+    min_frequency: int = 0  # the library default: keep every pair, so a small corpus can reach large sizes
+
+    def __post_init__(self) -> None:
+        if self.model not in MODELS:
+            raise MaskprepError(f"--model: expected one of {', '.join(MODELS)}, got {self.model!r}")
+        if not isinstance(self.vocab_size, int) or self.vocab_size < 100:
+            raise MaskprepError(f"--vocab-size: {self.vocab_size} is too small; use at least 100")
+        if self.vocab_size > 2_000_000:
+            raise MaskprepError(f"--vocab-size: {self.vocab_size} is absurdly large; use at most 2,000,000")
+
+
+def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
+    """An untrained tokenizer and its trainer for `config`."""
+    from tokenizers import Tokenizer, decoders, models, normalizers, pre_tokenizers, processors, trainers
+
+    sp = SPECIALS[config.model]
+    special_list = [sp["pad"], sp["unk"], sp["cls"], sp["sep"], sp["mask"]]
+    if config.model == "wordpiece":
+        tok = Tokenizer(models.WordPiece(unk_token=sp["unk"]))
+        tok.normalizer = normalizers.BertNormalizer(lowercase=config.lowercase, clean_text=True,
+                                                    handle_chinese_chars=True, strip_accents=None)
+        tok.pre_tokenizer = pre_tokenizers.BertPreTokenizer()
+        tok.decoder = decoders.WordPiece(cleanup=False)
+        trainer = trainers.WordPieceTrainer(vocab_size=config.vocab_size, special_tokens=special_list,
+                                            min_frequency=config.min_frequency, show_progress=False)
+    elif config.model == "bpe":
+        tok = Tokenizer(models.BPE(unk_token=None))
+        norms = [normalizers.NFC()] + ([normalizers.Lowercase()] if config.lowercase else [])
+        tok.normalizer = normalizers.Sequence(norms)
+        tok.pre_tokenizer = pre_tokenizers.ByteLevel(add_prefix_space=True)
+        tok.decoder = decoders.ByteLevel()
+        trainer = trainers.BpeTrainer(vocab_size=config.vocab_size, special_tokens=special_list,
+                                      min_frequency=config.min_frequency, show_progress=False,
+                                      initial_alphabet=pre_tokenizers.ByteLevel.alphabet())
+    else:
+        tok = Tokenizer(models.Unigram())
+        from tokenizers import Regex
+
+        norms = [normalizers.NFKC(), normalizers.Replace(Regex(r"\s+"), " ")]
+        norms += [normalizers.Lowercase()] if config.lowercase else []
+        tok.normalizer = normalizers.Sequence(norms)
+        # Metaspace alone would glue punctuation to words ("venice."); split it off.
+        tok.pre_tokenizer = pre_tokenizers.Sequence([pre_tokenizers.Metaspace(), pre_tokenizers.Punctuation()])
+        tok.decoder = decoders.Metaspace()
+        trainer = trainers.UnigramTrainer(vocab_size=config.vocab_size, special_tokens=special_list,
+                                          unk_token=sp["unk"], show_progress=False)
+    cls, sep = sp["cls"], sp["sep"]
+    tok.post_processor = processors.TemplateProcessing(
+        single=f"{cls} $A {sep}", pair=f"{cls} $A {sep} $B:1 {sep}:1",
+        special_tokens=[(cls, special_list.index(cls)), (sep, special_list.index(sep))])
+    return tok, trainer
+
+
+def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *,
+                    name: str | None = None, check_size: bool = True) -> TokenizerInfo:
+    """Train a tokenizer on an iterable of documents.
+
+    >>> info = train_tokenizer(iter_corpus(["sample_corpus"]), TrainConfig(vocab_size=2000))  # doctest: +SKIP
+    >>> info.vocab_size  # doctest: +SKIP
+    2000
+    """
+    tok, trainer = build_empty_tokenizer(config)
+    tok.train_from_iterator(_batched(texts), trainer=trainer)
+    from tokenizers import Tokenizer
+
+    # One save/load round trip settles float formatting, so the hash of the
+    # tokenizer in memory equals the hash of the file it is saved to.
+    tok = Tokenizer.from_str(_canonical_ids(tok.to_str()))
+    info = TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
+    if check_size:
+        check_trained_size(info, config)
+    return info
+
+
+def _canonical_ids(text: str) -> str:
+    """Give a trained WordPiece vocabulary ids in a fixed order.
+
+    The library's WordPiece trainer numbers its tokens in an order that varies
+    from run to run (its alphabet comes from a hash map), and breaks ties
+    between equally frequent merges differently, so a few tokens can differ.
+    WordPiece encoding depends only on which tokens exist, so special tokens
+    keep their ids and the others are numbered in sorted order: ids are then a
+    function of the token set. (Byte-level BPE training is reproducible as it
+    is; Unigram scores vary in their last digits between runs.) Train once and
+    reuse the file when outputs must be byte-identical across runs.
+    """
+    spec = json.loads(text)
+    model = spec.get("model") or {}
+    if model.get("type") != "WordPiece":
+        return text
+    special = {t["content"]: t["id"] for t in spec.get("added_tokens", []) if t.get("special")}
+    vocab = model["vocab"]
+    rest = sorted(t for t in vocab if t not in special)
+    renumbered = dict(sorted(special.items(), key=lambda kv: kv[1]))
+    next_id = 0
+    taken = set(renumbered.values())
+    for t in rest:
+        while next_id in taken:
+            next_id += 1
+        renumbered[t] = next_id
+        next_id += 1
+    model["vocab"] = dict(sorted(renumbered.items(), key=lambda kv: kv[1]))
+    return json.dumps(spec, ensure_ascii=False)
+
+
+def check_trained_size(info: TokenizerInfo, config: TrainConfig) -> None:
+    """Raise if training stopped short of the requested vocabulary size."""
+    if info.vocab_size < config.vocab_size:
+        raise MaskprepError(
+            f"--vocab-size {config.vocab_size} is larger than this corpus supports for {config.model}: "
+            f"training reached {info.vocab_size} tokens; use a smaller size or a larger corpus")
+
+
+def _batched(texts: Iterable[str], size: int = 1000) -> Iterator[list[str]]:
+    it = iter(texts)
+    while batch := list(itertools.islice(it, size)):
+        yield batch
