@@ -459,7 +459,13 @@ def run_cmd(ctx: click.Context, config: str, output: str | None, force: bool) ->
 
     Stages (tables): corpus, tokenizer, audit, count, units, mask, compare. A stage
     whose inputs, options and code are unchanged is skipped; a changed option reruns
-    that stage and the stages downstream of it. See sample_corpus/*.toml for examples.
+    that stage and the stages downstream of it. Paths in the file are relative to the file.
+
+    Worked examples (demo.toml, minimal.toml, pmi-study.toml) come with the bundled sample
+    corpus, whose folder `maskprep demo --where` prints (sample_corpus/ in the repository):
+
+    \b
+        maskprep run "$(maskprep demo --where)/minimal.toml" -o prep-minimal
     """
     from .pipeline.runner import run_pipeline
 
@@ -471,17 +477,23 @@ def run_cmd(ctx: click.Context, config: str, output: str | None, force: bool) ->
 @click.option("-o", "--output", type=click.Path(file_okay=False), default="maskprep-demo", show_default=True,
               help="Output directory.")
 @click.option("--force", is_flag=True, help="Rerun every stage, even those that are up to date.")
+@click.option("--where", is_flag=True,
+              help="Print the folder of the bundled sample corpus and its TOML files, and exit.")
 @click.pass_context
 @user_errors
-def demo_cmd(ctx: click.Context, output: str, force: bool) -> None:
-    """Run the whole pipeline on the bundled, invented sample corpus (sample_corpus/demo.toml).
+def demo_cmd(ctx: click.Context, output: str, force: bool, where: bool) -> None:
+    """Run the whole pipeline on the bundled, invented sample corpus (its demo.toml).
 
     Trains a tokenizer, audits it, counts n-grams, picks PMI units, masks with every
     strategy and compares them. The sample text is synthetic: its figures show how
-    the tool works, not how real text behaves.
+    the tool works, not how real text behaves. The corpus is installed with maskprep
+    (sample_corpus/ in the repository); --where prints its folder.
     """
-    from .pipeline.runner import run_demo
+    from .pipeline.runner import run_demo, sample_corpus_dir
 
+    if where:
+        click.echo(str(sample_corpus_dir()))
+        return
     result = run_demo(output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
     _print_run(result)
     click.echo("note: the sample corpus is synthetic (templated text with planted terms); do not read its "

@@ -4,6 +4,6 @@ Checks the TOML file, runs the stages in order with fingerprints, skips the ones
 """
 
 from .config import RunConfig, load_run_config
-from .runner import run_demo, run_pipeline
+from .runner import run_demo, run_pipeline, sample_corpus_dir
 
-__all__ = ["RunConfig", "load_run_config", "run_demo", "run_pipeline"]
+__all__ = ["RunConfig", "load_run_config", "run_demo", "run_pipeline", "sample_corpus_dir"]

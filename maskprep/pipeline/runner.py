@@ -18,13 +18,14 @@ is replaced. A changed option therefore reruns that stage and the stages that
 use its output or inherit the option (e.g. [mask] rate also reaches compare),
 nothing else. ``force=True`` reruns everything.
 
-`run_demo` runs ``sample_corpus/demo.toml`` from the repository checkout.
+`run_demo` runs ``demo.toml`` of the bundled sample corpus (`sample_corpus_dir`).
 This module computes nothing itself; it calls each stage's library function.
 """
 
 from __future__ import annotations
 
 import hashlib
+import importlib.resources
 import json
 import shutil
 import time
@@ -315,17 +316,24 @@ def _count(corpus: list[str], tokenizer: Path, output: Path, config: Any, corpus
 
 
 def sample_corpus_dir() -> Path:
-    """The bundled sample corpus of a repository checkout (``<repo>/sample_corpus``).
+    """The bundled sample corpus: the installed package data, else a checkout's ``sample_corpus/``.
 
-    >>> sample_corpus_dir().name  # doctest: +SKIP
-    'sample_corpus'
+    ``pip install .`` (or a wheel) installs it as ``maskprep/sample_corpus/``; an
+    editable install or a checkout on ``PYTHONPATH`` has it at ``<repo>/sample_corpus``.
+
+    >>> (sample_corpus_dir() / "demo.toml").is_file()  # doctest: +SKIP
+    True
     """
-    d = Path(__file__).resolve().parents[2] / "sample_corpus"  # the package's parent: the checkout
-    if not (d / "demo.toml").is_file():
-        raise MaskprepError(f"{d}: the sample corpus (with demo.toml) is not there; maskprep demo runs from a "
-                            "clone of the repository installed with pip install -e . (a wheel does not ship "
-                            "sample_corpus/)")
-    return d
+    packaged = importlib.resources.files("maskprep") / "sample_corpus"
+    checkout = Path(__file__).resolve().parents[2] / "sample_corpus"  # <repo>/maskprep/pipeline/..
+    places: list[Path] = [packaged] if isinstance(packaged, Path) else []  # not so inside a zip
+    places.append(checkout)
+    for d in places:
+        if (d / "demo.toml").is_file():
+            return d
+    raise MaskprepError("the sample corpus (with demo.toml) is not installed: looked in "
+                        + " and ".join(str(d) for d in places)
+                        + "; reinstall maskprep (pip install .) or run from a clone of the repository")
 
 
 def run_demo(*, output: str | Path = "maskprep-demo", force: bool = False, executor: Any = None,
