@@ -114,11 +114,16 @@ def _call_remote(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
     return _call(fn, args)
 
 
-def _no_lookahead() -> None:
-    """Workers share the cores with other workers: no encoding thread beside the task's own."""
-    from .tokenizer.encoding import set_encode_ahead
+ENCODE_AHEAD_ENV = "MASKPREP_ENCODE_AHEAD"
 
-    set_encode_ahead(False)
+
+def _no_lookahead() -> None:
+    """Workers share the cores with other workers: no encoding thread beside the task's own.
+
+    Said through the environment (read by `tokenizer.encoding.encode_stream`), so this
+    module imports no stage.
+    """
+    os.environ[ENCODE_AHEAD_ENV] = "0"
 
 
 def _worker_init(parent: int) -> None:

@@ -67,7 +67,8 @@ from conftest import shakespeare_files, speeches  # noqa: E402
 
 from maskprep.corpus.reader import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
 from maskprep.execute import Executor, map_tasks  # noqa: E402
-from maskprep.count.driver import TASK_BYTES, ChunkCounter, CountConfig, finish_counts, task_share  # noqa: E402
+from maskprep.count.driver import TASK_BYTES, CountConfig, finish_counts, task_share  # noqa: E402
+from maskprep.count.task import ChunkCounter  # noqa: E402
 from maskprep.tokenizer.encoding import WORD, SPACE, encode_stream, load_tokenizer, save_tokenizer, \
     tokenizer_from_json  # noqa: E402
 from maskprep.tokenizer.train import TrainConfig, train_tokenizer  # noqa: E402
@@ -151,7 +152,7 @@ def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[
 
 
 def count_encoded(path: str, tokenizer_json: str, max_n: int, spill_dir: str, share: int) -> Any:
-    """Task function: `count_chunk` from already encoded batches (the tokenizer's word types come along)."""
+    """Task function: `count_task` from already encoded batches (the tokenizer's word types come along)."""
     with open(path, "rb") as fh:
         index, batches, words = pickle.load(fh)
     info = tokenizer_from_json(tokenizer_json)

@@ -16,7 +16,7 @@ import pytest
 from click.testing import CliRunner
 
 from maskprep.cli import cli
-from maskprep.shards.write import open_shards
+from maskprep.shards.read import open_shards
 
 
 @pytest.fixture(scope="module")

@@ -27,7 +27,8 @@ from maskprep.corpus.reader import iter_corpus
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
 from maskprep.count.files import Vocabulary
-from maskprep.count.driver import ChunkCounter, CountConfig, count_ngrams, parse_memory
+from maskprep.count.driver import CountConfig, count_ngrams, parse_memory
+from maskprep.count.task import ChunkCounter
 from maskprep.count.kernels import count_windows, reduce_rows, reduce_table
 from maskprep.tokenizer.encoding import SPACE, WORD, encode_documents, load_tokenizer
 

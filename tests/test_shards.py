@@ -20,7 +20,8 @@ from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
 from maskprep.masking.sampler import MaskingConfig, mask_batch, strategy_units
 from maskprep.packing import PackingConfig, pack_batches
-from maskprep.shards.write import ShardConfig, open_shards, write_shards
+from maskprep.shards.read import open_shards
+from maskprep.shards.write import ShardConfig, write_shards
 from maskprep.tokenizer.encoding import load_tokenizer
 
 from conftest import deal_lines

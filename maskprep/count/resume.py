@@ -10,7 +10,7 @@ Layout, inside COUNTS_DIR while a count is unfinished::
                                   merged key ranges, staged Parquet files)
 
 `count_recorded` is the task function: it counts one corpus task into a
-fresh attempt directory (`ngrams.count_chunk`), flushes the files to disk,
+fresh attempt directory (`ngrams.count_task`), flushes the files to disk,
 and writes a done-record listing every file with its size and sha256 under
 a temporary name, renamed into place. On `--resume`, a task whose record
 matches this run and whose files all still have their recorded size and
@@ -46,6 +46,9 @@ import numpy as np
 from .._version import __version__
 from ..errors import MaskprepError
 from .._files import atomic_write_text, file_sha256, read_json
+from .spills import RunInfo
+from .task import count_task
+from .types import CountSummary, TaskCounts
 
 __all__ = ["STATE_DIR", "CountState", "run_identity", "open_state", "count_recorded", "finished_summary", "file_sha256"]
 
@@ -207,8 +210,6 @@ def finished_summary(output: Path, *, tasks: int, started: float) -> Any:
     """
     import time
 
-    from .driver import CountSummary
-
     meta = read_json(output / "counts.json", what="counts.json")
     try:
         max_n = int(meta["max_n"])
@@ -241,17 +242,15 @@ def _entry(root: Path, path: str | Path) -> dict[str, Any]:
 
 def count_recorded(task: Any, tokenizer_json: str, config: Any, state_dir: str, corpus_options: Any, share: int,
                    digest: str) -> Any:
-    """Task function: `ngrams.count_chunk` into a fresh attempt directory, then its done-record.
+    """Task function: `ngrams.count_task` into a fresh attempt directory, then its done-record.
 
     >>> count_recorded(task, info.json, CountConfig(), "counts/.maskprep-count", CorpusOptions(), 1 << 28, digest)  # doctest: +SKIP
     """
-    from .driver import count_chunk
-
     root = Path(state_dir)
     attempt = root / f"t{task.index:06d}-{uuid.uuid4().hex[:12]}"
     attempt.mkdir()
     try:
-        result = count_chunk(task, tokenizer_json, config, str(attempt), corpus_options, share)
+        result = count_task(task, tokenizer_json, config, str(attempt), corpus_options, share)
     except BaseException:
         shutil.rmtree(attempt, ignore_errors=True)  # a failed attempt leaves nothing behind
         raise
@@ -273,10 +272,7 @@ def _intact(root: Path, entry: Mapping[str, Any]) -> bool:
 
 
 def _read_record(root: Path, path: Path, digest: str) -> Any:
-    """The ChunkResult of a done-record whose files are all intact, else None."""
-    from .driver import ChunkResult
-    from .spills import RunInfo
-
+    """The TaskCounts of a done-record whose files are all intact, else None."""
     try:
         rec = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
@@ -289,7 +285,7 @@ def _read_record(root: Path, path: Path, digest: str) -> Any:
             return None
         runs = [RunInfo(str(root / r["file"]), int(r["n"]), int(r["rows"]), np.asarray(r["offsets"], np.int64))
                 for r in rec["runs"]]
-        return ChunkResult(task_index=int(rec["task"]), runs=runs, totals=[int(x) for x in rec["totals"]],
+        return TaskCounts(task_index=int(rec["task"]), runs=runs, totals=[int(x) for x in rec["totals"]],
                            words_path=str(root / rec["words_file"]["file"]), words=int(rec["words"]),
                            flushes=int(rec["flushes"]), documents=int(rec["documents"]))
     except (KeyError, TypeError, ValueError):

@@ -1,8 +1,8 @@
 """Stage 8, shards: write training-ready Arrow/Parquet shards, read them back, verify and show them."""
 
 from .check import format_examples, verify_shards
-from .read import ShardSet
-from .write import ShardConfig, ShardManifest, open_shards, write_shards
+from .read import ShardSet, open_shards
+from .write import ShardConfig, ShardManifest, write_shards
 
 __all__ = ["ShardConfig", "ShardManifest", "ShardSet", "format_examples", "open_shards",
            "verify_shards", "write_shards"]

@@ -32,7 +32,8 @@ import numpy as np
 from ..errors import MaskprepError
 from .._files import read_json
 from ..masking.sampler import IGNORE_LABEL
-from .write import METADATA_KEY, ShardRecord, file_sha256, open_shards
+from .read import open_shards
+from .write import METADATA_KEY, ShardRecord, file_sha256
 from .read import ShardSet, to_numpy
 
 __all__ = ["VerifyReport", "verify_shards", "format_examples"]

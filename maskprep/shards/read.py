@@ -74,6 +74,12 @@ class ShardSet:
     def __len__(self) -> int:
         return sum(s.rows for s in self.manifest.shards)
 
+    def __repr__(self) -> str:
+        kind = "dynamic" if self.dynamic else "static"
+        return (f"ShardSet({str(self.directory)!r}: {len(self)} rows in {len(self.files)} "
+                f"{self.options.get('format', '?')} files, {kind}, "
+                f"strategy {self.options.get('strategy', '?')})")
+
     def __iter__(self) -> Iterator[dict[str, np.ndarray]]:
         for record in self.manifest.shards:
             yield from self.file_batches(record)
@@ -138,3 +144,12 @@ class ShardSet:
                           seed=self.options["seed"] if seed is None else seed, copy=copy,
                           config=self.masking_config(), mask_token_id=int(self.manifest.tokenizer["mask_token_id"]),
                           random_token_ids=self.random_token_ids())
+
+
+def open_shards(directory: str | Path) -> ShardSet:
+    """Open a finished shards directory: ``for batch in open_shards("shards/"): ...``.
+
+    >>> open_shards("maskprep-demo/mask/pmi").manifest.strategy  # doctest: +SKIP
+    'pmi'
+    """
+    return ShardSet(directory)

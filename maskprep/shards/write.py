@@ -61,7 +61,7 @@ from ..masking.sampler import MaskingConfig, Strategy, mask_batch, strategy_unit
 from ..packing import PackingConfig, TaskPacker, check_packing_tokenizer
 from ..stats.masks import MaskStats
 
-__all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards", "open_shards",
+__all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards",
            "FORMAT_VERSION", "METADATA_KEY"]
 
 FORMAT_VERSION = 1
@@ -484,9 +484,3 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
 
 
 # ------------------------------------------------------------------ reading
-
-def open_shards(directory: str | Path) -> Any:
-    """Open a finished shards directory (a `maskprep.shards.read.ShardSet`): ``for batch in open_shards("shards/"): ...``."""
-    from .read import ShardSet
-
-    return ShardSet(directory)

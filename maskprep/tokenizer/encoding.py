@@ -18,6 +18,7 @@ tokens (see packing.py).
 
 from __future__ import annotations
 
+import os
 import hashlib
 import itertools
 import json
@@ -29,6 +30,7 @@ import numpy as np
 import regex
 
 from ..errors import MaskprepError
+from ..execute import ENCODE_AHEAD_ENV, default_workers
 
 # Word kinds.
 WORD, PUNCT, SPACE, SPECIAL = 0, 1, 2, 3
@@ -208,17 +210,15 @@ def encode_documents(info: TokenizerInfo, texts: list[str]) -> EncodedBatch:
     return _from_encodings(info, info.tokenizer.encode_batch(texts, add_special_tokens=False))
 
 
-_ENCODE_AHEAD = [True]
-
-
 def set_encode_ahead(enabled: bool) -> None:
     """Turn the look-ahead thread of `encode_stream` on or off for this process.
 
-    Off in pool and Dask workers, where other processes already keep every
-    core busy: there the helper thread only adds contention (measured with
+    Off in pool and Dask workers (`execute` says so through the environment variable
+    ``MASKPREP_ENCODE_AHEAD=0``), where other processes already keep every core busy:
+    there the helper thread only adds contention (measured with
     ``scripts/bench_workers.py``: about 8% more CPU and 3x the system time).
     """
-    _ENCODE_AHEAD[0] = bool(enabled)
+    os.environ[ENCODE_AHEAD_ENV] = "1" if enabled else "0"
 
 
 def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator[EncodedBatch]:
@@ -236,10 +236,9 @@ def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator
     def raw(texts: list[str]) -> list[Any]:
         return info.tokenizer.encode_batch(texts, add_special_tokens=False)
 
-    from ..execute import default_workers
 
     it = iter(batches)
-    if not _ENCODE_AHEAD[0] or default_workers() < 2:
+    if os.environ.get(ENCODE_AHEAD_ENV) == "0" or default_workers() < 2:
         for texts in it:
             yield _from_encodings(info, raw(texts))
         return

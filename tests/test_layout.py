@@ -1,0 +1,104 @@
+"""The package's shape: stages as subpackages, no import cycles, short modules and lines."""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+import maskprep
+
+PACKAGE = Path(maskprep.__file__).resolve().parent
+
+
+def _module_name(path: Path) -> str:
+    rel = path.relative_to(PACKAGE.parent).with_suffix("")
+    parts = list(rel.parts)
+    if parts[-1] == "__init__":
+        parts.pop()
+    return ".".join(parts)
+
+
+def _imports() -> dict[str, set[str]]:
+    """Every import (module level and inside functions) between the package's own modules."""
+    modules = {_module_name(p): p for p in PACKAGE.rglob("*.py")}
+    graph: dict[str, set[str]] = {m: set() for m in modules}
+    for name, path in modules.items():
+        is_pkg = path.name == "__init__.py"
+        base = name.split(".") if is_pkg else name.split(".")[:-1]
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            targets: list[str] = []
+            if isinstance(node, ast.ImportFrom):
+                if node.level:
+                    anchor = base[: len(base) - (node.level - 1)]
+                    mod = ".".join(anchor + ([node.module] if node.module else []))
+                else:
+                    mod = node.module or ""
+                targets.append(mod)
+                targets += [f"{mod}.{a.name}" for a in node.names]  # `from . import charts`
+            elif isinstance(node, ast.Import):
+                targets += [a.name for a in node.names]
+            for t in targets:
+                if t in modules and t != name:
+                    graph[name].add(t)
+    return graph
+
+
+def _cycle(graph: dict[str, set[str]]) -> list[str] | None:
+    """One import cycle between modules (not counting a package's own __init__ re-exports)."""
+    state: dict[str, int] = {}
+    stack: list[str] = []
+
+    def visit(m: str) -> list[str] | None:
+        state[m] = 1
+        stack.append(m)
+        for t in sorted(graph[m]):
+            # a package's __init__ re-exports its own modules: importing one of them
+            # from inside the package is not a cycle through the __init__
+            if m.startswith(t + "."):
+                continue
+            if state.get(t) == 1:
+                return stack[stack.index(t):] + [t]
+            if t not in state and (found := visit(t)):
+                return found
+        stack.pop()
+        state[m] = 2
+        return None
+
+    for m in sorted(graph):
+        if m not in state and (found := visit(m)):
+            return found
+    return None
+
+
+def test_no_import_cycles() -> None:
+    cycle = _cycle(_imports())
+    assert cycle is None, "import cycle: " + " -> ".join(cycle or [])
+
+
+def test_cycle_finder_finds_a_cycle() -> None:
+    assert _cycle({"a": {"b"}, "b": {"c"}, "c": {"a"}}) == ["a", "b", "c", "a"]
+    assert _cycle({"a": {"b"}, "b": set()}) is None
+
+
+def test_stages_are_subpackages_in_data_flow_order() -> None:
+    stages = ["corpus", "tokenizer", "audit", "count", "units", "masking", "stats", "shards",
+              "compare", "report", "pipeline"]
+    for stage in stages:
+        assert (PACKAGE / stage / "__init__.py").is_file(), stage
+        doc = ast.get_docstring(ast.parse((PACKAGE / stage / "__init__.py").read_text()))
+        assert doc, f"{stage}/__init__.py has no docstring saying what the stage does"
+
+
+def test_every_module_has_a_docstring_and_stays_short() -> None:
+    for path in sorted(PACKAGE.rglob("*.py")):
+        text = path.read_text(encoding="utf-8")
+        assert ast.get_docstring(ast.parse(text)), f"{path.relative_to(PACKAGE)}: no module docstring"
+        lines = text.count("\n")
+        assert lines <= 560, f"{path.relative_to(PACKAGE)}: {lines} lines (split it by concept)"
+
+
+def test_public_api_is_explicit() -> None:
+    source = (PACKAGE / "__init__.py").read_text(encoding="utf-8")
+    assert "__getattr__" not in source and "import_module" not in source
+    for name in maskprep.__all__:
+        assert name in dir(maskprep), name
