@@ -316,14 +316,14 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output
     and a copy of the tokenizer. Same inputs, options and seed give
     byte-identical shards whatever the number of workers.
     """
-    from .masking.sampler import MaskingConfig
+    from .masking.sampler import MaskingConfig, MixPer, Strategy, parse_mix
     from .packing import PackingConfig
     from .shards.write import ShardConfig, write_shards
 
     if overwrite and resume:
         raise MaskprepError("--overwrite and --resume exclude each other: pick one")
-    masking = MaskingConfig(strategy=strategy, rate=rate, mix=mix, mix_per=mix_per, span_p=span_p,
-                            span_max=span_max)
+    masking = MaskingConfig(strategy=Strategy(strategy), rate=rate, mix=parse_mix(mix),
+                            mix_per=MixPer(mix_per), span_p=span_p, span_max=span_max)
     packing = PackingConfig(seq_len=seq_len, pack=not no_pack)
     shards = ShardConfig(format=fmt, shard_rows=shard_rows, copies=copies, seed=seed, dynamic=dynamic)
     manifest, stats = write_shards(list(corpus), tokenizer=tokenizer, output=output, masking=masking,
@@ -423,9 +423,11 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, uni
     within-unit leakage, easy-target share, targets by word-frequency band and per
     sequence. Writes DIR/compare.json and DIR/compare.html and prints a table.
     """
-    from .compare.run import CompareConfig, compare_strategies, format_compare_table
+    from .compare.run import CompareConfig, compare_strategies, format_compare_table, parse_strategies
+    from .masking.sampler import MixPer, parse_mix
 
-    config = CompareConfig(strategies=strategies, rate=rate, mix=mix, mix_per=mix_per, span_p=span_p,
+    config = CompareConfig(strategies=parse_strategies(strategies), rate=rate, mix=parse_mix(mix),
+                           mix_per=MixPer(mix_per), span_p=span_p,
                            span_max=span_max, seq_len=seq_len, pack=not no_pack, seed=seed,
                            sample=_parse_sample(sample), examples=examples)
     doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,

@@ -211,10 +211,10 @@ class TaskPacker:
             flat = row * L + 1 + k % piece
 
         def place(values: np.ndarray, fill: int, first: int, dtype: type) -> np.ndarray:
-            out = np.full((B, L), fill, dtype=dtype)
+            out: np.ndarray = np.full((B, L), fill, dtype=dtype)
             out[:, 0] = first
             if flat is None:
-                body = np.full(B * piece, fill, dtype=dtype)
+                body: np.ndarray = np.full(B * piece, fill, dtype=dtype)
                 body[:S] = values
                 out[:, 1:] = body.reshape(B, piece)
             else:

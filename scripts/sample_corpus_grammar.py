@@ -118,7 +118,10 @@ class Grammar:
 
     def __init__(self, rng: np.random.Generator, today: dt.date) -> None:
         self.u = Uniform(rng)
-        mk = lambda items, **kw: Picker(rng, items, **kw)
+
+        def mk(items, **kw):
+            return Picker(rng, items, **kw)
+
         v = build_vocabulary()
         self.noun_sing = mk([n[0] for n in v.nouns])
         self.noun_plur = mk([n[1] for n in v.nouns])

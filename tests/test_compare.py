@@ -127,7 +127,7 @@ def test_compare_figures_equal_stats_json_of_mask_for_each_strategy(comparison, 
 
 
 def test_targets_per_sequence_add_up(comparison):
-    for name, f in comparison[1]["strategies"].items():
+    for f in comparison[1]["strategies"].values():
         hist = f["targets_per_sequence"]["histogram"]
         assert sum(hist.values()) == f["rows"]
         assert sum(int(k) * v for k, v in hist.items()) == f["targets"]

@@ -70,7 +70,7 @@ def reference(rows, mask_id):
             for pos, (u, x) in enumerate(zip(uni, lab)):
                 if x != -100:
                     taken.setdefault(u, []).append(pos)
-            for u, positions in taken.items():
+            for positions in taken.values():
                 nw = len({wid[p] for p in positions})
                 unit_tok[len(positions)] += 1
                 unit_words[nw] += 1

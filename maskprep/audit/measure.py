@@ -20,7 +20,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -278,7 +278,7 @@ def format_audit_table(doc: dict[str, Any]) -> str:
     return "\n".join(out)
 
 
-def _format_rows(rows: list[tuple[str, ...]]) -> str:
+def _format_rows(rows: Sequence[tuple[str, ...]]) -> str:
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
     lines = []
     for j, r in enumerate(rows):

@@ -27,7 +27,7 @@ import dataclasses
 import math
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 
@@ -103,7 +103,7 @@ class CompareConfig:
         packing = PackingConfig(seq_len=self.seq_len, pack=self.pack)
         check_seed(self.seed, 0)
         set_ = object.__setattr__
-        set_(self, "strategies", parse_strategies(self.strategies))  # type: ignore[arg-type]
+        set_(self, "strategies", parse_strategies(self.strategies))
         for name in ("rate", "mix", "mix_per", "span_p", "span_max"):
             set_(self, name, getattr(base, name))
         set_(self, "seq_len", packing.seq_len)
@@ -225,7 +225,7 @@ def _compare_task(job: _Job, task: Any, quota: int | None) -> dict[str, Any]:
             "examples": (examples + fallback)[:cfg.examples]}
 
 
-def _pick_examples(pb: PackedBatch, rows: dict[Strategy, tuple[np.ndarray, ...]], groups: np.ndarray | None,
+def _pick_examples(pb: PackedBatch, rows: Mapping[Strategy, tuple[np.ndarray, ...]], groups: np.ndarray | None,
                    examples: list[dict[str, Any]], fallback: list[dict[str, Any]], want: int) -> None:
     """Keep rows to show: first those holding a multi-word vocabulary unit, else the first rows."""
     n_words = pb.word_ids.max(axis=1, initial=-1) + 1

@@ -27,7 +27,7 @@ import os
 import zlib
 from dataclasses import dataclass
 from pathlib import Path
-from typing import IO, Iterator
+from typing import IO, Iterator, cast
 
 from ..errors import MaskprepError
 
@@ -258,7 +258,7 @@ def corpus_fingerprint(files: list[Path], options: CorpusOptions = CorpusOptions
 
 def _open_binary(path: str, compression: str | None) -> IO[bytes]:
     if compression == "gzip":
-        return gzip.open(path, "rb")
+        return cast(IO[bytes], gzip.open(path, "rb"))
     if compression == "zstd":
         return io.BufferedReader(_ZstdReader(path), buffer_size=1 << 20)
     return open(path, "rb")

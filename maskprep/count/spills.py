@@ -35,7 +35,7 @@ _U64 = np.dtype("<u8")
 
 def write_block(fh: BinaryIO, block: np.ndarray) -> None:
     """Append the bytes of a uint64 block to an open spill file (the one place spills write)."""
-    fh.write(memoryview(np.ascontiguousarray(block, dtype=_U64)).cast("B"))
+    fh.write(np.ascontiguousarray(block, dtype=_U64).data.cast("B"))
 
 
 def _npy_header(rows: int, cols: int) -> bytes:
@@ -164,18 +164,17 @@ def merge_partition(job: MergeJob) -> PartitionResult:
     >>> merge_partition(MergeJob(2, [("t0-r0000-n2.npy", offsets)], 10, 1 << 18, "kept.npy"))  # doctest: +SKIP
     """
     n = job.n
-    if job.sources:
-        per_bucket = sum(np.diff(off) for _, off in job.sources)
-    else:
-        per_bucket = np.zeros(0, np.int64)
+    per_bucket = np.zeros(0, np.int64)
+    for k, (_, off) in enumerate(job.sources):
+        per_bucket = np.diff(off) if k == 0 else per_bucket + np.diff(off)
     # greedy groups of consecutive buckets of at most group_rows rows (at least one bucket)
     groups: list[tuple[int, int]] = []
     start, acc = 0, 0
-    for b, rows in enumerate(per_bucket.tolist()):
-        if acc and acc + rows > job.group_rows:
+    for b, bucket_rows in enumerate(per_bucket.tolist()):
+        if acc and acc + bucket_rows > job.group_rows:
             groups.append((start, b))
             start, acc = b, 0
-        acc += rows
+        acc += bucket_rows
     if acc:
         groups.append((start, len(per_bucket)))
     distinct = total = 0

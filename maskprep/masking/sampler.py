@@ -43,7 +43,7 @@ from maskprep.masking.strategies import (
 )
 
 __all__ = [
-    "Strategy", "MixPer", "MaskingConfig", "strategy_units", "select_targets", "mask_batch",
+    "Strategy", "MixPer", "MaskingConfig", "parse_mix", "strategy_units", "select_targets", "mask_batch",
     "token_units", "word_units", "span_units", "pmi_units", "span_word_starts",
     "pmi_word_starts", "units_from_word_starts", "word_starts_from_units", "span_lengths",
     "UnitTable", "IGNORE_LABEL",
@@ -75,27 +75,36 @@ def _enum(cls: type[enum.Enum], value: object, option: str) -> enum.Enum:
     try:
         return cls(value.value if isinstance(value, enum.Enum) else value)
     except ValueError:
-        names = ", ".join(m.value for m in cls)  # type: ignore[attr-defined]
+        names = ", ".join(m.value for m in cls)
         raise MaskprepError(f"{option} must be one of {names}, got {value!r}") from None
 
 
-def _parse_mix(mix: object) -> tuple[float, float, float]:
+def parse_mix(mix: object) -> tuple[float, float, float]:
+    """``"0.8,0.1,0.1"`` or three numbers -> (mask, random, keep), checked.
+
+    >>> parse_mix("0.8,0.1,0.1")
+    (0.8, 0.1, 0.1)
+    """
     msg = (f"--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
            f"got {mix!r}; pass e.g. --mix 0.8,0.1,0.1")
-    parts = mix.split(",") if isinstance(mix, str) else mix
     try:
-        values = tuple(float(x) for x in parts)  # type: ignore[union-attr]
+        parts = mix.split(",") if isinstance(mix, str) else list(mix)  # type: ignore[call-overload]
+        values = tuple(float(x) for x in parts)
     except (TypeError, ValueError):
         raise MaskprepError(msg) from None
     if len(values) != 3 or not all(np.isfinite(values)) or min(values) < 0 \
             or abs(sum(values) - 1.0) > 1e-6:
         raise MaskprepError(msg)
-    return values  # type: ignore[return-value]
+    return values
 
 
 @dataclass(frozen=True)
 class MaskingConfig:
     """Masking options, validated on construction (bad values raise MaskprepError).
+
+    Fields hold the types their hints say. For convenience the constructor also takes
+    an enum's value (``"span"``) or the mix as text (``"0.8,0.1,0.1"``, see `parse_mix`)
+    and stores the enum or the tuple; typed code passes the enum and the tuple.
 
     >>> MaskingConfig(strategy="span", rate=0.15, mix="0.8,0.1,0.1").strategy
     <Strategy.SPAN: 'span'>
@@ -119,7 +128,7 @@ class MaskingConfig:
         set_(self, "rate", float(rate))
         set_(self, "span_p", span_p)
         set_(self, "span_max", span_max)
-        set_(self, "mix", _parse_mix(self.mix))
+        set_(self, "mix", parse_mix(self.mix))
         set_(self, "strategy", _enum(Strategy, self.strategy, "--strategy"))
         set_(self, "mix_per", _enum(MixPer, self.mix_per, "--mix-per"))
 

@@ -25,6 +25,7 @@ This module runs nothing (see `maskprep.pipeline.runner`).
 
 from __future__ import annotations
 
+import functools
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -166,11 +167,21 @@ def _shown(value: Any) -> str:
     return text if len(text) <= 80 else text[:77] + "..."
 
 
+def _make_one(make: Callable[..., Any], key: str, value: Any) -> Any:
+    return make(**{key: value})
+
+
+def _train_size(size: Any, _sizes: Any) -> Any:
+    from ..tokenizer.train import TrainConfig
+
+    return TrainConfig(vocab_size=size)
+
+
 def _each(c: _Checker, section: str, key: str, values: dict[str, Any], make: Callable[..., Any]) -> None:
     """Check each given key alone through `make(**{key: value})` (the config class's own rules)."""
     for k in key.split(","):
         if k in values:
-            c.check(section, k, values[k], lambda v, k=k: make(**{k: v}))
+            c.check(section, k, values[k], functools.partial(_make_one, make, k))
 
 
 def load_run_config(path: str | Path, *, output: str | Path | None = None) -> RunConfig:
@@ -195,7 +206,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     except tomllib.TOMLDecodeError as exc:
         raise MaskprepError(f"{path}: not valid TOML: {exc}") from None
     c = _Checker(path, text, doc)
-    for key, value in doc.items():
+    for key in doc:
         if key not in SECTIONS and key not in SECTIONS[""]:
             raise c.fail("", key, "unknown key or table; the tables are " + ", ".join(f"[{s}]" for s in SECTIONS
                                                                                          if s))
@@ -249,7 +260,7 @@ def _audit(c: _Checker) -> dict[str, Any] | None:
         return None
     sizes = a.get("vocab_sizes", [])
     for v in sizes:
-        c.check("audit", "vocab_sizes", sizes, lambda _, v=v: TrainConfig(vocab_size=v))
+        c.check("audit", "vocab_sizes", sizes, functools.partial(_train_size, v))
     tokenizers = a.get("tokenizers", [])
     if not all(isinstance(t, str) for t in tokenizers):
         raise c.fail("audit", "tokenizers", "must be a list of tokenizer.json paths")
@@ -296,9 +307,13 @@ def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
     if out["max_n"] is not None and not 2 <= out["max_n"] <= count.max_n:
         raise c.fail("units", "max_n", f"{out['max_n']}: must be in 2..{count.max_n} (the [count] max_n)")
     per = t.get("per_length")
-    out["per_length"] = None if per is None else c.check(
-        "units", "per_length", per, lambda v: ",".join(f"{n}:{s!r}" for n, s in parse_per_length(
-            v, max_n=out["max_n"] or count.max_n, option="per_length")))
+    longest = out["max_n"] or count.max_n
+
+    def shares(v: Any) -> str:
+        parsed = parse_per_length(v, max_n=longest, option="per_length") or ()
+        return ",".join(f"{n}:{s!r}" for n, s in parsed)
+
+    out["per_length"] = None if per is None else c.check("units", "per_length", per, shares)
     return out
 
 

@@ -293,17 +293,17 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
     out, zero = frame.open(), frame.y(0.0)
     for k, (name, row) in enumerate(zip(series, rows)):
         group = [f'<g class="series" data-series="{esc(name)}">']
-        for i, value in enumerate(row):
-            if value is None:
+        for i, bar in enumerate(row):
+            if bar is None:
                 continue
             x = frame.left + i * frame.slot + frame.slot * (1 - fill) / 2 + k * width
-            top, bar_h = min(frame.y(value), zero), abs(frame.y(value) - zero)
-            tip = esc(f"{name} \u2014 {categories[i]}: {_exact(value, percent=percent)}")
+            top, bar_h = min(frame.y(bar), zero), abs(frame.y(bar) - zero)
+            tip = esc(f"{name} \u2014 {categories[i]}: {_exact(bar, percent=percent)}")
             group.append(f'<rect class="bar" x="{x + width * 0.06:.1f}" y="{top:.1f}" '
                          f'width="{max(width * 0.88, 1.0):.1f}" height="{bar_h:.1f}" fill="{PALETTE[k % 8]}" '
                          f'stroke="currentColor" stroke-opacity="0.4" stroke-width="0.6"><title>{tip}</title></rect>')
             if mode != "none":
-                cx, up = x + width / 2, value >= 0
+                cx, up = x + width / 2, bar >= 0
                 ly = top - 4 if up else top + bar_h + (11 if mode == "flat" else 4)
                 turn = f' transform="rotate(-90 {cx:.1f} {ly:.1f})"' if mode == "up" else ""
                 anchor = "middle" if mode == "flat" else "start" if up else "end"

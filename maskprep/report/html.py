@@ -64,7 +64,7 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
             if isinstance(value, numbers.Real) and not isinstance(value, bool):
                 is_int = isinstance(value, numbers.Integral)
                 chosen = formats.get(headers[c]) or (integer_format if is_int else numeric_format)
-                text = _formatted(int(value) if is_int else float(value), chosen)
+                text = _formatted(int(value) if is_int else float(value), chosen)  # type: ignore[call-overload]
                 has_number[c] = True
                 cells.append(f'<td class="num">{esc(text)}</td>')
             else:

@@ -71,7 +71,7 @@ def _check_rows(batch: dict[str, np.ndarray], *, ss: ShardSet, record: ShardReco
     mask_id, vocab = int(tok["mask_token_id"]), int(tok["vocab_size"])
     cls_id, pad_id = int(meta.get("cls_id", -1)), int(meta.get("pad_id", -1))
 
-    def fault(rows_bad: np.ndarray, what: str) -> None:
+    def fault(rows_bad: Any, what: str) -> None:
         r = _first(rows_bad)
         if r is not None:
             faults.append(f"{record.file} row {row0 + r}: {what}")

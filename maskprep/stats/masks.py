@@ -148,7 +148,7 @@ class MaskStats:
     @classmethod
     def from_state(cls, state: Mapping[str, Any]) -> "MaskStats":
         """Rebuild from `to_state`: ``MaskStats.from_state(s.to_state())``."""
-        s = cls(**{k: int(v) for k, v in state.items() if not isinstance(v, list)})
+        s = cls(**{k: int(v) for k, v in state.items() if not isinstance(v, list)})  # type: ignore[arg-type]
         for k in ("unit_tokens", "unit_words", "row_rates"):
             setattr(s, k, {int(a): int(b) for a, b in state.get(k, [])})
         return s

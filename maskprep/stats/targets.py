@@ -150,7 +150,7 @@ class TargetStats:
     @classmethod
     def from_state(cls, state: Mapping[str, Any]) -> "TargetStats":
         """Rebuild from `to_state`: ``TargetStats.from_state(ts.to_state())``."""
-        s = cls(**{k: int(state[k]) for k in _COUNTERS})
+        s = cls(**{k: int(state[k]) for k in _COUNTERS})  # type: ignore[arg-type]
         s.keys = np.asarray(state["keys"], dtype=np.uint64)
         for k in ("words", "tokens", "hits"):
             setattr(s, k, np.asarray(state[k], dtype=np.int64))

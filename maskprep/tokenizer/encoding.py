@@ -310,9 +310,7 @@ def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
     seg_starts = np.flatnonzero(np.r_[True, flat[1:] != flat[:-1]])
     keys = np.zeros(W * ncols, dtype=np.uint64)
     keys[flat[seg_starts]] = np.add.reduceat(contrib, seg_starts)
-    keys = keys.reshape(W, ncols)
-
-    rows, first, inverse = unique_rows(keys)
+    rows, first, inverse = unique_rows(keys.reshape(W, ncols))
     # Pad rows to a canonical width so one word has one cache key whatever the batch.
     rows_bytes = np.ascontiguousarray(rows).view(np.uint8).reshape(len(rows), -1)
     type_key = np.empty(len(rows), dtype=np.uint64)

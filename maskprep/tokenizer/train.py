@@ -54,6 +54,8 @@ def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
 
     sp = SPECIALS[config.model]
     special_list = [sp["pad"], sp["unk"], sp["cls"], sp["sep"], sp["mask"]]
+    trainer: trainers.Trainer
+    norms: list[normalizers.Normalizer]
     if config.model == "wordpiece":
         tok = Tokenizer(models.WordPiece(unk_token=sp["unk"]))
         tok.normalizer = normalizers.BertNormalizer(lowercase=config.lowercase, clean_text=True,

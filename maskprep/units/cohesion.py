@@ -149,9 +149,9 @@ class CountTable:
         levels: list[np.ndarray] = []
         code = np.zeros(0, np.uint64)
         for j in range(keys.shape[1]):
-            values, rank = np.unique(keys[:, j], return_inverse=True)
+            values, inverse = np.unique(keys[:, j], return_inverse=True)
             columns.append(values)
-            rank = rank.astype(np.uint64).ravel()
+            rank = inverse.astype(np.uint64).ravel()
             if j == 0:
                 code = rank
             else:
@@ -439,11 +439,11 @@ def _score_chunk(measure: Measure, n: int, spans: Mapping[tuple[int, int], np.nd
     log_n = np.log(float(N))
     if measure in (Measure.LLR, Measure.T):
         c = spans[(0, n)]
-        best = np.full(len(c), np.inf)
+        lowest = np.full(len(c), np.inf)
         for s in range(1, n):
             f = _llr if measure is Measure.LLR else _t_score
-            best = np.minimum(best, f(c, spans[(0, s)], spans[(s, n)], float(N)))
-        return best
+            lowest = np.minimum(lowest, f(c, spans[(0, s)], spans[(s, n)], float(N)))
+        return lowest
     logp = {span: np.log(c) - log_n for span, c in spans.items()}
     if measure is Measure.PMI_NAIVE:
         return logp[(0, n)] - sum(logp[(i, i + 1)] for i in range(n))

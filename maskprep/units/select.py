@@ -355,7 +355,7 @@ def _options(meta: Mapping[str, Any], *, measure: Union[Measure, str], top: int,
 
 
 def _is_whole(value: Any, low: int) -> bool:
-    return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and value >= low
+    return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and bool(value >= low)
 
 
 def _score_length(options: UnitOptions, counts_dir: Path, n: int, keys: np.ndarray, counts: np.ndarray,
