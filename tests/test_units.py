@@ -32,6 +32,10 @@ FILLER = ("the a of and to in is it that was he for on are with as his they be a
           "each she which do their time if will way about many then them write would like so these").split()
 MAX_N = 4
 MIN_COUNT = 2
+PLAIN_PMI = {"measure": "pmi", "edge_words": 0, "fragment_share": 0.0}
+"""Plain pmi ranking. The invented lines here are not Zipfian (planted words are as frequent
+as filler words), so the corpus-derived edge-word filter would bar planted words; the filters
+are tested in test_unit_filters.py and on real text in test_unit_precision.py."""
 
 
 def _lines(seed: int = 7, count: int = 400) -> list[str]:
@@ -133,7 +137,7 @@ def _tables(counts_dir: Path, up_to: int) -> dict[int, CountTable]:
 def test_round_trip_and_token_ids(counts_dir, tmp_path):
     from tokenizers import Tokenizer
 
-    vocab = build_units(counts_dir, top=40, quiet=True)
+    vocab = build_units(counts_dir, top=40, quiet=True, **PLAIN_PMI)
     assert 0 < len(vocab) <= 40
     pq_path, tsv_path = write_units(vocab, tmp_path / "units.parquet")
     assert tsv_path == tmp_path / "units.tsv"
@@ -158,7 +162,7 @@ def test_round_trip_and_token_ids(counts_dir, tmp_path):
 
 
 def test_by_length_matches_units(counts_dir):
-    vocab = build_units(counts_dir, top=60, quiet=True)
+    vocab = build_units(counts_dir, top=60, quiet=True, **PLAIN_PMI)
     groups = vocab.by_length()
     assert sum(len(s) for _, s in groups.values()) == len(vocab)
     for n, (keys, scores) in groups.items():
@@ -170,7 +174,8 @@ def test_by_length_matches_units(counts_dir):
 
 @pytest.mark.parametrize("measure", list(Measure))
 def test_ranking_order_filters_and_scores(counts_dir, measure):
-    vocab = build_units(counts_dir, measure=measure, top=10_000, min_count=3, quiet=True)
+    vocab = build_units(counts_dir, measure=measure, top=10_000, min_count=3, quiet=True, edge_words=0,
+                        fragment_share=0.0)
     assert len(vocab) > 0 and vocab.measure is measure
     assert (vocab.n >= 2).all() and (vocab.count >= 3).all()
     # best first: score desc, count desc, text asc
@@ -191,7 +196,7 @@ def test_planted_units_rank_near_the_top(counts_dir):
     # Planted-unit test (invented data): with counts pruned at 5 (rarer n-grams make
     # PMI unreliable, common practice), every planted term ranks above every n-gram
     # made only of filler words (chance pairs of frequent words).
-    vocab = build_units(counts_dir, measure="pmi", top=10_000, min_count=5, quiet=True)
+    vocab = build_units(counts_dir, top=10_000, min_count=5, quiet=True, **PLAIN_PMI)
     rank = {t: i for i, t in enumerate(vocab.text)}
     assert all(p in rank and rank[p] < 12 for p in PLANTED), {p: rank.get(p) for p in PLANTED}
     filler = [i for i, t in enumerate(vocab.text) if all(w in FILLER for w in t.split())]
@@ -216,15 +221,16 @@ def test_deterministic_and_independent_of_row_order(counts_dir, tmp_path):
 
 
 def test_per_length_quotas_and_flow(counts_dir):
-    vocab = build_units(counts_dir, top=20, per_length="2:0.5,3:0.5", quiet=True)
+    vocab = build_units(counts_dir, top=20, per_length="2:0.5,3:0.5", quiet=True, **PLAIN_PMI)
     assert Counter(vocab.n.tolist()) == {2: 10, 3: 10}
-    everything = build_units(counts_dir, top=10_000, min_count=5, quiet=True)
+    everything = build_units(counts_dir, top=10_000, min_count=5, quiet=True, **PLAIN_PMI)
     n4 = int((everything.n == 4).sum())
     assert 0 < n4 < 18
-    flowed = build_units(counts_dir, top=20, min_count=5, per_length="4:0.9,2:0.1", quiet=True)
+    flowed = build_units(counts_dir, top=20, min_count=5, per_length="4:0.9,2:0.1", quiet=True,
+                         **PLAIN_PMI)
     got = Counter(flowed.n.tolist())
     assert got[4] == n4 and got[2] == 20 - n4 and 3 not in got
-    limited = build_units(counts_dir, top=10_000, max_n=2, quiet=True)
+    limited = build_units(counts_dir, top=10_000, max_n=2, quiet=True, **PLAIN_PMI)
     assert set(limited.n.tolist()) == {2}
 
 
@@ -249,7 +255,7 @@ def test_token_ids_are_the_mid_sentence_form(writable_counts):
     meta = json.loads((writable_counts / "counts.json").read_text())
     meta["tokenizer_hash"] = load_tokenizer(writable_counts / "tokenizer.json").hash
     (writable_counts / "counts.json").write_text(json.dumps(meta))
-    vocab = build_units(writable_counts, top=20, min_count=5, quiet=True)
+    vocab = build_units(writable_counts, top=20, min_count=5, quiet=True, **PLAIN_PMI)
     for text, ids in zip(vocab.text, vocab.token_ids):
         assert tok.decode(ids.tolist()) == " " + text
         assert tok.id_to_token(int(ids[0])).startswith("\u0120")  # the byte-level space marker
@@ -262,7 +268,7 @@ def test_option_help_names_every_measure_range():
 
 
 def test_format_top_units(counts_dir):
-    vocab = build_units(counts_dir, top=30, quiet=True)
+    vocab = build_units(counts_dir, top=30, quiet=True, **PLAIN_PMI)
     text = format_top_units(vocab, per_length=3)
     assert vocab.text[0] in text and "2 words (top 3)" in text and "nats" in text
     assert text == format_top_units(vocab, per_length=3)
@@ -315,7 +321,9 @@ def test_counts_dir_errors(writable_counts, tmp_path):
     (d / "ngrams-3.parquet").unlink()
     with pytest.raises(MaskprepError, match=r"ngrams-3\.parquet: missing; the counts directory is incomplete"):
         build_units(d, quiet=True)
-    assert len(build_units(d, max_n=2, quiet=True)) > 0  # n = 3 is not needed for pairs
+    with pytest.raises(MaskprepError, match=r"ngrams-3\.parquet: missing"):  # fragments of pairs need it
+        build_units(d, max_n=2, quiet=True)
+    assert len(build_units(d, max_n=2, fragment_share=0.0, quiet=True)) > 0  # without the fragment filter
     (d / "tokenizer.json").unlink()
     with pytest.raises(MaskprepError, match="has no tokenizer.json"):
         build_units(d, quiet=True)
@@ -352,7 +360,7 @@ def test_option_errors(counts_dir):
 
 
 def test_units_file_errors(counts_dir, tmp_path):
-    vocab = build_units(counts_dir, top=5, quiet=True)
+    vocab = build_units(counts_dir, top=5, quiet=True, **PLAIN_PMI)
     with pytest.raises(MaskprepError, match="give a .parquet file name"):
         write_units(vocab, tmp_path / "units.tsv")
     with pytest.raises(MaskprepError, match="units file not found; make one with maskprep units"):
@@ -378,7 +386,7 @@ def test_units_file_errors(counts_dir, tmp_path):
 def test_empty_vocabulary_round_trips(tmp_path):
     # Every word equally likely and independent-looking: with a high min_count nothing survives.
     d = make_counts_dir(tmp_path / "c", lines=["alpha beta gamma delta"] * 3, max_n=2, min_count=3)
-    vocab = build_units(d, min_count=4, quiet=True)
+    vocab = build_units(d, min_count=4, quiet=True, **PLAIN_PMI)
     assert len(vocab) == 0 and vocab.by_length() == {}
     pq_path, _ = write_units(vocab, tmp_path / "units.parquet")
     assert len(read_units(pq_path)) == 0

@@ -15,7 +15,7 @@ table is present)::
     [tokenizer] path = "tokenizer.json" | model, vocab_size, lowercase (train one)
     [audit]     vocab_sizes, tokenizers, model, lowercase, top_words, include_tokenizer
     [count]     max_n, min_count, memory
-    [units]     measure, top, min_count, per_length, max_n
+    [units]     measure, top, min_count, per_length, max_n, edge_words, fragment_share
     [mask]      strategies, rate, mix, mix_per, span_p, span_max, seq_len, pack, copies, seed,
                 format, shard_rows, dynamic
     [compare]   strategies, sample, examples, top_words, and rate ... seed (default: [mask]'s)
@@ -48,7 +48,7 @@ SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
               "top_words": (int,), "include_tokenizer": (bool,)},
     "count": {"max_n": (int,), "min_count": (int,), "memory": (str, int)},
     "units": {"measure": (str,), "top": (int,), "min_count": (int,), "per_length": (str, dict),
-              "max_n": (int,)},
+              "max_n": (int,), "edge_words": (int,), "fragment_share": (float, int)},
     "mask": {"strategies": (list, str), "rate": (float, int), "mix": (list, str), "mix_per": (str,),
              "span_p": (float, int), "span_max": (int,), "seq_len": (int,), "pack": (bool,), "copies": (int,),
              "seed": (int,), "format": (str,), "shard_rows": (int,), "dynamic": (bool,)},
@@ -294,12 +294,18 @@ def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
     if count is None:
         raise c.fail("units", None, "needs a [count] table: units are chosen from the n-gram counts")
     from ..units.cohesion import Measure
-    from ..units.select import DEFAULT_TOP, parse_per_length
+    from ..units.filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE
+    from ..units.select import DEFAULT_MEASURE, DEFAULT_TOP, parse_per_length
 
-    out: dict[str, Any] = {"measure": c.check("units", "measure", t.get("measure", "pmi"),
+    out: dict[str, Any] = {"measure": c.check("units", "measure", t.get("measure", DEFAULT_MEASURE.value),
                                               lambda v: Measure.parse(v, option="measure").value),
                            "top": t.get("top", DEFAULT_TOP), "min_count": t.get("min_count"),
-                           "max_n": t.get("max_n")}
+                           "max_n": t.get("max_n"), "edge_words": t.get("edge_words", DEFAULT_EDGE_WORDS),
+                           "fragment_share": float(t.get("fragment_share", DEFAULT_FRAGMENT_SHARE))}
+    if out["edge_words"] < 0:
+        raise c.fail("units", "edge_words", f"{out['edge_words']}: must be 0 (no filter) or more")
+    if not 0.0 <= out["fragment_share"] <= 1.0:
+        raise c.fail("units", "fragment_share", f"{out['fragment_share']:g}: must be in [0, 1] (0: keep fragments)")
     for key, low in (("top", 1), ("min_count", count.min_count)):
         if out[key] is not None and out[key] < low:
             raise c.fail("units", key, f"{out[key]}: must be at least {low}"

@@ -257,7 +257,8 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
                 from ..units.select import build_units
 
                 vocab = build_units(counts_dir, measure=u["measure"], top=u["top"], min_count=u["min_count"],
-                                    per_length=u["per_length"], max_n=u["max_n"], quiet=quiet)
+                                    per_length=u["per_length"], max_n=u["max_n"], edge_words=u["edge_words"],
+                                    fragment_share=u["fragment_share"], quiet=quiet)
                 write_units(vocab, d / "units.parquet")
                 return ["units.parquet", "units.tsv"]
 

@@ -152,7 +152,7 @@ def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
             + ", ".join(f"{int((n == k).sum())} of {k} words" for k in lengths))
     if not len(vocab):
         return f"0 units by {vocab.measure.value}: no n-gram passed the filters (count, positive association)"
-    lines = [head]
+    lines = [head, _filters_line(vocab)]
     for k in lengths:
         idx = np.flatnonzero(n == k)[:per_length]
         lines.append(f"\n{k} words (top {len(idx)}):")
@@ -161,3 +161,21 @@ def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
             lines.append(f"  {i + 1:>6}  {vocab.score[i]:>10.4f}  {int(vocab.count[i]):>10}  {vocab.text[i]}")
     lines.append(f"\nscores{unit}; higher is more cohesive")
     return "\n".join(lines)
+
+
+def _filters_line(vocab: UnitVocabulary) -> str:
+    """What the edge-word and fragment filters did, in one line (empty parts left out)."""
+    opts, src = vocab.options, vocab.source
+    k, share = int(opts.get("edge_words", 0) or 0), float(opts.get("fragment_share", 0) or 0)
+    words = list(src.get("edge_word_list", []))
+    parts = []
+    if k > 0:
+        shown = ", ".join(words[:12]) + (", ..." if len(words) > 12 else "")
+        parts.append(f"{int(src.get('dropped_edge', 0)):,} candidates began or ended with one of the {len(words)} "
+                     f"most frequent words ({shown})")
+    if share > 0:
+        parts.append(f"{int(src.get('dropped_fragment', 0)):,} were fragments (one n-gram a word longer holds "
+                     f">= {share:g} of their occurrences)")
+    if not parts:
+        return "filters: none (--edge-words 0 --fragment-share 0)"
+    return "left out: " + "; ".join(parts)

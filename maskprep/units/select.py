@@ -14,6 +14,15 @@ Which n-grams are kept:
   ``npmi`` and ``t``; for ``llr``, which is unsigned, the n-gram must be more
   frequent than independence predicts on every binary split. N-grams that are
   rarer than chance never become units, however large their score;
+- no n-gram that begins or ends with one of the corpus's ``edge_words`` most
+  frequent words, and no fragment (an n-gram of which one n-gram a word longer
+  holds at least ``fragment_share`` of the occurrences); see ``filters.py``.
+  Both are on by default for every measure; 0 turns each off;
+- the default measure is ``llr``: a significance measure, so an n-gram seen
+  ``min_count`` times ranks below one seen often with the same strength,
+  instead of the ties at ln(N / min_count) that ``pmi`` gives rare names. With
+  the two filters it gave the best WordNet precision of every measure on real
+  text (README, "Choosing units"; ``scripts/unit_precision.py``);
 - ranking: score descending, then count descending, then text ascending (by
   UTF-8 bytes), so the order is fully deterministic;
 - ``per_length`` (e.g. ``"2:0.5,3:0.3,4:0.1,5:0.1"``) splits ``top`` into
@@ -38,15 +47,18 @@ from typing import Any, Mapping, Union
 import numpy as np
 
 from .cohesion import MAX_N, Measure, NgramIndex, score_ngrams, score_with_split_pmi
+from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, fragment_shares, frequent_words
 from ..errors import MaskprepError
 from .._files import read_json
 from ..progress import Progress
 
-__all__ = ["UnitVocabulary", "UnitOptions", "build_units", "parse_per_length", "DEFAULT_TOP", "OPTION_HELP"]
+__all__ = ["UnitVocabulary", "UnitOptions", "build_units", "parse_per_length", "DEFAULT_TOP", "DEFAULT_MEASURE",
+           "OPTION_HELP"]
 
 COUNTS_FORMAT_VERSION = 1
 """Version of the counts directory this module reads."""
 DEFAULT_TOP = 50_000
+DEFAULT_MEASURE = Measure.LLR
 _COUNTS_FIELDS = ("format_version", "N", "max_n", "min_count", "tokenizer_hash", "corpus_fingerprint")
 _PREFIX_WORD = "x"
 
@@ -60,6 +72,10 @@ OPTION_HELP: dict[str, str] = {
                   "places flow to the other listed lengths; unlisted lengths get none). Default: one ranking "
                   "over all lengths.",
     "max_n": "longest unit in words, 2..the longest n-gram counted (default: all counted lengths).",
+    "edge_words": f"no unit begins or ends with one of the corpus's K most frequent words (they may stand "
+                  f"inside a unit); 0: no such filter (default {DEFAULT_EDGE_WORDS}).",
+    "fragment_share": "drop an n-gram when one n-gram a word longer holds at least this share of its "
+                      f"occurrences (a fragment of it); 0: keep fragments (default {DEFAULT_FRAGMENT_SHARE}).",
 }
 """Help text for each option of ``maskprep units`` (keys are ``build_units`` keywords)."""
 
@@ -73,11 +89,14 @@ class UnitOptions:
     min_count: int
     max_n: int
     per_length: tuple[tuple[int, float], ...] | None = None
+    edge_words: int = DEFAULT_EDGE_WORDS
+    fragment_share: float = DEFAULT_FRAGMENT_SHARE
 
     def to_json(self) -> dict[str, Any]:
         return {"measure": self.measure.value, "top": self.top, "min_count": self.min_count,
                 "max_n": self.max_n,
-                "per_length": None if self.per_length is None else {str(n): s for n, s in self.per_length}}
+                "per_length": None if self.per_length is None else {str(n): s for n, s in self.per_length},
+                "edge_words": self.edge_words, "fragment_share": self.fragment_share}
 
 
 @dataclass(frozen=True, eq=False)
@@ -272,20 +291,25 @@ def _read_ngrams(counts_dir: Path, n: int, *, with_text: bool) -> tuple[np.ndarr
 
 # ------------------------------------------------------------------ build
 
-def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = Measure.PMI,
+def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = DEFAULT_MEASURE,
                 top: int = DEFAULT_TOP, min_count: int | None = None,
                 per_length: Union[str, Mapping[int, float], None] = None,
-                max_n: int | None = None, quiet: bool = False) -> UnitVocabulary:
+                max_n: int | None = None, edge_words: int = DEFAULT_EDGE_WORDS,
+                fragment_share: float = DEFAULT_FRAGMENT_SHARE, quiet: bool = False) -> UnitVocabulary:
     """Choose the `top` most cohesive n-grams (n >= 2) of a counts directory, best first.
 
     counts_dir: directory written by ``maskprep count``.
-    measure: pmi | pmi-naive | npmi | llr | t (see ``Measure.description`` for each range).
+    measure: llr (default) | pmi | pmi-naive | npmi | t (see ``Measure.description`` for each range).
     top: number of units to keep at most (>= 1).
     min_count: keep only n-grams counted at least this often; default and minimum: the
         counts' own min_count.
     per_length: shares of `top` per length, e.g. ``"2:0.5,3:0.3,4:0.1,5:0.1"`` (must add up
         to 1; unused places flow to the other listed lengths); default: one joint ranking.
     max_n: longest unit, 2..the counts' max_n; default: the counts' max_n.
+    edge_words: no unit begins or ends with one of the corpus's this many most frequent
+        words (0: no such filter).
+    fragment_share: drop an n-gram when one n-gram a word longer holds at least this share
+        of its occurrences (0: keep fragments).
     quiet: no progress lines on stderr.
 
     >>> vocab = build_units("counts/", measure="pmi", top=1000)  # doctest: +SKIP
@@ -295,34 +319,49 @@ def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = 
     counts_dir = Path(counts_dir)
     meta = _counts_meta(counts_dir)
     options = _options(meta, measure=measure, top=top, min_count=min_count, per_length=per_length,
-                       max_n=max_n)
+                       max_n=max_n, edge_words=edge_words, fragment_share=fragment_share)
     tok = _load_tokenizer(counts_dir, meta["tokenizer_hash"])
     lengths = [n for n, _ in options.per_length] if options.per_length else list(range(2, options.max_n + 1))
     N = int(meta["N"])
+    last = min(max(lengths) + (1 if options.fragment_share > 0 else 0), int(meta["max_n"]))
     index: NgramIndex | None = None
+    edge_keys, edge_list = np.zeros(0, np.uint64), []
+    pending: dict[int, _Scored] = {}
     candidates: dict[int, tuple[np.ndarray, Any]] = {}  # n -> (keys, arrow table sorted best first)
-    with Progress("units", total=max(lengths), unit="lengths", quiet=quiet) as progress:
-        for k in range(1, max(lengths) + 1):
-            keys, counts, text = _read_ngrams(counts_dir, k, with_text=k in lengths)
-            if k == 1 and int(counts.sum()) > N:
-                raise MaskprepError(f"{counts_dir / 'ngrams-1.parquet'}: word counts add up to more than "
-                                    f"N={N} from counts.json; re-run maskprep count")
+    dropped = {"edge": 0, "fragment": 0}
+    with Progress("units", total=last, unit="lengths", quiet=quiet) as progress:
+        for k in range(1, last + 1):
+            keys, counts, text = _read_ngrams(counts_dir, k, with_text=k in lengths or
+                                              (k == 1 and options.edge_words > 0))
+            if k == 1:
+                if int(counts.sum()) > N:
+                    raise MaskprepError(f"{counts_dir / 'ngrams-1.parquet'}: word counts add up to more than "
+                                        f"N={N} from counts.json; re-run maskprep count")
+                if options.edge_words > 0:
+                    edge_keys, edge_list = frequent_words(keys, counts, text.to_pylist(), options.edge_words)
+            if k - 1 in pending:  # the fragments of length k - 1 need these k-grams
+                scored = pending.pop(k - 1)
+                candidates[k - 1] = _finish(options, scored, keys, counts, dropped)
             if k in lengths:
                 assert index is not None
-                candidates[k] = _score_length(options, counts_dir, k, keys, counts, text, index, N)
+                pending[k] = _score_length(options, counts_dir, k, keys, counts, text, index, N, edge_keys,
+                                           dropped)
             if k < max(lengths):
                 try:
                     index = NgramIndex.build({1: (keys, counts)}) if index is None else index.add(keys, counts)
                 except MaskprepError as exc:
                     raise MaskprepError(f"{counts_dir / f'ngrams-{k}.parquet'}: {exc}") from None
             progress.advance(1)
+    for k, scored in pending.items():  # the longest counted length: no longer n-grams to compare with
+        candidates[k] = _finish(options, scored, None, None, dropped)
     chosen = _ranked(_select(options, candidates))
     texts: list[str] = chosen.column("text").cast(pa.string()).to_pylist()
     n_arr = chosen.column("n").to_numpy().astype(np.int64)
     rows = chosen.column("row").to_numpy()
     word_keys = tuple(candidates[int(L)][0][r] for L, r in zip(n_arr.tolist(), rows.tolist()))
     source = {"N": N, "corpus_fingerprint": meta["corpus_fingerprint"], "counts_min_count": meta["min_count"],
-              "counts_max_n": meta["max_n"], "counts_format_version": meta["format_version"]}
+              "counts_max_n": meta["max_n"], "counts_format_version": meta["format_version"],
+              "edge_word_list": edge_list, "dropped_edge": dropped["edge"], "dropped_fragment": dropped["fragment"]}
     return UnitVocabulary(
         text=tuple(texts), n=n_arr,
         count=chosen.column("count").to_numpy().astype(np.int64),
@@ -332,7 +371,8 @@ def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = 
 
 
 def _options(meta: Mapping[str, Any], *, measure: Union[Measure, str], top: int, min_count: int | None,
-             per_length: Union[str, Mapping[int, float], None], max_n: int | None) -> UnitOptions:
+             per_length: Union[str, Mapping[int, float], None], max_n: int | None, edge_words: int = 0,
+             fragment_share: float = 0.0) -> UnitOptions:
     counted_max = int(meta["max_n"])
     if counted_max < 2:
         raise MaskprepError("COUNTS_DIR: the counts hold only single words (max_n 1); re-run maskprep count "
@@ -350,16 +390,35 @@ def _options(meta: Mapping[str, Any], *, measure: Union[Measure, str], top: int,
     max_n = min(counted_max, MAX_N) if max_n is None else max_n
     if not _is_whole(max_n, 2) or max_n > counted_max:
         raise MaskprepError(f"--max-n: must be in 2..{counted_max} (the longest n-grams counted), got {max_n!r}")
+    if not _is_whole(edge_words, 0):
+        raise MaskprepError(f"--edge-words: must be a whole number >= 0 (0: no filter), got {edge_words!r}")
+    if isinstance(fragment_share, bool) or not isinstance(fragment_share, (int, float, np.floating)) \
+            or not 0.0 <= float(fragment_share) <= 1.0:
+        raise MaskprepError(f"--fragment-share: must be a number in [0, 1] (0: keep fragments), "
+                            f"got {fragment_share!r}")
     shares = parse_per_length(per_length, max_n=int(max_n))
-    return UnitOptions(measure=m, top=int(top), min_count=int(min_count), max_n=int(max_n), per_length=shares)
+    return UnitOptions(measure=m, top=int(top), min_count=int(min_count), max_n=int(max_n), per_length=shares,
+                       edge_words=int(edge_words), fragment_share=float(fragment_share))
 
 
 def _is_whole(value: Any, low: int) -> bool:
     return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and bool(value >= low)
 
 
+@dataclass(frozen=True, eq=False)
+class _Scored:
+    """The attracting candidates of one length, scored, before the fragment filter and the top cut."""
+
+    n: int
+    keys: np.ndarray
+    counts: np.ndarray
+    score: np.ndarray
+    text: Any  # arrow strings, aligned with keys
+
+
 def _score_length(options: UnitOptions, counts_dir: Path, n: int, keys: np.ndarray, counts: np.ndarray,
-                  text: Any, index: NgramIndex, N: int) -> tuple[np.ndarray, Any]:
+                  text: Any, index: NgramIndex, N: int, edge_keys: np.ndarray, dropped: dict[str, int]
+                  ) -> _Scored:
     import pyarrow as pa
 
     idx = np.flatnonzero(counts >= options.min_count)
@@ -374,18 +433,34 @@ def _score_length(options: UnitOptions, counts_dir: Path, n: int, keys: np.ndarr
     except MaskprepError as exc:
         raise MaskprepError(f"{counts_dir / f'ngrams-{n}.parquet'}: {exc}") from None
     ok &= np.isfinite(score)
-    sel = np.flatnonzero(ok)
+    edges = edge_ok(keys, edge_keys)
+    dropped["edge"] += int((ok & ~edges).sum())
+    sel = np.flatnonzero(ok & edges)
+    return _Scored(n, keys[sel], counts[sel], score[sel], text.take(pa.array(idx[sel])))
+
+
+def _finish(options: UnitOptions, s: _Scored, longer_keys: np.ndarray | None, longer_counts: np.ndarray | None,
+            dropped: dict[str, int]) -> tuple[np.ndarray, Any]:
+    """Drop fragments (given the (n+1)-gram counts), keep the best `top` and their ties, rank."""
+    import pyarrow as pa
+
+    score, counts = s.score, s.counts
+    sel = np.arange(len(counts))
+    if options.fragment_share > 0 and longer_keys is not None and longer_counts is not None:
+        whole = fragment_shares(s.keys, counts, longer_keys, longer_counts) < options.fragment_share
+        dropped["fragment"] += int((~whole).sum())
+        sel = sel[whole]
     if len(sel) > options.top:  # at most `top` of one length can be chosen: keep those and their ties
         best = sel[np.lexsort((-counts[sel], -score[sel]))[options.top - 1]]
         sel = sel[(score[sel] > score[best]) | ((score[sel] == score[best]) & (counts[sel] >= counts[best]))]
     table = pa.table({
-        "text": text.take(pa.array(idx[sel])),
-        "n": pa.array(np.full(len(sel), n, dtype=np.int64)),
+        "text": s.text.take(pa.array(sel)),
+        "n": pa.array(np.full(len(sel), s.n, dtype=np.int64)),
         "count": pa.array(counts[sel]),
         "score": pa.array(score[sel]),
         "row": pa.array(np.arange(len(sel), dtype=np.int64)),
     })
-    return keys[sel], _ranked(table)
+    return s.keys[sel], _ranked(table)
 
 
 def _select(options: UnitOptions, candidates: Mapping[int, tuple[np.ndarray, Any]]) -> Any:
