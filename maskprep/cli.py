@@ -341,6 +341,9 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output
                                    packing=packing, shards=shards, units=units_path,
                                    corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
                                    overwrite=overwrite, resume=resume)
+    if manifest.options.get("units_tokenizer_hash"):
+        click.echo(f"units: built with another tokenizer ({manifest.options['units_tokenizer_hash'][:12]}) that "
+                   "splits text into the same words; token ids re-derived for this one")
     rate_ = stats["masking_rate"]
     mix_ = stats["mix"]
     units_ = stats["unit_lengths"]
@@ -444,6 +447,10 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, uni
     doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,
                              corpus_options=make_corpus_options(**copts), executor=executor_from(ctx))
     click.echo(format_compare_table(doc))
+    built_with = (doc.get("units") or {}).get("built_with_tokenizer")
+    if built_with:
+        click.echo(f"units: built with another tokenizer ({built_with[:12]}) that splits text into the same "
+                   "words; token ids re-derived for this one")
     click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")
 
 

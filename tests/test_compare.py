@@ -30,7 +30,8 @@ ONE = Executor(workers=1, quiet=True)
 
 @pytest.fixture(scope="module")
 def units_path(tmp_path_factory, shakespeare_small: Path, small_wordpiece: Path) -> Path:
-    """pmi units of the four plays: exact counts up to trigrams (min count 3), best 5,000 n-grams."""
+    """Plain pmi units of the four plays (no edge-word or fragment filter): exact counts up to
+    trigrams (min count 3), best 5,000 n-grams."""
     from maskprep.count.driver import CountConfig, count_ngrams
     from maskprep.units.files import write_units
     from maskprep.units.select import build_units
@@ -38,7 +39,7 @@ def units_path(tmp_path_factory, shakespeare_small: Path, small_wordpiece: Path)
     d = tmp_path_factory.mktemp("units")
     count_ngrams([str(shakespeare_small)], tokenizer=small_wordpiece, output=d / "counts",
                  config=CountConfig(max_n=3, min_count=3), executor=ONE, quiet=True)
-    vocab = build_units(d / "counts", measure="pmi", top=5000, quiet=True)
+    vocab = build_units(d / "counts", measure="pmi", top=5000, edge_words=0, fragment_share=0.0, quiet=True)
     assert len(vocab) > 1000
     return write_units(vocab, d / "units.parquet")[0]
 
@@ -228,15 +229,25 @@ def test_cli_errors_name_the_option(tmp_path, shakespeare_small, small_wordpiece
     assert r.exit_code == 1 and message in r.output, r.output
 
 
-def test_units_of_another_tokenizer_are_refused(tmp_path, shakespeare_small, units_path):
+def test_units_of_another_tokenizer(tmp_path, shakespeare_small, units_path):
+    # A smaller WordPiece vocabulary trained the same way has the same words: the units carry
+    # over (token ids re-derived); one trained on cased text does not (tests/test_units_retarget.py
+    # covers both through the CLI).
     from maskprep.corpus.reader import iter_corpus
     from maskprep.tokenizer.encoding import save_tokenizer
     from maskprep.tokenizer.train import TrainConfig, train_tokenizer
+    from maskprep.units.files import read_units
 
     other = tmp_path / "other.json"
     save_tokenizer(train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(vocab_size=1000)), other)
-    with pytest.raises(MaskprepError, match="the units were built with another tokenizer"):
-        compare_strategies([str(shakespeare_small)], tokenizer=other, output=tmp_path / "o", units=units_path)
+    doc = compare_strategies([str(shakespeare_small)], tokenizer=other, output=tmp_path / "o", units=units_path,
+                             config=CompareConfig(sample=200, seed=3), executor=ONE)
+    assert doc["units"]["built_with_tokenizer"] == read_units(units_path).tokenizer_hash
+    cased = tmp_path / "cased.json"
+    save_tokenizer(train_tokenizer(iter_corpus([str(shakespeare_small)]),
+                                   TrainConfig(vocab_size=1000, lowercase=False)), cased)
+    with pytest.raises(MaskprepError, match="splits text into words differently from this one"):
+        compare_strategies([str(shakespeare_small)], tokenizer=cased, output=tmp_path / "c", units=units_path)
 
 
 def test_parse_strategies():

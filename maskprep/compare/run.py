@@ -285,11 +285,14 @@ def _load_units(units: str | Path | None, info: Any) -> tuple[Any, str | None, d
     from ..shards.write import file_sha256
     from ..units.files import read_units_for
 
-    vocab = read_units_for(units, info.hash)
+    vocab = read_units_for(units, info)
     digest = file_sha256(units)
     lengths = {str(k): int(v) for k, v in zip(*np.unique(np.asarray(vocab.n), return_counts=True))}
-    return vocab.by_length(), digest, {"path": str(units), "sha256": digest, "units": len(vocab),
-                                       "measure": vocab.measure.value, "by_length": lengths}
+    doc = {"path": str(units), "sha256": digest, "units": len(vocab), "measure": vocab.measure.value,
+           "by_length": lengths}
+    if "units_tokenizer_hash" in vocab.source:  # built with another tokenizer that has the same words
+        doc["built_with_tokenizer"] = vocab.source["units_tokenizer_hash"]
+    return vocab.by_length(), digest, doc
 
 
 def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[Strategy, ...], dict[str, str]]:

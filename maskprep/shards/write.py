@@ -407,15 +407,16 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     if shards.shard_rows * packing.seq_len >= 1 << 31:
         raise MaskprepError(f"--shard-rows {shards.shard_rows} x --seq-len {packing.seq_len} tokens is too many "
                             "for one shard; use fewer rows per shard")
-    by_length, units_digest = None, None
+    by_length, units_digest, units_built_with = None, None, None
     if masking.strategy is Strategy.PMI:
         if units is None:
             raise MaskprepError("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
                                 "(made by maskprep units)")
         from ..units.files import read_units_for
 
-        vocab = read_units_for(units, info.hash)
+        vocab = read_units_for(units, info)
         by_length, units_digest = vocab.by_length(), file_sha256(units)
+        units_built_with = vocab.source.get("units_tokenizer_hash")
     elif units is not None:
         raise MaskprepError(f"--units is only used by --strategy pmi (this run uses {masking.strategy.value}); "
                             "drop --units or pass --strategy pmi")
@@ -431,6 +432,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                "corpus_fingerprint": fingerprint, "doc_sep": corpus_options.doc_sep,
                "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
                "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__}
+    if units_built_with is not None:  # units of another tokenizer with the same words (token ids re-derived)
+        options["units_tokenizer_hash"] = units_built_with
     run_digest = hashlib.sha256(json.dumps(options, sort_keys=True).encode()).hexdigest()
     out = Path(output)
     _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)

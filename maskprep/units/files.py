@@ -5,7 +5,9 @@ count, score, token ids and word keys per unit, best first, with the measure,
 options, tokenizer hash and counts source in the file's metadata) plus a
 human-readable ``units.tsv``, both atomically. ``read_units`` loads the
 Parquet file back and refuses files of another kind or format version;
-``read_units_for`` also refuses units built with another tokenizer.
+``read_units_for`` gives the units for the tokenizer of a run: as they are
+when they were built with it, re-derived when another tokenizer has the same
+words (see retarget.py), refused with the reason otherwise.
 ``format_top_units`` lists the best units of each length for the terminal.
 
 It does not choose units from counts (see units.py).
@@ -49,7 +51,8 @@ def write_units(vocab: UnitVocabulary, path: Union[str, Path]) -> tuple[Path, Pa
     n = np.asarray(vocab.n, dtype=np.int64)
     meta = {"kind": _KIND, "format_version": FORMAT_VERSION, "measure": vocab.measure.value,
             "options": dict(vocab.options), "tokenizer_hash": vocab.tokenizer_hash,
-            "source": dict(vocab.source), "maskprep_version": __version__}
+            "source": dict(vocab.source), "maskprep_version": __version__,
+            "word_splitting": dict(vocab.word_splitting)}
     schema = pa.schema([("text", pa.string()), ("n", pa.int32()), ("count", pa.int64()),
                         ("score", pa.float64()), ("token_ids", pa.list_(pa.int32())),
                         ("word_keys", pa.list_(pa.uint64()))],
@@ -115,20 +118,26 @@ def read_units(path: Union[str, Path]) -> UnitVocabulary:
         token_ids=_split_lists(table.column("token_ids"), np.int32),
         word_keys=_split_lists(table.column("word_keys"), np.uint64),
         measure=measure, options=meta.get("options", {}), tokenizer_hash=meta.get("tokenizer_hash", ""),
-        source=meta.get("source", {}))
+        source=meta.get("source", {}), word_splitting=meta.get("word_splitting") or {})
 
 
-def read_units_for(path: Union[str, Path], tokenizer_hash: str) -> UnitVocabulary:
-    """`read_units`, refusing units built with a tokenizer other than the one of this run (its hash).
+def read_units_for(path: Union[str, Path], info: Any) -> UnitVocabulary:
+    """The units of `path` for tokenizer `info` (a ``TokenizerInfo``).
 
-    >>> vocab = read_units_for("units.parquet", info.hash)  # doctest: +SKIP
+    Units built with this tokenizer come back as they are. Units built with
+    another one come back with token ids re-derived when both tokenizers have
+    the same words (``retarget.retarget_units``; ``source["units_tokenizer_hash"]``
+    then names the building tokenizer); otherwise `MaskprepError` says which part
+    of the word splitting, or which unit words, differ.
+
+    >>> vocab = read_units_for("units.parquet", info)  # doctest: +SKIP
     """
+    from .retarget import retarget_units
+
     vocab = read_units(path)
-    if vocab.tokenizer_hash != tokenizer_hash:
-        raise MaskprepError(f"--units {path}: the units were built with another tokenizer (hash "
-                            f"{vocab.tokenizer_hash[:12] or 'unknown'}, this one {tokenizer_hash[:12]}); rebuild "
-                            "them with maskprep count and maskprep units using this tokenizer")
-    return vocab
+    if vocab.tokenizer_hash == info.hash:
+        return vocab
+    return retarget_units(vocab, info, path=path)
 
 
 def _split_lists(column: Any, dtype: Any) -> tuple[np.ndarray, ...]:

@@ -48,6 +48,7 @@ import numpy as np
 
 from .cohesion import MAX_N, Measure, NgramIndex, score_ngrams, score_with_split_pmi
 from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, fragment_shares, frequent_words
+from .retarget import word_splitting
 from ..errors import MaskprepError
 from .._files import read_json
 from ..progress import Progress
@@ -119,6 +120,7 @@ class UnitVocabulary:
     options: Mapping[str, Any] = field(default_factory=dict)
     tokenizer_hash: str = ""
     source: Mapping[str, Any] = field(default_factory=dict)  # N, corpus fingerprint, counts options
+    word_splitting: Mapping[str, Any] = field(default_factory=dict)  # see retarget.word_splitting
 
     def __len__(self) -> int:
         return len(self.text)
@@ -367,7 +369,8 @@ def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = 
         count=chosen.column("count").to_numpy().astype(np.int64),
         score=chosen.column("score").to_numpy().astype(np.float64),
         token_ids=_encode_units(tok, texts), word_keys=word_keys, measure=options.measure,
-        options=options.to_json(), tokenizer_hash=meta["tokenizer_hash"], source=source)
+        options=options.to_json(), tokenizer_hash=meta["tokenizer_hash"], source=source,
+        word_splitting=word_splitting(tok.to_str()))
 
 
 def _options(meta: Mapping[str, Any], *, measure: Union[Measure, str], top: int, min_count: int | None,
