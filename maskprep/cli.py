@@ -291,6 +291,12 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
 
 # ---------------------------------------------------------------- mask / show / verify (shards engineer)
 
+def _units_note(built_with: str | None) -> None:
+    if built_with:
+        click.echo(f"units: built with another tokenizer ({built_with[:12]}) that splits text into the same "
+                   "words; token ids re-derived for this one")
+
+
 def _pct(x: float | None) -> str:
     return "n/a" if x is None else f"{100 * x:.2f}%"
 
@@ -341,9 +347,7 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output
                                    packing=packing, shards=shards, units=units_path,
                                    corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
                                    overwrite=overwrite, resume=resume)
-    if manifest.options.get("units_tokenizer_hash"):
-        click.echo(f"units: built with another tokenizer ({manifest.options['units_tokenizer_hash'][:12]}) that "
-                   "splits text into the same words; token ids re-derived for this one")
+    _units_note(manifest.options.get("units_tokenizer_hash"))
     rate_ = stats["masking_rate"]
     mix_ = stats["mix"]
     units_ = stats["unit_lengths"]
@@ -447,10 +451,7 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, uni
     doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,
                              corpus_options=make_corpus_options(**copts), executor=executor_from(ctx))
     click.echo(format_compare_table(doc))
-    built_with = (doc.get("units") or {}).get("built_with_tokenizer")
-    if built_with:
-        click.echo(f"units: built with another tokenizer ({built_with[:12]}) that splits text into the same "
-                   "words; token ids re-derived for this one")
+    _units_note((doc.get("units") or {}).get("built_with_tokenizer"))
     click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")
 
 

@@ -39,8 +39,9 @@ import numpy as np
 
 from ..errors import MaskprepError
 
-__all__ = ["word_splitting", "retarget_units"]
+__all__ = ["word_splitting", "retarget_units", "unit_token_ids"]
 
+_PREFIX_WORD = "x"  # a word put before each unit, so its tokens take their mid-sentence form
 _LONG = 200  # strings longer than this (e.g. a precompiled character map) are kept as their hash
 
 
@@ -101,7 +102,6 @@ _PARTS = {"normalizer": "normaliser", "pre_tokenizer": "pre-tokenizer", "added_t
 def retarget_units(vocab: Any, info: Any, *, path: Any) -> Any:
     """`vocab` (built with another tokenizer) for tokenizer `info`, or `MaskprepError` saying why not."""
     from ..tokenizer.encoding import WORD
-    from .select import _encode_units
 
     built = vocab.word_splitting
     if not built:
@@ -137,7 +137,7 @@ def retarget_units(vocab: Any, info: Any, *, path: Any) -> Any:
         np.logical_or.at(bad_unit, np.repeat(np.arange(len(texts)), n), bad_word)
     if bad_unit.any():
         raise MaskprepError(_words_differ(path, vocab, info, np.flatnonzero(bad_unit)))
-    token_ids = _encode_units(info.tokenizer, texts)
+    token_ids = unit_token_ids(info.tokenizer, texts)
     source = {**dict(vocab.source), "units_tokenizer_hash": vocab.tokenizer_hash}
     return dataclasses.replace(vocab, token_ids=token_ids, tokenizer_hash=info.hash, source=source,
                                word_splitting=here)
@@ -163,3 +163,21 @@ def _words_differ(path: Any, vocab: Any, info: Any, bad: np.ndarray) -> str:
             f"{len(bad):,} of the {len(vocab):,} units differently from the tokenizer that built them: "
             f"{'; '.join(examples)}{more}; rebuild the units with maskprep count and maskprep units using "
             "this tokenizer")
+
+
+def unit_token_ids(tok: Any, texts: list[str]) -> tuple[np.ndarray, ...]:
+    """Token ids of each unit as it appears after another word (batch-encoded)."""
+    if not texts:
+        return ()
+    with_prefix = tok.encode_batch([f"{_PREFIX_WORD} {t}" for t in texts], add_special_tokens=False)
+    plain = None
+    out: list[np.ndarray] = []
+    for i, enc in enumerate(with_prefix):
+        word_ids = enc.word_ids
+        ids = [t for t, w in zip(enc.ids, word_ids) if w is not None and w != word_ids[0]]
+        if not ids:  # the tokenizer does not split words apart; use the unit on its own
+            if plain is None:
+                plain = tok.encode_batch(texts, add_special_tokens=False)
+            ids = plain[i].ids
+        out.append(np.asarray(ids, dtype=np.int32))
+    return tuple(out)

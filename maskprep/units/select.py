@@ -48,7 +48,7 @@ import numpy as np
 
 from .cohesion import MAX_N, Measure, NgramIndex, score_ngrams, score_with_split_pmi
 from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, fragment_shares, frequent_words
-from .retarget import word_splitting
+from .retarget import unit_token_ids, word_splitting
 from ..errors import MaskprepError
 from .._files import read_json
 from ..progress import Progress
@@ -61,7 +61,6 @@ COUNTS_FORMAT_VERSION = 1
 DEFAULT_TOP = 50_000
 DEFAULT_MEASURE = Measure.LLR
 _COUNTS_FIELDS = ("format_version", "N", "max_n", "min_count", "tokenizer_hash", "corpus_fingerprint")
-_PREFIX_WORD = "x"
 
 OPTION_HELP: dict[str, str] = {
     "measure": "cohesion measure. " + "; ".join(m.description for m in Measure)
@@ -368,7 +367,7 @@ def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = 
         text=tuple(texts), n=n_arr,
         count=chosen.column("count").to_numpy().astype(np.int64),
         score=chosen.column("score").to_numpy().astype(np.float64),
-        token_ids=_encode_units(tok, texts), word_keys=word_keys, measure=options.measure,
+        token_ids=unit_token_ids(tok, texts), word_keys=word_keys, measure=options.measure,
         options=options.to_json(), tokenizer_hash=meta["tokenizer_hash"], source=source,
         word_splitting=word_splitting(tok.to_str()))
 
@@ -482,21 +481,3 @@ def _ranked(table: Any) -> Any:
 
     keys = [("score", "descending"), ("count", "descending"), ("text", "ascending")]
     return table.take(pc.sort_indices(table, sort_keys=keys))
-
-
-def _encode_units(tok: Any, texts: list[str]) -> tuple[np.ndarray, ...]:
-    """Token ids of each unit as it appears after another word (batch-encoded)."""
-    if not texts:
-        return ()
-    with_prefix = tok.encode_batch([f"{_PREFIX_WORD} {t}" for t in texts], add_special_tokens=False)
-    plain = None
-    out: list[np.ndarray] = []
-    for i, enc in enumerate(with_prefix):
-        word_ids = enc.word_ids
-        ids = [t for t, w in zip(enc.ids, word_ids) if w is not None and w != word_ids[0]]
-        if not ids:  # the tokenizer does not split words apart; use the unit on its own
-            if plain is None:
-                plain = tok.encode_batch(texts, add_special_tokens=False)
-            ids = plain[i].ids
-        out.append(np.asarray(ids, dtype=np.int32))
-    return tuple(out)
