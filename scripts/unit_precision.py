@@ -36,8 +36,8 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
 
 from conftest import shakespeare_files, speeches  # noqa: E402
-from reference_text import (RANKINGS, python_doc_prose, wordnet_multiword_lemmas,  # noqa: E402
-                            wordnet_precision)
+from reference_text import RANKINGS, python_doc_prose  # noqa: E402
+from reference_text import wordnet_multiword_lemmas, wordnet_precision  # noqa: E402
 
 from maskprep.corpus.reader import iter_corpus  # noqa: E402
 from maskprep.count.driver import CountConfig, count_ngrams  # noqa: E402
@@ -50,7 +50,10 @@ def corpus_file(name: str, work: Path) -> Path:
     if name == "pydoc":
         out = python_doc_prose(work / "python-doc-prose.txt")
         if out is None:
-            sys.exit("--corpus pydoc needs the Debian package python3.11-doc: apt-get install python3.11-doc")
+            sys.exit(
+                "--corpus pydoc needs the Debian package python3.11-doc: "
+                "apt-get install python3.11-doc"
+            )
         return out
     if name == "shakespeare":
         plays = shakespeare_files()
@@ -80,16 +83,26 @@ def main() -> None:
     try:
         t0 = time.perf_counter()
         text = corpus_file(args.corpus, work)
-        info = train_tokenizer(iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=args.vocab_size))
+        info = train_tokenizer(
+            iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=args.vocab_size)
+        )
         save_tokenizer(info, work / "tokenizer.json")
-        summary = count_ngrams([str(text)], tokenizer=work / "tokenizer.json", output=work / "counts",
-                               config=CountConfig(max_n=args.max_n, min_count=args.min_count),
-                               executor=Executor(workers=1, quiet=True), quiet=True)
+        summary = count_ngrams(
+            [str(text)],
+            tokenizer=work / "tokenizer.json",
+            output=work / "counts",
+            config=CountConfig(max_n=args.max_n, min_count=args.min_count),
+            executor=Executor(workers=1, quiet=True),
+            quiet=True,
+        )
         rows = wordnet_precision(work / "counts", RANKINGS, cuts)
         size = text.stat().st_size
-        print(f"corpus: {args.corpus} ({size / 1e6:.1f} MB, N = {summary.N:,} word positions); WordPiece "
-              f"{args.vocab_size:,}; counts to {args.max_n} words, min count {args.min_count}; "
-              f"{len(wordnet_multiword_lemmas()):,} WordNet multi-word lemmas; {time.perf_counter() - t0:.0f} s")
+        print(
+            f"corpus: {args.corpus} ({size / 1e6:.1f} MB, N = {summary.N:,} word positions); "
+            f"WordPiece {args.vocab_size:,}; counts to {args.max_n} words, min count "
+            f"{args.min_count}; {len(wordnet_multiword_lemmas()):,} WordNet multi-word lemmas; "
+            f"{time.perf_counter() - t0:.0f} s"
+        )
         print()
         print("| ranking | " + " | ".join(f"top {c:,}" for c in cuts) + " | units |")
         print("|---|" + "---:|" * (len(cuts) + 1))

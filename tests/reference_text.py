@@ -63,8 +63,9 @@ def lemma_word_keys(info: Any, lemmas: Sequence[str]) -> set[tuple[int, ...]]:
     return out
 
 
-def precision_at(word_keys: Iterable[Any], lexicon: set[tuple[int, ...]], cuts: Sequence[int]
-                 ) -> list[float | None]:
+def precision_at(
+    word_keys: Iterable[Any], lexicon: set[tuple[int, ...]], cuts: Sequence[int]
+) -> list[float | None]:
     """Share of the first `cut` units (word-key arrays, best first) that are in `lexicon`; None
     where the list is shorter than the cut."""
     hits = [tuple(int(k) for k in row) in lexicon for row in word_keys]
@@ -140,14 +141,19 @@ RANKINGS: list[tuple[str, dict[str, Any]]] = [
 """The rankings of the precision table: label and ``build_units`` options."""
 
 
-def wordnet_precision(counts_dir: Path, rankings: Sequence[tuple[str, dict[str, Any]]] = RANKINGS,
-                      cuts: Sequence[int] = (100, 500, 2000)) -> list[tuple[str, list[float | None], int]]:
+def wordnet_precision(
+    counts_dir: Path,
+    rankings: Sequence[tuple[str, dict[str, Any]]] = RANKINGS,
+    cuts: Sequence[int] = (100, 500, 2000),
+) -> list[tuple[str, list[float | None], int]]:
     """For each ranking: (label, WordNet precision at each cut, units listed), units built from
     `counts_dir` at the counts' own min count."""
     from maskprep.tokenizer.encoding import load_tokenizer
     from maskprep.units.select import build_units
 
-    lexicon = lemma_word_keys(load_tokenizer(counts_dir / "tokenizer.json"), wordnet_multiword_lemmas())
+    lexicon = lemma_word_keys(
+        load_tokenizer(counts_dir / "tokenizer.json"), wordnet_multiword_lemmas()
+    )
     out = []
     for label, options in rankings:
         vocab = build_units(counts_dir, top=max(cuts), quiet=True, **options)

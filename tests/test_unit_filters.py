@@ -76,7 +76,10 @@ def test_fragment_share_left_and_right_extensions():
     shares = fragment_shares(keys, counts, longer, longer_counts)
     assert shares.tolist() == [0.75, 1.0, 0.0]
     assert ((shares >= filters.DEFAULT_FRAGMENT_SHARE) == [True, True, False]).all()
-    assert fragment_shares(keys, counts, np.zeros((0, 3), np.uint64), np.zeros(0)).tolist() == [0.0] * 3
+    assert (
+        fragment_shares(keys, counts, np.zeros((0, 3), np.uint64), np.zeros(0)).tolist()
+        == [0.0] * 3
+    )
 
 
 def test_fragment_share_sums_nothing_across_extensions():
@@ -87,16 +90,21 @@ def test_fragment_share_sums_nothing_across_extensions():
     assert fragment_shares(ny, np.array([100]), longer, np.array([40, 40])).tolist() == [0.4]
 
 
-@pytest.mark.parametrize("kwargs, match", [
-    ({"edge_words": -1}, "--edge-words: must be a whole number >= 0"),
-    ({"edge_words": 2.5}, "--edge-words: must be a whole number >= 0"),
-    ({"fragment_share": 1.5}, r"--fragment-share: must be a number in \[0, 1\]"),
-    ({"fragment_share": -0.1}, r"--fragment-share: must be a number in \[0, 1\]"),
-    ({"fragment_share": "half"}, r"--fragment-share: must be a number in \[0, 1\]"),
-])
+@pytest.mark.parametrize(
+    "kwargs, match",
+    [
+        ({"edge_words": -1}, "--edge-words: must be a whole number >= 0"),
+        ({"edge_words": 2.5}, "--edge-words: must be a whole number >= 0"),
+        ({"fragment_share": 1.5}, r"--fragment-share: must be a number in \[0, 1\]"),
+        ({"fragment_share": -0.1}, r"--fragment-share: must be a number in \[0, 1\]"),
+        ({"fragment_share": "half"}, r"--fragment-share: must be a number in \[0, 1\]"),
+    ],
+)
 def test_filter_option_errors(kwargs, match):
     from maskprep.units.select import _options
 
     meta = {"max_n": 3, "min_count": 2}
     with pytest.raises(MaskprepError, match=match):
-        _options(meta, measure="llr", top=10, min_count=None, per_length=None, max_n=None, **kwargs)
+        _options(
+            meta, measure="llr", top=10, min_count=None, per_length=None, max_n=None, **kwargs
+        )

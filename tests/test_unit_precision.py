@@ -28,8 +28,14 @@ def _counts(corpus: Path, work: Path) -> Path:
     from maskprep.execute import Executor
 
     tok = trained_tokenizer(corpus, work, model="wordpiece", vocab_size=30000)
-    count_ngrams([str(corpus)], tokenizer=tok, output=work / "counts", config=CountConfig(max_n=4, min_count=10),
-                 executor=Executor(workers=1, quiet=True), quiet=True)
+    count_ngrams(
+        [str(corpus)],
+        tokenizer=tok,
+        output=work / "counts",
+        config=CountConfig(max_n=4, min_count=10),
+        executor=Executor(workers=1, quiet=True),
+        quiet=True,
+    )
     return work / "counts"
 
 
@@ -47,9 +53,13 @@ def test_default_ranking_beats_plain_pmi_on_wordnet(corpus, wordnet, tmp_path, r
     else:
         text = python_doc_prose(tmp_path / "python-doc-prose.txt")
         if text is None:
-            pytest.skip("the Python documentation is not installed (apt-get install python3.11-doc)")
+            pytest.skip(
+                "the Python documentation is not installed (apt-get install python3.11-doc)"
+            )
     counts = _counts(text, tmp_path)
-    rows = wordnet_precision(counts, [("default", {}), ("plain pmi", {"measure": "pmi", **PLAIN})], CUTS)
+    rows = wordnet_precision(
+        counts, [("default", {}), ("plain pmi", {"measure": "pmi", **PLAIN})], CUTS
+    )
     (_, default, n_default), (_, pmi, n_pmi) = rows
     assert n_default >= max(CUTS) and n_pmi >= max(CUTS)
     for cut, d, p in zip(CUTS, default, pmi):

@@ -37,22 +37,56 @@ def run(*args: str):
 def setup(tmp_path_factory, shakespeare_small: Path, small_wordpiece: Path) -> dict[str, Path]:
     d = tmp_path_factory.mktemp("retarget")
     corpus = str(shakespeare_small)
-    assert run("count", corpus, "-t", str(small_wordpiece), "-o", str(d / "counts4k"), "--max-n", "3",
-               "--min-count", "3").exit_code == 0
-    r = run("units", str(d / "counts4k"), "-o", str(d / "units4k.parquet"), "--top", "3000", "--show", "0")
+    assert (
+        run(
+            "count",
+            corpus,
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(d / "counts4k"),
+            "--max-n",
+            "3",
+            "--min-count",
+            "3",
+        ).exit_code
+        == 0
+    )
+    r = run(
+        "units",
+        str(d / "counts4k"),
+        "-o",
+        str(d / "units4k.parquet"),
+        "--top",
+        "3000",
+        "--show",
+        "0",
+    )
     assert r.exit_code == 0, r.output
     small = trained_tokenizer(shakespeare_small, d, model="wordpiece", vocab_size=1000)
     spec = json.loads(small.read_text(encoding="utf-8"))
-    assert spec["normalizer"]["type"] == "BertNormalizer" and spec["normalizer"]["lowercase"] is True
+    assert (
+        spec["normalizer"]["type"] == "BertNormalizer" and spec["normalizer"]["lowercase"] is True
+    )
     cased = dict(spec, normalizer=dict(spec["normalizer"], lowercase=False))
     (d / "cased.json").write_text(json.dumps(cased), encoding="utf-8")
     # Same splitting, but no token with the letter "k": every word with a k becomes [UNK].
     vocab = spec["model"]["vocab"]
-    kept = [t for t, _ in sorted(vocab.items(), key=lambda kv: kv[1]) if "k" not in t or t.startswith("[")]
+    kept = [
+        t
+        for t, _ in sorted(vocab.items(), key=lambda kv: kv[1])
+        if "k" not in t or t.startswith("[")
+    ]
     unk = dict(spec, model=dict(spec["model"], vocab={t: i for i, t in enumerate(kept)}))
     (d / "no_k.json").write_text(json.dumps(unk), encoding="utf-8")
-    return {"d": d, "corpus": shakespeare_small, "units": d / "units4k.parquet", "small": small,
-            "cased": d / "cased.json", "no_k": d / "no_k.json"}
+    return {
+        "d": d,
+        "corpus": shakespeare_small,
+        "units": d / "units4k.parquet",
+        "small": small,
+        "cased": d / "cased.json",
+        "no_k": d / "no_k.json",
+    }
 
 
 def test_doctests_of_the_retarget_module():
@@ -66,8 +100,20 @@ def test_mask_with_units_of_a_tokenizer_with_the_same_words(setup):
     from maskprep.units.files import read_units, read_units_for
 
     d, corpus, small = setup["d"], str(setup["corpus"]), setup["small"]
-    r = run("mask", corpus, "-t", str(small), "-o", str(d / "m-carried"), "--strategy", "pmi",
-            "--units", str(setup["units"]), "--seed", "5")
+    r = run(
+        "mask",
+        corpus,
+        "-t",
+        str(small),
+        "-o",
+        str(d / "m-carried"),
+        "--strategy",
+        "pmi",
+        "--units",
+        str(setup["units"]),
+        "--seed",
+        "5",
+    )
     assert r.exit_code == 0, r.output
     assert "splits text into the same words; token ids re-derived for this one" in r.output
     manifest = json.loads((d / "m-carried" / "manifest.json").read_text())
@@ -76,24 +122,64 @@ def test_mask_with_units_of_a_tokenizer_with_the_same_words(setup):
     assert run("verify", str(d / "m-carried")).exit_code == 0
 
     # Reference: units built from the small tokenizer's own counts are the same units.
-    assert run("count", corpus, "-t", str(small), "-o", str(d / "counts1k"), "--max-n", "3",
-               "--min-count", "3").exit_code == 0
-    assert run("units", str(d / "counts1k"), "-o", str(d / "units1k.parquet"), "--top", "3000",
-               "--show", "0").exit_code == 0
+    assert (
+        run(
+            "count",
+            corpus,
+            "-t",
+            str(small),
+            "-o",
+            str(d / "counts1k"),
+            "--max-n",
+            "3",
+            "--min-count",
+            "3",
+        ).exit_code
+        == 0
+    )
+    assert (
+        run(
+            "units",
+            str(d / "counts1k"),
+            "-o",
+            str(d / "units1k.parquet"),
+            "--top",
+            "3000",
+            "--show",
+            "0",
+        ).exit_code
+        == 0
+    )
     own = read_units(d / "units1k.parquet")
     info = load_tokenizer(small)
     carried = read_units_for(setup["units"], info)
     assert carried.text == own.text and np.array_equal(carried.score, own.score)
     assert all(np.array_equal(a, b) for a, b in zip(carried.word_keys, own.word_keys))
     assert all(np.array_equal(a, b) for a, b in zip(carried.token_ids, own.token_ids))
-    assert any(len(a) != len(b) for a, b in zip(carried.token_ids, built.token_ids))  # other pieces
-    r = run("mask", corpus, "-t", str(small), "-o", str(d / "m-own"), "--strategy", "pmi",
-            "--units", str(d / "units1k.parquet"), "--seed", "5")
+    assert any(
+        len(a) != len(b) for a, b in zip(carried.token_ids, built.token_ids)
+    )  # other pieces
+    r = run(
+        "mask",
+        corpus,
+        "-t",
+        str(small),
+        "-o",
+        str(d / "m-own"),
+        "--strategy",
+        "pmi",
+        "--units",
+        str(d / "units1k.parquet"),
+        "--seed",
+        "5",
+    )
     assert r.exit_code == 0, r.output
     shards = sorted(p.name for p in (d / "m-own").glob("shard-*"))
     assert shards and shards == sorted(p.name for p in (d / "m-carried").glob("shard-*"))
     for name in shards:  # the same rows (the schema metadata names the units file, which differs)
-        a, b = (pa.ipc.open_file(d / run_dir / name).read_all() for run_dir in ("m-own", "m-carried"))
+        a, b = (
+            pa.ipc.open_file(d / run_dir / name).read_all() for run_dir in ("m-own", "m-carried")
+        )
         assert a.num_rows > 0 and a.equals(b)
 
 
@@ -101,8 +187,18 @@ def test_compare_with_units_of_a_tokenizer_with_the_same_words(setup):
     from maskprep.units.files import read_units
 
     d = setup["d"]
-    r = run("compare", str(setup["corpus"]), "-t", str(setup["small"]), "--units", str(setup["units"]),
-            "-o", str(d / "cmp"), "--sample", "300")
+    r = run(
+        "compare",
+        str(setup["corpus"]),
+        "-t",
+        str(setup["small"]),
+        "--units",
+        str(setup["units"]),
+        "-o",
+        str(d / "cmp"),
+        "--sample",
+        "300",
+    )
     assert r.exit_code == 0, r.output
     assert "token ids re-derived for this one" in r.output
     doc = json.loads((d / "cmp" / "compare.json").read_text())
@@ -114,8 +210,17 @@ def test_compare_with_units_of_a_tokenizer_with_the_same_words(setup):
 def test_units_of_a_tokenizer_with_other_words_are_refused(setup, command, tmp_path):
     out = tmp_path / "o"
     extra = ["--strategy", "pmi"] if command == "mask" else []
-    r = run(command, str(setup["corpus"]), "-t", str(setup["cased"]), "--units", str(setup["units"]),
-            "-o", str(out), *extra)
+    r = run(
+        command,
+        str(setup["corpus"]),
+        "-t",
+        str(setup["cased"]),
+        "--units",
+        str(setup["units"]),
+        "-o",
+        str(out),
+        *extra,
+    )
     assert r.exit_code == 1, r.output
     assert "splits text into words differently from this one" in r.output
     assert "normaliser: BertNormalizer(" in r.output and "lowercase=true" in r.output
@@ -128,8 +233,17 @@ def test_units_of_a_tokenizer_with_other_words_are_refused(setup, command, tmp_p
 def test_units_whose_words_read_differently_are_refused(setup, command, tmp_path):
     out = tmp_path / "o"
     extra = ["--strategy", "pmi"] if command == "mask" else []
-    r = run(command, str(setup["corpus"]), "-t", str(setup["no_k"]), "--units", str(setup["units"]),
-            "-o", str(out), *extra)
+    r = run(
+        command,
+        str(setup["corpus"]),
+        "-t",
+        str(setup["no_k"]),
+        "--units",
+        str(setup["units"]),
+        "-o",
+        str(out),
+        *extra,
+    )
     assert r.exit_code == 1, r.output
     assert "the words are split the same way, but this tokenizer reads the words of" in r.output
     assert "reads as '[UNK]'" in r.output and "Traceback" not in r.output

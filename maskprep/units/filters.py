@@ -31,16 +31,24 @@ import numpy as np
 
 from .cohesion import CountTable
 
-__all__ = ["frequent_words", "edge_ok", "fragment_shares", "DEFAULT_EDGE_WORDS", "DEFAULT_FRAGMENT_SHARE"]
+__all__ = [
+    "frequent_words",
+    "edge_ok",
+    "fragment_shares",
+    "DEFAULT_EDGE_WORDS",
+    "DEFAULT_FRAGMENT_SHARE",
+]
 
 DEFAULT_EDGE_WORDS = 30
 """Default number of most frequent words barred from unit edges (0: no filter)."""
 DEFAULT_FRAGMENT_SHARE = 0.75
-"""Default share of occurrences inside one longer n-gram that makes an n-gram a fragment (0: no filter)."""
+"""Default share of occurrences inside one longer n-gram that makes an n-gram a fragment
+(0: no filter)."""
 
 
-def frequent_words(keys: np.ndarray, counts: np.ndarray, texts: list[str], k: int
-                   ) -> tuple[np.ndarray, list[str]]:
+def frequent_words(
+    keys: np.ndarray, counts: np.ndarray, texts: list[str], k: int
+) -> tuple[np.ndarray, list[str]]:
     """The `k` most frequent words: (sorted uint64 keys, texts most frequent first).
 
     Ties in count are broken by text (UTF-8 byte order), so the list is
@@ -70,7 +78,8 @@ def edge_ok(keys: np.ndarray, edge_keys: np.ndarray) -> np.ndarray:
     Hand-worked, with edge words {1 (the), 2 (of)}: *point of view* (5 2 6) keeps
     *of* inside and passes; *of the* (2 1) and *the cat* (1 7) do not:
 
-    >>> edge_ok(np.array([[5, 2, 6], [2, 1, 9], [1, 7, 8]], np.uint64), np.array([1, 2], np.uint64)).tolist()
+    >>> rows = np.array([[5, 2, 6], [2, 1, 9], [1, 7, 8]], np.uint64)
+    >>> edge_ok(rows, np.array([1, 2], np.uint64)).tolist()
     [True, False, False]
     """
     keys = np.asarray(keys, np.uint64)
@@ -79,8 +88,9 @@ def edge_ok(keys: np.ndarray, edge_keys: np.ndarray) -> np.ndarray:
     return ~(np.isin(keys[:, 0], edge_keys) | np.isin(keys[:, -1], edge_keys))
 
 
-def fragment_shares(keys: np.ndarray, counts: np.ndarray, longer_keys: np.ndarray,
-                    longer_counts: np.ndarray) -> np.ndarray:
+def fragment_shares(
+    keys: np.ndarray, counts: np.ndarray, longer_keys: np.ndarray, longer_counts: np.ndarray
+) -> np.ndarray:
     """float (m,): the largest share of each n-gram's occurrences inside one (n+1)-gram.
 
     `keys`/`counts` are the n-grams (m, n); `longer_keys`/`longer_counts` are the
@@ -93,8 +103,9 @@ def fragment_shares(keys: np.ndarray, counts: np.ndarray, longer_keys: np.ndarra
     n-gram counted, share 0:
 
     >>> g, v, r, n, y, c, i, ic, cr = (np.uint64(x) for x in range(1, 10))
+    >>> longer = np.array([[g, v, r], [n, y, c], [i, n, y]])
     >>> fragment_shares(np.array([[g, v], [n, y], [ic, cr]]), np.array([64, 100, 12]),
-    ...                 np.array([[g, v, r], [n, y, c], [i, n, y]]), np.array([64, 30, 45])).tolist()
+    ...                 longer, np.array([64, 30, 45])).tolist()
     [1.0, 0.45, 0.0]
     """
     keys = np.asarray(keys, np.uint64)

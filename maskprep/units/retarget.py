@@ -1,4 +1,4 @@
-"""Use a unit vocabulary with a tokenizer other than the one it was built with, when the words agree.
+"""Use units built with one tokenizer with another one, when the two have the same words.
 
 Units are word n-grams: a unit is a run of words, matched in the corpus by
 the words' content keys, and only its ``token_ids`` column belongs to one
@@ -48,18 +48,29 @@ _LONG = 200  # strings longer than this (e.g. a precompiled character map) are k
 def word_splitting(tokenizer_json: str | Mapping[str, Any]) -> dict[str, Any]:
     """The parts of a tokenizer that decide its words: normaliser, pre-tokenizer, added tokens.
 
-    >>> ws = word_splitting('{"normalizer": {"type": "Lowercase"}, "pre_tokenizer": '
-    ...                     '{"type": "Whitespace"}, "added_tokens": [{"id": 0, "content": "[UNK]", '
-    ...                     '"special": true}]}')
+    >>> ws = word_splitting('{"normalizer": {"type": "Lowercase"}, '
+    ...                     '"pre_tokenizer": {"type": "Whitespace"}, '
+    ...                     '"added_tokens": [{"id": 0, "content": "[UNK]", "special": true}]}')
     >>> ws["normalizer"], ws["added_tokens"]
     ({'type': 'Lowercase'}, [['[UNK]', False, False, False, False, True]])
     """
     spec = json.loads(tokenizer_json) if isinstance(tokenizer_json, str) else dict(tokenizer_json)
-    added = sorted([str(t.get("content", "")), bool(t.get("single_word")), bool(t.get("lstrip")),
-                    bool(t.get("rstrip")), bool(t.get("normalized")), bool(t.get("special"))]
-                   for t in spec.get("added_tokens") or [])
-    return {"normalizer": _compact(spec.get("normalizer")), "pre_tokenizer": _compact(spec.get("pre_tokenizer")),
-            "added_tokens": added}
+    added = sorted(
+        [
+            str(t.get("content", "")),
+            bool(t.get("single_word")),
+            bool(t.get("lstrip")),
+            bool(t.get("rstrip")),
+            bool(t.get("normalized")),
+            bool(t.get("special")),
+        ]
+        for t in spec.get("added_tokens") or []
+    )
+    return {
+        "normalizer": _compact(spec.get("normalizer")),
+        "pre_tokenizer": _compact(spec.get("pre_tokenizer")),
+        "added_tokens": added,
+    }
 
 
 def _compact(value: Any) -> Any:
@@ -86,29 +97,44 @@ def describe(section: Any) -> str:
         return "none"
     if isinstance(section, Mapping):
         kind = section.get("type", "?")
-        children = [v for k, v in section.items() if k != "type" and isinstance(v, list)
-                    and all(isinstance(x, Mapping) and "type" in x for x in v)]
+        children = [
+            v
+            for k, v in section.items()
+            if k != "type"
+            and isinstance(v, list)
+            and all(isinstance(x, Mapping) and "type" in x for x in v)
+        ]
         if kind == "Sequence" and children:
             return " + ".join(describe(x) for x in children[0])
-        params = [f"{k}={json.dumps(v, ensure_ascii=False)}" for k, v in section.items()
-                  if k != "type" and not isinstance(v, (Mapping, list))]
+        params = [
+            f"{k}={json.dumps(v, ensure_ascii=False)}"
+            for k, v in section.items()
+            if k != "type" and not isinstance(v, (Mapping, list))
+        ]
         return f"{kind}({', '.join(params)})" if params else str(kind)
     return json.dumps(section, ensure_ascii=False)
 
 
-_PARTS = {"normalizer": "normaliser", "pre_tokenizer": "pre-tokenizer", "added_tokens": "added tokens"}
+_PARTS = {
+    "normalizer": "normaliser",
+    "pre_tokenizer": "pre-tokenizer",
+    "added_tokens": "added tokens",
+}
 
 
 def retarget_units(vocab: Any, info: Any, *, path: Any) -> Any:
-    """`vocab` (built with another tokenizer) for tokenizer `info`, or `MaskprepError` saying why not."""
+    """`vocab` (built with another tokenizer) for tokenizer `info`, or `MaskprepError` saying
+    why not."""
     from ..tokenizer.encoding import WORD
 
     built = vocab.word_splitting
     if not built:
-        raise MaskprepError(f"--units {path}: the units were built with another tokenizer (hash "
-                            f"{vocab.tokenizer_hash[:12] or 'unknown'}, this one {info.hash[:12]}) and the file "
-                            "does not record how that tokenizer splits words (an older units file); rebuild "
-                            "them with maskprep count and maskprep units using this tokenizer")
+        raise MaskprepError(
+            f"--units {path}: the units were built with another tokenizer (hash "
+            f"{vocab.tokenizer_hash[:12] or 'unknown'}, this one {info.hash[:12]}) and the file "
+            "does not record how that tokenizer splits words (an older units file); rebuild "
+            "them with maskprep count and maskprep units using this tokenizer"
+        )
     here = word_splitting(info.json)
     diffs = []
     for key, name in _PARTS.items():
@@ -119,14 +145,18 @@ def retarget_units(vocab: Any, info: Any, *, path: Any) -> Any:
                 diffs.append(f"added tokens differ ({what})")
             else:
                 was, now = describe(built.get(key)), describe(here.get(key))
-                diffs.append(f"{name}: {was} for the units, {now} here" if was != now
-                             else f"{name}: {was} with other settings")
+                diffs.append(
+                    f"{name}: {was} for the units, {now} here"
+                    if was != now
+                    else f"{name}: {was} with other settings"
+                )
     if diffs:
         raise MaskprepError(
-            f"--units {path}: the units were built with a tokenizer that splits text into words differently "
-            f"from this one ({'; '.join(diffs)}); units are word n-grams, so they only carry over between "
-            "tokenizers with the same words: rebuild them with maskprep count and maskprep units using this "
-            "tokenizer")
+            f"--units {path}: the units were built with a tokenizer that splits text into "
+            f"words differently from this one ({'; '.join(diffs)}); units are word n-grams, so "
+            "they only carry over between tokenizers with the same words: rebuild them with "
+            "maskprep count and maskprep units using this tokenizer"
+        )
     texts = list(vocab.text)
     batch = info.encode(texts)
     n = np.asarray(vocab.n, np.int64)
@@ -139,8 +169,9 @@ def retarget_units(vocab: Any, info: Any, *, path: Any) -> Any:
         raise MaskprepError(_words_differ(path, vocab, info, np.flatnonzero(bad_unit)))
     token_ids = unit_token_ids(info.tokenizer, texts)
     source = {**dict(vocab.source), "units_tokenizer_hash": vocab.tokenizer_hash}
-    return dataclasses.replace(vocab, token_ids=token_ids, tokenizer_hash=info.hash, source=source,
-                               word_splitting=here)
+    return dataclasses.replace(
+        vocab, token_ids=token_ids, tokenizer_hash=info.hash, source=source, word_splitting=here
+    )
 
 
 def _words_differ(path: Any, vocab: Any, info: Any, bad: np.ndarray) -> str:
@@ -151,25 +182,34 @@ def _words_differ(path: Any, vocab: Any, info: Any, bad: np.ndarray) -> str:
         groups: dict[int, list[int]] = {}
         for tid, w in zip(enc.ids, enc.word_ids):
             groups.setdefault(-1 if w is None else w, []).append(tid)
-        now = [info.tokenizer.decode(ids, skip_special_tokens=False).strip() for _, ids in sorted(groups.items())]
+        now = [
+            info.tokenizer.decode(ids, skip_special_tokens=False).strip()
+            for _, ids in sorted(groups.items())
+        ]
         was = text.split(" ")
         if len(now) == len(was):
-            pairs = [f"{a!r} reads as {b!r}" for a, b in zip(was, now) if a != b] or ["its words get other keys"]
+            pairs = [f"{a!r} reads as {b!r}" for a, b in zip(was, now) if a != b] or [
+                "its words get other keys"
+            ]
             examples.append(f"{', '.join(pairs)} (in {text!r})")
         else:
             examples.append(f"{text!r} reads as {len(now)} word(s) {' | '.join(now)!r}")
     more = f" and {len(bad) - 4:,} more" if len(bad) > 4 else ""
-    return (f"--units {path}: the words are split the same way, but this tokenizer reads the words of "
-            f"{len(bad):,} of the {len(vocab):,} units differently from the tokenizer that built them: "
-            f"{'; '.join(examples)}{more}; rebuild the units with maskprep count and maskprep units using "
-            "this tokenizer")
+    return (
+        f"--units {path}: the words are split the same way, but this tokenizer reads the "
+        f"words of {len(bad):,} of the {len(vocab):,} units differently from the tokenizer that "
+        f"built them: {'; '.join(examples)}{more}; rebuild the units with maskprep count and "
+        "maskprep units using this tokenizer"
+    )
 
 
 def unit_token_ids(tok: Any, texts: list[str]) -> tuple[np.ndarray, ...]:
     """Token ids of each unit as it appears after another word (batch-encoded)."""
     if not texts:
         return ()
-    with_prefix = tok.encode_batch([f"{_PREFIX_WORD} {t}" for t in texts], add_special_tokens=False)
+    with_prefix = tok.encode_batch(
+        [f"{_PREFIX_WORD} {t}" for t in texts], add_special_tokens=False
+    )
     plain = None
     out: list[np.ndarray] = []
     for i, enc in enumerate(with_prefix):
