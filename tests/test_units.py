@@ -391,3 +391,62 @@ def test_empty_vocabulary_round_trips(tmp_path):
     pq_path, _ = write_units(vocab, tmp_path / "units.parquet")
     assert len(read_units(pq_path)) == 0
     assert "no n-gram passed" in format_top_units(vocab)
+
+
+# ------------------------------------------------------------------ edge-word and fragment filters
+
+@pytest.mark.parametrize("edge_words, share", [(5, 0.0), (0, 0.5), (8, 0.75)])
+def test_filters_drop_exactly_what_a_python_reference_drops(counts_dir, edge_words, share):
+    # Source: common practice (the filters recomputed with plain Python over the counts files:
+    # a Counter of words for the edge words, a scan of the longer n-grams for fragments).
+    plain = build_units(counts_dir, measure="npmi", top=10_000, min_count=3, edge_words=0,
+                        fragment_share=0.0, quiet=True)
+    got = build_units(counts_dir, measure="npmi", top=10_000, min_count=3, edge_words=edge_words,
+                      fragment_share=share, quiet=True)
+    t1 = pq.read_table(counts_dir / "ngrams-1.parquet").to_pydict()
+    words = sorted(zip(t1["count"], t1["text"]), key=lambda ct: (-ct[0], ct[1].encode()))
+    edge = {w for _, w in words[:edge_words]}
+    longer: dict[int, Counter] = {}
+    for n in range(3, MAX_N + 1):
+        t = pq.read_table(counts_dir / f"ngrams-{n}.parquet").to_pydict()
+        best: Counter = Counter()
+        for text, c in zip(t["text"], t["count"]):
+            w = text.split(" ")
+            for part in (" ".join(w[:-1]), " ".join(w[1:])):
+                best[part] = max(best[part], c)
+        longer[n - 1] = best
+    expected = []
+    for text, n, c in zip(plain.text, plain.n.tolist(), plain.count.tolist()):
+        w = text.split(" ")
+        if w[0] in edge or w[-1] in edge:
+            continue
+        if share > 0 and n in longer and longer[n][text] >= share * c:
+            continue
+        expected.append(text)
+    assert list(got.text) == expected and len(expected) < len(plain)
+    assert got.source["edge_word_list"] == [w for _, w in words[:edge_words]]
+    assert got.source["dropped_edge"] + got.source["dropped_fragment"] == len(plain) - len(expected)
+
+
+def test_units_cli_reports_the_filters(counts_dir, tmp_path):
+    from click.testing import CliRunner
+
+    from maskprep.cli import cli
+
+    out = tmp_path / "u.parquet"
+    r = CliRunner().invoke(cli, ["--quiet", "units", str(counts_dir), "-o", str(out), "--edge-words", "4",
+                                 "--fragment-share", "0.6", "--measure", "pmi", "--show", "2"])
+    assert r.exit_code == 0, r.output
+    assert "began or ended with one of the 4 most frequent words" in r.output
+    assert "were fragments (one n-gram a word longer holds >= 0.6 of their occurrences)" in r.output
+    meta = json.loads(pq.read_schema(out).metadata[b"maskprep"])
+    assert meta["options"]["edge_words"] == 4 and meta["options"]["fragment_share"] == 0.6
+    assert len(meta["source"]["edge_word_list"]) == 4 and meta["word_splitting"]["normalizer"]
+    r = CliRunner().invoke(cli, ["--quiet", "units", str(counts_dir), "-o", str(out), "--edge-words", "0",
+                                 "--fragment-share", "0"])
+    assert r.exit_code == 0 and "filters: none (--edge-words 0 --fragment-share 0)" in r.output
+    for bad, message in ((["--edge-words", "-2"], "--edge-words: must be a whole number >= 0"),
+                         (["--fragment-share", "2"], "--fragment-share: must be a number in [0, 1]")):
+        r = CliRunner().invoke(cli, ["--quiet", "units", str(counts_dir), "-o", str(tmp_path / "x.parquet"), *bad])
+        assert r.exit_code == 1 and message in r.output and "Traceback" not in r.output, r.output
+        assert not (tmp_path / "x.parquet").exists()
