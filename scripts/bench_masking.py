@@ -6,6 +6,7 @@ words of 1-4 tokens, Zipf-distributed word keys, 12% punctuation words, and a
 unit vocabulary of n-grams (n = 2..5) drawn from the batch's own windows.
 
     python scripts/bench_masking.py [--tokens 4000000] [--batch 4096] [--units 50000]
+    python scripts/bench_masking.py --quick     # 1M tokens, one timing per strategy
 
 Prints tokens per second per strategy on one core (numpy is single-threaded here).
 """
@@ -13,11 +14,12 @@ Prints tokens per second per strategy on one core (numpy is single-threaded here
 from __future__ import annotations
 
 import argparse
+import sys
 import time
 
 import numpy as np
 
-from maskprep.masking.sampler import MaskingConfig, Strategy, UnitTable, mask_batch, strategy_units
+from maskprep.masking import MaskingConfig, Strategy, UnitTable, mask_batch, strategy_units
 
 CLS, SEP, PAD, MASK = 1, 2, 0, 3
 
@@ -85,7 +87,13 @@ def main() -> None:
     ap.add_argument("--batch", type=int, default=4096, help="sequences per mask_batch call")
     ap.add_argument("--units", type=int, default=50_000, help="n-grams in the unit vocabulary")
     ap.add_argument("--repeat", type=int, default=3, help="best of N timings")
+    ap.add_argument("--quick", action="store_true",
+                    help="1M tokens (unless --tokens is given) and one timing per strategy")
     args = ap.parse_args()
+    if args.quick:
+        args.repeat = 1
+        if "--tokens" not in sys.argv[1:]:
+            args.tokens = 1_000_000
     rng = np.random.default_rng(0)
     n_seq = args.tokens // args.seq_len
     data = synthetic_batch(rng, n_seq, args.seq_len)

