@@ -49,6 +49,7 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
     Floats use ``numeric_format``, integers ``integer_format`` (format specs like
     ``".2f"``, templates like ``"{:.1%}"``, or callables); ``column_formats``
     overrides both for the named columns. None is an empty cell, booleans read yes/no.
+    Text in the first column (the row's name) does not wrap; headers do.
 
     >>> table(headers=["tokenizer", "tokens/word"], rows=[["wp-8k", 1.2345]], numeric_format=".2f").count("1.23")
     1
@@ -70,7 +71,7 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
             else:
                 text = "" if value is None else ("yes" if value else "no") if isinstance(value, bool) else str(value)
                 has_text[c] = has_text[c] or value is not None
-                cells.append(f"<td>{esc(text)}</td>")
+                cells.append(f'<td class="name">{esc(text)}</td>' if c == 0 else f"<td>{esc(text)}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     right = ' class="num"'
     head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">{esc(h)}</th>'
@@ -124,6 +125,20 @@ def highlighted_sequence(tokens: Sequence[str], *, masked: Sequence[bool], unit_
     return "".join(out)
 
 
+def definitions(items: Sequence[tuple[str, str]]) -> str:
+    """Escaped terms and their definitions as one definition list.
+
+    >>> definitions([("split share", "words in 2+ tokens")])
+    '<dl class="defs"><dt>split share</dt><dd>words in 2+ tokens</dd></dl>'
+    """
+    return '<dl class="defs">' + "".join(f"<dt>{esc(t)}</dt><dd>{esc(d)}</dd>" for t, d in items) + "</dl>"
+
+
+def grid(parts: Sequence[str]) -> str:
+    """Trusted markup fragments (small charts) laid out side by side as far as the page is wide."""
+    return '<div class="grid">' + "".join(parts) + "</div>"
+
+
 def paragraph(text: str) -> str:
     """Escaped text as one HTML paragraph: ``paragraph("a < b") == "<p>a &lt; b</p>"``."""
     return f"<p>{esc(text)}</p>"
@@ -136,15 +151,22 @@ _CSS = """
 --zebra:#1d2025;--mark:#5b4700;--markline:#e2b33c}}
 *{box-sizing:border-box} html{background:var(--bg);color:var(--fg)} a{color:inherit} p,li{max-width:46rem}
 body{margin:0;font:16px/1.55 system-ui,-apple-system,"Segoe UI",Roboto,Helvetica,Arial,sans-serif}
-main{max-width:60rem;margin:0 auto;padding:2rem 1.25rem 3rem} h1{font-size:1.85rem;line-height:1.2;margin:0 0 .3rem}
+main{max-width:96rem;margin:0 auto;padding:2rem 1.25rem 3rem} h1{font-size:1.85rem;line-height:1.2;margin:0 0 .3rem}
 .subtitle{color:var(--muted);margin:0 0 1.5rem;font-size:1.05rem} nav ol{margin:.5rem 0 0;padding-left:1.4rem;columns:2}
 h2{font-size:1.3rem;margin:2.4rem 0 .8rem;padding-bottom:.3rem;border-bottom:1px solid var(--rule)}
 svg.chart{display:block;max-width:100%;height:auto;margin:1.2rem 0;break-inside:avoid}
 .tablewrap{overflow-x:auto;margin:1rem 0} caption{text-align:left;color:var(--muted);padding-bottom:.3rem}
 table{border-collapse:collapse;font-size:.92rem;font-variant-numeric:tabular-nums}
 th,td{padding:.32rem .7rem;border-bottom:1px solid var(--rule);text-align:left;vertical-align:top}
-th{border-bottom:2px solid var(--rule);font-weight:600} .num{text-align:right;white-space:nowrap}
-tbody tr:nth-child(even){background:var(--zebra)} footer{margin-top:3rem;color:var(--muted);font-size:.85rem}
+th{border-bottom:2px solid var(--rule);font-weight:600;overflow-wrap:break-word;hyphens:auto}
+.num{text-align:right;white-space:nowrap} td.name{white-space:nowrap}
+tbody tr:nth-child(even){background:var(--zebra)}
+.grid{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,25rem),1fr));gap:0 1.5rem;align-items:start}
+.grid svg.chart{margin:.6rem 0} dl.defs{display:grid;grid-template-columns:max-content minmax(0,46rem);gap:.35rem 1.2rem}
+dl.defs dt{font-weight:600} dl.defs dd{margin:0}
+@media (max-width:40rem){main{padding:1rem .6rem 2rem} nav ol{columns:1} dl.defs{grid-template-columns:1fr}
+dl.defs dd{margin:0 0 .5rem}}
+footer{margin-top:3rem;color:var(--muted);font-size:.85rem}
 .seq{display:flex;flex-wrap:wrap;align-items:flex-start;gap:.35rem .2rem;margin:.8rem 0;padding:.7rem;
 border:1px solid var(--rule);border-radius:6px;font:.9rem/1.3 ui-monospace,Menlo,Consolas,monospace;break-inside:avoid}
 .seq .t{display:inline-flex;flex-direction:column;align-items:center;padding:.05rem .15rem;white-space:pre}
