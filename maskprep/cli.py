@@ -179,7 +179,8 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
     Writes DIR/audit.json, DIR/audit.html (chart of tokens per word by
     frequency band) and prints a table.
     """
-    from .audit.measure import AuditConfig, format_audit_table, run_audit
+    from .audit.measure import AuditConfig, run_audit
+    from .audit.page import format_audit_table
 
     sizes = parse_vocab_sizes(vocab_sizes)
     if not tokenizers and not sizes:

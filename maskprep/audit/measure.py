@@ -6,11 +6,11 @@ word (words that are not punctuation-only, and all words), the share of words
 split into 2+ tokens, tokens per character, the unknown-token rate, the share
 of continuation tokens (tokens that are not the first of their word), and the
 same by frequency band of word types (top 1k, 1k-10k, 10k-100k, rarer). It
-lists the most frequent words split into the most pieces.
+lists the most frequent words split into the most pieces (see `words`).
 
-Statistics are accumulated per distinct word (numpy reductions per batch,
-merged by key), so memory grows with the number of distinct words, not with
-the corpus. Whitespace-only pieces of the pre-tokenization are not words and
+Statistics are accumulated per distinct word form (word key and a hash of its
+token ids; numpy reductions per batch, merged by key), so memory grows with the
+number of distinct words, not with the corpus. Whitespace-only pieces of the pre-tokenization are not words and
 are left out of every figure.
 
 It does not change tokenizers; `train_on_corpus` only trains and saves one.
@@ -20,7 +20,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any
 
 import numpy as np
 
@@ -28,9 +28,10 @@ from ..corpus.reader import CorpusOptions, ReadStats, iter_batches, iter_corpus,
 from ..errors import MaskprepError
 from .._files import atomic_write_json
 from ..progress import Progress
-from ..tokenizer.encoding import PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, encode_stream, load_tokenizer, save_tokenizer, \
-    unique_rows
+from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType, encode_stream,
+                                  load_tokenizer, save_tokenizer, unique_rows)
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
+from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
 
 BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
 
@@ -53,10 +54,10 @@ class AuditConfig:
 
 
 @dataclass
-class _TypeTable:
-    """Per distinct word: occurrences, tokens, split occurrences, characters, kind."""
+class _FormTable:
+    """Per distinct word form (word key, form hash): occurrences, tokens, split occurrences, characters, kind."""
 
-    keys: np.ndarray = field(default_factory=lambda: np.zeros(0, np.uint64))
+    keys: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), np.uint64))
     occ: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     tokens: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     split: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
@@ -65,8 +66,7 @@ class _TypeTable:
 
     def add(self, keys: np.ndarray, occ: np.ndarray, tokens: np.ndarray, split: np.ndarray,
             chars: np.ndarray, kind: np.ndarray) -> None:
-        all_keys = np.concatenate([self.keys, keys])
-        uniq, inv = np.unique(all_keys, return_inverse=True)
+        uniq, first, inv = unique_rows(np.concatenate([self.keys, keys]))
         n = len(uniq)
 
         def merged(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -76,9 +76,7 @@ class _TypeTable:
         self.tokens = merged(self.tokens, tokens)
         self.split = merged(self.split, split)
         self.chars = merged(self.chars, chars)
-        k = np.zeros(n, np.int8)
-        k[inv] = np.concatenate([self.kind, kind])
-        self.kind = k
+        self.kind = np.concatenate([self.kind, kind])[first]
         self.keys = uniq
 
 
@@ -117,7 +115,7 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
     files = resolve_inputs(corpus)
     tasks = plan_tasks(files, corpus_options)
     stats = ReadStats()
-    table = _TypeTable()
+    table = _FormTable()
     pending: list[tuple[np.ndarray, ...]] = []
     pending_words = 0
     tokens_total = unk_total = cont_total = 0
@@ -140,12 +138,11 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
                     unk_total += int(np.count_nonzero(ids == unk))
                 lk = lengths[keep]
                 cont_total += int((lk - 1).clip(min=0).sum())
-                # Reduce this batch to distinct words before merging (numpy, no per-word Python).
-                keys = batch.word_keys[keep]
-                rows, first, inv = unique_rows(keys.reshape(-1, 1))
-                uniq = rows[:, 0]
-                n = len(uniq)
-                pending.append((uniq,
+                # Reduce this batch to distinct word forms before merging (numpy, no per-word Python).
+                forms = form_hashes(batch.ids, batch.word_offsets)[keep]
+                rows, first, inv = unique_rows(np.stack([batch.word_keys[keep], forms], axis=1))
+                n = len(rows)
+                pending.append((rows,
                                 np.bincount(inv, minlength=n).astype(np.int64),
                                 np.bincount(inv, weights=lk, minlength=n).astype(np.int64),
                                 np.bincount(inv, weights=(lk >= 2), minlength=n).astype(np.int64),
@@ -168,61 +165,91 @@ def _disk_share(task: Any, files: list[Path], decoded: int) -> float:
     return float(decoded) if task.compression is None else float(decoded) / 4.0
 
 
-def _flush(table: _TypeTable, pending: list[tuple[np.ndarray, ...]]) -> None:
+def _flush(table: _FormTable, pending: list[tuple[np.ndarray, ...]]) -> None:
     if pending:
         cols = [np.concatenate([p[i] for p in pending]) for i in range(6)]
         table.add(*cols)
         pending.clear()
 
 
-def _summarise(info: TokenizerInfo, t: _TypeTable, tokens_total: int, unk_total: int, cont_total: int,
+def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total: int, cont_total: int,
                stats: ReadStats, top_words: int, frequent_types: int) -> dict[str, Any]:
-    is_word = t.kind == WORD
-    is_any = (t.kind == WORD) | (t.kind == PUNCT) | (t.kind == SPECIAL)
-    occ_w, tok_w = int(t.occ[is_word].sum()), int(t.tokens[is_word].sum())
-    occ_a, tok_a = int(t.occ[is_any].sum()), int(t.tokens[is_any].sum())
-    chars_a = int(t.chars[is_any].sum())
+    # Word types from their forms: keys are sorted by word key, so forms of one word are adjacent.
+    word_keys, word_of_form = np.unique(f.keys[:, 0], return_inverse=True)
+    nw = len(word_keys)
+
+    def per_word(col: np.ndarray) -> np.ndarray:
+        return np.bincount(word_of_form, weights=col.astype(np.float64), minlength=nw).astype(np.int64)
+
+    occ_t, tok_t, split_t, chars_t = per_word(f.occ), per_word(f.tokens), per_word(f.split), per_word(f.chars)
+    kind = np.zeros(nw, np.int8)
+    kind[word_of_form] = f.kind
+    is_word = kind == WORD
+    is_any = (kind == WORD) | (kind == PUNCT) | (kind == SPECIAL)
+    occ_w, tok_w = int(occ_t[is_word].sum()), int(tok_t[is_word].sum())
+    occ_a, tok_a = int(occ_t[is_any].sum()), int(tok_t[is_any].sum())
+    chars_a = int(chars_t[is_any].sum())
     if occ_w == 0:
         raise MaskprepError("corpus has no words (only punctuation or whitespace)")
     # Rank word types by frequency (ties by key, so ranks are deterministic).
     widx = np.flatnonzero(is_word)
-    order = widx[np.lexsort((t.keys[widx], -t.occ[widx]))]
+    order = widx[np.lexsort((word_keys[widx], -occ_t[widx]))]
     bands = []
     for lo, hi, label in BANDS:
         sel = order[lo - 1:hi] if hi is not None else order[lo - 1:]
-        occ = int(t.occ[sel].sum())
+        occ = int(occ_t[sel].sum())
         bands.append({
             "band": label, "rank_from": lo, "rank_to": hi, "types": int(len(sel)), "occurrences": occ,
             "occurrence_share": occ / occ_w,
-            "tokens_per_word": (float(t.tokens[sel].sum()) / occ) if occ else None,
-            "split_share": (float(t.split[sel].sum()) / occ) if occ else None,
+            "tokens_per_word": (float(tok_t[sel].sum()) / occ) if occ else None,
+            "split_share": (float(split_t[sel].sum()) / occ) if occ else None,
         })
-    # The most frequent words split into the most pieces.
-    frequent = order[:frequent_types]
-    pieces = t.tokens[frequent] / t.occ[frequent]
-    worst = frequent[np.lexsort((np.arange(len(frequent)), -pieces))][:top_words]
-    by_key = {wt.key: wt for wt in info._types.values()}
-    worst_rows = []
-    for i in worst:
-        wt = by_key.get(int(t.keys[i]))
-        rank = int(np.flatnonzero(order == i)[0]) + 1
-        worst_rows.append({
-            "word": wt.text if wt else None, "rank": rank, "count": int(t.occ[i]),
-            "tokens": float(t.tokens[i] / t.occ[i]),
-            "pieces": [info.tokenizer.id_to_token(x) for x in wt.ids] if wt else None,
-        })
+    main = main_forms(word_of_form, f.occ, f.keys[:, 1], nw)
+    main_tokens = f.tokens[main] // np.maximum(f.occ[main], 1)
+    mean_tokens = tok_t / np.maximum(occ_t, 1)
+    listed = select_fragmented(order, main_tokens, mean_tokens, frequent_types=frequent_types, top_words=top_words)
     return {
         "name": info.name, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
         "documents": stats.documents, "empty_documents_skipped": stats.empty_skipped,
         "invalid_utf8_replaced": stats.invalid_utf8,
         "words": occ_w, "words_all": occ_a, "word_types": int(is_word.sum()), "tokens": tokens_total,
         "tokens_per_word": tok_w / occ_w, "tokens_per_word_all": tok_a / occ_a if occ_a else None,
-        "split_share": float(t.split[is_word].sum()) / occ_w,
+        "split_share": float(split_t[is_word].sum()) / occ_w,
         "tokens_per_char": tok_a / chars_a if chars_a else None,
         "unk_rate": unk_total / tokens_total if tokens_total else 0.0,
         "continuation_share": cont_total / tokens_total if tokens_total else 0.0,
-        "bands": bands, "worst_words": worst_rows,
+        "bands": bands, "worst_words": _word_rows(info, f, word_keys, word_of_form, order, listed),
     }
+
+
+def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray, word_of_form: np.ndarray,
+               order: np.ndarray, listed: np.ndarray) -> list[dict[str, Any]]:
+    """The listed words with every form: its pieces (decoded), tokens and share of the word's uses."""
+    words = order[listed]
+    cached = cached_forms(info, (int(word_keys[w]) for w in words))
+    rows = []
+    for rank0, w in zip(listed.tolist(), words.tolist()):
+        key = int(word_keys[w])
+        idx = np.flatnonzero(word_of_form == w)
+        idx = idx[np.lexsort((f.keys[idx, 1], -f.occ[idx]))]
+        by_hash: dict[int, WordType | None] = {}
+        for wt in cached.get(key, []):
+            h = form_hash(wt.ids)
+            by_hash[h] = None if h in by_hash and by_hash[h] != wt else wt  # two forms, one hash: unknown
+        known = [by_hash.get(int(f.keys[i, 1])) for i in idx]
+        count = int(f.occ[idx].sum())
+        shown = shown_forms(info, [wt.ids for wt in known if wt is not None])
+        texts = iter(shown)
+        forms = [{"pieces": next(texts) if wt is not None else None,
+                  "tokens": int(f.tokens[i] // f.occ[i]), "count": int(f.occ[i]),
+                  "share": float(f.occ[i] / count),
+                  "token_strings": [info.tokenizer.id_to_token(x) for x in wt.ids] if wt is not None else None}
+                 for i, wt in zip(idx, known)]
+        text = next((wt.text for wt in cached.get(key, [])), None)
+        rows.append({"word": text, "rank": rank0 + 1, "count": count,
+                     "tokens": forms[0]["tokens"], "pieces": forms[0]["pieces"], "share": forms[0]["share"],
+                     "tokens_per_use": float(f.tokens[idx].sum() / count), "forms": forms})
+    return rows
 
 
 def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
@@ -248,80 +275,12 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
            "notes": ["Words are the tokenizer's own pre-tokenization pieces; punctuation-only words are left out "
                      "of tokens_per_word and split_share but kept in tokens_per_word_all.",
                      "Frequency bands rank word types by their count in this corpus."],
+           "fragmented_list": {"frequent_types": config.frequent_types, "top_words": config.top_words},
            "tokenizers": results}
     output.mkdir(parents=True, exist_ok=True)
     atomic_write_json(output / "audit.json", doc)
     from ..report.html import write_page
+    from .page import render_audit_html
 
     write_page(output / "audit.html", render_audit_html(doc))
     return doc
-
-
-def format_audit_table(doc: dict[str, Any]) -> str:
-    """The terminal summary: one row per tokenizer, then tokens per word by band."""
-    rows = [("tokenizer", "vocab", "tok/word", "tok/word all", "split", "tok/char", "unk", "cont.")]
-    for r in doc["tokenizers"]:
-        rows.append((r["name"], f"{r['vocab_size']:,}", f"{r['tokens_per_word']:.3f}",
-                     f"{r['tokens_per_word_all']:.3f}", f"{r['split_share']:.1%}", f"{r['tokens_per_char']:.3f}",
-                     f"{r['unk_rate']:.2%}", f"{r['continuation_share']:.1%}"))
-    out = [_format_rows(rows), "", "tokens per word by frequency band of word types"]
-    brow = [("tokenizer",) + tuple(doc["bands"])]
-    for r in doc["tokenizers"]:
-        brow.append((r["name"],) + tuple("-" if b["tokens_per_word"] is None else f"{b['tokens_per_word']:.3f}"
-                                         for b in r["bands"]))
-    out.append(_format_rows(brow))
-    for r in doc["tokenizers"][:3]:
-        worst = [w for w in r["worst_words"] if w["word"] is not None and w["tokens"] > 1][:8]
-        if worst:
-            out.append(f"\nmost fragmented frequent words ({r['name']}): "
-                       + ", ".join(f"{w['word']} ({' '.join(w['pieces'])})" for w in worst))
-    return "\n".join(out)
-
-
-def _format_rows(rows: Sequence[tuple[str, ...]]) -> str:
-    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
-    lines = []
-    for j, r in enumerate(rows):
-        cells = [c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))]
-        lines.append("  ".join(cells))
-        if j == 0:
-            lines.append("  ".join("-" * w for w in widths))
-    return "\n".join(lines)
-
-
-def render_audit_html(doc: dict[str, Any]) -> str:
-    """The audit page: chart of tokens per word by band, one line per tokenizer, and tables."""
-    from ..report import charts
-    from ..report import html as report
-    toks = doc["tokenizers"]
-    chart = charts.line_chart(
-        title="Tokens per word by frequency band of word types", x_labels=list(doc["bands"]),
-        series={r["name"]: [b["tokens_per_word"] for b in r["bands"]] for r in toks},
-        y_label="tokens per word", y_min=1.0)
-    split_chart = charts.bar_chart(
-        title="Share of word occurrences split into 2+ tokens, by band", categories=list(doc["bands"]),
-        series={r["name"]: [b["split_share"] for b in r["bands"]] for r in toks},
-        y_label="split share", percent=True)
-    summary = report.table(
-        headers=["tokenizer", "vocab size", "tokens/word", "tokens/word (all)", "split share", "tokens/char",
-                 "unknown rate", "continuation share", "words", "word types"],
-        rows=[[r["name"], r["vocab_size"], round(r["tokens_per_word"], 3), round(r["tokens_per_word_all"], 3),
-               f"{r['split_share']:.1%}", round(r["tokens_per_char"], 3), f"{r['unk_rate']:.2%}",
-               f"{r['continuation_share']:.1%}", r["words"], r["word_types"]] for r in toks])
-    band_rows = []
-    for r in toks:
-        for b in r["bands"]:
-            band_rows.append([r["name"], b["band"], b["types"], b["occurrences"], f"{b['occurrence_share']:.1%}",
-                              "-" if b["tokens_per_word"] is None else round(b["tokens_per_word"], 3),
-                              "-" if b["split_share"] is None else f"{b['split_share']:.1%}"])
-    bands_table = report.table(headers=["tokenizer", "band", "types", "occurrences", "share of words",
-                                        "tokens/word", "split share"], rows=band_rows)
-    sections = [("Tokens per word by frequency band", chart + split_chart), ("Summary", summary),
-                ("By frequency band", bands_table)]
-    for r in toks:
-        sections.append((f"Most fragmented frequent words: {r['name']}", report.table(
-            headers=["word", "frequency rank", "count", "tokens", "pieces"],
-            rows=[[w["word"], w["rank"], w["count"], round(w["tokens"], 2), " ".join(w["pieces"] or [])]
-                  for w in r["worst_words"]])))
-    return report.page(title="Vocabulary fragmentation audit",
-                       subtitle="Corpus: " + ", ".join(doc["corpus"]), sections=sections, notes=doc["notes"])

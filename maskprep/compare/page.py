@@ -2,13 +2,15 @@
 
 `render_compare_html` turns the JSON of `compare.compare_strategies` into one
 self-contained page built with `maskprep.report.html` and `maskprep.report.charts`: a
-summary table, one bar chart per measure (strategies side by side), targets
-by word-frequency band against the band's share of all tokens, unit-length
+summary table, a grid of small bar charts, one per measure (strategies side
+by side), targets by word-frequency band against the band's share of all
+tokens (bands without tokens left out), unit-length
 and targets-per-sequence histograms, the replacement mix, and example
 sequences with every masked unit highlighted (the tokenizer's tokens,
 originals under masked ones). All corpus text goes through `report`'s
-escaping (charts use it too). This module computes no statistic: every
-number shown is read from the comparison's JSON.
+escaping (charts use it too). A strategy has one colour on every chart; the
+"all maskable tokens" reference is grey. This module computes no statistic:
+every number shown is read from the comparison's JSON.
 """
 
 from __future__ import annotations
@@ -33,6 +35,10 @@ _MEASURES = (  # (key path, chart title, axis label, percent)
     (("unit_lengths", "mean_words"), "Mean length of masked units in words", "words", False),
     (("targets_per_sequence", "mean"), "Mean targets per sequence", "targets", False),
 )
+
+
+_ALL_TOKENS = "all maskable tokens"
+_SMALL_W, _SMALL_H = 400.0, 170.0  # the one-measure charts, side by side in a grid
 
 
 def _get(figures: dict[str, Any], path: Sequence[str]) -> Any:
@@ -101,37 +107,44 @@ def _summary(doc: dict[str, Any], order: list[str]) -> str:
     return first + second
 
 
-def _bands(doc: dict[str, Any], order: list[str]) -> str:
+def _bands(doc: dict[str, Any], order: list[str], slots: dict[str, int]) -> str:
     first = doc["strategies"][order[0]]["targets_by_band"]
-    labels = [b["band"] for b in first]
-    series: dict[str, list[float | None]] = {"all maskable tokens": [b["token_share"] for b in first]}
+    shown = [i for i, b in enumerate(first) if b["tokens"]]  # the same sample for every strategy
+    labels = [first[i]["band"] for i in shown]
+    series: dict[str, list[float | None]] = {_ALL_TOKENS: [first[i]["token_share"] for i in shown]}
     for name in order:
-        series[name] = [b["target_share"] for b in doc["strategies"][name]["targets_by_band"]]
+        band = doc["strategies"][name]["targets_by_band"]
+        series[name] = [band[i]["target_share"] for i in shown]
     chart = charts.bar_chart(title="Targets by word-frequency band (ranks counted in the sample)",
-                             categories=labels, series=series, y_label="share", percent=True)
+                             categories=labels, series=series, y_label="share", percent=True,
+                             slots={_ALL_TOKENS: -1, **slots})
     rows = []
-    for i, b in enumerate(first):
+    for i in shown:
+        b = first[i]
         rows.append([b["band"], b["types"], b["tokens"], b["token_share"]]
                     + [doc["strategies"][n]["targets_by_band"][i]["rate"] for n in order])
+    empty = [b["band"] for i, b in enumerate(first) if i not in shown]
     table = report.table(headers=["band", "word types", "maskable tokens", "share of tokens"]
                          + [f"rate: {n}" for n in order], rows=rows,
                          column_formats={h: "{:.2%}" for h in ["share of tokens"] + [f"rate: {n}" for n in order]},
                          caption="Masking rate within each band; a strategy that spreads its budget evenly "
-                                 "masks every band at about the asked rate")
+                                 "masks every band at about the asked rate"
+                                 + (f". No tokens in {', '.join(empty)}, left out." if empty else ""))
     return chart + table
 
 
-def _histograms(doc: dict[str, Any], order: list[str]) -> str:
+def _histograms(doc: dict[str, Any], order: list[str], slots: dict[str, int]) -> str:
     figs = [doc["strategies"][n] for n in order]
     out = []
     for what, cap in (("tokens", 13), ("words", 11)):
         labels, rows = length_bins([f["unit_lengths"][what] for f in figs], cap=cap)
         out.append(charts.histogram_chart(title=f"Length of masked units in {what}", bins=labels,
                                           series=dict(zip(order, rows)), y_label="share of masked units",
-                                          normalize=True, x_label=what))
+                                          normalize=True, x_label=what, slots=slots))
     labels, rows = _value_bins([f["targets_per_sequence"]["histogram"] for f in figs])
     out.append(charts.histogram_chart(title="Targets per sequence", bins=labels, series=dict(zip(order, rows)),
-                                      y_label="share of sequences", normalize=True, x_label="targets"))
+                                      y_label="share of sequences", normalize=True, x_label="targets",
+                                      slots=slots))
     return "".join(out)
 
 
@@ -167,19 +180,21 @@ def _examples(doc: dict[str, Any], order: list[str], examples: Sequence[dict[str
 def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any]], tokenizer: Any) -> str:
     """The whole page: ``write_page("cmp/compare.html", render_compare_html(doc, examples=ex, tokenizer=info))``."""
     order = list(doc["order"])
+    slots = {name: k for k, name in enumerate(order)}  # one colour per strategy on every chart
     measure_charts = []
     for path, title, axis, percent in _MEASURES:
         values = {n: [_get(doc["strategies"][n], path)] for n in order}
         if all(v[0] is None for v in values.values()):
             continue
         measure_charts.append(charts.bar_chart(title=title, categories=[title.split(":")[0]], series=values,
-                                               y_label=axis, percent=percent, name_bars=True))
+                                               y_label=axis, percent=percent, name_bars=True, slots=slots,
+                                               width=_SMALL_W, plot_height=_SMALL_H))
     mix = charts.bar_chart(title="How targets are shown", categories=["mask token", "random token", "unchanged"],
                            series={n: [doc["strategies"][n]["mix"][k] for k in ("mask", "random", "keep")]
-                                   for n in order}, y_label="share of targets", percent=True)
-    sections = [("Summary", _summary(doc, order)), ("Measures, strategy by strategy", "".join(measure_charts)),
-                ("Targets by word frequency", _bands(doc, order)), ("Unit lengths and targets per sequence",
-                                                                     _histograms(doc, order)),
+                                   for n in order}, y_label="share of targets", percent=True, slots=slots)
+    sections = [("Summary", _summary(doc, order)), ("Measures, strategy by strategy", report.grid(measure_charts)),
+                ("Targets by word frequency", _bands(doc, order, slots)),
+                ("Unit lengths and targets per sequence", _histograms(doc, order, slots)),
                 ("Replacement mix", mix), ("Example sequences", _examples(doc, order, examples, tokenizer))]
     skipped = [f"{name}: {why}" for name, why in doc.get("skipped", {}).items()]
     units = doc.get("units")

@@ -201,7 +201,7 @@ class _Frame:
 
     def __init__(self, *, title: str, names: Sequence[str], slots: Sequence[int], x_labels: Sequence[str],
                  y_label: str, x_label: str, ticks: Sequence[float], domain: tuple[float, float],
-                 percent: bool, swatch: str, width: float, plot_h: float,
+                 percent: bool, swatch: str, width: float, plot_h: float, legend: bool = True,
                  top_extra: float = 0.0, bottom_extra: float = 0.0) -> None:
         self.title, self.names, self.slots, self.swatch = title, list(names), list(slots), swatch
         self.width, self.plot_h = width, plot_h
@@ -211,14 +211,14 @@ class _Frame:
         self.legend: list[tuple[float, float, int]] = []
         x, row_y = _PAD, _PAD + 19 * len(self.title_lines) + 19
         name_w = min(260.0, width - 2 * _PAD - 30)
-        for k, name in enumerate(self.names):
+        for k, name in enumerate(self.names if legend else []):
             item_w = 30 + _text_w(_clip(name, 12, name_w), 12)
             if x + item_w > width - _PAD and x > _PAD:
                 x, row_y = _PAD, row_y + 18
             self.legend.append((x, row_y, k))
             x += item_w + 18
         self.name_w = name_w
-        self.top = (row_y + 24 if self.names else row_y + 17) + top_extra
+        self.top = (row_y + 24 if self.legend else row_y + 17) + top_extra
         self.x_text = list(x_labels)
         widths = [_text_w(_clip(t, 11, 170), 11) for t in self.x_text] or [0.0]
         self.left = _PAD + (20 if y_label else 0) + max(_text_w(t, 11) for t in self.tick_text) + 8
@@ -348,7 +348,7 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
     styles = style_slots(list(series), slots)
     args = dict(title=title, names=list(series), slots=styles, x_labels=x_labels, y_label=y_label,
                 x_label=x_label, ticks=ticks, domain=(ticks[0], ticks[-1]), percent=percent, swatch="bar",
-                width=width, plot_h=plot_height)
+                width=width, plot_h=plot_height, legend=not name_bars)  # named bars need no legend
     frame = _Frame(**args)  # type: ignore[arg-type]
     bar_w = frame.slot * fill / max(len(rows), 1)
     labels = [[None if v is None else _short(v, percent=percent) for v in row] for row in rows]

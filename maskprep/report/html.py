@@ -74,11 +74,16 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
                 cells.append(f'<td class="name">{esc(text)}</td>' if c == 0 else f"<td>{esc(text)}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     right = ' class="num"'
-    head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">{esc(h)}</th>'
+    head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">{_breakable(h)}</th>'
                    for c, h in enumerate(headers))
     cap = f"<caption>{esc(caption)}</caption>" if caption else ""
     return (f'<div class="tablewrap"><table>{cap}<thead><tr>{head}</tr></thead>'
             f'<tbody>{"".join(body)}</tbody></table></div>')
+
+
+def _breakable(header: str) -> str:
+    """An escaped header that may also break after a slash (``tokens/word``), so narrow columns stay narrow."""
+    return esc(header).replace("/", "/<wbr/>")
 
 
 def _shown(token: str) -> str:
@@ -157,12 +162,14 @@ h2{font-size:1.3rem;margin:2.4rem 0 .8rem;padding-bottom:.3rem;border-bottom:1px
 svg.chart{display:block;max-width:100%;height:auto;margin:1.2rem 0;break-inside:avoid}
 .tablewrap{overflow-x:auto;margin:1rem 0} caption{text-align:left;color:var(--muted);padding-bottom:.3rem}
 table{border-collapse:collapse;font-size:.92rem;font-variant-numeric:tabular-nums}
-th,td{padding:.32rem .7rem;border-bottom:1px solid var(--rule);text-align:left;vertical-align:top}
+th,td{padding:.32rem .6rem;border-bottom:1px solid var(--rule);text-align:left;vertical-align:top}
 th{border-bottom:2px solid var(--rule);font-weight:600;overflow-wrap:break-word;hyphens:auto}
-.num{text-align:right;white-space:nowrap} td.name{white-space:nowrap}
+.num{text-align:right;white-space:nowrap} th.num{white-space:normal} td.name{white-space:nowrap}
 tbody tr:nth-child(even){background:var(--zebra)}
 .grid{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,25rem),1fr));gap:0 1.5rem;align-items:start}
-.grid svg.chart{margin:.6rem 0} dl.defs{display:grid;grid-template-columns:max-content minmax(0,46rem);gap:.35rem 1.2rem}
+.grid svg.chart{margin:.6rem 0}
+.blocks{display:flex;flex-wrap:wrap;gap:0 2.5rem;align-items:flex-start} .blocks>*{min-width:0;max-width:100%}
+h3{font-size:1.08rem;margin:1.4rem 0 .4rem} dl.defs{display:grid;grid-template-columns:max-content minmax(0,46rem);gap:.35rem 1.2rem}
 dl.defs dt{font-weight:600} dl.defs dd{margin:0}
 @media (max-width:40rem){main{padding:1rem .6rem 2rem} nav ol{columns:1} dl.defs{grid-template-columns:1fr}
 dl.defs dd{margin:0 0 .5rem}}
@@ -170,7 +177,7 @@ footer{margin-top:3rem;color:var(--muted);font-size:.85rem}
 .seq{display:flex;flex-wrap:wrap;align-items:flex-start;gap:.35rem .2rem;margin:.8rem 0;padding:.7rem;
 border:1px solid var(--rule);border-radius:6px;font:.9rem/1.3 ui-monospace,Menlo,Consolas,monospace;break-inside:avoid}
 .seq .t{display:inline-flex;flex-direction:column;align-items:center;padding:.05rem .15rem;white-space:pre}
-.seq mark{display:inline-flex;gap:.1rem;background:var(--mark);color:inherit;border:1px solid var(--markline);
+.seq mark{display:inline-flex;flex-wrap:wrap;max-width:100%;gap:.1rem;background:var(--mark);color:inherit;border:1px solid var(--markline);
 border-radius:4px;padding:0 .1rem} .seq .sp{color:var(--muted)} .seq .m{font-weight:600}
 .seq .o{font-size:.7rem;font-weight:400;color:var(--muted);line-height:1.1}
 @media print{:root{--bg:#fff;--fg:#000;--muted:#444;--rule:#999;--zebra:#f2f2f2;--mark:#ffe28a;--markline:#7a5500}

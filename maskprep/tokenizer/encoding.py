@@ -171,6 +171,10 @@ class TokenizerInfo:
             t = self._new_types([key_row], [ids])[0]
         return t
 
+    def word_types(self) -> list[WordType]:
+        """The word forms decoded so far in this process (a cache: bounded, so it may miss some)."""
+        return list(self._types.values())
+
     def _new_types(self, rows: list[bytes], id_lists: list[list[int]]) -> list[WordType]:
         texts = self.tokenizer.decode_batch(id_lists, skip_special_tokens=False)
         out = []
