@@ -206,6 +206,35 @@ def test_markup_in_the_corpus_is_escaped_in_the_page(tmp_path, shakespeare_small
     assert not {"script", "b", "i"} & p.seen and "svg" in p.seen and "mark" in p.seen
 
 
+def test_a_strategy_keeps_its_colour_on_every_chart_and_empty_bands_are_left_out(comparison):
+    import re
+    import xml.etree.ElementTree as ET
+
+    from maskprep.report import charts
+
+    out, doc = comparison
+    page = (out / "compare.html").read_text(encoding="utf-8")
+    svgs = [ET.fromstring(m) for m in re.findall(r"<svg.*?</svg>", page, flags=re.S)]
+    colours: dict[str, set[str]] = {}
+    for svg in svgs:
+        for g in svg.iter("g"):
+            if g.get("class") == "series":
+                for mark in g:
+                    paint = mark.get("fill") if mark.get("class") == "bar" else mark.get("stroke")
+                    if mark.get("class") in ("bar", "line"):
+                        colours.setdefault(g.get("data-series"), set()).add(paint)
+    assert set(doc["order"]) <= set(colours) and len(svgs) >= 10
+    assert all(len(colours[name]) == 1 for name in doc["order"]), colours  # one colour each, every chart
+    assert len({next(iter(colours[n])) for n in doc["order"]}) == len(doc["order"])
+    assert colours["all maskable tokens"] == {charts.NEUTRAL}  # the reference is grey, shifting nothing
+    bands = doc["strategies"][doc["order"][0]]["targets_by_band"]
+    empty = [b["band"] for b in bands if not b["tokens"]]
+    assert empty == ["rarer"]  # four plays have fewer than 10,001 word types
+    band_chart = next(s for s in svgs if (s.findtext("title") or "").startswith("Targets by word-frequency band"))
+    assert "rarer" not in "".join(band_chart.itertext())
+    assert ">rarer<" not in page.split("Targets by word frequency</h2>", 1)[1].split("</section>", 1)[0]
+
+
 def test_cli_prints_the_table_and_names_skipped_pmi(tmp_path, shakespeare_small, small_wordpiece):
     r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "compare", str(shakespeare_small), "-t",
                                  str(small_wordpiece), "--sample", "50", "-o", str(tmp_path)])

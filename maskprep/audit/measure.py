@@ -28,9 +28,11 @@ from ..corpus.reader import CorpusOptions, ReadStats, iter_batches, iter_corpus,
 from ..errors import MaskprepError
 from .._files import atomic_write_json
 from ..progress import Progress
+from ..report.html import write_page
 from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType, encode_stream,
                                   load_tokenizer, save_tokenizer, unique_rows)
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
+from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
 
 BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
@@ -279,8 +281,5 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
            "tokenizers": results}
     output.mkdir(parents=True, exist_ok=True)
     atomic_write_json(output / "audit.json", doc)
-    from ..report.html import write_page
-    from .page import render_audit_html
-
     write_page(output / "audit.html", render_audit_html(doc))
     return doc
