@@ -1,4 +1,4 @@
-"""A small headless-Chromium driver for the page tests: the DevTools protocol over a pipe, stdlib only.
+"""A small headless-Chromium driver for the page tests: DevTools protocol over a pipe, stdlib only.
 
 Chromium (Debian's `chromium` package, installed by `.ci/run`) is started with
 ``--remote-debugging-pipe``: commands go in on file descriptor 3 and replies
@@ -20,13 +20,22 @@ import time
 from pathlib import Path
 from typing import Any
 
-FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-         "--disable-background-networking", "--disable-component-update", "--disable-sync",
-         "--hide-scrollbars", "--remote-debugging-pipe"]
+FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--hide-scrollbars",
+    "--remote-debugging-pipe",
+]
 
 
 def find_chromium() -> str | None:
-    """The Chromium executable: $MASKPREP_CHROMIUM, else `chromium` or `chromium-browser` on PATH."""
+    """The Chromium to use: $MASKPREP_CHROMIUM, else `chromium` or `chromium-browser` on PATH."""
     given = os.environ.get("MASKPREP_CHROMIUM")
     if given:
         return given
@@ -42,7 +51,7 @@ class Browser:
         cmd_r, self._cmd_w = os.pipe()
         self._res_r, res_w = os.pipe()
 
-        # In the child: the command pipe on fd 3, the reply pipe on fd 4 (dup2 makes them inheritable;
+        # In the child: command pipe on fd 3, reply pipe on fd 4 (dup2 makes them inheritable;
         # every other descriptor Python opens is not, so close_fds=False passes only these two).
         def wire() -> None:
             a = fcntl.fcntl(cmd_r, fcntl.F_DUPFD, 10)
@@ -50,16 +59,23 @@ class Browser:
             os.dup2(a, 3)
             os.dup2(b, 4)
 
-        self.proc = subprocess.Popen([executable, *FLAGS, f"--user-data-dir={self.profile}", "about:blank"],
-                                     stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.DEVNULL, preexec_fn=wire, close_fds=False)
+        self.proc = subprocess.Popen(
+            [executable, *FLAGS, f"--user-data-dir={self.profile}", "about:blank"],
+            stdin=subprocess.DEVNULL,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            preexec_fn=wire,
+            close_fds=False,
+        )
         os.close(cmd_r)
         os.close(res_w)
         self._buf = b""
         self._next = 0
         self.events: list[dict[str, Any]] = []
         target = self.call("Target.createTarget", url="about:blank")["targetId"]
-        self.session = self.call("Target.attachToTarget", targetId=target, flatten=True)["sessionId"]
+        self.session = self.call("Target.attachToTarget", targetId=target, flatten=True)[
+            "sessionId"
+        ]
         self.call("Page.enable", session=True)
         self.call("Runtime.enable", session=True)
 
@@ -99,7 +115,9 @@ class Browser:
         while b"\0" not in self._buf:
             left = deadline - time.monotonic()
             if left <= 0 or self.proc.poll() is not None:
-                raise TimeoutError("chromium did not answer in time" if left <= 0 else "chromium exited")
+                raise TimeoutError(
+                    "chromium did not answer in time" if left <= 0 else "chromium exited"
+                )
             ready, _, _ = select.select([self._res_r], [], [], left)
             if ready:
                 chunk = os.read(self._res_r, 1 << 20)
@@ -132,24 +150,39 @@ class Browser:
     # pages ----------------------------------------------------------------------------------
     def open(self, path: Path, width: int, height: int = 900) -> None:
         """Load a local file in a window ``width`` CSS pixels wide."""
-        self.call("Emulation.setDeviceMetricsOverride", session=True, width=width, height=height,
-                  deviceScaleFactor=1, mobile=False)
+        self.call(
+            "Emulation.setDeviceMetricsOverride",
+            session=True,
+            width=width,
+            height=height,
+            deviceScaleFactor=1,
+            mobile=False,
+        )
         self.events.clear()
         self.call("Page.navigate", session=True, url=path.resolve().as_uri())
         self.wait_event("Page.loadEventFired")
 
     def evaluate(self, expression: str) -> Any:
-        result = self.call("Runtime.evaluate", session=True, expression=expression, returnByValue=True)
+        result = self.call(
+            "Runtime.evaluate", session=True, expression=expression, returnByValue=True
+        )
         if "exceptionDetails" in result:
             raise RuntimeError(f"script failed: {result['exceptionDetails']}")
         return result["result"].get("value")
 
-    def screenshot(self, out: Path, width: int, *, top: int = 0, height: int | None = None) -> Path:
-        """A PNG of the page at ``width`` pixels: all of its height, or ``height`` pixels from ``top``."""
+    def screenshot(
+        self, out: Path, width: int, *, top: int = 0, height: int | None = None
+    ) -> Path:
+        """A PNG, ``width`` pixels wide: the whole page, or ``height`` pixels from ``top``."""
         full = int(self.evaluate("document.documentElement.scrollHeight"))
         tall = min(full - top if height is None else height, 16000)
-        shot = self.call("Page.captureScreenshot", session=True, format="png", captureBeyondViewport=True,
-                         clip={"x": 0, "y": top, "width": width, "height": tall, "scale": 1})
+        shot = self.call(
+            "Page.captureScreenshot",
+            session=True,
+            format="png",
+            captureBeyondViewport=True,
+            clip={"x": 0, "y": top, "width": width, "height": tall, "scale": 1},
+        )
         out.write_bytes(base64.b64decode(shot["data"]))
         return out
 
@@ -162,7 +195,8 @@ MEASURE = r"""(() => {
     const table = wrap.querySelector('table');
     const cap = table.querySelector('caption');
     const heads = [...table.querySelectorAll('th')].map(h => h.textContent);
-    out.tables.push({section: (wrap.closest('section') || {}).id || '', caption: cap ? cap.textContent : '',
+    out.tables.push({section: (wrap.closest('section') || {}).id || '',
+                     caption: cap ? cap.textContent : '',
                      headers: heads, box: wrap.clientWidth, content: wrap.scrollWidth,
                      right: wrap.getBoundingClientRect().right});
   }
@@ -174,7 +208,8 @@ MEASURE = r"""(() => {
     for (const t of svg.querySelectorAll('text')) {
       const b = t.getBBox();
       const m = t.getCTM();  // text may be rotated: map its box corners into the viewBox
-      const pts = [[b.x, b.y], [b.x + b.width, b.y], [b.x, b.y + b.height], [b.x + b.width, b.y + b.height]]
+      const x2 = b.x + b.width, y2 = b.y + b.height;
+      const pts = [[b.x, b.y], [x2, b.y], [b.x, y2], [x2, y2]]
         .map(([x, y]) => { const p = new DOMPoint(x, y).matrixTransform(m);
                            const s = svg.getCTM().inverse(); return p.matrixTransform(s); });
       const xs = pts.map(p => p.x), ys = pts.map(p => p.y);

@@ -224,15 +224,17 @@ def test_a_strategy_keeps_its_colour_on_every_chart_and_empty_bands_are_left_out
                     if mark.get("class") in ("bar", "line"):
                         colours.setdefault(g.get("data-series"), set()).add(paint)
     assert set(doc["order"]) <= set(colours) and len(svgs) >= 10
-    assert all(len(colours[name]) == 1 for name in doc["order"]), colours  # one colour each, every chart
+    assert all(len(colours[n]) == 1 for n in doc["order"]), colours  # one colour, every chart
     assert len({next(iter(colours[n])) for n in doc["order"]}) == len(doc["order"])
-    assert colours["all maskable tokens"] == {charts.NEUTRAL}  # the reference is grey, shifting nothing
+    assert colours["all maskable tokens"] == {charts.NEUTRAL}  # grey reference, shifts nothing
     bands = doc["strategies"][doc["order"][0]]["targets_by_band"]
     empty = [b["band"] for b in bands if not b["tokens"]]
     assert empty == ["rarer"]  # four plays have fewer than 10,001 word types
-    band_chart = next(s for s in svgs if (s.findtext("title") or "").startswith("Targets by word-frequency band"))
+    band_chart = next(s for s in svgs
+                      if (s.findtext("title") or "").startswith("Targets by word-frequency band"))
     assert "rarer" not in "".join(band_chart.itertext())
-    assert ">rarer<" not in page.split("Targets by word frequency</h2>", 1)[1].split("</section>", 1)[0]
+    section = page.split("Targets by word frequency</h2>", 1)[1].split("</section>", 1)[0]
+    assert ">rarer<" not in section
 
 
 def test_cli_prints_the_table_and_names_skipped_pmi(tmp_path, shakespeare_small, small_wordpiece):

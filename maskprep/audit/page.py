@@ -18,38 +18,70 @@ from .words import JOIN, PARTIAL, SPACE_MARK, fragmented_words
 #: What each column means, for the page (term, definition) and, shortened, the terminal legend.
 DEFINITIONS = (
     ("tokens/word", "Tokens per word occurrence, over words that are not punctuation-only."),
-    ("tokens/word (all)", "Tokens per word occurrence over every word: punctuation and special tokens "
-                          "included."),
-    ("split share", "Share of word occurrences (punctuation-only words left out) that take 2 or more "
-                    "tokens."),
-    ("tokens/char", "Tokens per character of the words' text (every word, whitespace not counted); lower "
-                    "means longer tokens."),
-    ("unknown rate", "Share of all tokens that are the unknown token (text the vocabulary cannot write)."),
-    ("continuation share", "Share of all tokens that continue a word: every token of a word but its first."),
-    ("words, word types", "Word occurrences and distinct words (punctuation-only words left out). A word is a "
-                          "piece of the tokenizer's own pre-tokenization, so it follows the tokenizer's "
-                          "casing and splitting."),
-    ("frequency band", "Word types ranked by their count in this corpus: top 1k is the 1,000 most frequent, "
-                       "1k-10k the next 9,000, and so on. Bands with no words are left out."),
-    ("pieces", f"The tokens of a word decoded to text, separated by {JOIN}; {SPACE_MARK} is a leading space "
-               f"that belongs to the token; {PARTIAL} is a token holding only part of a character's bytes "
-               "(the character is shown in the token that completes it)."),
-    ("forms", "Byte-level and metaspace vocabularies write a word one way after a space and another way "
-              "without one (after a bracket or quote). The list shows the word's most frequent form and its "
-              "tokens; share of uses is that form's share of the word's occurrences; tokens per use averages "
-              "over every form."),
+    (
+        "tokens/word (all)",
+        "Tokens per word occurrence over every word: punctuation and special tokens included.",
+    ),
+    (
+        "split share",
+        "Share of word occurrences (punctuation-only words left out) that take 2 or more tokens.",
+    ),
+    (
+        "tokens/char",
+        "Tokens per character of the words' text (every word, whitespace not counted); lower "
+        "means longer tokens.",
+    ),
+    (
+        "unknown rate",
+        "Share of all tokens that are the unknown token (text the vocabulary cannot write).",
+    ),
+    (
+        "continuation share",
+        "Share of all tokens that continue a word: every token of a word but its first.",
+    ),
+    (
+        "words, word types",
+        "Word occurrences and distinct words (punctuation-only words left out). A word is a "
+        "piece of the tokenizer's own pre-tokenization, so it follows the tokenizer's "
+        "casing and splitting.",
+    ),
+    (
+        "frequency band",
+        "Word types ranked by their count in this corpus: top 1k is the 1,000 most frequent, "
+        "1k-10k the next 9,000, and so on. Bands with no words are left out.",
+    ),
+    (
+        "pieces",
+        f"The tokens of a word decoded to text, separated by {JOIN}; {SPACE_MARK} is a leading "
+        f"space that belongs to the token; {PARTIAL} is a token holding only part of a "
+        "character's bytes "
+        "(the character is shown in the token that completes it).",
+    ),
+    (
+        "forms",
+        "Byte-level and metaspace vocabularies write a word one way after a space and another way "
+        "without one (after a bracket or quote). The list shows the word's most frequent form and "
+        "its tokens; share of uses is that form's share of the word's occurrences; tokens per use "
+        "averages "
+        "over every form.",
+    ),
 )
 
-_LEGEND = ("tok/word: tokens per word, punctuation-only words left out; tok/word all: the same over every "
-           "word; split: share of words in 2+ tokens; tok/char: tokens per character; unk: unknown tokens "
-           "among all tokens; cont.: continuation tokens (every token of a word but its first) among all "
-           "tokens.")
+_LEGEND = (
+    "tok/word: tokens per word, punctuation-only words left out; tok/word all: the same over "
+    "every word; split: share of words in 2+ tokens; tok/char: tokens per character; unk: "
+    "unknown tokens "
+    "among all tokens; cont.: continuation tokens (every token of a word but its first) among all "
+    "tokens."
+)
 
 
 def visible_bands(doc: dict[str, Any]) -> list[int]:
     """Indices of the bands that hold words for at least one tokenizer."""
     count = len(doc["bands"])
-    return [i for i in range(count) if any(r["bands"][i]["occurrences"] for r in doc["tokenizers"])]
+    return [
+        i for i in range(count) if any(r["bands"][i]["occurrences"] for r in doc["tokenizers"])
+    ]
 
 
 def _word_text(w: dict[str, Any]) -> str:
@@ -58,20 +90,40 @@ def _word_text(w: dict[str, Any]) -> str:
 
 
 def format_audit_table(doc: dict[str, Any]) -> str:
-    """The terminal summary: one row per tokenizer, a legend, tokens per word by band, fragmented words."""
-    rows = [("tokenizer", "vocab", "tok/word", "tok/word all", "split", "tok/char", "unk", "cont.")]
+    """The terminal summary: a row per tokenizer, a legend, tokens per word by band, word lists."""
+    rows = [
+        ("tokenizer", "vocab", "tok/word", "tok/word all", "split", "tok/char", "unk", "cont.")
+    ]
     for r in doc["tokenizers"]:
-        rows.append((r["name"], f"{r['vocab_size']:,}", f"{r['tokens_per_word']:.3f}",
-                     f"{r['tokens_per_word_all']:.3f}", f"{r['split_share']:.1%}", f"{r['tokens_per_char']:.3f}",
-                     f"{r['unk_rate']:.2%}", f"{r['continuation_share']:.1%}"))
-    out = [_format_rows(rows), textwrap.fill(_LEGEND, width=100), "",
-           "tokens per word by frequency band of word types"]
+        rows.append(
+            (
+                r["name"],
+                f"{r['vocab_size']:,}",
+                f"{r['tokens_per_word']:.3f}",
+                f"{r['tokens_per_word_all']:.3f}",
+                f"{r['split_share']:.1%}",
+                f"{r['tokens_per_char']:.3f}",
+                f"{r['unk_rate']:.2%}",
+                f"{r['continuation_share']:.1%}",
+            )
+        )
+    out = [
+        _format_rows(rows),
+        textwrap.fill(_LEGEND, width=100),
+        "",
+        "tokens per word by frequency band of word types",
+    ]
     shown = visible_bands(doc)
     brow = [("tokenizer",) + tuple(doc["bands"][i] for i in shown)]
     for r in doc["tokenizers"]:
         bands = [r["bands"][i] for i in shown]
-        brow.append((r["name"],) + tuple("-" if b["tokens_per_word"] is None else f"{b['tokens_per_word']:.3f}"
-                                         for b in bands))
+        brow.append(
+            (r["name"],)
+            + tuple(
+                "-" if b["tokens_per_word"] is None else f"{b['tokens_per_word']:.3f}"
+                for b in bands
+            )
+        )
     out.append(_format_rows(brow))
     hidden = [b for i, b in enumerate(doc["bands"]) if i not in shown]
     if hidden:
@@ -79,7 +131,10 @@ def format_audit_table(doc: dict[str, Any]) -> str:
     for r in doc["tokenizers"][:3]:
         worst = fragmented_words(r, 8)
         if worst:
-            out.append(f"\nmost fragmented frequent words ({r['name']}): " + ", ".join(_word_text(w) for w in worst))
+            out.append(
+                f"\nmost fragmented frequent words ({r['name']}): "
+                + ", ".join(_word_text(w) for w in worst)
+            )
     return "\n".join(out)
 
 
@@ -96,9 +151,15 @@ def _format_rows(rows: Sequence[tuple[str, ...]]) -> str:
 
 def _words_table(r: dict[str, Any], frequent: int | None) -> str:
     worst = fragmented_words(r)
-    within = f"the {frequent:,} most frequent word types" if frequent else "the most frequent word types"
+    within = (
+        f"the {frequent:,} most frequent word types"
+        if frequent
+        else "the most frequent word types"
+    )
     if not worst:
-        return report.paragraph(f"No word among {within} takes 2 or more tokens in its most frequent form.")
+        return report.paragraph(
+            f"No word among {within} takes 2 or more tokens in its most frequent form."
+        )
     several = any(len(w["forms"]) > 1 for w in worst)
     headers = ["word", "frequency rank", "count", "tokens", "pieces"]
     if several:
@@ -110,49 +171,120 @@ def _words_table(r: dict[str, Any], frequent: int | None) -> str:
             others = "; ".join(f"{f['pieces'] or '?'} ({f['share']:.0%})" for f in w["forms"][1:])
             row += [w["share"], w["tokens_per_use"], others]
         rows.append(row)
-    return report.table(headers=headers, rows=rows,
-                        column_formats={"share of uses": "{:.0%}", "tokens per use": ".2f"},
-                        caption=f"Among {within}: words whose most frequent form takes 2+ tokens")
+    return report.table(
+        headers=headers,
+        rows=rows,
+        column_formats={"share of uses": "{:.0%}", "tokens per use": ".2f"},
+        caption=f"Among {within}: words whose most frequent form takes 2+ tokens",
+    )
 
 
 def render_audit_html(doc: dict[str, Any]) -> str:
-    """The audit page: charts by band (one colour per tokenizer throughout), tables, definitions, word lists."""
+    """The audit page: charts by band (one colour per tokenizer), tables, definitions, words."""
     toks = doc["tokenizers"]
     shown = visible_bands(doc)
     labels = [doc["bands"][i] for i in shown]
     slots = {r["name"]: k for k, r in enumerate(toks)}
     chart = charts.line_chart(
-        title="Tokens per word by frequency band of word types", x_labels=labels,
+        title="Tokens per word by frequency band of word types",
+        x_labels=labels,
         series={r["name"]: [r["bands"][i]["tokens_per_word"] for i in shown] for r in toks},
-        y_label="tokens per word", y_min=1.0, slots=slots)
+        y_label="tokens per word",
+        y_min=1.0,
+        slots=slots,
+    )
     split_chart = charts.bar_chart(
-        title="Share of word occurrences split into 2+ tokens, by band", categories=labels,
+        title="Share of word occurrences split into 2+ tokens, by band",
+        categories=labels,
         series={r["name"]: [r["bands"][i]["split_share"] for i in shown] for r in toks},
-        y_label="split share", percent=True, slots=slots)
+        y_label="split share",
+        percent=True,
+        slots=slots,
+    )
     summary = report.table(
-        headers=["tokenizer", "vocab size", "tokens/word", "tokens/word (all)", "split share", "tokens/char",
-                 "unknown rate", "continuation share", "words", "word types"],
-        rows=[[r["name"], r["vocab_size"], r["tokens_per_word"], r["tokens_per_word_all"], r["split_share"],
-               r["tokens_per_char"], r["unk_rate"], r["continuation_share"], r["words"], r["word_types"]]
-              for r in toks],
-        column_formats={"split share": "{:.1%}", "unknown rate": "{:.2%}", "continuation share": "{:.1%}"})
+        headers=[
+            "tokenizer",
+            "vocab size",
+            "tokens/word",
+            "tokens/word (all)",
+            "split share",
+            "tokens/char",
+            "unknown rate",
+            "continuation share",
+            "words",
+            "word types",
+        ],
+        rows=[
+            [
+                r["name"],
+                r["vocab_size"],
+                r["tokens_per_word"],
+                r["tokens_per_word_all"],
+                r["split_share"],
+                r["tokens_per_char"],
+                r["unk_rate"],
+                r["continuation_share"],
+                r["words"],
+                r["word_types"],
+            ]
+            for r in toks
+        ],
+        column_formats={
+            "split share": "{:.1%}",
+            "unknown rate": "{:.2%}",
+            "continuation share": "{:.1%}",
+        },
+    )
     band_rows = []
     for r in toks:
         for b in (r["bands"][i] for i in shown):
-            band_rows.append([r["name"], b["band"], b["types"], b["occurrences"], b["occurrence_share"],
-                              b["tokens_per_word"], b["split_share"]])
-    bands_table = report.table(headers=["tokenizer", "band", "types", "occurrences", "share of words",
-                                        "tokens/word", "split share"], rows=band_rows,
-                               column_formats={"share of words": "{:.1%}", "split share": "{:.1%}"})
+            band_rows.append(
+                [
+                    r["name"],
+                    b["band"],
+                    b["types"],
+                    b["occurrences"],
+                    b["occurrence_share"],
+                    b["tokens_per_word"],
+                    b["split_share"],
+                ]
+            )
+    bands_table = report.table(
+        headers=[
+            "tokenizer",
+            "band",
+            "types",
+            "occurrences",
+            "share of words",
+            "tokens/word",
+            "split share",
+        ],
+        rows=band_rows,
+        column_formats={"share of words": "{:.1%}", "split share": "{:.1%}"},
+    )
     frequent = doc.get("fragmented_list", {}).get("frequent_types")
-    blocks = [f'<div><h3>{report.esc(r["name"])}</h3>{_words_table(r, frequent)}</div>'
-              for r in toks]
-    sections = [("Tokens per word by frequency band", chart + split_chart), ("Summary", summary),
-                ("What the figures mean", report.definitions(DEFINITIONS)),
-                ("By frequency band", bands_table),
-                ("Most fragmented frequent words", '<div class="blocks">' + "".join(blocks) + "</div>")]
+    blocks = [
+        f"<div><h3>{report.esc(r['name'])}</h3>{_words_table(r, frequent)}</div>" for r in toks
+    ]
+    sections = [
+        ("Tokens per word by frequency band", chart + split_chart),
+        ("Summary", summary),
+        ("What the figures mean", report.definitions(DEFINITIONS)),
+        ("By frequency band", bands_table),
+        ("Most fragmented frequent words", '<div class="blocks">' + "".join(blocks) + "</div>"),
+    ]
     hidden = [b for i, b in enumerate(doc["bands"]) if i not in shown]
-    notes = list(doc["notes"]) + ([f"No words in band{'s' if len(hidden) > 1 else ''} {', '.join(hidden)}, "
-                                   "so charts and tables leave it out."] if hidden else [])
-    return report.page(title="Vocabulary fragmentation audit",
-                       subtitle="Corpus: " + ", ".join(doc["corpus"]), sections=sections, notes=notes)
+    notes = list(doc["notes"]) + (
+        [
+            f"No words in band{'s' if len(hidden) > 1 else ''} {', '.join(hidden)}, "
+            "so charts and tables leave it out."
+        ]
+        if hidden
+        else []
+    )
+    return report.page(
+        title="Vocabulary fragmentation audit",
+        subtitle="Corpus: " + ", ".join(doc["corpus"]),
+        sections=sections,
+        notes=notes,
+    )

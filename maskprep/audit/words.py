@@ -37,7 +37,7 @@ PARTIAL = "\u2026"
 
 
 def form_hashes(ids: np.ndarray, word_offsets: np.ndarray) -> np.ndarray:
-    """A uint64 hash of each word's token ids (sum of (id + 1) * M^(position + 1), plus the length).
+    """A uint64 hash of each word's token ids: sum of (id + 1) * M^(position + 1), plus the length.
 
     >>> form_hashes(np.array([5, 6, 5], np.int32), np.array([0, 2, 3])).tolist() == [
     ...     form_hash([5, 6]), form_hash([5])]
@@ -63,7 +63,9 @@ def form_hash(ids: Sequence[int]) -> int:
     return (h + len(ids)) & _MASK
 
 
-def main_forms(word_of_form: np.ndarray, occ: np.ndarray, fhash: np.ndarray, words: int) -> np.ndarray:
+def main_forms(
+    word_of_form: np.ndarray, occ: np.ndarray, fhash: np.ndarray, words: int
+) -> np.ndarray:
     """Index of each word's most frequent form (ties: the smaller hash), int64 [words]."""
     order = np.lexsort((fhash, -occ, word_of_form))
     first = np.r_[True, word_of_form[order][1:] != word_of_form[order][:-1]]
@@ -72,11 +74,18 @@ def main_forms(word_of_form: np.ndarray, occ: np.ndarray, fhash: np.ndarray, wor
     return out
 
 
-def select_fragmented(ranked: np.ndarray, main_tokens: np.ndarray, mean_tokens: np.ndarray, *,
-                      frequent_types: int, top_words: int) -> np.ndarray:
-    """The listed words: among the ``frequent_types`` first of ``ranked`` (word indices, most frequent
-    first), those whose most frequent form has 2+ tokens; most tokens first, then the higher mean
-    over all forms, then the more frequent. Returns positions in ``ranked``.
+def select_fragmented(
+    ranked: np.ndarray,
+    main_tokens: np.ndarray,
+    mean_tokens: np.ndarray,
+    *,
+    frequent_types: int,
+    top_words: int,
+) -> np.ndarray:
+    """The listed words, as positions in ``ranked`` (word indices, most frequent first).
+
+    Among the first ``frequent_types`` of ``ranked``, the words whose most frequent form has 2+
+    tokens; most tokens first, then the higher mean over all forms, then the more frequent.
 
     >>> select_fragmented(np.array([0, 1, 2]), np.array([1, 3, 2]), np.array([1.0, 3.0, 1.5]),
     ...                   frequent_types=3, top_words=5).tolist()
@@ -112,17 +121,19 @@ def readable_pieces(info: TokenizerInfo, ids: Sequence[int]) -> tuple[list[str],
     """
     tok = info.tokenizer
     ref = tok.encode("a", add_special_tokens=False).ids[:1]
-    texts = tok.decode_batch([ref + list(ids[:k]) for k in range(len(ids) + 1)], skip_special_tokens=False)
+    texts = tok.decode_batch(
+        [ref + list(ids[:k]) for k in range(len(ids) + 1)], skip_special_tokens=False
+    )
     base, done, pieces = texts[0], "", []
     for k, text in enumerate(texts[1:], 1):
         if not text.startswith(base):
             return [tok.id_to_token(int(i)) or "?" for i in ids], False
-        now = text[len(base):]
+        now = text[len(base) :]
         if k < len(ids) and now.endswith("\ufffd"):
             now = now[:-1]  # an incomplete character, completed by a later token
         if not now.startswith(done):
             return [tok.id_to_token(int(i)) or "?" for i in ids], False
-        pieces.append(now[len(done):])
+        pieces.append(now[len(done) :])
         done = now
     lead = bool(done) and done[0].isspace()
     return pieces, lead
@@ -150,10 +161,12 @@ def shown_forms(info: TokenizerInfo, forms: Sequence[Sequence[int]]) -> list[str
 
 
 def fragmented_words(result: dict[str, Any], limit: int | None = None) -> list[dict[str, Any]]:
-    """The rows of one tokenizer's list that can be shown (text and pieces known), at most ``limit``.
+    """The rows of one tokenizer's list that can be shown (text and pieces known), up to ``limit``.
 
     The list itself is chosen by `select_fragmented` when the audit runs, so
     the terminal, the page and audit.json show the same words.
     """
-    rows = [w for w in result.get("worst_words", []) if w.get("word") is not None and w.get("pieces")]
+    rows = [
+        w for w in result.get("worst_words", []) if w.get("word") is not None and w.get("pieces")
+    ]
     return rows if limit is None else rows[:limit]

@@ -127,9 +127,10 @@ def _bands(doc: dict[str, Any], order: list[str], slots: dict[str, int]) -> str:
     table = report.table(headers=["band", "word types", "maskable tokens", "share of tokens"]
                          + [f"rate: {n}" for n in order], rows=rows,
                          column_formats={h: "{:.2%}" for h in ["share of tokens"] + [f"rate: {n}" for n in order]},
-                         caption="Masking rate within each band; a strategy that spreads its budget evenly "
-                                 "masks every band at about the asked rate"
-                                 + (f". No tokens in {', '.join(empty)}, left out." if empty else ""))
+                         caption="Masking rate within each band; a strategy that spreads its "
+                                 "budget evenly masks every band at about the asked rate"
+                                 + (f". No tokens in {', '.join(empty)}, left out." if empty
+                                    else ""))
     return chart + table
 
 
@@ -142,9 +143,9 @@ def _histograms(doc: dict[str, Any], order: list[str], slots: dict[str, int]) ->
                                           series=dict(zip(order, rows)), y_label="share of masked units",
                                           normalize=True, x_label=what, slots=slots))
     labels, rows = _value_bins([f["targets_per_sequence"]["histogram"] for f in figs])
-    out.append(charts.histogram_chart(title="Targets per sequence", bins=labels, series=dict(zip(order, rows)),
-                                      y_label="share of sequences", normalize=True, x_label="targets",
-                                      slots=slots))
+    out.append(charts.histogram_chart(title="Targets per sequence", bins=labels,
+                                      series=dict(zip(order, rows)), y_label="share of sequences",
+                                      normalize=True, x_label="targets", slots=slots))
     return "".join(out)
 
 
@@ -186,13 +187,16 @@ def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any
         values = {n: [_get(doc["strategies"][n], path)] for n in order}
         if all(v[0] is None for v in values.values()):
             continue
-        measure_charts.append(charts.bar_chart(title=title, categories=[title.split(":")[0]], series=values,
-                                               y_label=axis, percent=percent, name_bars=True, slots=slots,
-                                               width=_SMALL_W, plot_height=_SMALL_H))
+        measure_charts.append(charts.bar_chart(title=title, categories=[title.split(":")[0]],
+                                               series=values, y_label=axis, percent=percent,
+                                               name_bars=True, slots=slots, width=_SMALL_W,
+                                               plot_height=_SMALL_H))
     mix = charts.bar_chart(title="How targets are shown", categories=["mask token", "random token", "unchanged"],
                            series={n: [doc["strategies"][n]["mix"][k] for k in ("mask", "random", "keep")]
-                                   for n in order}, y_label="share of targets", percent=True, slots=slots)
-    sections = [("Summary", _summary(doc, order)), ("Measures, strategy by strategy", report.grid(measure_charts)),
+                                   for n in order}, y_label="share of targets", percent=True,
+                           slots=slots)
+    sections = [("Summary", _summary(doc, order)),
+                ("Measures, strategy by strategy", report.grid(measure_charts)),
                 ("Targets by word frequency", _bands(doc, order, slots)),
                 ("Unit lengths and targets per sequence", _histograms(doc, order, slots)),
                 ("Replacement mix", mix), ("Example sequences", _examples(doc, order, examples, tokenizer))]

@@ -143,13 +143,13 @@ def _marker(k: int, x: float, y: float) -> str:
 
 
 def _dash(k: int) -> str:
-    """Dash pattern of slot ``k``: it cycles within twelve slots and shifts with each round of colours."""
+    """Dash pattern of slot ``k``: it cycles within twelve slots, shifted by each colour round."""
     pattern = "4 3" if k < 0 else _DASHES[(k + k // len(PALETTE)) % 4]
     return f' stroke-dasharray="{pattern}"' if pattern else ""
 
 
 def _bar_paint(k: int) -> str:
-    """Fill of a bar (and its legend swatch): solid for the first twelve slots, then pale, then outlined."""
+    """Fill of a bar and its legend swatch: solid for twelve slots, then pale, then hollow."""
     colour, round_ = _colour(k), (max(k, 0) // len(PALETTE)) % 3
     if round_ == 1:
         return f'fill="{colour}" fill-opacity="0.35" stroke="{colour}" stroke-width="1.6"'
@@ -183,8 +183,9 @@ def style_slots(names: Sequence[str], slots: Mapping[str, int] | None = None) ->
 
 
 def _wrap(text: str, size: float, max_w: float, lines: int) -> list[str]:
-    """``text`` broken at spaces into at most ``lines`` lines that fit ``max_w`` (the last clipped)."""
-    out, words = [], text.split(" ")
+    """``text`` broken at spaces into at most ``lines`` lines that fit ``max_w`` (last clipped)."""
+    out: list[str] = []
+    words = text.split(" ")
     while words and len(out) < lines - 1:
         end = 1
         while end < len(words) and _text_w(" ".join(words[:end + 1]), size) <= max_w:
@@ -199,8 +200,9 @@ def _wrap(text: str, size: float, max_w: float, lines: int) -> list[str]:
 class _Frame:
     """Layout and axes shared by every chart: title, legend, y ticks, x labels."""
 
-    def __init__(self, *, title: str, names: Sequence[str], slots: Sequence[int], x_labels: Sequence[str],
-                 y_label: str, x_label: str, ticks: Sequence[float], domain: tuple[float, float],
+    def __init__(self, *, title: str, names: Sequence[str], slots: Sequence[int],
+                 x_labels: Sequence[str], y_label: str, x_label: str, ticks: Sequence[float],
+                 domain: tuple[float, float],
                  percent: bool, swatch: str, width: float, plot_h: float, legend: bool = True,
                  top_extra: float = 0.0, bottom_extra: float = 0.0) -> None:
         self.title, self.names, self.slots, self.swatch = title, list(names), list(slots), swatch
@@ -250,15 +252,17 @@ class _Frame:
                f"<title>{esc(self.title)}</title>",
                f"<desc>{esc(f'Series: {listed}.' if listed else 'No series.')}</desc>"]
         for i, line in enumerate(self.title_lines):
-            out.append(_svg_text(line, x=_PAD, y=_PAD + 16 + 19 * i, size=15, max_w=self.width - 2 * _PAD,
-                                 extra=' font-weight="600"'))
+            out.append(_svg_text(line, x=_PAD, y=_PAD + 16 + 19 * i, size=15,
+                                 max_w=self.width - 2 * _PAD, extra=' font-weight="600"'))
         for x, y, k in self.legend:
             slot = self.slots[k]
             if self.swatch == "line":
                 out.append(f'<line x1="{x:.1f}" y1="{y - 4:.1f}" x2="{x + 24:.1f}" y2="{y - 4:.1f}" '
-                           f'stroke="{_colour(slot)}" stroke-width="2"{_dash(slot)}/>' + _marker(slot, x + 12, y - 4))
+                           f'stroke="{_colour(slot)}" stroke-width="2"{_dash(slot)}/>'
+                           + _marker(slot, x + 12, y - 4))
             else:
-                out.append(f'<rect x="{x + 6:.1f}" y="{y - 10:.1f}" width="12" height="12" {_bar_paint(slot)}/>')
+                out.append(f'<rect x="{x + 6:.1f}" y="{y - 10:.1f}" width="12" height="12" '
+                           f'{_bar_paint(slot)}/>')
             out.append(_svg_text(self.names[k], x=x + 30, y=y, size=12, max_w=self.name_w))
         for tick, text in zip(self.ticks, self.tick_text):
             yy, strong = self.y(tick), tick == 0 or tick == self.ticks[0]
@@ -283,15 +287,19 @@ class _Frame:
 
 
 def _empty_chart(title: str, width: float = _WIDTH) -> str:
-    return (f'<svg class="chart" role="img" width="{width:g}" height="90" viewBox="0 0 {width:g} 90" '
-            f'fill="currentColor" font-family="system-ui, sans-serif"><title>{esc(title)}</title>'
-            + _svg_text(title, x=_PAD, y=_PAD + 16, size=15, max_w=width - 2 * _PAD, extra=' font-weight="600"')
-            + f'<text x="{width / 2:g}" y="64" font-size="13" text-anchor="middle">no data</text></svg>')
+    return (f'<svg class="chart" role="img" width="{width:g}" height="90" '
+            f'viewBox="0 0 {width:g} 90" fill="currentColor" font-family="system-ui, sans-serif">'
+            f'<title>{esc(title)}</title>'
+            + _svg_text(title, x=_PAD, y=_PAD + 16, size=15, max_w=width - 2 * _PAD,
+                        extra=' font-weight="600"')
+            + f'<text x="{width / 2:g}" y="64" font-size="13" text-anchor="middle">no data</text>'
+            '</svg>')
 
 
 def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequence[float | None]],
                y_label: str, y_min: float | None = None, x_label: str = "",
-               slots: Mapping[str, int] | None = None, width: float = _WIDTH, plot_height: float = _PLOT_H) -> str:
+               slots: Mapping[str, int] | None = None, width: float = _WIDTH,
+               plot_height: float = _PLOT_H) -> str:
     """Inline SVG with one line and markers per series; None/NaN values leave a gap.
 
     ``y_min`` fixes the bottom of the axis (it is lowered if data go below it);
@@ -311,9 +319,9 @@ def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequ
     bottom = ticks[0] if y_min is None else lo
     ticks = [t for t in ticks if t >= bottom - 1e-12 * max(1.0, abs(bottom))]  # ticks[-1] >= max > bottom
     styles = style_slots(list(series), slots)
-    frame = _Frame(title=title, names=list(series), slots=styles, x_labels=x_labels, y_label=y_label,
-                   x_label=x_label, ticks=ticks, domain=(bottom, ticks[-1]), percent=False, swatch="line",
-                   width=width, plot_h=plot_height)
+    frame = _Frame(title=title, names=list(series), slots=styles, x_labels=x_labels,
+                   y_label=y_label, x_label=x_label, ticks=ticks, domain=(bottom, ticks[-1]),
+                   percent=False, swatch="line", width=width, plot_h=plot_height)
     out = frame.open()
     for k, (name, row) in zip(styles, zip(series, rows)):
         path, pen_down, points = [], False, []
@@ -346,9 +354,10 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
     ticks = _nice_ticks(lo, hi if hi > lo else 1.0)
     x_labels = [""] * len(categories) if name_bars else categories
     styles = style_slots(list(series), slots)
-    args = dict(title=title, names=list(series), slots=styles, x_labels=x_labels, y_label=y_label,
-                x_label=x_label, ticks=ticks, domain=(ticks[0], ticks[-1]), percent=percent, swatch="bar",
-                width=width, plot_h=plot_height, legend=not name_bars)  # named bars need no legend
+    args = dict(title=title, names=list(series), slots=styles, x_labels=x_labels,
+                y_label=y_label, x_label=x_label, ticks=ticks, domain=(ticks[0], ticks[-1]),
+                percent=percent, swatch="bar", width=width, plot_h=plot_height,
+                legend=not name_bars)  # bars named under them need no legend
     frame = _Frame(**args)  # type: ignore[arg-type]
     bar_w = frame.slot * fill / max(len(rows), 1)
     labels = [[None if v is None else _short(v, percent=percent) for v in row] for row in rows]
@@ -372,8 +381,8 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
             top, bar_h = min(frame.y(bar), zero), abs(frame.y(bar) - zero)
             tip = esc(f"{name} \u2014 {categories[i]}: {_exact(bar, percent=percent)}")
             group.append(f'<rect class="bar" x="{x + bar_w * 0.06:.1f}" y="{top:.1f}" '
-                         f'width="{max(bar_w * 0.88, 1.0):.1f}" height="{bar_h:.1f}" {_bar_paint(slot)}>'
-                         f'<title>{tip}</title></rect>')
+                         f'width="{max(bar_w * 0.88, 1.0):.1f}" height="{bar_h:.1f}" '
+                         f'{_bar_paint(slot)}><title>{tip}</title></rect>')
             if mode != "none":
                 cx, up = x + bar_w / 2, bar >= 0
                 ly = top - 4 if up else top + bar_h + (11 if mode == "flat" else 4)
@@ -383,8 +392,8 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
                 group.append(f'<text class="value" x="{cx:.1f}" y="{ly + dy:.1f}" font-size="10" '
                              f'text-anchor="{anchor}"{turn}>{esc(labels[k][i])}</text>')
             if name_bars:
-                group.append(_svg_text(name, x=x + bar_w / 2, y=frame.label_y, size=11, max_w=bar_w,
-                                       anchor="middle"))
+                group.append(_svg_text(name, x=x + bar_w / 2, y=frame.label_y, size=11,
+                                       max_w=bar_w, anchor="middle"))
         out.append("".join(group) + "</g>")
     out.append("</svg>")
     return "\n".join(out)
@@ -392,7 +401,8 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
 
 def bar_chart(*, title: str, categories: Sequence[str], series: Mapping[str, Sequence[float | None]],
               y_label: str, percent: bool = False, x_label: str = "", name_bars: bool = False,
-              slots: Mapping[str, int] | None = None, width: float = _WIDTH, plot_height: float = _PLOT_H) -> str:
+              slots: Mapping[str, int] | None = None, width: float = _WIDTH,
+              plot_height: float = _PLOT_H) -> str:
     """Inline SVG of grouped bars: per category, one bar per series side by side, labelled.
 
     With ``percent=True`` values are fractions (0.15) shown as percentages (15.0%).
@@ -404,9 +414,9 @@ def bar_chart(*, title: str, categories: Sequence[str], series: Mapping[str, Seq
     >>> bar_chart(title="Masking rate", categories=["rate"], series={"token": [0.15], "pmi": [0.149]}, y_label="share", percent=True)[:4]
     '<svg'
     """
-    return _bars(title=title, categories=categories, series=series, y_label=y_label, x_label=x_label,
-                 percent=percent, fill=0.8, turn_labels=True, name_bars=name_bars, slots=slots, width=width,
-                 plot_height=plot_height)
+    return _bars(title=title, categories=categories, series=series, y_label=y_label,
+                 x_label=x_label, percent=percent, fill=0.8, turn_labels=True, name_bars=name_bars,
+                 slots=slots, width=width, plot_height=plot_height)
 
 
 def histogram_chart(*, title: str, bins: Sequence[str], series: Mapping[str, Sequence[float]],

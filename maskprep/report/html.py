@@ -71,18 +71,19 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
             else:
                 text = "" if value is None else ("yes" if value else "no") if isinstance(value, bool) else str(value)
                 has_text[c] = has_text[c] or value is not None
-                cells.append(f'<td class="name">{esc(text)}</td>' if c == 0 else f"<td>{esc(text)}</td>")
+                name = ' class="name"' if c == 0 else ""
+                cells.append(f"<td{name}>{esc(text)}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     right = ' class="num"'
-    head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">{_breakable(h)}</th>'
-                   for c, h in enumerate(headers))
+    head = "".join(f'<th{right if has_number[c] and not has_text[c] else ""} scope="col">'
+                   f"{_breakable(h)}</th>" for c, h in enumerate(headers))
     cap = f"<caption>{esc(caption)}</caption>" if caption else ""
     return (f'<div class="tablewrap"><table>{cap}<thead><tr>{head}</tr></thead>'
             f'<tbody>{"".join(body)}</tbody></table></div>')
 
 
 def _breakable(header: str) -> str:
-    """An escaped header that may also break after a slash (``tokens/word``), so narrow columns stay narrow."""
+    """An escaped header that may also break after a slash (``tokens/word``): narrow columns."""
     return esc(header).replace("/", "/<wbr/>")
 
 
@@ -136,7 +137,8 @@ def definitions(items: Sequence[tuple[str, str]]) -> str:
     >>> definitions([("split share", "words in 2+ tokens")])
     '<dl class="defs"><dt>split share</dt><dd>words in 2+ tokens</dd></dl>'
     """
-    return '<dl class="defs">' + "".join(f"<dt>{esc(t)}</dt><dd>{esc(d)}</dd>" for t, d in items) + "</dl>"
+    pairs = "".join(f"<dt>{esc(t)}</dt><dd>{esc(d)}</dd>" for t, d in items)
+    return f'<dl class="defs">{pairs}</dl>'
 
 
 def grid(parts: Sequence[str]) -> str:
@@ -156,7 +158,8 @@ _CSS = """
 --zebra:#1d2025;--mark:#5b4700;--markline:#e2b33c}}
 *{box-sizing:border-box} html{background:var(--bg);color:var(--fg)} a{color:inherit} p,li{max-width:46rem}
 body{margin:0;font:16px/1.55 system-ui,-apple-system,"Segoe UI",Roboto,Helvetica,Arial,sans-serif}
-main{max-width:96rem;margin:0 auto;padding:2rem 1.25rem 3rem} h1{font-size:1.85rem;line-height:1.2;margin:0 0 .3rem}
+main{max-width:96rem;margin:0 auto;padding:2rem 1.25rem 3rem}
+h1{font-size:1.85rem;line-height:1.2;margin:0 0 .3rem}
 .subtitle{color:var(--muted);margin:0 0 1.5rem;font-size:1.05rem} nav ol{margin:.5rem 0 0;padding-left:1.4rem;columns:2}
 h2{font-size:1.3rem;margin:2.4rem 0 .8rem;padding-bottom:.3rem;border-bottom:1px solid var(--rule)}
 svg.chart{display:block;max-width:100%;height:auto;margin:1.2rem 0;break-inside:avoid}
@@ -166,19 +169,22 @@ th,td{padding:.32rem .6rem;border-bottom:1px solid var(--rule);text-align:left;v
 th{border-bottom:2px solid var(--rule);font-weight:600;overflow-wrap:break-word;hyphens:auto}
 .num{text-align:right;white-space:nowrap} th.num{white-space:normal} td.name{white-space:nowrap}
 tbody tr:nth-child(even){background:var(--zebra)}
-.grid{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,25rem),1fr));gap:0 1.5rem;align-items:start}
-.grid svg.chart{margin:.6rem 0}
-.blocks{display:flex;flex-wrap:wrap;gap:0 2.5rem;align-items:flex-start} .blocks>*{min-width:0;max-width:100%}
-h3{font-size:1.08rem;margin:1.4rem 0 .4rem} dl.defs{display:grid;grid-template-columns:max-content minmax(0,46rem);gap:.35rem 1.2rem}
+.grid{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,25rem),1fr));
+gap:0 1.5rem;align-items:start} .grid svg.chart{margin:.6rem 0}
+.blocks{display:flex;flex-wrap:wrap;gap:0 2.5rem;align-items:flex-start}
+.blocks>*{min-width:0;max-width:100%} h3{font-size:1.08rem;margin:1.4rem 0 .4rem}
+dl.defs{display:grid;grid-template-columns:max-content minmax(0,46rem);gap:.35rem 1.2rem}
 dl.defs dt{font-weight:600} dl.defs dd{margin:0}
-@media (max-width:40rem){main{padding:1rem .6rem 2rem} nav ol{columns:1} dl.defs{grid-template-columns:1fr}
+@media (max-width:40rem){main{padding:1rem .6rem 2rem} nav ol{columns:1}
+dl.defs{grid-template-columns:1fr}
 dl.defs dd{margin:0 0 .5rem}}
 footer{margin-top:3rem;color:var(--muted);font-size:.85rem}
 .seq{display:flex;flex-wrap:wrap;align-items:flex-start;gap:.35rem .2rem;margin:.8rem 0;padding:.7rem;
 border:1px solid var(--rule);border-radius:6px;font:.9rem/1.3 ui-monospace,Menlo,Consolas,monospace;break-inside:avoid}
 .seq .t{display:inline-flex;flex-direction:column;align-items:center;padding:.05rem .15rem;white-space:pre}
-.seq mark{display:inline-flex;flex-wrap:wrap;max-width:100%;gap:.1rem;background:var(--mark);color:inherit;border:1px solid var(--markline);
-border-radius:4px;padding:0 .1rem} .seq .sp{color:var(--muted)} .seq .m{font-weight:600}
+.seq mark{display:inline-flex;flex-wrap:wrap;max-width:100%;gap:.1rem;background:var(--mark);
+color:inherit;border:1px solid var(--markline);border-radius:4px;padding:0 .1rem}
+.seq .sp{color:var(--muted)} .seq .m{font-weight:600}
 .seq .o{font-size:.7rem;font-weight:400;color:var(--muted);line-height:1.1}
 @media print{:root{--bg:#fff;--fg:#000;--muted:#444;--rule:#999;--zebra:#f2f2f2;--mark:#ffe28a;--markline:#7a5500}
 main{max-width:none;padding:0} nav{display:none} h2{break-after:avoid}

@@ -172,7 +172,7 @@ class TokenizerInfo:
         return t
 
     def word_types(self) -> list[WordType]:
-        """The word forms decoded so far in this process (a cache: bounded, so it may miss some)."""
+        """The word forms decoded so far in this process (a bounded cache: it may miss some)."""
         return list(self._types.values())
 
     def _new_types(self, rows: list[bytes], id_lists: list[list[int]]) -> list[WordType]:
