@@ -96,4 +96,4 @@ def test_audit_empty_corpus_and_too_large_vocab(tmp_path: Path) -> None:
     tiny.write_text("just a few words\n" * 3)
     r = CliRunner().invoke(cli, ["--quiet", "audit", str(tiny), "--vocab-sizes", "30000", "-o", str(tmp_path / "o")])
     assert r.exit_code == 1
-    assert "Error: --vocab-size 30000 is larger than this corpus supports for wordpiece: training reached" in r.output
+    assert "Error: --vocab-sizes: 30,000 is larger than this corpus supports for wordpiece: training reached" in r.output

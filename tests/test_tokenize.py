@@ -148,7 +148,7 @@ def test_load_errors(tmp_path: Path) -> None:
 
 
 def test_vocab_size_beyond_corpus_says_what_it_reached() -> None:
-    with pytest.raises(MaskprepError, match=r"--vocab-size 5000 is larger than this corpus supports for "
+    with pytest.raises(MaskprepError, match=r"--vocab-size: 5,000 is larger than this corpus supports for "
                                             r"wordpiece: training reached \d+ tokens"):
         train_tokenizer(["a tiny corpus of few words"] * 3, TrainConfig(vocab_size=5000))
     with pytest.raises(MaskprepError, match=r"--model: expected one of wordpiece, bpe, unigram"):

@@ -84,24 +84,30 @@ class _FormTable:
 
 def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase: bool,
                     corpus_options: CorpusOptions = CorpusOptions(), output: Path | None = None,
-                    quiet: bool = False, name: str | None = None) -> TokenizerInfo:
-    """Train a tokenizer on a corpus and optionally save it.
+                    quiet: bool = False, name: str | None = None,
+                    option: str = "--vocab-size") -> TokenizerInfo:
+    """Train a tokenizer on a corpus and optionally save it; `option` names the size in errors.
 
     >>> train_on_corpus(["sample_corpus"], model="wordpiece", vocab_size=8000, lowercase=True)  # doctest: +SKIP
     """
     config = TrainConfig(model=model, vocab_size=vocab_size, lowercase=lowercase)
     files = resolve_inputs(corpus)
     stats = ReadStats()
+    info: TokenizerInfo | None = None
     with Progress(f"train {model}-{vocab_size}", unit="documents", quiet=quiet) as progress:
         def docs() -> Any:
             for text in iter_corpus([str(f) for f in files], corpus_options, stats):
                 progress.advance(1)
                 yield text
 
-        info = train_tokenizer(docs(), config, name=name, check_size=False)
-    if stats.documents == 0:
+        try:
+            info = train_tokenizer(docs(), config, name=name, check_size=False, option=option)
+        except MaskprepError:
+            if stats.documents:
+                raise
+    if stats.documents == 0 or info is None:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
-    check_trained_size(info, config)
+    check_trained_size(info, config, option)
     if output is not None:
         save_tokenizer(info, output)
     return info
@@ -262,8 +268,11 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
 
 
 def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
-              corpus_options: CorpusOptions = CorpusOptions(), quiet: bool = False) -> dict[str, Any]:
+              corpus_options: CorpusOptions = CorpusOptions(), quiet: bool = False,
+              size_option: str = "--vocab-sizes") -> dict[str, Any]:
     """Audit given and freshly trained tokenizers; write audit.json and audit.html.
+
+    A size the corpus cannot give stops the audit with an error naming `size_option` and the size.
 
     >>> run_audit(["sample_corpus"], AuditConfig(vocab_sizes=(2000, 8000)), output=Path("out"))  # doctest: +SKIP
     """
@@ -273,7 +282,8 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
         name = f"{config.model}-{size}"
         tok_path = output / "tokenizers" / f"{name}.json"
         infos.append(train_on_corpus(corpus, model=config.model, vocab_size=size, lowercase=config.lowercase,
-                                     corpus_options=corpus_options, output=tok_path, quiet=quiet, name=name))
+                                     corpus_options=corpus_options, output=tok_path, quiet=quiet, name=name,
+                                     option=size_option))
     names = [i.name for i in infos]
     for i, info in enumerate(infos):  # make names unique for tables and charts
         if names.count(info.name) > 1:

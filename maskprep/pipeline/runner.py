@@ -213,7 +213,7 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
         def run_tok(d: Path) -> list[str]:
             train_on_corpus(corpus, model=train.model, vocab_size=train.vocab_size, lowercase=train.lowercase,
                             corpus_options=copts, output=d / "tokenizer.json", quiet=quiet,
-                            name=f"{train.model}-{train.vocab_size}")
+                            name=f"{train.model}-{train.vocab_size}", option="[tokenizer] vocab_size")
             return ["tokenizer.json"]
 
         runner.stage("tokenizer", "tokenizer", train, base_inputs, run_tok)
@@ -235,7 +235,8 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
         extra = {"audited": [file_sha256(p) for p in a["tokenizers"]]}
 
         def run_aud(d: Path) -> list[str]:
-            run_audit(corpus, audit_cfg, output=d, corpus_options=copts, quiet=quiet)
+            run_audit(corpus, audit_cfg, output=d, corpus_options=copts, quiet=quiet,
+                      size_option="[audit] vocab_sizes")
             return _files_in(d)
 
         runner.stage("audit", "audit", {**a, "tokenizers": len(a["tokenizers"])}, {**inputs, **extra}, run_aud)

@@ -8,7 +8,9 @@ size; `check_trained_size` refuses a tokenizer that stopped short of it.
 WordPiece vocabularies are renumbered in a fixed order after training, so
 ids depend only on which tokens exist.
 
-It does not load, save or encode with tokenizers (see tokenize.py).
+Unigram vocabularies are learnt by sentencepiece (see unigram.py).
+
+It does not load, save or encode with tokenizers (see encoding.py).
 """
 
 from __future__ import annotations
@@ -20,8 +22,10 @@ from typing import Any, Iterable, Iterator
 
 from ..errors import MaskprepError
 from .encoding import TokenizerInfo
+from .unigram import VocabSizeError, size_message, train_unigram, unigram_skeleton
 
 MODELS = ("wordpiece", "bpe", "unigram")
+ROLE_ORDER = ("pad", "unk", "cls", "sep", "mask")  # special tokens take ids 0-4 in this order
 # Special tokens of tokenizers trained here, by role.
 SPECIALS = {
     "wordpiece": {"pad": "[PAD]", "unk": "[UNK]", "cls": "[CLS]", "sep": "[SEP]", "mask": "[MASK]"},
@@ -49,12 +53,12 @@ class TrainConfig:
 
 
 def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
-    """An untrained tokenizer and its trainer for `config`."""
+    """An untrained tokenizer and its `tokenizers` trainer for `config` (None for Unigram)."""
     from tokenizers import Tokenizer, decoders, models, normalizers, pre_tokenizers, processors, trainers
 
     sp = SPECIALS[config.model]
-    special_list = [sp["pad"], sp["unk"], sp["cls"], sp["sep"], sp["mask"]]
-    trainer: trainers.Trainer
+    special_list = [sp[r] for r in ROLE_ORDER]
+    trainer: trainers.Trainer | None
     norms: list[normalizers.Normalizer]
     if config.model == "wordpiece":
         tok = Tokenizer(models.WordPiece(unk_token=sp["unk"]))
@@ -74,17 +78,9 @@ def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
                                       min_frequency=config.min_frequency, show_progress=False,
                                       initial_alphabet=pre_tokenizers.ByteLevel.alphabet())
     else:
-        tok = Tokenizer(models.Unigram())
-        from tokenizers import Regex
-
-        norms = [normalizers.NFKC(), normalizers.Replace(Regex(r"\s+"), " ")]
-        norms += [normalizers.Lowercase()] if config.lowercase else []
-        tok.normalizer = normalizers.Sequence(norms)
-        # Metaspace alone would glue punctuation to words ("venice."); split it off.
-        tok.pre_tokenizer = pre_tokenizers.Sequence([pre_tokenizers.Metaspace(), pre_tokenizers.Punctuation()])
-        tok.decoder = decoders.Metaspace()
-        trainer = trainers.UnigramTrainer(vocab_size=config.vocab_size, special_tokens=special_list,
-                                          unk_token=sp["unk"], show_progress=False)
+        # Trained by sentencepiece in train_tokenizer (see unigram.py for why).
+        tok = unigram_skeleton(config.lowercase)
+        trainer = None
     cls, sep = sp["cls"], sp["sep"]
     tok.post_processor = processors.TemplateProcessing(
         single=f"{cls} $A {sep}", pair=f"{cls} $A {sep} $B:1 {sep}:1",
@@ -93,15 +89,28 @@ def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
 
 
 def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *,
-                    name: str | None = None, check_size: bool = True) -> TokenizerInfo:
+                    name: str | None = None, check_size: bool = True,
+                    option: str = "--vocab-size") -> TokenizerInfo:
     """Train a tokenizer on an iterable of documents.
 
     >>> info = train_tokenizer(iter_corpus(["sample_corpus"]), TrainConfig(vocab_size=2000))  # doctest: +SKIP
     >>> info.vocab_size  # doctest: +SKIP
     2000
+
+    A size the corpus cannot give raises `MaskprepError` naming `option` (with
+    ``check_size=False`` a short WordPiece or BPE vocabulary is returned as it is;
+    Unigram training always reaches the size exactly or fails).
     """
     tok, trainer = build_empty_tokenizer(config)
-    tok.train_from_iterator(_batched(texts), trainer=trainer)
+    if trainer is None:
+        sp = SPECIALS["unigram"]
+        try:
+            train_unigram(tok, texts, config.vocab_size, [sp[r] for r in ROLE_ORDER], sp["unk"])
+        except VocabSizeError as exc:
+            message = size_message(option, exc.requested, exc.supported, exc.too_small)
+            raise MaskprepError(message) from None
+    else:
+        tok.train_from_iterator(_batched(texts), trainer=trainer)
     from tokenizers import Tokenizer
 
     # One save/load round trip settles float formatting, so the hash of the
@@ -109,7 +118,7 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
     tok = Tokenizer.from_str(_canonical_ids(tok.to_str()))
     info = TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
     if check_size:
-        check_trained_size(info, config)
+        check_trained_size(info, config, option)
     return info
 
 
@@ -122,8 +131,7 @@ def _canonical_ids(text: str) -> str:
     WordPiece encoding depends only on which tokens exist, so special tokens
     keep their ids and the others are numbered in sorted order: ids are then a
     function of the token set. (Byte-level BPE training is reproducible as it
-    is; Unigram scores vary in their last digits between runs.) Train once and
-    reuse the file when outputs must be byte-identical across runs.
+    is, and so is Unigram training, which runs a fixed number of threads.)
     """
     spec = json.loads(text)
     model = spec.get("model") or {}
@@ -144,12 +152,12 @@ def _canonical_ids(text: str) -> str:
     return json.dumps(spec, ensure_ascii=False)
 
 
-def check_trained_size(info: TokenizerInfo, config: TrainConfig) -> None:
-    """Raise if training stopped short of the requested vocabulary size."""
+def check_trained_size(info: TokenizerInfo, config: TrainConfig, option: str = "--vocab-size") -> None:
+    """Raise, naming `option`, if training stopped short of the requested vocabulary size."""
     if info.vocab_size < config.vocab_size:
         raise MaskprepError(
-            f"--vocab-size {config.vocab_size} is larger than this corpus supports for {config.model}: "
-            f"training reached {info.vocab_size} tokens; use a smaller size or a larger corpus")
+            f"{option}: {config.vocab_size:,} is larger than this corpus supports for {config.model}: "
+            f"training reached {info.vocab_size:,} tokens; use a smaller size or a larger corpus")
 
 
 def _batched(texts: Iterable[str], size: int = 1000) -> Iterator[list[str]]:
