@@ -1,24 +1,29 @@
-"""Atomic file writes.
+"""Atomic, fsynced file writes; sha256 and JSON helpers.
 
 Every output of maskprep is first written under a temporary name in the same
-directory and renamed into place when complete, so an interrupted run never
-leaves a file that looks finished. This module holds the few helpers that do
-that; it does not know about any file format.
+directory, flushed to disk and renamed into place when complete, so an
+interrupted run never leaves a file that looks finished. This module is the
+one place that does it (and the one place that calls ``fsync`` and
+``os.replace``); it does not know about any file format.
 """
 
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import json
 import os
 import tempfile
 from pathlib import Path
 from typing import Any, Iterator
 
+__all__ = ["atomic_path", "atomic_write_bytes", "atomic_write_text", "atomic_write_json",
+           "fsync_file", "fsynced_write_text", "replace", "file_sha256", "read_json"]
+
 
 @contextlib.contextmanager
 def atomic_path(path: str | Path) -> Iterator[Path]:
-    """Yield a temporary path beside `path`; rename it to `path` on success.
+    """Yield a temporary path beside `path`; on success flush it to disk and rename it to `path`.
 
     >>> with atomic_path("out.bin") as tmp:  # doctest: +SKIP
     ...     tmp.write_bytes(b"...")
@@ -31,6 +36,7 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
     os.chmod(tmp_path, 0o666 & ~_umask())  # mkstemp makes 0600; outputs get the usual permissions
     try:
         yield tmp_path
+        fsync_file(tmp_path)
         os.replace(tmp_path, path)
     except BaseException:
         with contextlib.suppress(OSError):
@@ -38,10 +44,24 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
         raise
 
 
+_UMASK: list[int] = []
+
+
 def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
+    if not _UMASK:  # read once: os.umask can only be read by setting it
+        mask = os.umask(0o022)
+        os.umask(mask)
+        _UMASK.append(mask)
+    return _UMASK[0]
+
+
+def fsync_file(path: str | Path) -> None:
+    """Flush a written file's data to disk: ``fsync_file("out/.maskprep/t0-words.arrow")``."""
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
 
 
 def atomic_write_bytes(path: str | Path, data: bytes) -> None:
@@ -49,8 +69,6 @@ def atomic_write_bytes(path: str | Path, data: bytes) -> None:
     with atomic_path(path) as tmp:
         with open(tmp, "wb") as fh:
             fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
 
 
 def atomic_write_text(path: str | Path, text: str) -> None:
@@ -63,10 +81,21 @@ def atomic_write_json(path: str | Path, obj: Any) -> None:
     atomic_write_text(path, json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n")
 
 
+def fsynced_write_text(path: str | Path, text: str) -> None:
+    """Write text to a staging file and flush it to disk (renamed into place later: `replace`)."""
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write(text)
+        fh.flush()
+        os.fsync(fh.fileno())
+
+
+def replace(src: str | Path, dst: str | Path) -> None:
+    """Rename a finished, flushed file into place (atomic on one filesystem)."""
+    os.replace(src, dst)
+
+
 def file_sha256(path: str | Path) -> str:
     """Hex sha256 of a file's bytes: ``file_sha256("counts/ngrams-1.parquet")``."""
-    import hashlib
-
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         while chunk := fh.read(1 << 22):

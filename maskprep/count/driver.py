@@ -45,7 +45,8 @@ from ..corpus.reader import CorpusOptions, CorpusTask, corpus_fingerprint, plan_
     resolve_inputs
 from ..errors import MaskprepError
 from ..execute import Executor, map_tasks, pool_running
-from .files import Vocabulary, fsynced_text, publish, write_ngrams
+from .._files import fsynced_write_text
+from .files import Vocabulary, publish, write_ngrams
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
 from ..tokenizer.encoding import TokenizerInfo, load_tokenizer
 
@@ -78,7 +79,7 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     >>> count_ngrams(["plays.txt"], tokenizer="tokenizer.json", output="counts", config=CountConfig(max_n=3))  # doctest: +SKIP
     CountSummary(output=PosixPath('counts'), N=860226, ...)
     """
-    from .resume import count_recorded, finished_summary, open_state, run_identity
+    from . import resume as count_state
 
     started = time.monotonic()
     output = Path(output)
@@ -89,25 +90,25 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     tasks = plan_tasks(files, task_options)
     share = task_share(config, executor, len(tasks))
     fingerprint = corpus_fingerprint(files, corpus_options)
-    identity = run_identity(config, info, fingerprint, task_options, format_version=FORMAT_VERSION)
-    state = open_state(output, identity, resume=resume, overwrite=overwrite)
-    if state is None:  # --resume on counts finished with these options: nothing to do
-        return finished_summary(output, tasks=len(tasks), started=started)
-    done = state.finished([t.index for t in tasks]) if resume else {}
-    state.clean(done)
-    todo = [t for t in tasks if t.index not in done]
-    root = os.path.abspath(state.root)  # tasks get absolute paths: a Dask worker's cwd is not the driver's
-    args = [(dataclasses.replace(t, path=os.path.abspath(t.path)), info.json, config, root, task_options, share,
-             state.digest) for t in todo]
-    for result in map_tasks(count_recorded, args, executor=executor, label="count",
-                            describe=lambda i: todo[i].describe(), weights=[_task_megabytes(t) for t in todo],
-                            unit="MB", shared=output):
-        done[result.task_index] = result
-    summary = finish_counts([done[t.index] for t in tasks], info=info, output=output,
-                            spill=state.merge_dir().resolve(), config=config, files=files,
-                            corpus_options=corpus_options, executor=executor, started=started,
-                            fingerprint=fingerprint)
-    state.remove()
+    identity = count_state.run_identity(config, info, fingerprint, task_options, format_version=FORMAT_VERSION)
+    with count_state.open_state(output, identity, resume=resume, overwrite=overwrite) as state:
+        if state.finished:  # --resume on counts finished with these options: nothing to do
+            return count_state.finished_summary(output, tasks=len(tasks), started=started)
+        done = count_state.finished_results(state, [t.index for t in tasks]) if state.resumed else {}
+        state.clean(count_state.attempts_of(done))
+        todo = [t for t in tasks if t.index not in done]
+        root = os.path.abspath(state.root)  # absolute paths: a Dask worker's cwd is not the driver's
+        args = [(dataclasses.replace(t, path=os.path.abspath(t.path)), info.json, config, root, task_options,
+                 share, state.digest) for t in todo]
+        for result in map_tasks(count_state.count_recorded, args, executor=executor, label="count",
+                                describe=lambda i: todo[i].describe(),
+                                weights=[_task_megabytes(t) for t in todo], unit="MB", shared=output):
+            done[result.task_index] = result
+        summary = finish_counts([done[t.index] for t in tasks], info=info, output=output,
+                                spill=state.attempt("merge").resolve(), config=config, files=files,
+                                corpus_options=corpus_options, executor=executor, started=started,
+                                fingerprint=fingerprint)
+        state.remove()
     return summary
 
 
@@ -207,8 +208,8 @@ def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Pat
         "maskprep_version": __version__,
     }
     try:
-        fsynced_text(spill / "tokenizer.json", info.json)
-        fsynced_text(spill / "counts.json", json.dumps(meta, indent=2, sort_keys=True) + "\n")
+        fsynced_write_text(spill / "tokenizer.json", info.json)
+        fsynced_write_text(spill / "counts.json", json.dumps(meta, indent=2, sort_keys=True) + "\n")
         publish(spill, output, max_n)
     except OSError as exc:
         raise disk_error(exc, output, "writing the counts") from None

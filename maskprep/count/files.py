@@ -12,17 +12,17 @@ It does not count or merge (ngrams.py, ngram_kernels.py, spill.py).
 
 from __future__ import annotations
 
-import os
 import re
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from .._files import fsync_file, replace
 from ..errors import MaskprepError
 from .spills import PartitionResult, merge_hist, read_rows
 
-__all__ = ["Vocabulary", "write_ngrams", "collision_error", "check_output", "publish", "fsynced_text", "ROW_GROUP"]
+__all__ = ["Vocabulary", "write_ngrams", "collision_error", "publish", "ROW_GROUP"]
 
 ROW_GROUP = 1 << 17             # rows per Parquet row group (fixed, so files are byte-identical)
 
@@ -215,31 +215,16 @@ def write_ngrams(path: Path, n: int, parts: list[PartitionResult], vocab: Vocabu
 
 # ---------------------------------------------------------------- the directory
 
-def check_output(output: Path, overwrite: bool) -> None:
-    """Refuse a file, or a non-empty directory unless `overwrite`."""
-    if output.exists() and not output.is_dir():
-        raise MaskprepError(f"-o {output}: is a file; give a directory for the counts")
-    if output.is_dir() and any(output.iterdir()) and not overwrite:
-        raise MaskprepError(f"-o {output}: directory exists and is not empty; pass --overwrite to replace the "
-                            "counts in it, or choose another directory")
-
-
 def publish(staged: Path, output: Path, max_n: int) -> None:
     """Rename the finished files into place; counts.json (the mark of a finished count) goes last."""
+    for n in range(1, max_n + 1):
+        fsync_file(staged / f"ngrams-{n}.parquet")  # on disk before anything is renamed
     (output / "counts.json").unlink(missing_ok=True)
     for n in range(1, max_n + 1):
-        os.replace(staged / f"ngrams-{n}.parquet", output / f"ngrams-{n}.parquet")
+        replace(staged / f"ngrams-{n}.parquet", output / f"ngrams-{n}.parquet")
     for stale in output.glob("ngrams-*.parquet"):
         m = re.fullmatch(r"ngrams-(\d+)\.parquet", stale.name)
         if m and int(m.group(1)) > max_n:
             stale.unlink()
-    os.replace(staged / "tokenizer.json", output / "tokenizer.json")
-    os.replace(staged / "counts.json", output / "counts.json")
-
-
-def fsynced_text(path: Path, text: str) -> None:
-    """Write text and flush it to disk (before it is renamed into place)."""
-    with open(path, "w", encoding="utf-8") as fh:
-        fh.write(text)
-        fh.flush()
-        os.fsync(fh.fileno())
+    replace(staged / "tokenizer.json", output / "tokenizer.json")
+    replace(staged / "counts.json", output / "counts.json")

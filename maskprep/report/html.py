@@ -20,7 +20,6 @@ import html as _html
 import numbers
 import os
 import re
-import tempfile
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 
@@ -229,21 +228,11 @@ def write_page(path: str | os.PathLike[str], html: str) -> Path:
 
     Parent directories are created; an OSError becomes a `MaskprepError` naming the path.
     """
+    from .._files import atomic_write_bytes
+
     target = Path(path)
-    data = html.encode("utf-8", errors="replace")
     try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-        try:
-            with os.fdopen(fd, "wb") as handle:
-                handle.write(data)
-                handle.flush()
-                os.fsync(handle.fileno())
-            os.chmod(tmp, 0o644)
-            os.replace(tmp, target)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
+        atomic_write_bytes(target, html.encode("utf-8", errors="replace"))
     except OSError as exc:
         raise MaskprepError(f"{target}: cannot write the report ({exc.strerror or exc}); "
                             "choose a writable output directory") from exc

@@ -43,20 +43,18 @@ This module does not read shards back (see `maskprep.shards.read`), verify or re
 from __future__ import annotations
 
 import dataclasses
-import hashlib
 import json
 import os
-import shutil
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .._files import file_sha256
+from .._files import atomic_path, atomic_write_text, file_sha256, read_json
+from .._resume import RunDir, Stage, claim, write_record
 from .._version import __version__
 from ..errors import MaskprepError
-from .._files import atomic_path, atomic_write_text, read_json
 from ..masking.sampler import MaskingConfig, Strategy, mask_batch, strategy_units
 from ..packing import PackingConfig, TaskPacker, check_packing_tokenizer
 from ..stats.masks import MaskStats
@@ -160,22 +158,8 @@ def shard_name(task: int, copy: int, part: int, fmt: str) -> str:
     return f"shard-{task:05d}-{copy:02d}-{part:04d}{_FORMATS[fmt]}"
 
 
-_UMASK: list[int] = []
-
-
-def _readable(path: str | Path) -> None:
-    """Give a written file the usual permissions (temporary files are created private)."""
-    import os
-
-    if not _UMASK:
-        _UMASK.append(os.umask(0o022))
-        os.umask(_UMASK[0])
-    os.chmod(path, 0o666 & ~_UMASK[0])
-
-
 def _write_text(path: Path, text: str) -> None:
     atomic_write_text(path, text)
-    _readable(path)
 
 
 # ------------------------------------------------------------------ writing one file
@@ -203,7 +187,6 @@ def _write_file(path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, meta
             import pyarrow.parquet as pq
 
             pq.write_table(table, str(tmp), row_group_size=PARQUET_GROUP_ROWS, compression="zstd")
-        _readable(tmp)
 
 
 class _ShardWriter:
@@ -274,7 +257,7 @@ def _cached(kind: str, digest: str, make: Any) -> Any:
 
 
 def _done_path(out: Path, task: int) -> Path:
-    return out / STATE_DIR / f"task-{task:05d}.json"
+    return out / STATE_DIR / MASK_STAGE_RECORD.format(task)
 
 
 def _shard_task(job: _Job, task: Any) -> dict[str, Any]:
@@ -327,62 +310,50 @@ def _shard_task(job: _Job, task: Any) -> dict[str, Any]:
     records = [r for w in writers for r in w.close()]
     done = {"task": task.index, "run": job.run_digest, "shards": [asdict(r) for r in records],
             "stats": stats.to_state(), "read": read.to_dict()}
-    atomic_write_text(_done_path(out, task.index), json.dumps(done, sort_keys=True) + "\n")
+    write_record(_done_path(out, task.index), done)
     return done
 
 
 # ------------------------------------------------------------------ the driver
 
-def _prepare_dir(out: Path, *, overwrite: bool, resume: bool, options: Mapping[str, Any]) -> None:
-    if overwrite and resume:
-        raise MaskprepError("--overwrite and --resume exclude each other: pick one")
-    if out.exists() and not out.is_dir():
-        raise MaskprepError(f"-o {out}: exists and is not a directory")
-    entries = sorted(out.iterdir()) if out.is_dir() else []
-    state = out / STATE_DIR / "run.json"
-    if entries and resume:
-        if not state.is_file():
-            raise MaskprepError(f"--resume: {out} holds no unfinished maskprep mask run to resume "
-                                "(no .maskprep/run.json); use --overwrite to replace its contents")
-        old = read_json(state, what="run options")
-        diffs = [f"{k}: {json.dumps(old.get(k))} before, {json.dumps(options.get(k))} now"
-                 for k in sorted(set(old) | set(options)) if old.get(k) != options.get(k)]
-        if diffs:
-            raise MaskprepError(f"--resume: the options differ from the run in {out} ("
-                                + "; ".join(diffs) + "); rerun with the same options, or use --overwrite")
-        for tmp in [*out.glob(".*.tmp"), *(out / STATE_DIR).glob(".*.tmp")]:  # left by the interrupted run
+_OPTION_LABELS = {"strategy": "--strategy", "rate": "--rate", "mix": "--mix", "mix_per": "--mix-per",
+                  "span_p": "--span-p", "span_max": "--span-max", "seq_len": "--seq-len", "pack": "pack (--no-pack)",
+                  "copies": "--copies", "seed": "--seed", "format": "--format", "shard_rows": "--shard-rows",
+                  "dynamic": "--dynamic", "units_sha256": "units (--units)", "tokenizer_hash": "tokenizer (-t)",
+                  "corpus_fingerprint": "corpus (file names, sizes and contents)", "doc_sep": "--doc-sep",
+                  "text_field": "--text-field", "text_column": "--text-column", "chunk_bytes": "task size",
+                  "maskprep_version": "maskprep version", "units_tokenizer_hash": "the units' tokenizer"}
+_FINISHED_NAMES = ("manifest.json", "stats.json", "tokenizer.json")
+
+
+def _owned(name: str) -> bool:
+    """Files of OUT that mask writes (replaced by --overwrite); other files are left alone."""
+    return (name in _FINISHED_NAMES or (name.startswith("shard-") and name.endswith(tuple(_FORMATS.values())))
+            or (name.startswith(".shard-") and name.endswith(".tmp"))
+            or any(name.startswith(f".{n}.") for n in _FINISHED_NAMES))
+
+
+def _remove_owned(out: Path) -> None:
+    for p in out.iterdir():
+        if _owned(p.name) and not p.is_dir():
+            p.unlink()
+
+
+MASK_STAGE = Stage(noun="mask run", state=STATE_DIR, marker="manifest.json", labels=_OPTION_LABELS,
+                   changed=("units_sha256", "tokenizer_hash", "corpus_fingerprint", "units_tokenizer_hash"),
+                   digits=5,
+                   on_overwrite=_remove_owned)
+MASK_STAGE_RECORD = "task-{:05d}.json"
+
+
+def _prepare_dir(out: Path, *, overwrite: bool, resume: bool, options: Mapping[str, Any]) -> RunDir:
+    """Lock OUT and check it (see `maskprep._resume.claim`); on resume, drop temporary files of the last run."""
+    run = claim(out, MASK_STAGE, options, resume=resume, overwrite=overwrite)
+    if run.resumed:
+        for tmp in out.glob(".*.tmp"):  # left by the interrupted run
             tmp.unlink(missing_ok=True)
-        return
-    if entries and not overwrite:
-        raise MaskprepError(f"-o {out}: directory is not empty; pass --overwrite to replace it or --resume "
-                            "to finish an interrupted run")
-    if overwrite:
-        for p in entries:
-            if p.name in ("manifest.json", "stats.json", "tokenizer.json") or (p.name.startswith("shard-") and p.suffix in
-                                                              (".arrow", ".parquet")) \
-                    or (p.name.startswith(".shard-") and p.name.endswith(".tmp")) \
-                    or any(p.name.startswith(f".{n}.") for n in ("manifest.json", "stats.json", "tokenizer.json")):
-                p.unlink()
-            elif p.name == STATE_DIR and p.is_dir():
-                shutil.rmtree(p)
-    out.mkdir(parents=True, exist_ok=True)
-    atomic_write_text(state, _dump(dict(options)))
-
-
-def _finished(out: Path, task: int, run_digest: str) -> dict[str, Any] | None:
-    """The done-record of a task whose shard files all exist with the recorded sha256, else None."""
-    path = _done_path(out, task)
-    try:
-        rec = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    if rec.get("run") != run_digest:
-        return None
-    for s in rec.get("shards", []):
-        p = out / s["file"]
-        if not p.is_file() or p.stat().st_size != s["bytes"] or file_sha256(p) != s["sha256"]:
-            return None
-    return rec
+        run.clean(p.name for p in run.root.glob("task-*.json"))
+    return run
 
 
 def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
@@ -394,8 +365,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
 
     >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json", output="shards")  # doctest: +SKIP
     """
-    from ..corpus.reader import CorpusOptions, ReadStats, corpus_fingerprint, plan_tasks, resolve_inputs
-    from ..execute import Executor, map_tasks
+    from ..corpus.reader import CorpusOptions, corpus_fingerprint, plan_tasks, resolve_inputs
+    from ..execute import Executor
     from ..tokenizer.encoding import TokenizerInfo, load_tokenizer
 
     corpus_options = corpus_options or CorpusOptions()
@@ -434,9 +405,28 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__}
     if units_built_with is not None:  # units of another tokenizer with the same words (token ids re-derived)
         options["units_tokenizer_hash"] = units_built_with
-    run_digest = hashlib.sha256(json.dumps(options, sort_keys=True).encode()).hexdigest()
     out = Path(output)
-    _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
+    run = _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
+    try:
+        job_args = {"tokenizer_json": info.json, "tokenizer_name": info.name, "tokenizer_hash": info.hash,
+                    "masking": masking, "packing": packing, "shards": shards, "corpus_options": corpus_options,
+                    "units": by_length, "units_digest": units_digest, "run_digest": run.digest}
+        return _write_claimed(out, run, job_args=job_args, info=info, tasks=tasks, files=files,
+            options=options, mcfg=mcfg, executor=executor, ids=(mask_id, cls_id, sep_id, pad_id))
+    finally:
+        run.release()
+
+
+def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: Any, tasks: Any, files: Any,
+                   options: dict[str, Any], mcfg: dict[str, Any], executor: Any,
+                   ids: tuple[int, int, int, int]) -> tuple[ShardManifest, dict[str, Any]]:
+    """Run the tasks not yet done in a claimed shards directory, then write its finished files."""
+    from ..corpus.reader import ReadStats
+    from ..execute import map_tasks
+
+    mask_id, cls_id, sep_id, pad_id = ids
+    shards, packing = job_args["shards"], job_args["packing"]
+    units_digest = job_args["units_digest"]
 
     special_ids = [int(i) for i in info.special_ids]
     metadata = {"kind": "maskprep-shard", "format_version": FORMAT_VERSION,
@@ -446,15 +436,10 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                 "pad_id": pad_id, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
                 "units_sha256": units_digest}
     # tasks get absolute paths: a Dask worker's working directory is not the driver's
-    job = _Job(out=os.path.abspath(out), tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
-               masking=masking, packing=packing, shards=shards, corpus_options=corpus_options, units=by_length,
-               units_digest=units_digest, run_digest=run_digest, metadata=metadata)
+    job = _Job(out=os.path.abspath(out), metadata=metadata, **job_args)
     done: dict[int, dict[str, Any]] = {}
-    if resume:
-        for t in tasks:
-            rec = _finished(out, t.index, run_digest)
-            if rec is not None:
-                done[t.index] = rec
+    if run.resumed:
+        done = run.done([t.index for t in tasks], files=lambda rec: rec["shards"], base=out)
     todo = [t for t in tasks if t.index not in done]
     args = [(job, dataclasses.replace(t, path=os.path.abspath(t.path))) for t in todo]
     for rec in map_tasks(_shard_task, args, executor=executor, label="mask", describe=lambda i: todo[i].describe(),
@@ -484,6 +469,3 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     _write_text(out / "stats.json", _dump(stats_doc))
     _write_text(out / "manifest.json", _dump(manifest.to_json()))
     return manifest, stats_doc
-
-
-# ------------------------------------------------------------------ reading
