@@ -18,7 +18,8 @@ from .errors import MaskprepError
 from .masking import MaskingConfig, MixPer, Strategy, mask_batch, strategy_units
 from .packing import PackingConfig, pack_batches
 from .pipeline import load_run_config, run_demo, run_pipeline
-from .shards import ShardConfig, ShardManifest, ShardSet, open_shards, verify_shards, write_shards
+from .shards import ShardConfig, ShardLoader, ShardManifest, ShardSet, open_shards, verify_shards, \
+    write_shards
 from .tokenizer import EncodedBatch, TokenizerInfo, TrainConfig, encode_documents, load_tokenizer, \
     train_tokenizer
 from .units import Measure, UnitVocabulary, build_units, read_units, score_ngrams, write_units
@@ -34,7 +35,8 @@ __all__ = [
     "Measure", "score_ngrams", "UnitVocabulary", "build_units", "read_units", "write_units",
     "Strategy", "MixPer", "MaskingConfig", "strategy_units", "mask_batch",
     "PackingConfig", "pack_batches",
-    "ShardConfig", "ShardManifest", "write_shards", "open_shards", "ShardSet", "verify_shards",
+    "ShardConfig", "ShardManifest", "write_shards", "open_shards", "ShardSet", "ShardLoader",
+    "verify_shards",
     "CompareConfig", "compare_strategies",
     "load_run_config", "run_pipeline", "run_demo",
 ]

@@ -79,7 +79,8 @@ class Stage:
     """How one stage names its state and its options.
 
     `noun` reads in messages ("holds an unfinished count"); `state` is the
-    state folder inside OUT; `marker` the file written last by a finished run;
+    state folder inside OUT; `marker` the file written last by a finished run
+    (a path relative to OUT);
     `labels` name identity keys as options; `changed` are keys (hashes) only
     reported as changed; `digits` pad task numbers in record names;
     `finished_identity(OUT)` returns the comparable identity of a finished
@@ -354,7 +355,7 @@ def _check(run: RunDir, *, resume: bool, overwrite: bool) -> None:
     redo = "start again"
     if unfinished and not overwrite:
         if not resume:
-            if stage.marker in others:
+            if (output / stage.marker).is_file():  # a finished output (marker: a path in OUT)
                 raise _not_empty(output, stage)
             raise MaskprepError(f"-o {output}: holds an unfinished {stage.noun}; pass --resume to "
                                 f"finish it, or --overwrite to {redo}")

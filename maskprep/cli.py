@@ -298,6 +298,9 @@ def _units_note(built_with: str | None) -> None:
                    "words; token ids re-derived for this one")
 
 
+PADDING_WARN = 0.25  # mask warns above this padding share
+
+
 def _pct(x: float | None) -> str:
     return "n/a" if x is None else f"{100 * x:.2f}%"
 
@@ -330,12 +333,13 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output
              overwrite: bool, resume: bool, **copts: Any) -> None:
     """Pack CORPUS into sequences, mask them and write training-ready shards.
 
-    Writes DIR/shard-*.arrow (or .parquet), DIR/manifest.json, DIR/stats.json
-    and a copy of the tokenizer. Same inputs, options and seed give
+    Writes DIR/shard-*.arrow (or .parquet) and, in DIR/_maskprep/, manifest.json,
+    stats.json and a copy of the tokenizer. Same inputs, options and seed give
     byte-identical shards whatever the number of workers.
     """
     from .masking.sampler import MaskingConfig, MixPer, Strategy, parse_mix
     from .packing import PackingConfig
+    from .shards.layout import META_DIR
     from .shards.write import ShardConfig, write_shards
 
     if overwrite and resume:
@@ -365,11 +369,21 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output
     click.echo(f"masked units: {'n/a' if mean_t is None else f'{mean_t:.2f}'} tokens, "
                f"{'n/a' if mean_w is None else f'{mean_w:.2f}'} words on average; multi-word share "
                f"{_pct(stats['multiword_share'])}; within-word leakage {_pct(stats['within_word_leakage'])}")
+    pad = stats["padding"]
+    click.echo(f"padding: {_pct(pad['share'])} of the {pad['positions']:,} token positions "
+               f"({pad['padded']:,} pad tokens; --seq-len {seq_len}, "
+               f"{'documents packed across rows' if not no_pack else 'one document per row (--no-pack)'})")
+    if pad["share"] is not None and pad["share"] > PADDING_WARN:
+        hint = "drop --no-pack to pack documents across rows, or use a shorter --seq-len" if no_pack \
+            else "use a shorter --seq-len"
+        click.echo(f"warning: {_pct(pad['share'])} of every row is padding on average (over "
+                   f"{PADDING_WARN:.0%}): that share of the compute goes to pad tokens; {hint}", err=True)
     if dynamic:
         click.echo("(dynamic shards: figures are those of maskprep.mask_batch with each shard's copy)")
     click.echo("note: the rate is over maskable tokens (special tokens are never masked), and each sequence's "
                "budget is round(rate x its maskable tokens), so short sequences deviate from the rate")
-    click.echo(f"see {Path(output) / 'stats.json'} and {Path(output) / 'manifest.json'}")
+    meta = Path(output) / META_DIR
+    click.echo(f"see {meta / 'stats.json'} and {meta / 'manifest.json'}")
 
 
 @cli.command("show", context_settings=CONTEXT)
@@ -397,6 +411,8 @@ def verify_cmd(directory: str) -> None:
     from .shards.check import verify_shards
 
     report = verify_shards(directory)
+    for note in report.notes:
+        click.echo(f"note: {note}", err=True)
     if not report.ok:
         for fault in report.faults:
             click.echo(fault, err=True)

@@ -121,7 +121,7 @@ def test_compare_figures_equal_stats_json_of_mask_for_each_strategy(comparison, 
                 "--strategy", name, "--seed", "3"] + (["--units", str(units_path)] if name == "pmi" else [])
         r = CliRunner().invoke(cli, args)
         assert r.exit_code == 0, r.output
-        stats = json.loads((d / "stats.json").read_text())
+        stats = json.loads((d / "_maskprep" / "stats.json").read_text())
         for key in FIGURES:
             assert doc["strategies"][name][key] == stats[key], (name, key)
         assert doc["strategies"][name]["targets"] > 0

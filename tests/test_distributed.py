@@ -99,8 +99,8 @@ def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(tmp_pat
                "--strategy", "pmi", "--units", str(base / "units.parquet"), "--copies", "2", "--shard-rows", "300")
         outputs[name] = all_files(base)
     reference = outputs["workers-1"]
-    assert {"counts/counts.json", "counts/ngrams-3.parquet", "units.parquet", "shards/manifest.json",
-            "shards/stats.json", "shards/.maskprep/task-00002.json"} <= set(reference)
+    assert {"counts/counts.json", "counts/ngrams-3.parquet", "units.parquet", "shards/_maskprep/manifest.json",
+            "shards/_maskprep/stats.json", "shards/.maskprep/task-00002.json"} <= set(reference)
     assert len([f for f in reference if f.startswith("shards/shard-")]) > 6  # several tasks x copies x parts
     assert json.loads(reference["counts/counts.json"])["N"] > 50_000
     for name in ("workers-2", "dask"):
@@ -130,7 +130,7 @@ def test_dask_is_imported_only_when_asked_for(tmp_path, tiny_files, small_wordpi
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip().splitlines()[-1] == "[]"
-    assert (tmp_path / "counts" / "counts.json").is_file() and (tmp_path / "shards" / "manifest.json").is_file()
+    assert (tmp_path / "counts" / "counts.json").is_file() and (tmp_path / "shards" / "_maskprep" / "manifest.json").is_file()
 
 
 @pytest.mark.parametrize("command", ["mask", "count"])
@@ -140,7 +140,7 @@ def test_missing_dask_extra_says_how_to_install_it(tmp_path, monkeypatch, tiny_f
                                       str(small_wordpiece), "-o", str(tmp_path / "out")])
     assert result.exit_code == 1
     assert "--dask needs the dask extra" in result.output and "pip install 'maskprep[dask]'" in result.output
-    assert not (tmp_path / "out" / "manifest.json").exists() and not (tmp_path / "out" / "counts.json").exists()
+    assert not (tmp_path / "out" / "_maskprep" / "manifest.json").exists() and not (tmp_path / "out" / "counts.json").exists()
 
 
 def test_results_come_back_in_task_order_on_dask(cluster_address):
@@ -187,7 +187,7 @@ def _stage(command: str, files: list[str], tokenizer: Path, out: Path, options: 
 
 
 RECORD_OF_TASK_0 = {"mask": ".maskprep/task-00000.json", "count": ".maskprep-count/task-000000.json"}
-FINISHED = {"mask": "manifest.json", "count": "counts.json"}
+FINISHED = {"mask": "_maskprep/manifest.json", "count": "counts.json"}
 
 
 @pytest.mark.parametrize("where", ["workers-1", "workers-2", "dask"])

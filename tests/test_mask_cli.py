@@ -45,7 +45,7 @@ def strategy_runs(tmp_path_factory, two_files, small_wordpiece):
         d = base / strategy
         r = mask([*two_files, "-t", str(small_wordpiece), "-o", str(d), "--strategy", strategy, "--seed", "3"])
         assert r.exit_code == 0, r.output
-        out[strategy] = (d, r.output, json.loads((d / "stats.json").read_text()))
+        out[strategy] = (d, r.output, json.loads((d / "_maskprep" / "stats.json").read_text()))
     return out
 
 
@@ -86,7 +86,7 @@ def test_stats_equal_a_plain_recount_of_the_written_rows(strategy_runs):
     d, _, stats = strategy_runs["token"]
     targets = maskable_shown = tokens = rows = 0
     mix = {"mask": 0, "random": 0, "keep": 0}
-    manifest = json.loads((d / "manifest.json").read_text())
+    manifest = json.loads((d / "_maskprep" / "manifest.json").read_text())
     mask_id = manifest["tokenizer"]["mask_token_id"]
     special = set(manifest["tokenizer"]["special_ids"])
     per_row = []
@@ -271,7 +271,7 @@ def test_existing_output_and_resume_with_other_options(tmp_path, two_files, smal
 def test_verify_and_show_refuse_a_directory_without_manifest(tmp_path):
     for cmd in (["verify", str(tmp_path)], ["show", str(tmp_path)]):
         r = CliRunner().invoke(cli, cmd)
-        assert r.exit_code == 1 and "no manifest.json" in r.output, r.output
+        assert r.exit_code == 1 and "no _maskprep/manifest.json" in r.output, r.output
 
 
 def test_show_colours_on_a_terminal(strategy_runs):
@@ -286,9 +286,9 @@ def test_verify_reports_counts_that_differ_from_the_manifest(tmp_path, strategy_
 
     d = tmp_path / "edited"
     shutil.copytree(strategy_runs["word"][0], d)
-    doc = json.loads((d / "manifest.json").read_text())
+    doc = json.loads((d / "_maskprep" / "manifest.json").read_text())
     doc["shards"][1]["targets"] += 1
-    (d / "manifest.json").write_text(json.dumps(doc))
+    (d / "_maskprep" / "manifest.json").write_text(json.dumps(doc))
     r = CliRunner().invoke(cli, ["verify", str(d)])
     name = doc["shards"][1]["file"]
     assert r.exit_code == 1 and f"{name}: targets {doc['shards'][1]['targets'] - 1}, manifest.json says" in r.output
@@ -315,11 +315,11 @@ def test_verify_names_each_kind_of_damage(tmp_path, strategy_runs, damage, messa
         data = (d / "shard-00000-00-0000.arrow").read_bytes()
         (d / "shard-00000-00-0000.arrow").write_bytes(data[: len(data) // 3])
     elif damage == "delete-stats":
-        (d / "stats.json").unlink()
+        (d / "_maskprep" / "stats.json").unlink()
     else:
-        doc = json.loads((d / "manifest.json").read_text())
+        doc = json.loads((d / "_maskprep" / "manifest.json").read_text())
         doc["totals"]["rows"] += 7
-        (d / "manifest.json").write_text(json.dumps(doc))
+        (d / "_maskprep" / "manifest.json").write_text(json.dumps(doc))
     r = CliRunner().invoke(cli, ["verify", str(d)])
     assert r.exit_code == 1, r.output
     assert message in r.output, r.output

@@ -93,7 +93,7 @@ def test_first_run_runs_every_stage_and_writes_their_outputs(first_run):
     _, out, output = first_run
     assert statuses(out) == {name: "ran" for name in ALL}
     for rel in ("tokenizer/tokenizer.json", "audit/audit.json", "audit/audit.html", "counts/counts.json",
-                "units/units.parquet", "mask/token/manifest.json", "mask/pmi/stats.json", "compare/compare.json",
+                "units/units.parquet", "mask/token/_maskprep/manifest.json", "mask/pmi/_maskprep/stats.json", "compare/compare.json",
                 "compare/compare.html"):
         assert (out / rel).is_file(), rel
     for d in ("tokenizer", "audit", "counts", "units", "mask/token", "mask/pmi", "compare"):
@@ -151,7 +151,7 @@ def test_forced_rerun_with_a_given_tokenizer_gives_identical_outputs(tmp_path, s
     assert run(config, a).exit_code == 0
     assert run(config, b, "--force").exit_code == 0
     assert "tokenizer" not in statuses(a)
-    for rel in ("mask/pmi/manifest.json", "mask/token/stats.json", "units/units.tsv",
+    for rel in ("mask/pmi/_maskprep/manifest.json", "mask/token/_maskprep/stats.json", "units/units.tsv",
                 "mask/pmi/shard-00000-00-0000.arrow", "counts/ngrams-3.parquet", "audit/audit.json"):
         assert (a / rel).read_bytes() == (b / rel).read_bytes(), rel
     figures = [json.loads((d / "compare" / "compare.json").read_text())["strategies"] for d in (a, b)]
@@ -243,7 +243,7 @@ def test_demo_runs_in_time_and_its_shards_verify(tmp_path):
     for strategy in ("token", "word", "span", "pmi"):
         v = CliRunner().invoke(cli, ["verify", str(out / "mask" / strategy)])
         assert v.exit_code == 0 and v.output.startswith("ok:"), v.output
-        stats = json.loads((out / "mask" / strategy / "stats.json").read_text())
+        stats = json.loads((out / "mask" / strategy / "_maskprep" / "stats.json").read_text())
         for key in ("targets", "masking_rate", "within_word_leakage", "multiword_share"):
             assert cmp["strategies"][strategy][key] == stats[key]
     again = CliRunner().invoke(cli, ["--quiet", "--workers", "2", "demo", "-o", str(out)])

@@ -103,7 +103,7 @@ def test_mask_killed_three_times_then_resumed_equals_an_uninterrupted_run(tmp_pa
     run_to_end(["mask", *args, "-o", str(ref)])
     tasks = done_records(ref)
     assert tasks == len(plays_in_files) == 6
-    finished = ("manifest.json", "stats.json")
+    finished = ("_maskprep/manifest.json", "_maskprep/stats.json")
 
     # 1: while the first shard files are being written (a temporary file exists)
     kill_when(["mask", *args, "-o", str(out)], lambda: any(out.glob(".shard-*.tmp")),

@@ -79,7 +79,9 @@ def all_rows(directory):
 
 
 def files_of(directory: Path) -> dict[str, bytes]:
-    return {p.name: p.read_bytes() for p in sorted(directory.iterdir()) if p.is_file()}
+    """Every file but the resume state (.maskprep/), by path relative to `directory`."""
+    return {p.relative_to(directory).as_posix(): p.read_bytes() for p in sorted(directory.rglob("*"))
+            if p.is_file() and not p.relative_to(directory).as_posix().startswith(".maskprep/")}
 
 
 def test_rows_equal_packer_and_sampler_run_directly(tmp_path, info, three_files):
@@ -135,7 +137,7 @@ def test_files_manifest_and_schema(tmp_path, info, three_files):
     manifest, stats = run(tmp_path / "s", three_files, info, shard_rows=2000)
     names = [s.file for s in manifest.shards]
     assert names[0] == "shard-00000-00-0000.arrow"
-    doc = json.loads((tmp_path / "s" / "manifest.json").read_text())
+    doc = json.loads((tmp_path / "s" / "_maskprep" / "manifest.json").read_text())
     assert doc["options"]["seed"] == 0 and doc["tokenizer"]["hash"] == info.hash
     assert doc["options"]["corpus_fingerprint"] and doc["maskprep_version"]
     for rec in manifest.shards:
@@ -145,7 +147,7 @@ def test_files_manifest_and_schema(tmp_path, info, three_files):
         sizes = [reader.get_batch(i).num_rows for i in range(reader.num_record_batches)]
         assert all(n == 1024 for n in sizes[:-1]) and sum(sizes) == rec.rows
         schema = reader.schema
-        assert schema.names == ["input_ids", "labels", "attention_mask", "sequence_id"]
+        assert schema.names == ["input_ids", "labels", "attention_mask", "sequence_id", "copy"]
         assert schema.field("input_ids").type == pa.list_(pa.int32())
         assert schema.field("labels").type == pa.list_(pa.int32())
         assert schema.field("attention_mask").type == pa.list_(pa.int8())
@@ -155,7 +157,7 @@ def test_files_manifest_and_schema(tmp_path, info, three_files):
         assert (path.stat().st_mode & 0o044) == 0o044  # readable by the training job, not private
     assert sum(s.targets for s in manifest.shards) == stats["targets"]
     assert open_shards(tmp_path / "s").dataset().count_rows() == stats["rows"]
-    assert (tmp_path / "s" / "tokenizer.json").read_text() == info.json
+    assert (tmp_path / "s" / "_maskprep" / "tokenizer.json").read_text() == info.json
 
 
 def test_parquet_is_zstd_and_deterministic(tmp_path, info, three_files):
@@ -185,7 +187,8 @@ def test_resume_after_a_failed_task_equals_an_uninterrupted_run(tmp_path, info, 
     monkeypatch.setattr(shards_mod, "mask_batch", real)
     out = tmp_path / "out"
     names = sorted(p.name for p in out.iterdir())
-    assert "manifest.json" not in names and "stats.json" not in names  # nothing looks finished
+    assert not (out / "_maskprep" / "manifest.json").exists()  # nothing looks finished
+    assert not (out / "_maskprep" / "stats.json").exists()
     assert not [n for n in names if n.endswith(".tmp")]
     assert all(n.startswith("shard-00000-") for n in names if n.startswith("shard-"))
     done_before = (out / "shard-00000-00-0000.arrow").stat().st_mtime_ns

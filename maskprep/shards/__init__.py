@@ -1,8 +1,9 @@
-"""Stage 8, shards: write training-ready Arrow/Parquet shards, read them back, verify and show them."""
+"""Stage 8, shards: write training-ready Arrow/Parquet shards, read them back, load training batches, verify and show them."""
 
 from .check import format_examples, verify_shards
+from .loader import ShardLoader
 from .read import ShardSet, open_shards
 from .write import ShardConfig, ShardManifest, write_shards
 
-__all__ = ["ShardConfig", "ShardManifest", "ShardSet", "format_examples", "open_shards",
+__all__ = ["ShardConfig", "ShardLoader", "ShardManifest", "ShardSet", "format_examples", "open_shards",
            "verify_shards", "write_shards"]

@@ -1,9 +1,11 @@
 """Check and display shards written by `maskprep.shards.write.write_shards`.
 
-`verify_shards` re-reads every shard listed in manifest.json and reports
-faults, each naming the shard file and, for row faults, the row: sha256 and
-size against the manifest, schema and schema metadata against the run's
-options, and row invariants: every list ``seq_len`` long, the first token the
+`verify_shards` re-reads every shard listed in ``_maskprep/manifest.json``
+(or, in directories of format version 1, ``manifest.json`` at the top) and
+reports faults, each naming the shard file and, for row faults, the row:
+sha256 and size against the manifest, schema and schema metadata against the
+run's options, and row invariants: the ``copy`` column equal to the file's
+copy, every list ``seq_len`` long, the first token the
 start token, attention mask ones then zeros, padding where the mask is 0,
 targets never special tokens (labels = original ids, shown as the mask token,
 a non-special token, or unchanged), at most round(rate x maskable) targets
@@ -15,7 +17,10 @@ sampler to count their targets), and the totals equal to manifest and stats.
 `format_examples` renders rows for a terminal: the sequence as the model sees
 it and the original, with masked runs marked (colour, or ``{...}`` brackets
 when not on a terminal; adjacent units show as one run), and the original
-text of every masked run.
+text of every masked run. A random replacement is shown as its vocabulary
+piece in angle brackets with a space before it (``{the <##ric>}``, on a
+terminal also in another colour), never decoded in context: a continuation
+piece glued to the word before would read as a different word.
 
 This module does not write or repair shards.
 """
@@ -32,14 +37,15 @@ import numpy as np
 from ..errors import MaskprepError
 from .._files import read_json
 from ..masking.sampler import IGNORE_LABEL
+from .layout import META_DIR, METADATA_KEY, ShardRecord
 from .read import open_shards
-from .write import METADATA_KEY, ShardRecord, file_sha256
+from .write import file_sha256
 from .read import ShardSet, to_numpy
 
 __all__ = ["VerifyReport", "verify_shards", "format_examples"]
 
-_STATIC = ("input_ids", "labels", "attention_mask", "sequence_id")
-_DYNAMIC = ("input_ids", "unit_ids", "attention_mask", "sequence_id")
+_STATIC = ("input_ids", "labels", "attention_mask", "sequence_id", "copy")
+_DYNAMIC = ("input_ids", "unit_ids", "attention_mask", "sequence_id", "copy")
 _META_KEYS = ("strategy", "rate", "mix", "mix_per", "span_p", "span_max", "seed", "copies", "seq_len", "pack",
               "tokenizer_hash", "units_sha256")
 
@@ -52,6 +58,7 @@ class VerifyReport:
     shards: int = 0
     rows: int = 0
     faults: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
 
     @property
     def ok(self) -> bool:
@@ -81,6 +88,7 @@ def _check_rows(batch: dict[str, np.ndarray], *, ss: ShardSet, record: ShardReco
     fault((np.diff(att.astype(np.int8), axis=1) > 0).any(axis=1) | ~on[:, 0],
           "attention_mask is not ones followed by zeros")
     fault(ids[:, 0] != cls_id, f"first token is not the start token (id {cls_id})")
+    fault(batch["copy"] != record.copy, f"copy is not {record.copy}, the copy of this file")
     fault((~on & (ids != pad_id)).any(axis=1), f"a padded position (attention 0) is not the pad token {pad_id}")
     is_special = np.isin(ids, specials)
     if ss.dynamic:
@@ -126,8 +134,13 @@ def _check_schema(path: Path, ss: ShardSet, record: ShardRecord, faults: list[st
         faults.append(f"{record.file}: unreadable ({exc})")
         return None
     expected = _DYNAMIC if ss.dynamic else _STATIC
+    if not ss.manifest.has_copy_column:
+        expected = expected[:-1]
     if tuple(schema.names) != expected:
         faults.append(f"{record.file}: columns {', '.join(schema.names)}; expected {', '.join(expected)}")
+        return None
+    if "copy" in expected and schema.field("copy").type != pa.int16():
+        faults.append(f"{record.file}: column copy is {schema.field('copy').type}; expected int16")
         return None
     try:
         meta = json.loads((schema.metadata or {})[METADATA_KEY])
@@ -194,15 +207,22 @@ def verify_shards(directory: str | Path, *, max_faults: int = 50) -> VerifyRepor
     for k, v in sums.items():
         if totals.get(k) != v:
             faults.append(f"manifest.json: totals.{k} is {totals.get(k)}, the shards hold {v}")
-    stats_path = ss.directory / "stats.json"
+    stats_path = ss.metadata("stats.json")
+    if ss.legacy_layout:
+        report.notes.append(
+            f"{ss.directory}: metadata at the top of the directory (format version "
+            f"{ss.manifest.format_version}); maskprep reads it, but pyarrow.dataset and other directory "
+            f"readers cannot open the directory until manifest.json, stats.json and tokenizer.json "
+            f"are moved into {META_DIR}/")
     if not stats_path.is_file():
-        faults.append("stats.json: missing")
+        faults.append(f"{stats_path.relative_to(ss.directory)}: missing")
     else:
         stats = read_json(stats_path, what="shard statistics")
         for k, sk in (("rows", "rows"), ("tokens", "tokens"), ("maskable", "maskable_tokens"),
                       ("targets", "targets")):
             if stats.get(sk) != sums[k]:
-                faults.append(f"stats.json: {sk} is {stats.get(sk)}, the shards hold {sums[k]}")
+                faults.append(f"{stats_path.relative_to(ss.directory)}: {sk} is {stats.get(sk)}, "
+                              f"the shards hold {sums[k]}")
     return report
 
 
@@ -249,6 +269,27 @@ def _runs(flags: list[bool]) -> list[tuple[int, int]]:
     return runs
 
 
+RANDOM_OPEN, RANDOM_CLOSE = "<", ">"
+_RANDOM_COLOR = "\x1b[1;37;45m"
+_RUN_COLOR = "\x1b[1;30;43m"
+
+
+def mark_random(pieces: list[str], tokenizer: Any, ids: list[int], random: list[bool],
+                color: bool = False) -> list[str]:
+    """Pieces with every random replacement shown apart: `` <piece>`` (its vocabulary string).
+
+    >>> mark_random([" the", "ric"], tok, [5, 9], [False, True])  # doctest: +SKIP
+    [' the', ' <##ric>']
+    """
+    out = list(pieces)
+    for i in [k for k, r in enumerate(random) if r]:
+        text = f"{RANDOM_OPEN}{tokenizer.id_to_token(ids[i]) or '?'}{RANDOM_CLOSE}"
+        if color:
+            text = f"{_RANDOM_COLOR}{text}\x1b[0m{_RUN_COLOR}"
+        out[i] = " " + text
+    return out
+
+
 def _render(pieces: list[str], runs: list[tuple[int, int]], color: bool) -> str:
     out, pos = [], 0
     for a, b in runs:
@@ -256,7 +297,7 @@ def _render(pieces: list[str], runs: list[tuple[int, int]], color: bool) -> str:
         inner = "".join(pieces[a:b])
         lead = inner[: len(inner) - len(inner.lstrip())]
         inner = inner.lstrip()
-        out.append(lead + (f"\x1b[1;30;43m{inner}\x1b[0m" if color else "{" + inner + "}"))
+        out.append(lead + (f"{_RUN_COLOR}{inner}\x1b[0m" if color else "{" + inner + "}"))
         pos = b
     out.append("".join(pieces[pos:]))
     return "".join(out).strip()
@@ -270,7 +311,7 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     from ..tokenizer.encoding import load_tokenizer
 
     ss = open_shards(directory)
-    tok_path = ss.directory / "tokenizer.json"
+    tok_path = ss.metadata("tokenizer.json")
     if not tok_path.is_file():
         raise MaskprepError(f"{tok_path}: missing; the shards directory keeps a copy of its tokenizer")
     tokenizer = load_tokenizer(tok_path).tokenizer
@@ -278,7 +319,10 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     o = ss.options
     lines = [f"{ss.directory}: {len(ss)} rows, strategy {o['strategy']}, rate {o['rate']}, mix "
              f"{'/'.join(str(x) for x in o['mix'])}, seed {o['seed']}, "
-             + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static")]
+             + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static"),
+             ("masked runs in colour" if color else "{...} a masked run")
+             + f"; {RANDOM_OPEN}piece{RANDOM_CLOSE} a random replacement, shown as its vocabulary piece "
+             "(not joined to the word before it)"]
     shown = 0
     for record in ss.manifest.shards:
         row_in_file = 0
@@ -298,8 +342,12 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
                 lines.append(f"{record.file} row {row_in_file + r}: sequence {seq >> 32}:{seq & 0xFFFFFFFF}, copy "
                              f"{record.copy}, {length} tokens, {sum(target)} targets in {len(runs)} runs"
                              + (f", {masked.shape[1] - length} padding" if length < masked.shape[1] else ""))
-                p_shown, p_orig = _pieces(tokenizer, shown_ids), _pieces(tokenizer, orig_ids)
-                lines.append("  input:    " + _render(p_shown, runs, color))
+                random = [t and s != mask_id and s != o for t, s, o in zip(target, shown_ids, orig_ids)]
+                in_context = _pieces(tokenizer, shown_ids)
+                p_shown = mark_random(in_context, tokenizer, shown_ids, random)
+                p_orig = _pieces(tokenizer, orig_ids)
+                lines.append("  input:    " + _render(mark_random(in_context, tokenizer, shown_ids, random, color)
+                                                      if color else p_shown, runs, color))
                 lines.append("  original: " + _render(p_orig, runs, color))
                 parts = []
                 for a, b in runs:

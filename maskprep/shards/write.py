@@ -1,12 +1,13 @@
-"""Write training-ready shards (Arrow IPC or Parquet) and read them back.
+"""Write training-ready shards (Arrow IPC or Parquet).
 
 `write_shards` runs one task per corpus task (`corpus.plan_tasks`) through
 `execute.map_tasks`: the task encodes its documents, packs them
 (`packing.TaskPacker`), computes units (`masking.strategy_units`), masks every
 sequence `copies` times with `masking.mask_batch` (copy index k enters the
 counter-based random draws) and writes its own shard files. The driver then
-writes `stats.json` and, last of all, `manifest.json`: a directory with a
-manifest is complete.
+writes ``_maskprep/stats.json`` and, last of all, ``_maskprep/manifest.json``:
+a directory with a manifest is complete. Where each file lives is in
+`maskprep.shards.layout`.
 
 Files in SHARDS_DIR:
 
@@ -15,16 +16,19 @@ Files in SHARDS_DIR:
   the options. Columns, one row per sequence, every list ``seq_len`` long:
   static: ``input_ids`` list<int32> (after masking), ``labels`` list<int32>
   (original id at targets, -100 elsewhere), ``attention_mask`` list<int8>,
-  ``sequence_id`` uint64; ``--dynamic``: ``input_ids`` unmasked and
-  ``unit_ids`` list<int32> (-1 on special tokens) instead of ``labels``.
+  ``sequence_id`` uint64, ``copy`` int16 (C again, so rows of different
+  copies stay apart when a directory is read as one table); ``--dynamic``:
+  ``input_ids`` unmasked and ``unit_ids`` list<int32> (-1 on special tokens)
+  instead of ``labels``.
   Schema metadata (key ``maskprep``, JSON): mask token id, special ids,
   strategy, rate, mix, seed, copies, this file's copy, and more. Arrow files
   hold record batches of 1024 rows, Parquet files (zstd) row groups of 8192
   rows, so files are byte-identical whatever the number of workers;
-- ``manifest.json``: per shard file, rows, tokens, maskable tokens, targets,
-  bytes and sha256; the run's options, tokenizer hash, seed, package version
-  and corpus fingerprint; ``stats.json``: see `maskprep.stats.masks`;
-  ``tokenizer.json``: a copy of the tokenizer the ids belong to;
+- ``_maskprep/manifest.json``: per shard file, rows, tokens, maskable tokens,
+  targets, bytes and sha256; the run's options, tokenizer hash, seed, package
+  version and corpus fingerprint; ``_maskprep/stats.json``: see
+  `maskprep.stats.masks`, plus the padding share of the rows;
+  ``_maskprep/tokenizer.json``: a copy of the tokenizer the ids belong to;
 - ``.maskprep/``: the run's options and one done-record per finished task,
   used by ``resume``.
 
@@ -36,8 +40,8 @@ gives exactly the static rows for the same seed and copy. For dynamic span
 masking the spans themselves are those of the shard's copy; only the choice
 of spans and the replacement change with ``copy``.
 
-This module does not read shards back (see `maskprep.shards.read`), verify or render them
-(see `maskprep.shards.check`).
+This module does not read shards back (see `maskprep.shards.read` and
+`maskprep.shards.loader`), verify or render them (see `maskprep.shards.check`).
 """
 
 from __future__ import annotations
@@ -58,16 +62,15 @@ from ..errors import MaskprepError
 from ..masking.sampler import MaskingConfig, Strategy, mask_batch, strategy_units
 from ..packing import PackingConfig, TaskPacker, check_packing_tokenizer
 from ..stats.masks import MaskStats
+from .layout import FORMAT_VERSION, FORMATS as _FORMATS, META_DIR, METADATA_FILES, METADATA_KEY, \
+    STATE_DIR, ShardManifest, ShardRecord, new_metadata_path, shard_name
 
 __all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards",
            "FORMAT_VERSION", "METADATA_KEY"]
 
-FORMAT_VERSION = 1
-METADATA_KEY = b"maskprep"
 ARROW_BATCH_ROWS = 1024
 PARQUET_GROUP_ROWS = 8192
-STATE_DIR = ".maskprep"
-_FORMATS = {"arrow": ".arrow", "parquet": ".parquet"}
+COPY_DTYPE = np.int16  # --copies is at most 1000
 
 
 @dataclass(frozen=True)
@@ -94,68 +97,8 @@ class ShardConfig:
         object.__setattr__(self, "dynamic", bool(self.dynamic))
 
 
-@dataclass(frozen=True)
-class ShardRecord:
-    """One shard file as listed in the manifest."""
-
-    file: str
-    task: int
-    copy: int
-    part: int
-    rows: int
-    tokens: int
-    maskable: int
-    targets: int
-    bytes: int
-    sha256: str
-
-
-@dataclass(frozen=True)
-class ShardManifest:
-    """The contents of manifest.json: ``ShardManifest.read("shards/").totals["rows"]``."""
-
-    options: Mapping[str, Any]
-    tokenizer: Mapping[str, Any]
-    corpus: Mapping[str, Any]
-    totals: Mapping[str, Any]
-    shards: tuple[ShardRecord, ...]
-    maskprep_version: str = ""
-    format_version: int = FORMAT_VERSION
-
-    def to_json(self) -> dict[str, Any]:
-        return {"format": "maskprep-shards", "format_version": self.format_version,
-                "maskprep_version": self.maskprep_version, "options": dict(self.options),
-                "tokenizer": dict(self.tokenizer), "corpus": dict(self.corpus), "totals": dict(self.totals),
-                "shards": [asdict(s) for s in self.shards]}
-
-    @classmethod
-    def read(cls, directory: str | Path) -> "ShardManifest":
-        path = Path(directory) / "manifest.json"
-        if not path.is_file():
-            raise MaskprepError(f"{directory}: no manifest.json; not a finished shards directory "
-                                "(write one with maskprep mask, or finish it with maskprep mask ... --resume)")
-        doc = read_json(path, what="shard manifest")
-        if not isinstance(doc, dict) or doc.get("format") != "maskprep-shards":
-            raise MaskprepError(f"{path}: not a maskprep shard manifest")
-        if doc.get("format_version") != FORMAT_VERSION:
-            raise MaskprepError(f"{path}: format_version {doc.get('format_version')!r}; this maskprep reads "
-                                f"version {FORMAT_VERSION}")
-        try:
-            shards = tuple(ShardRecord(**s) for s in doc["shards"])
-            return cls(options=doc["options"], tokenizer=doc["tokenizer"], corpus=doc["corpus"],
-                       totals=doc["totals"], shards=shards, maskprep_version=doc.get("maskprep_version", ""))
-        except (KeyError, TypeError) as exc:
-            raise MaskprepError(f"{path}: incomplete manifest ({exc})") from None
-
-
-
 def _dump(obj: Any) -> str:
     return json.dumps(obj, indent=2, ensure_ascii=False) + "\n"
-
-
-def shard_name(task: int, copy: int, part: int, fmt: str) -> str:
-    """File name of a shard: ``shard_name(3, 0, 1, "arrow")`` -> 'shard-00003-00-0001.arrow'."""
-    return f"shard-{task:05d}-{copy:02d}-{part:04d}{_FORMATS[fmt]}"
 
 
 def _write_text(path: Path, text: str) -> None:
@@ -298,6 +241,7 @@ def _shard_task(job: _Job, task: Any) -> dict[str, Any]:
             cols["unit_ids" if cfg.dynamic else "labels"] = units if cfg.dynamic else labels
             cols["attention_mask"] = pb.attention_mask
             cols["sequence_id"] = pb.sequence_ids
+            cols["copy"] = np.full(len(pb.sequence_ids), c, dtype=COPY_DTYPE)
             cols["_maskable"] = (units >= 0).sum(axis=1, dtype=np.int64)
             cols["_targets"] = (labels != -100).sum(axis=1, dtype=np.int64)
             writer.add(cols)
@@ -323,7 +267,7 @@ _OPTION_LABELS = {"strategy": "--strategy", "rate": "--rate", "mix": "--mix", "m
                   "corpus_fingerprint": "corpus (file names, sizes and contents)", "doc_sep": "--doc-sep",
                   "text_field": "--text-field", "text_column": "--text-column", "chunk_bytes": "task size",
                   "maskprep_version": "maskprep version", "units_tokenizer_hash": "the units' tokenizer"}
-_FINISHED_NAMES = ("manifest.json", "stats.json", "tokenizer.json")
+_FINISHED_NAMES = METADATA_FILES  # in META_DIR; at the top of format version 1 directories
 
 
 def _owned(name: str) -> bool:
@@ -337,9 +281,16 @@ def _remove_owned(out: Path) -> None:
     for p in out.iterdir():
         if _owned(p.name) and not p.is_dir():
             p.unlink()
+    if (out / META_DIR).is_dir():
+        for p in (out / META_DIR).iterdir():
+            if _owned(p.name) and not p.is_dir():
+                p.unlink()
+        if not any((out / META_DIR).iterdir()):
+            (out / META_DIR).rmdir()
 
 
-MASK_STAGE = Stage(noun="mask run", state=STATE_DIR, marker="manifest.json", labels=_OPTION_LABELS,
+MASK_STAGE = Stage(noun="mask run", state=STATE_DIR, marker=f"{META_DIR}/manifest.json",
+                   labels=_OPTION_LABELS,
                    changed=("units_sha256", "tokenizer_hash", "corpus_fingerprint", "units_tokenizer_hash"),
                    digits=5,
                    on_overwrite=_remove_owned)
@@ -350,7 +301,7 @@ def _prepare_dir(out: Path, *, overwrite: bool, resume: bool, options: Mapping[s
     """Lock OUT and check it (see `maskprep._resume.claim`); on resume, drop temporary files of the last run."""
     run = claim(out, MASK_STAGE, options, resume=resume, overwrite=overwrite)
     if run.resumed:
-        for tmp in out.glob(".*.tmp"):  # left by the interrupted run
+        for tmp in [*out.glob(".*.tmp"), *(out / META_DIR).glob(".*.tmp")]:  # left by the last run
             tmp.unlink(missing_ok=True)
         run.clean(p.name for p in run.root.glob("task-*.json"))
     return run
@@ -465,7 +416,11 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
                                    "round(rate x its maskable tokens), so per-sequence rates vary"
                                    + ("; dynamic shards: figures of mask_batch with copy = the shard's copy"
                                       if shards.dynamic else ""))
-    _write_text(out / "tokenizer.json", info.json)
-    _write_text(out / "stats.json", _dump(stats_doc))
-    _write_text(out / "manifest.json", _dump(manifest.to_json()))
+    positions = stats.rows * packing.seq_len
+    stats_doc["padding"] = {"positions": positions, "padded": positions - stats.tokens,
+                            "share": (positions - stats.tokens) / positions if positions else None,
+                            "over": "all token positions of the rows written (rows x seq_len)"}
+    _write_text(new_metadata_path(out, "tokenizer.json"), info.json)
+    _write_text(new_metadata_path(out, "stats.json"), _dump(stats_doc))
+    _write_text(new_metadata_path(out, "manifest.json"), _dump(manifest.to_json()))
     return manifest, stats_doc
