@@ -133,7 +133,7 @@ def _check_schema(path: Path, ss: ShardSet, record: ShardRecord, faults: list[st
     except (pa.ArrowException, OSError) as exc:
         faults.append(f"{record.file}: unreadable ({exc})")
         return None
-    expected = _DYNAMIC if ss.dynamic else _STATIC
+    expected: tuple[str, ...] = _DYNAMIC if ss.dynamic else _STATIC
     if not ss.manifest.has_copy_column:
         expected = expected[:-1]
     if tuple(schema.names) != expected:

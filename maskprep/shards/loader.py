@@ -44,13 +44,18 @@ bytes of numpy arrays, where ``row_bytes = 9 x seq_len + 10`` (4 + 4 + 1 bytes
 per token for ``input_ids``, ``labels`` or ``unit_ids`` and ``attention_mask``;
 8 + 2 per row for ``sequence_id`` and ``copy``); `ShardLoader.buffer_bytes`
 gives the figure. Batches are views of the window, except the last batch of
-each window, which is copied so that the window can be freed before the next
-one is built: peak heap is one window plus the batches the caller still holds
-(plus, for dynamic shards, the two masked arrays of each batch). Arrow files
-are memory-mapped, so their pages sit in the OS page cache, not in the heap;
-Parquet row groups are decoded by pyarrow, one at a time (up to 8,192 rows,
-in pyarrow's memory pool). Iterating in one process with ``num_workers=W``
-holds W windows; each real worker process holds its own one.
+each window, which is copied, so that the window's arrays are free again when
+the next window is built; they are then reused (no new allocation, no page
+faults). If the caller still holds a view of them, a new window is allocated
+instead and the held batch stays intact. Peak heap: one window, the batches
+the caller holds (for dynamic shards also the two masked arrays of each
+batch), about 40 bytes a row while a window's permutation is drawn, and the
+metadata of the open files (at most 64 are kept open). Arrow files are
+memory-mapped, so their pages sit in the OS page cache, not in the heap;
+Parquet row groups (up to 8,192 rows) are decoded by pyarrow in its own memory
+pool: the one in use and the next, decoded ahead in a thread. Iterating in one
+process with ``num_workers=W`` holds W windows; each real worker process holds
+its own one.
 
 **Resuming.** ``state()`` is a small JSON-able dict: the epoch, the batches
 this rank has delivered in it, and the options the order depends on.
@@ -68,6 +73,7 @@ This module does not write or check shards.
 from __future__ import annotations
 
 import hashlib
+import sys
 from pathlib import Path
 from typing import Any, Iterator, Mapping
 
@@ -76,7 +82,7 @@ import numpy as np
 from ..errors import MaskprepError
 from ..masking.strategies import _absorb_int, absorb
 from .read import ShardSet
-from .write import COPY_DTYPE
+from .write import ARROW_BATCH_ROWS, COPY_DTYPE, PARQUET_GROUP_ROWS
 
 __all__ = ["ShardLoader", "DEFAULT_BUFFER_ROWS"]
 
@@ -129,6 +135,9 @@ class ShardLoader:
         self._pieces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
         self._readers: dict[int, Any] = {}
         self._group: tuple[tuple[int, int], dict[str, np.ndarray]] | None = None
+        self._pool: list[dict[str, np.ndarray]] = []  # window buffers, reused once no batch views them
+        self._ahead: tuple[tuple[int, int], Any] | None = None  # Parquet: the row group being decoded
+        self._thread: Any = None
 
     # ------------------------------------------------------------ sizes and memory
 
@@ -215,24 +224,23 @@ class ShardLoader:
         return other
 
     def __getstate__(self) -> dict[str, Any]:  # open files stay behind when pickled to a worker
-        return {**self.__dict__, "_readers": {}, "_group": None}
+        return {**self.__dict__, "_readers": {}, "_group": None, "_pool": [], "_ahead": None, "_thread": None}
 
     # ------------------------------------------------------------ the plan of an epoch
 
     def pieces(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(shard index, piece index in the file, rows) of every piece, in manifest order."""
+        """(shard index, piece index in the file, rows) of every piece, in manifest order.
+
+        The writer cuts every file into pieces of 1,024 rows (Arrow) or 8,192 (Parquet), the
+        last one shorter, so the pieces follow from the manifest; each is checked when read.
+        """
         if self._pieces is None:
-            files, parts, rows = [], [], []
-            for i, record in enumerate(self.shards.manifest.shards):
-                counts = self._piece_rows(i)
-                if sum(counts) != record.rows:
-                    raise MaskprepError(f"{self.shards.files[i]}: holds {sum(counts)} rows, the "
-                                        f"manifest says {record.rows}; run maskprep verify")
-                files += [i] * len(counts)
-                parts += range(len(counts))
-                rows += counts
-            self._pieces = (np.asarray(files, np.int64), np.asarray(parts, np.int64),
-                            np.asarray(rows, np.int64))
+            size = ARROW_BATCH_ROWS if self.shards.options["format"] == "arrow" else PARQUET_GROUP_ROWS
+            rows = np.array([s.rows for s in self.shards.manifest.shards], dtype=np.int64)
+            count = -(-rows // size)
+            files = np.repeat(np.arange(len(rows)), count)
+            parts = np.arange(len(files)) - np.repeat(np.cumsum(count) - count, count)
+            self._pieces = (files, parts, np.minimum(size, rows[files] - parts * size))
         return self._pieces
 
     def _windows(self, epoch: int) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]]:
@@ -282,24 +290,38 @@ class ShardLoader:
                 raise MaskprepError(f"{path}: unreadable shard ({exc}); run maskprep verify") from None
         return self._readers[i]
 
-    def _piece_rows(self, i: int) -> list[int]:
+    def _read(self, i: int, part: int) -> Any:
+        """One record batch (Arrow, a view of the mapped file) or decoded row group (Parquet)."""
         reader = self._reader(i)
         if self.shards.options["format"] == "arrow":
-            return [reader.get_batch(k).num_rows for k in range(reader.num_record_batches)]
-        return [reader.metadata.row_group(k).num_rows for k in range(reader.num_row_groups)]
+            return reader.get_batch(part) if part < reader.num_record_batches else None
+        return reader.read_row_group(part) if part < reader.num_row_groups else None
 
-    def _piece(self, i: int, part: int) -> dict[str, np.ndarray]:
-        """The columns of one piece as numpy (views of the mapped file, or of one decoded row group)."""
+    def _piece(self, i: int, part: int, ahead: tuple[int, int] | None = None) -> dict[str, np.ndarray]:
+        """The columns of one piece as numpy; with Parquet, the row group `ahead` is decoded
+        meanwhile in a thread (pyarrow releases the GIL), as pyarrow's own readers read ahead."""
         import pyarrow as pa
 
         if self._group is not None and self._group[0] == (i, part):
             return self._group[1]
         self._group = None  # free the previous row group before decoding the next
-        reader = self._reader(i)
-        if self.shards.options["format"] == "arrow":
-            data = reader.get_batch(part)
-        else:
-            data = reader.read_row_group(part)
+        pending, self._ahead = self._ahead, None
+        data = pending[1].result() if pending is not None else None  # never two reads at once
+        if pending is None or pending[0] != (i, part):
+            data = self._read(i, part)
+        if ahead is not None and self.shards.options["format"] != "arrow":
+            if self._thread is None:
+                from concurrent.futures import ThreadPoolExecutor
+
+                self._thread = ThreadPoolExecutor(max_workers=1, thread_name_prefix="maskprep-loader")
+            self._reader(ahead[0])  # opened here, so the cache of open files is only touched here
+            self._ahead = (ahead, self._thread.submit(self._read, *ahead))
+        files, _, rows = self.pieces()
+        want = int(rows[np.searchsorted(files, i) + part])
+        if data is None or data.num_rows != want:
+            raise MaskprepError(f"{self.shards.files[i]}: piece {part} holds "
+                                f"{'no rows' if data is None else f'{data.num_rows} rows'}, not the {want} "
+                                "the manifest implies; run maskprep verify")
         out: dict[str, np.ndarray] = {}
         for name in self.columns:
             if name not in data.schema.names:  # format version 1: no copy column
@@ -317,9 +339,10 @@ class ShardLoader:
             self._group = ((i, part), out)
         return out
 
-    def _window(self, epoch: int, order: np.ndarray, starts: np.ndarray, lo: int,
-                hi: int) -> dict[str, np.ndarray]:
-        """Rows [lo, hi) of the epoch's stream, permuted within the window when shuffling."""
+    def _window(self, epoch: int, order: np.ndarray, starts: np.ndarray, lo: int, hi: int,
+                until: int) -> dict[str, np.ndarray]:
+        """Rows [lo, hi) of the epoch's stream, permuted within the window when shuffling
+        (`until`: the end of this worker's rows, so reading ahead stops there)."""
         files, parts, _ = self.pieces()
         n = hi - lo
         inv = None
@@ -332,9 +355,11 @@ class ShardLoader:
         while j < len(order) and starts[j] < hi:
             a, b = max(lo, int(starts[j])), min(hi, int(starts[j + 1]))
             if b > a:
-                piece = self._piece(int(files[order[j]]), int(parts[order[j]]))
+                nxt = j + 1 if j + 1 < len(order) and starts[j + 1] < until else None
+                piece = self._piece(int(files[order[j]]), int(parts[order[j]]),
+                                    None if nxt is None else (int(files[order[nxt]]), int(parts[order[nxt]])))
                 if out is None:
-                    out = {k: np.empty((n,) + v.shape[1:], dtype=v.dtype) for k, v in piece.items()}
+                    out = {k: v[:n] for k, v in self._buffers(piece).items()}
                 src = slice(a - int(starts[j]), b - int(starts[j]))
                 dst = inv[a - lo:b - lo] if inv is not None else slice(a - lo, b - lo)
                 for k, v in piece.items():
@@ -342,6 +367,18 @@ class ShardLoader:
             j += 1
         assert out is not None
         return out
+
+    def _buffers(self, piece: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
+        """Arrays of window_rows rows for a window: a pooled set that nothing refers to any more
+        (no batch handed out is a view of it), else a new one, kept for later windows."""
+        for buf in self._pool:
+            # references: the pool's dict and getrefcount's argument; a live batch view adds one
+            if all(sys.getrefcount(buf[k]) <= 2 for k in buf):
+                return buf
+        buf = {k: np.empty((self.window_rows,) + v.shape[1:], dtype=v.dtype) for k, v in piece.items()}
+        if len(self._pool) < self.num_workers:  # one set per worker stream in this process
+            self._pool.append(buf)
+        return buf
 
     def _worker_batches(self, epoch: int, order: np.ndarray, starts: np.ndarray,
                         windows: np.ndarray, skip: int) -> Iterator[dict[str, np.ndarray]]:
@@ -353,7 +390,7 @@ class ShardLoader:
             if first[w] + per[w] <= skip:
                 continue
             lo, hi = int(windows[w, 0]), int(windows[w, 1])
-            data = self._window(epoch, order, starts, lo, hi)
+            data = self._window(epoch, order, starts, lo, hi, int(windows[-1, 1]))
             for k in range(max(0, skip - int(first[w])), int(per[w])):
                 last = k == per[w] - 1
                 batch = {name: (v[k * bs:(k + 1) * bs].copy() if last else v[k * bs:(k + 1) * bs])
@@ -386,9 +423,14 @@ class ShardLoader:
             return
         streams = [self._worker_batches(epoch, order, starts, split[k], int(skips[k]))
                    for k in range(self.num_workers)]
-        for k in turns[done:].tolist():
-            batch = next(streams[k])
-            self.batches += 1
-            yield batch
+        if self.num_workers == 1:
+            for batch in streams[0]:
+                self.batches += 1
+                yield batch
+        else:
+            for k in turns[done:].tolist():
+                batch = next(streams[k])
+                self.batches += 1
+                yield batch
         if self.epoch == epoch:
             self.epoch, self.batches = epoch + 1, 0

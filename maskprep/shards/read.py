@@ -149,7 +149,7 @@ class ShardSet:
                                   or epoch < 0):
             raise MaskprepError(f"epoch must be a whole number >= 0, got {epoch!r}")
         ids, units, seqs = batch["input_ids"], batch["unit_ids"], batch["sequence_id"]
-        kw = {"seed": self.options["seed"] if seed is None else seed, "config": self.masking_config(),
+        kw: dict[str, Any] = {"seed": self.options["seed"] if seed is None else seed, "config": self.masking_config(),
               "mask_token_id": int(self.manifest.tokenizer["mask_token_id"]),
               "random_token_ids": self.random_token_ids()}
         if copy is not None:
