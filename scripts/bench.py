@@ -12,6 +12,8 @@ figures and same-run ratios:
   mask     `mask` end to end vs the bare batch-encode pass (>= 0.5x)
   workers  --workers 2 vs --workers 1 for count and mask (>= 1.6x on 2 cores),
            and Dask LocalCluster overhead vs the local pool
+  loader   ShardLoader (shuffle, world_size 2) vs pyarrow reading the same files (>= 0.8x),
+           and its peak heap against the shuffle buffer it states
 
     python scripts/bench.py [--only audit,masking] [--quick]
 
@@ -33,6 +35,7 @@ SECTIONS = {
     "masking": ("bench_masking.py", [], ["--quick"]),
     "mask": ("bench_mask.py", [], ["--quick"]),
     "workers": ("bench_workers.py", [], ["--quick"]),
+    "loader": ("bench_loader.py", ["--rounds", "5"], ["--quick"]),
 }
 
 

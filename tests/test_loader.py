@@ -10,6 +10,8 @@ practice): exactly once, the same order from the same (seed, epoch), resuming co
 from __future__ import annotations
 
 import json
+import re
+import shutil
 import tracemalloc
 from pathlib import Path
 
@@ -290,3 +292,43 @@ def test_an_empty_epoch_and_a_missing_shard(arrow_dir, tmp_path):
     (d / "shard-00001-00-0000.arrow").unlink()
     with pytest.raises(MaskprepError, match="shard-00001-00-0000.arrow: shard listed in the manifest is missing"):
         list(ShardLoader(d, batch_size=10))
+
+
+# ------------------------------------------------------------------ the README's loop
+
+def readme_loop() -> str:
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text(encoding="utf-8")
+    section = readme.split("## Using the shards in training", 1)[1].split("\n## ", 1)[0]
+    return re.findall(r"```python\n(.*?)```", section, re.S)[0]
+
+
+def test_the_readme_training_loop_runs_and_resumes_after_a_crash(arrow_dir, tmp_path, monkeypatch):
+    code = readme_loop()
+    assert code.count('"maskprep-demo/mask/pmi"') == 1 and code.count("% 1000") == 1
+    code = code.replace('"maskprep-demo/mask/pmi"', repr(str(arrow_dir))).replace("% 1000", "% 5")
+    monkeypatch.chdir(tmp_path)
+
+    def train(seen, crash_at=None):
+        def train_step(input_ids, labels, attention_mask):
+            if len(seen) == crash_at:
+                raise KeyboardInterrupt("killed")
+            assert input_ids.shape == labels.shape == attention_mask.shape == (32, 32)
+            seen.append(row_keys_of_ids(input_ids, labels))
+            return 0.0
+        exec(compile(code, "README.md", "exec"), {"train_step": train_step})
+
+    whole: list = []
+    train(whole)  # three epochs from scratch
+    assert len(whole) == 3 * len(ShardLoader(arrow_dir, batch_size=32, drop_last=True))
+    shutil.rmtree(tmp_path / "checkpoint")
+    first: list = []
+    with pytest.raises(KeyboardInterrupt):
+        train(first, crash_at=23)  # killed during the 24th step; the state saved after step 20
+    rest: list = []
+    train(rest)
+    assert first[:20] + rest == whole  # steps 21, 22, 23 are trained again after the restart, as with
+    # any checkpoint; nothing is skipped or repeated beyond them
+
+
+def row_keys_of_ids(input_ids, labels) -> bytes:
+    return input_ids.tobytes() + labels.tobytes()
