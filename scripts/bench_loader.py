@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""Rows per second of `ShardLoader` (shuffled, two ranks) against reading the same files with pyarrow.
+"""Rows per second of `ShardLoader` (shuffled, two ranks) against pyarrow reading the same files.
 
 Writes shards of the bundled sample corpus (Arrow and Parquet, --copies 8, 128 tokens a row;
 not timed), then, in rounds, in this process, reads every row once with:
@@ -48,7 +48,9 @@ def read_pyarrow(directory: Path, fmt: str, seq_len: int) -> tuple[int, float]:
     t0 = time.perf_counter()
     rows = 0
     touched = 0
-    for batch in ds.dataset(str(directory), format="ipc" if fmt == "arrow" else "parquet").to_batches():
+    for batch in ds.dataset(
+        str(directory), format="ipc" if fmt == "arrow" else "parquet"
+    ).to_batches():
         cols = {}
         for name in batch.schema.names:
             col = batch.column(name)
@@ -89,8 +91,12 @@ def memory(directory: Path, batch_size: int) -> dict[str, float]:
         _, peak = tracemalloc.get_traced_memory()
     finally:
         tracemalloc.stop()
-    return {"stated": loader.buffer_bytes, "heap": peak, "pool": peak_pool,
-            "rss": proc.memory_info().rss - rss0}
+    return {
+        "stated": loader.buffer_bytes,
+        "heap": peak,
+        "pool": peak_pool,
+        "rss": proc.memory_info().rss - rss0,
+    }
 
 
 def main() -> None:
@@ -108,36 +114,56 @@ def main() -> None:
         work = Path(tmp)
         tok = work / "tokenizer.json"
         save_tokenizer(train_tokenizer(iter_corpus(corpus), TrainConfig(vocab_size=8000)), tok)
-        print(f"shards of {', '.join(Path(c).name for c in corpus)}, --copies {args.copies}, --seq-len 128, "
-              f"batch size {args.batch_size}, loader: shuffle, world_size 2 (rank 0 then rank 1)")
+        print(
+            f"shards of {', '.join(Path(c).name for c in corpus)}, --copies {args.copies}, "
+            "--seq-len 128, "
+            f"batch size {args.batch_size}, loader: shuffle, world_size 2 (rank 0 then rank 1)"
+        )
         for fmt in ("arrow", "parquet"):
             d = work / fmt
-            write_shards(corpus, tokenizer=tok, output=d, masking=MaskingConfig(strategy="word"),
-                         packing=PackingConfig(seq_len=128),
-                         shards=ShardConfig(format=fmt, copies=args.copies),
-                         executor=Executor(workers=1, quiet=True))
+            write_shards(
+                corpus,
+                tokenizer=tok,
+                output=d,
+                masking=MaskingConfig(strategy="word"),
+                packing=PackingConfig(seq_len=128),
+                shards=ShardConfig(format=fmt, copies=args.copies),
+                executor=Executor(workers=1, quiet=True),
+            )
             size = sum(p.stat().st_size for p in d.glob("shard-*")) / mib
             read_pyarrow(d, fmt, 128)  # page cache and file metadata warm for both
             # made once, as a training job does; each round is a new epoch (a new order)
-            loaders = [ShardLoader(d, batch_size=args.batch_size, seed=0, rank=r, world_size=2) for r in (0, 1)]
+            loaders = [
+                ShardLoader(d, batch_size=args.batch_size, seed=0, rank=r, world_size=2)
+                for r in (0, 1)
+            ]
             ratios, lines = [], []
             for r in range(args.rounds):
                 n_a, t_a = read_pyarrow(d, fmt, 128)
                 n_l, t_l = read_loader(loaders, epoch=r)
                 assert n_a == n_l, (n_a, n_l)
                 ratios.append((n_l / t_l) / (n_a / t_a))
-                lines.append(f"  round {r + 1}: pyarrow {n_a / t_a:>11,.0f} rows/s   loader {n_l / t_l:>11,.0f} "
-                             f"rows/s   ratio {ratios[-1]:.2f}x")
+                lines.append(
+                    f"  round {r + 1}: pyarrow {n_a / t_a:>11,.0f} rows/s   "
+                    f"loader {n_l / t_l:>11,.0f} "
+                    f"rows/s   ratio {ratios[-1]:.2f}x"
+                )
             print(f"\n{fmt}: {n_a:,} rows in {size:.0f} MiB of files")
             print("\n".join(lines))
             print(f"  median ratio {statistics.median(ratios):.2f}x (target >= 0.8x)")
             m = memory(d, args.batch_size)
-            print(f"  memory: stated shuffle buffer {m['stated'] / mib:.1f} MiB; peak numpy heap while "
-                  f"iterating {m['heap'] / mib:.1f} MiB ({m['heap'] / m['stated']:.2f}x the stated); "
-                  f"pyarrow pool {m['pool'] / mib:.1f} MiB; RSS growth {m['rss'] / mib:.1f} MiB"
-                  + (" (mapped file pages count in RSS)" if fmt == "arrow" else ""))
-            print(f"  within the stated buffer + 2 batches: "
-                  f"{m['heap'] <= m['stated'] + 2 * args.batch_size * (9 * 128 + 10) + (1 << 20)}")
+            print(
+                f"  memory: stated shuffle buffer {m['stated'] / mib:.1f} MiB; "
+                "peak numpy heap while "
+                f"iterating {m['heap'] / mib:.1f} MiB "
+                f"({m['heap'] / m['stated']:.2f}x the stated); "
+                f"pyarrow pool {m['pool'] / mib:.1f} MiB; RSS growth {m['rss'] / mib:.1f} MiB"
+                + (" (mapped file pages count in RSS)" if fmt == "arrow" else "")
+            )
+            print(
+                f"  within the stated buffer + 2 batches: "
+                f"{m['heap'] <= m['stated'] + 2 * args.batch_size * (9 * 128 + 10) + (1 << 20)}"
+            )
 
 
 if __name__ == "__main__":

@@ -30,8 +30,19 @@ from typing import Any, Mapping
 from .._files import read_json
 from ..errors import MaskprepError
 
-__all__ = ["FORMAT_VERSION", "READS_VERSIONS", "METADATA_KEY", "META_DIR", "STATE_DIR", "ShardRecord",
-           "ShardManifest", "metadata_path", "new_metadata_path", "shard_name", "FORMATS"]
+__all__ = [
+    "FORMAT_VERSION",
+    "READS_VERSIONS",
+    "METADATA_KEY",
+    "META_DIR",
+    "STATE_DIR",
+    "ShardRecord",
+    "ShardManifest",
+    "metadata_path",
+    "new_metadata_path",
+    "shard_name",
+    "FORMATS",
+]
 
 FORMAT_VERSION = 2
 READS_VERSIONS = (1, 2)
@@ -97,10 +108,16 @@ class ShardManifest:
     format_version: int = FORMAT_VERSION
 
     def to_json(self) -> dict[str, Any]:
-        return {"format": "maskprep-shards", "format_version": self.format_version,
-                "maskprep_version": self.maskprep_version, "options": dict(self.options),
-                "tokenizer": dict(self.tokenizer), "corpus": dict(self.corpus),
-                "totals": dict(self.totals), "shards": [asdict(s) for s in self.shards]}
+        return {
+            "format": "maskprep-shards",
+            "format_version": self.format_version,
+            "maskprep_version": self.maskprep_version,
+            "options": dict(self.options),
+            "tokenizer": dict(self.tokenizer),
+            "corpus": dict(self.corpus),
+            "totals": dict(self.totals),
+            "shards": [asdict(s) for s in self.shards],
+        }
 
     @property
     def has_copy_column(self) -> bool:
@@ -116,20 +133,30 @@ class ShardManifest:
     def read(cls, directory: str | Path) -> "ShardManifest":
         path = metadata_path(directory, "manifest.json")
         if not path.is_file():
-            raise MaskprepError(f"{directory}: no {META_DIR}/manifest.json; not a finished shards "
-                                "directory (write one with maskprep mask, or finish it with "
-                                "maskprep mask ... --resume)")
+            raise MaskprepError(
+                f"{directory}: no {META_DIR}/manifest.json; not a finished shards "
+                "directory (write one with maskprep mask, or finish it with "
+                "maskprep mask ... --resume)"
+            )
         doc = read_json(path, what="shard manifest")
         if not isinstance(doc, dict) or doc.get("format") != "maskprep-shards":
             raise MaskprepError(f"{path}: not a maskprep shard manifest")
         version = doc.get("format_version")
         if version not in READS_VERSIONS:
-            raise MaskprepError(f"{path}: format_version {version!r}; this maskprep reads versions "
-                                f"{', '.join(map(str, READS_VERSIONS))}")
+            raise MaskprepError(
+                f"{path}: format_version {version!r}; this maskprep reads versions "
+                f"{', '.join(map(str, READS_VERSIONS))}"
+            )
         try:
             shards = tuple(ShardRecord(**s) for s in doc["shards"])
-            return cls(options=doc["options"], tokenizer=doc["tokenizer"], corpus=doc["corpus"],
-                       totals=doc["totals"], shards=shards,
-                       maskprep_version=doc.get("maskprep_version", ""), format_version=version)
+            return cls(
+                options=doc["options"],
+                tokenizer=doc["tokenizer"],
+                corpus=doc["corpus"],
+                totals=doc["totals"],
+                shards=shards,
+                maskprep_version=doc.get("maskprep_version", ""),
+                format_version=version,
+            )
         except (KeyError, TypeError) as exc:
             raise MaskprepError(f"{path}: incomplete manifest ({exc})") from None

@@ -81,22 +81,35 @@ import numpy as np
 
 from ..errors import MaskprepError
 from ..masking.strategies import _absorb_int, absorb
+from .pieces import PieceFiles
 from .read import ShardSet
-from .write import ARROW_BATCH_ROWS, COPY_DTYPE, PARQUET_GROUP_ROWS
+from .write import COPY_DTYPE
 
 __all__ = ["ShardLoader", "DEFAULT_BUFFER_ROWS"]
 
 DEFAULT_BUFFER_ROWS = 16384
 _TAG_PIECES = 0x4C4F_4144_0001  # random streams of the loader, apart from the sampler's tags
 _TAG_ROWS = 0x4C4F_4144_0002
-_OPEN_FILES = 64  # open Arrow/Parquet readers kept per loader
-_STATE_KEYS = ("seed", "shuffle", "batch_size", "buffer_rows", "world_size", "num_workers",
-               "drop_last", "rows", "shards")
+_STATE_KEYS = (
+    "seed",
+    "shuffle",
+    "batch_size",
+    "buffer_rows",
+    "world_size",
+    "num_workers",
+    "drop_last",
+    "rows",
+    "shards",
+)
 
 
 def _whole(name: str, value: Any, low: int, high: int | None = None) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < low \
-            or (high is not None and value > high):
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, (int, np.integer))
+        or value < low
+        or (high is not None and value > high)
+    ):
         span = f"from {low} to {high}" if high is not None else f">= {low}"
         raise MaskprepError(f"ShardLoader: {name} must be a whole number {span}, got {value!r}")
     return int(value)
@@ -110,15 +123,27 @@ def _keys(seed: int, epoch: int, tag: int, positions: np.ndarray) -> np.ndarray:
 class ShardLoader:
     """Shuffled, rank- and worker-split, resumable batches of a shards directory.
 
-    >>> loader = ShardLoader("shards/", batch_size=32, seed=1, rank=0, world_size=2)  # doctest: +SKIP
+    >>> loader = ShardLoader("shards/", batch_size=32, rank=0, world_size=2)  # doctest: +SKIP
     >>> for batch in loader:  # one epoch; the next pass is the next epoch  # doctest: +SKIP
     ...     step(batch["input_ids"], batch["labels"], batch["attention_mask"])
     """
 
-    def __init__(self, shards: str | Path | ShardSet, *, batch_size: int, shuffle: bool = True,
-                 seed: int = 0, epoch: int = 0, rank: int = 0, world_size: int = 1,
-                 num_workers: int = 1, worker: int | None = None, drop_last: bool = False,
-                 buffer_rows: int = DEFAULT_BUFFER_ROWS, mask: bool = True) -> None:
+    def __init__(
+        self,
+        shards: str | Path | ShardSet,
+        *,
+        batch_size: int,
+        shuffle: bool = True,
+        seed: int = 0,
+        epoch: int = 0,
+        rank: int = 0,
+        world_size: int = 1,
+        num_workers: int = 1,
+        worker: int | None = None,
+        drop_last: bool = False,
+        buffer_rows: int = DEFAULT_BUFFER_ROWS,
+        mask: bool = True,
+    ) -> None:
         self.shards = shards if isinstance(shards, ShardSet) else ShardSet(shards)
         self.batch_size = _whole("batch_size", batch_size, 1)
         self.seed = _whole("seed", seed, 0, (1 << 64) - 1)
@@ -132,12 +157,8 @@ class ShardLoader:
         self.batches = 0  # batches of this rank delivered in this epoch
         self.seq_len = int(self.shards.options["seq_len"])
         self.window_rows = self.batch_size * max(1, self.buffer_rows // self.batch_size)
-        self._pieces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
-        self._readers: dict[int, Any] = {}
-        self._group: tuple[tuple[int, int], dict[str, np.ndarray]] | None = None
-        self._pool: list[dict[str, np.ndarray]] = []  # window buffers, reused once no batch views them
-        self._ahead: tuple[tuple[int, int], Any] | None = None  # Parquet: the row group being decoded
-        self._thread: Any = None
+        self._files = PieceFiles(self.shards, self.columns)
+        self._pool: list[dict[str, np.ndarray]] = []  # window arrays, reused when unviewed
 
     # ------------------------------------------------------------ sizes and memory
 
@@ -154,7 +175,7 @@ class ShardLoader:
 
     @property
     def buffer_bytes(self) -> int:
-        """Bytes of the shuffle buffer (one window of rows), the bound stated in the module docs."""
+        """Bytes of the shuffle buffer (one window of rows), as stated in the module docs."""
         return self.window_rows * self.row_bytes
 
     def rank_rows(self) -> int:
@@ -171,7 +192,8 @@ class ShardLoader:
     # ------------------------------------------------------------ position
 
     def set_epoch(self, epoch: int) -> None:
-        """Go to `epoch`, at its start; the current epoch keeps its position (so a restored loader resumes)."""
+        """Go to the start of `epoch`; the current epoch keeps its position (a restored loader
+        resumes)."""
         epoch = _whole("epoch", epoch, 0)
         if epoch != self.epoch:
             self.epoch, self.batches = epoch, 0
@@ -195,14 +217,22 @@ class ShardLoader:
     def restore(self, state: Mapping[str, Any]) -> None:
         """Continue from `state` (from `state()` of a loader with the same options, any rank)."""
         if not isinstance(state, Mapping) or state.get("format") != "maskprep-loader":
-            raise MaskprepError("ShardLoader.restore: not a loader state (use ShardLoader.state())")
+            raise MaskprepError(
+                "ShardLoader.restore: not a loader state (use ShardLoader.state())"
+            )
         mine = self.state()
-        wrong = [f"{k}: {state.get(k)!r} in the state, {mine[k]!r} here" for k in _STATE_KEYS
-                 if state.get(k) != mine[k]]
+        wrong = [
+            f"{k}: {state.get(k)!r} in the state, {mine[k]!r} here"
+            for k in _STATE_KEYS
+            if state.get(k) != mine[k]
+        ]
         if wrong:
-            raise MaskprepError("ShardLoader.restore: the state belongs to another order ("
-                                + "; ".join(wrong) + "); make the loader with the same options "
-                                "over the same shards")
+            raise MaskprepError(
+                "ShardLoader.restore: the state belongs to another order ("
+                + "; ".join(wrong)
+                + "); make the loader with the same options "
+                "over the same shards"
+            )
         self.epoch = _whole("state epoch", state.get("epoch"), 0)
         self.batches = _whole("state batches", state.get("batches"), 0)
 
@@ -213,35 +243,35 @@ class ShardLoader:
         the copy keeps this loader's epoch and position and does not advance them.
         """
         if num_workers is not None and num_workers != self.num_workers:
-            raise MaskprepError(f"ShardLoader.for_worker: {num_workers} workers here, but the loader "
-                                f"was made with num_workers={self.num_workers}; pass the same number")
-        other = ShardLoader(self.shards, batch_size=self.batch_size, shuffle=self.shuffle,
-                            seed=self.seed, epoch=self.epoch, rank=self.rank,
-                            world_size=self.world_size, num_workers=self.num_workers,
-                            worker=worker, drop_last=self.drop_last, buffer_rows=self.buffer_rows,
-                            mask=self.mask)
+            raise MaskprepError(
+                f"ShardLoader.for_worker: {num_workers} workers here, but the loader "
+                f"was made with num_workers={self.num_workers}; pass the same number"
+            )
+        other = ShardLoader(
+            self.shards,
+            batch_size=self.batch_size,
+            shuffle=self.shuffle,
+            seed=self.seed,
+            epoch=self.epoch,
+            rank=self.rank,
+            world_size=self.world_size,
+            num_workers=self.num_workers,
+            worker=worker,
+            drop_last=self.drop_last,
+            buffer_rows=self.buffer_rows,
+            mask=self.mask,
+        )
         other.batches = self.batches
         return other
 
-    def __getstate__(self) -> dict[str, Any]:  # open files stay behind when pickled to a worker
-        return {**self.__dict__, "_readers": {}, "_group": None, "_pool": [], "_ahead": None, "_thread": None}
+    def __getstate__(self) -> dict[str, Any]:  # pickled to a worker: no window arrays
+        return {**self.__dict__, "_pool": []}
 
     # ------------------------------------------------------------ the plan of an epoch
 
     def pieces(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(shard index, piece index in the file, rows) of every piece, in manifest order.
-
-        The writer cuts every file into pieces of 1,024 rows (Arrow) or 8,192 (Parquet), the
-        last one shorter, so the pieces follow from the manifest; each is checked when read.
-        """
-        if self._pieces is None:
-            size = ARROW_BATCH_ROWS if self.shards.options["format"] == "arrow" else PARQUET_GROUP_ROWS
-            rows = np.array([s.rows for s in self.shards.manifest.shards], dtype=np.int64)
-            count = -(-rows // size)
-            files = np.repeat(np.arange(len(rows)), count)
-            parts = np.arange(len(files)) - np.repeat(np.cumsum(count) - count, count)
-            self._pieces = (files, parts, np.minimum(size, rows[files] - parts * size))
-        return self._pieces
+        """(shard index, piece index in the file, rows) of every piece, in manifest order."""
+        return self._files.pieces()
 
     def _windows(self, epoch: int) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]]:
         """Piece order and stream starts, and each worker's windows [start, end) of this rank."""
@@ -255,7 +285,9 @@ class ShardLoader:
         end = first + (len(self) * self.batch_size if self.drop_last else (r + 1) * n // w - first)
         nb, nk, bs = len(self), self.num_workers, self.batch_size
         split = []
-        for k in range(nk):  # worker k: batches [k nb // nk, (k+1) nb // nk); the last has the most
+        for k in range(
+            nk
+        ):  # worker k: batches [k nb // nk, (k+1) nb // nk); the last has the most
             lo, hi = first + k * nb // nk * bs, min(end, first + (k + 1) * nb // nk * bs)
             edges = np.append(np.arange(lo, hi, self.window_rows), hi)
             split.append(np.stack([edges[:-1], edges[1:]], axis=1))
@@ -264,83 +296,15 @@ class ShardLoader:
     @staticmethod
     def _turns(counts: np.ndarray) -> np.ndarray:
         """Worker of each rank-level batch: workers in turn, those run out passed over."""
-        rounds = np.concatenate([np.arange(c) for c in counts]) if len(counts) else np.zeros(0, int)
+        rounds = (
+            np.concatenate([np.arange(c) for c in counts]) if len(counts) else np.zeros(0, int)
+        )
         who = np.repeat(np.arange(len(counts)), counts)
         return who[np.lexsort((who, rounds))]
 
-    # ------------------------------------------------------------ reading
-
-    def _reader(self, i: int) -> Any:
-        import pyarrow as pa
-
-        if i not in self._readers:
-            if len(self._readers) >= _OPEN_FILES:
-                self._readers.pop(next(iter(self._readers)))
-            path = self.shards.files[i]
-            if not path.is_file():
-                raise MaskprepError(f"{path}: shard listed in the manifest is missing")
-            try:
-                if self.shards.options["format"] == "arrow":
-                    self._readers[i] = pa.ipc.open_file(pa.memory_map(str(path)))
-                else:
-                    import pyarrow.parquet as pq
-
-                    self._readers[i] = pq.ParquetFile(str(path))
-            except (pa.ArrowException, OSError) as exc:
-                raise MaskprepError(f"{path}: unreadable shard ({exc}); run maskprep verify") from None
-        return self._readers[i]
-
-    def _read(self, i: int, part: int) -> Any:
-        """One record batch (Arrow, a view of the mapped file) or decoded row group (Parquet)."""
-        reader = self._reader(i)
-        if self.shards.options["format"] == "arrow":
-            return reader.get_batch(part) if part < reader.num_record_batches else None
-        return reader.read_row_group(part) if part < reader.num_row_groups else None
-
-    def _piece(self, i: int, part: int, ahead: tuple[int, int] | None = None) -> dict[str, np.ndarray]:
-        """The columns of one piece as numpy; with Parquet, the row group `ahead` is decoded
-        meanwhile in a thread (pyarrow releases the GIL), as pyarrow's own readers read ahead."""
-        import pyarrow as pa
-
-        if self._group is not None and self._group[0] == (i, part):
-            return self._group[1]
-        self._group = None  # free the previous row group before decoding the next
-        pending, self._ahead = self._ahead, None
-        data = pending[1].result() if pending is not None else None  # never two reads at once
-        if pending is None or pending[0] != (i, part):
-            data = self._read(i, part)
-        if ahead is not None and self.shards.options["format"] != "arrow":
-            if self._thread is None:
-                from concurrent.futures import ThreadPoolExecutor
-
-                self._thread = ThreadPoolExecutor(max_workers=1, thread_name_prefix="maskprep-loader")
-            self._reader(ahead[0])  # opened here, so the cache of open files is only touched here
-            self._ahead = (ahead, self._thread.submit(self._read, *ahead))
-        files, _, rows = self.pieces()
-        want = int(rows[np.searchsorted(files, i) + part])
-        if data is None or data.num_rows != want:
-            raise MaskprepError(f"{self.shards.files[i]}: piece {part} holds "
-                                f"{'no rows' if data is None else f'{data.num_rows} rows'}, not the {want} "
-                                "the manifest implies; run maskprep verify")
-        out: dict[str, np.ndarray] = {}
-        for name in self.columns:
-            if name not in data.schema.names:  # format version 1: no copy column
-                fill = self.shards.manifest.shards[i].copy
-                out[name] = np.full(data.num_rows, fill, dtype=COPY_DTYPE)
-                continue
-            col = data.column(name)
-            if isinstance(col, pa.ChunkedArray):
-                col = col.combine_chunks()
-            if pa.types.is_list(col.type):
-                out[name] = col.flatten().to_numpy().reshape(len(col), self.seq_len)
-            else:
-                out[name] = col.to_numpy()
-        if self.shards.options["format"] != "arrow":
-            self._group = ((i, part), out)
-        return out
-
-    def _window(self, epoch: int, order: np.ndarray, starts: np.ndarray, lo: int, hi: int,
-                until: int) -> dict[str, np.ndarray]:
+    def _window(
+        self, epoch: int, order: np.ndarray, starts: np.ndarray, lo: int, hi: int, until: int
+    ) -> dict[str, np.ndarray]:
         """Rows [lo, hi) of the epoch's stream, permuted within the window when shuffling
         (`until`: the end of this worker's rows, so reading ahead stops there)."""
         files, parts, _ = self.pieces()
@@ -356,12 +320,15 @@ class ShardLoader:
             a, b = max(lo, int(starts[j])), min(hi, int(starts[j + 1]))
             if b > a:
                 nxt = j + 1 if j + 1 < len(order) and starts[j + 1] < until else None
-                piece = self._piece(int(files[order[j]]), int(parts[order[j]]),
-                                    None if nxt is None else (int(files[order[nxt]]), int(parts[order[nxt]])))
+                piece = self._files.piece(
+                    int(files[order[j]]),
+                    int(parts[order[j]]),
+                    None if nxt is None else (int(files[order[nxt]]), int(parts[order[nxt]])),
+                )
                 if out is None:
                     out = {k: v[:n] for k, v in self._buffers(piece).items()}
                 src = slice(a - int(starts[j]), b - int(starts[j]))
-                dst = inv[a - lo:b - lo] if inv is not None else slice(a - lo, b - lo)
+                dst = inv[a - lo : b - lo] if inv is not None else slice(a - lo, b - lo)
                 for k, v in piece.items():
                     out[k][dst] = v[src]
             j += 1
@@ -375,13 +342,16 @@ class ShardLoader:
             # references: the pool's dict and getrefcount's argument; a live batch view adds one
             if all(sys.getrefcount(buf[k]) <= 2 for k in buf):
                 return buf
-        buf = {k: np.empty((self.window_rows,) + v.shape[1:], dtype=v.dtype) for k, v in piece.items()}
+        buf = {
+            k: np.empty((self.window_rows,) + v.shape[1:], dtype=v.dtype) for k, v in piece.items()
+        }
         if len(self._pool) < self.num_workers:  # one set per worker stream in this process
             self._pool.append(buf)
         return buf
 
-    def _worker_batches(self, epoch: int, order: np.ndarray, starts: np.ndarray,
-                        windows: np.ndarray, skip: int) -> Iterator[dict[str, np.ndarray]]:
+    def _worker_batches(
+        self, epoch: int, order: np.ndarray, starts: np.ndarray, windows: np.ndarray, skip: int
+    ) -> Iterator[dict[str, np.ndarray]]:
         """The batches of one worker's windows, after skipping `skip` of them."""
         bs = self.batch_size
         per = -(-(windows[:, 1] - windows[:, 0]) // bs)
@@ -393,8 +363,10 @@ class ShardLoader:
             data = self._window(epoch, order, starts, lo, hi, int(windows[-1, 1]))
             for k in range(max(0, skip - int(first[w])), int(per[w])):
                 last = k == per[w] - 1
-                batch = {name: (v[k * bs:(k + 1) * bs].copy() if last else v[k * bs:(k + 1) * bs])
-                         for name, v in data.items()}
+                batch = {
+                    name: (v[k * bs : (k + 1) * bs].copy() if last else v[k * bs : (k + 1) * bs])
+                    for name, v in data.items()
+                }
                 yield self._finish(batch, epoch)
             del data
 
@@ -402,27 +374,39 @@ class ShardLoader:
         if not (self.shards.dynamic and self.mask):
             return batch
         ids, labels = self.shards.mask(batch, epoch=epoch)
-        return {"input_ids": ids, "labels": labels, "attention_mask": batch["attention_mask"],
-                "sequence_id": batch["sequence_id"], "copy": batch["copy"]}
+        return {
+            "input_ids": ids,
+            "labels": labels,
+            "attention_mask": batch["attention_mask"],
+            "sequence_id": batch["sequence_id"],
+            "copy": batch["copy"],
+        }
 
     def __iter__(self) -> Iterator[dict[str, np.ndarray]]:
         """The rest of the current epoch; in one process, finishing it moves to the next epoch."""
         epoch = self.epoch
         order, starts, split = self._windows(epoch)
         bs = self.batch_size
-        counts = np.array([int((-(-(w[:, 1] - w[:, 0]) // bs)).sum()) for w in split], dtype=np.int64)
+        counts = np.array(
+            [int((-(-(w[:, 1] - w[:, 0]) // bs)).sum()) for w in split], dtype=np.int64
+        )
         turns = self._turns(counts)
         done = min(self.batches, len(turns))
         skips = np.bincount(turns[:done], minlength=self.num_workers)
         if self.worker is not None:  # a copy inside a data-loader worker: its own share only
             # A restarted DataLoader asks worker 0 first; it takes the part of the worker whose
-            # turn is next (and the others follow in the same cycle), so the order goes on as before.
-            role = (int(turns[done]) + self.worker) % self.num_workers if done < len(turns) \
+            # turn is next (the others follow in the same cycle): the order goes on as before.
+            role = (
+                (int(turns[done]) + self.worker) % self.num_workers
+                if done < len(turns)
                 else self.worker
+            )
             yield from self._worker_batches(epoch, order, starts, split[role], int(skips[role]))
             return
-        streams = [self._worker_batches(epoch, order, starts, split[k], int(skips[k]))
-                   for k in range(self.num_workers)]
+        streams = [
+            self._worker_batches(epoch, order, starts, split[k], int(skips[k]))
+            for k in range(self.num_workers)
+        ]
         if self.num_workers == 1:
             for batch in streams[0]:
                 self.batches += 1
