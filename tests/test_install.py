@@ -92,7 +92,7 @@ def test_demo_runs_from_another_directory(installed: Path, tmp_path: Path) -> No
     assert run.returncode == 0, run.stdout + run.stderr
     out = elsewhere / "OUT"
     assert (out / "compare" / "compare.html").is_file()
-    assert (out / "mask" / "pmi" / "manifest.json").is_file()
+    assert (out / "mask" / "pmi" / "_maskprep" / "manifest.json").is_file()
     assert str(Path("OUT") / "compare" / "compare.html") in run.stdout
     assert sorted(p.name for p in elsewhere.iterdir()) == ["OUT"]
     assert _files(installed) == before, "the demo wrote into the installed package"

@@ -130,4 +130,4 @@ def test_two_mask_runs_on_one_directory(tmp_path, shakespeare_corpus, small_word
     assert "Traceback" not in second.stderr
     verify = CliRunner().invoke(cli, ["verify", str(out)])
     assert verify.exit_code == 0, verify.output
-    assert json.loads((out / "manifest.json").read_text())["options"]["strategy"] == "word"
+    assert json.loads((out / "_maskprep" / "manifest.json").read_text())["options"]["strategy"] == "word"

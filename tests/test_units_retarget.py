@@ -116,7 +116,7 @@ def test_mask_with_units_of_a_tokenizer_with_the_same_words(setup):
     )
     assert r.exit_code == 0, r.output
     assert "splits text into the same words; token ids re-derived for this one" in r.output
-    manifest = json.loads((d / "m-carried" / "manifest.json").read_text())
+    manifest = json.loads((d / "m-carried" / "_maskprep" / "manifest.json").read_text())
     built = read_units(setup["units"])
     assert manifest["options"]["units_tokenizer_hash"] == built.tokenizer_hash
     assert run("verify", str(d / "m-carried")).exit_code == 0

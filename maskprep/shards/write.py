@@ -55,7 +55,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .._files import atomic_path, atomic_write_text, file_sha256, read_json
+from .._files import atomic_path, atomic_write_text, file_sha256
 from .._resume import RunDir, Stage, claim, write_record
 from .._version import __version__
 from ..errors import MaskprepError
