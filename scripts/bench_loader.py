@@ -33,15 +33,19 @@ import psutil
 import pyarrow as pa
 import pyarrow.dataset as ds
 
-from maskprep import ShardLoader
-from maskprep.corpus.reader import iter_corpus
+from maskprep import (
+    MaskingConfig,
+    PackingConfig,
+    ShardConfig,
+    ShardLoader,
+    TrainConfig,
+    iter_corpus,
+    train_tokenizer,
+    write_shards,
+)
 from maskprep.execute import Executor
-from maskprep.masking.sampler import MaskingConfig
-from maskprep.packing import PackingConfig
-from maskprep.pipeline.runner import sample_corpus_dir
-from maskprep.shards.write import ShardConfig, write_shards
-from maskprep.tokenizer.encoding import save_tokenizer
-from maskprep.tokenizer.train import TrainConfig, train_tokenizer
+from maskprep.pipeline import sample_corpus_dir
+from maskprep.tokenizer import save_tokenizer
 
 
 def read_pyarrow(directory: Path, fmt: str, seq_len: int) -> tuple[int, float]:
@@ -104,16 +108,23 @@ def main() -> None:
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--batch-size", type=int, default=64)
     ap.add_argument("--copies", type=int, default=8)
-    ap.add_argument("--quick", action="store_true", help="--copies 2 --rounds 2")
+    ap.add_argument(
+        "--vocab-size", type=int, default=8000, help="of the WordPiece tokenizer trained"
+    )
+    ap.add_argument(
+        "--quick", action="store_true", help="--copies 1 --rounds 2 (figures are noisier)"
+    )
     args = ap.parse_args()
     if args.quick:
-        args.copies, args.rounds = 2, 2
+        args.copies, args.rounds = 1, 2
     corpus = [str(p) for p in sorted(sample_corpus_dir().glob("*.gz"))]
     mib = 1 << 20
     with tempfile.TemporaryDirectory(prefix="bench-loader-") as tmp:
         work = Path(tmp)
         tok = work / "tokenizer.json"
-        save_tokenizer(train_tokenizer(iter_corpus(corpus), TrainConfig(vocab_size=8000)), tok)
+        save_tokenizer(
+            train_tokenizer(iter_corpus(corpus), TrainConfig(vocab_size=args.vocab_size)), tok
+        )
         print(
             f"shards of {', '.join(Path(c).name for c in corpus)}, --copies {args.copies}, "
             "--seq-len 128, "

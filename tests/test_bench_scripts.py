@@ -68,7 +68,7 @@ def _api_faults(path: Path) -> list[str]:
 def test_bench_scripts_are_found() -> None:
     names = {p.name for p in BENCH}
     assert {"bench.py", "bench_audit.py", "bench_counting.py", "bench_mask.py", "bench_masking.py",
-            "bench_workers.py", "units_frequent_words.py", "tokenizer_quality.py", "_benchlib.py"} <= names
+            "bench_workers.py", "bench_loader.py", "units_frequent_words.py", "tokenizer_quality.py", "_benchlib.py"} <= names
 
 
 @pytest.mark.parametrize("path", BENCH, ids=lambda p: p.name)
@@ -114,6 +114,7 @@ QUICK = {
     "bench_audit.py": (["--lines", "2000"], "ratio audit/bare", False),
     "bench_masking.py": (["--tokens", "20000", "--units", "2000"], "pmi", False),
     "bench_mask.py": (["--vocab-size", "2000", "{tiny}"], "mask --strategy span", False),
+    "bench_loader.py": (["--vocab-size", "2000"], "median ratio", False),
     "units_frequent_words.py": (["--lines", "1500", "--vocab-size", "2000"], "pmi       default", False),
     "tokenizer_quality.py": (["--lines", "1500"], "unigram-2000", False),
     "bench_counting.py": (["--lines", "2000", "--speed-mb", "1", "--sizes", "1,2", "--vocab-size", "4000"],
