@@ -8,16 +8,16 @@ No computation lives here.
 
 from __future__ import annotations
 
-import functools
 import sys
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import click
 
 from .errors import MaskprepError
 
-CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
+from ._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, make_corpus_options, masking_options, \
+    user_errors
 
 
 @click.group(context_settings=CONTEXT)
@@ -39,78 +39,6 @@ def cli(ctx: click.Context, workers: int | None, dask_address: str | None, quiet
     ctx.obj["workers"] = workers
     ctx.obj["dask"] = dask_address
     ctx.obj["quiet"] = quiet
-
-
-def executor_from(ctx: click.Context) -> Any:
-    """The `Executor` for the global --workers / --dask / --quiet options."""
-    from .execute import Executor, default_workers
-
-    obj = ctx.find_root().obj or {}
-    workers = obj.get("workers")
-    if workers is not None and workers < 1:
-        raise MaskprepError(f"--workers: expected a positive whole number, got {workers}")
-    return Executor(workers=workers or default_workers(), dask=obj.get("dask"), quiet=bool(obj.get("quiet")))
-
-
-def is_quiet(ctx: click.Context) -> bool:
-    return bool((ctx.find_root().obj or {}).get("quiet"))
-
-
-def user_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
-    """Turn `MaskprepError` into one clean click error (exit 1)."""
-
-    @functools.wraps(fn)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        try:
-            return fn(*args, **kwargs)
-        except MaskprepError as exc:
-            raise click.ClickException(str(exc)) from None
-        except KeyboardInterrupt:
-            click.echo("interrupted; partial outputs were not renamed into place (use --resume where offered)",
-                       err=True)
-            sys.exit(130)
-
-    return wrapper
-
-
-def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:
-    """The options every command that reads a corpus shares."""
-    fn = click.option("--doc-sep", type=click.Choice(["line", "blank"]), default="line", show_default=True,
-                      help="Text files: one document per line, or documents separated by blank lines.")(fn)
-    fn = click.option("--text-field", default="text", show_default=True,
-                      help="JSONL: the field holding the text.")(fn)
-    fn = click.option("--text-column", default="text", show_default=True,
-                      help="Parquet/Arrow: the column holding the text.")(fn)
-    fn = click.option("--strict", is_flag=True,
-                      help="Invalid UTF-8 is an error (naming file, line and byte) instead of being replaced.")(fn)
-    return fn
-
-
-def masking_options(fn: Callable[..., Any]) -> Callable[..., Any]:
-    """The masking and packing options shared by mask and compare."""
-    for opt in reversed([
-        click.option("--rate", type=float, default=0.15, show_default=True,
-                     help="Share of maskable (non-special) tokens made targets, per sequence."),
-        click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
-                     help="How targets are shown: mask token, random token, unchanged."),
-        click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
-                     help="Draw the mix per target token or once per masked unit."),
-        click.option("--span-p", type=float, default=0.2, show_default=True,
-                     help="span: geometric parameter of span lengths."),
-        click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words."),
-        click.option("--seq-len", type=int, default=128, show_default=True,
-                     help="Tokens per sequence, special tokens included."),
-        click.option("--no-pack", is_flag=True,
-                     help="One document per sequence (split when too long) instead of packing."),
-    ]):
-        fn = opt(fn)
-    return fn
-
-
-def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict: bool) -> Any:
-    from .corpus.reader import CorpusOptions
-
-    return CorpusOptions(doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict)
 
 
 # ---------------------------------------------------------------- train-tokenizer / audit (lead)
@@ -182,24 +110,56 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
     from .audit.measure import AuditConfig, run_audit
     from .audit.page import format_audit_table
 
+    from .encoded.format import is_encoded_dir
+
     sizes = parse_vocab_sizes(vocab_sizes)
-    if not tokenizers and not sizes:
-        raise MaskprepError("audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,...")
+    if not tokenizers and not sizes and not any(is_encoded_dir(c) for c in corpus):
+        raise MaskprepError("audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,... (or an encoded "
+                            "directory as CORPUS: its tokenizer is audited)")
     if top_words < 1 or top_words > 10000:
         raise MaskprepError(f"--top-words: expected 1 to 10000, got {top_words}")
     result = run_audit(list(corpus), AuditConfig(tokenizers=tuple(tokenizers), vocab_sizes=tuple(sizes),
                                                 model=model, lowercase=lowercase, top_words=top_words),
-                       output=Path(output), corpus_options=make_corpus_options(**copts), quiet=is_quiet(ctx))
+                       output=Path(output), corpus_options=make_corpus_options(**copts), quiet=is_quiet(ctx),
+                       executor=executor_from(ctx))
     click.echo(format_audit_table(result))
     click.echo(f"\nwrote {Path(output) / 'audit.json'} and {Path(output) / 'audit.html'}")
+
+
+# ---------------------------------------------------------------- encode
+
+@cli.command("encode", context_settings=CONTEXT)
+@click.argument("corpus", nargs=-1, required=True)
+@click.option("-t", "--tokenizer", required=True, type=click.Path(), help="The tokenizer.json to encode with.")
+@click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="ENCODED_DIR to write.")
+@click.option("--overwrite", is_flag=True, help="Replace an existing encoded directory.")
+@click.option("--resume", is_flag=True, help="Finish an interrupted encode with the same options and inputs.")
+@corpus_options
+@click.pass_context
+@user_errors
+def encode_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output: str, overwrite: bool,
+               resume: bool, **copts: Any) -> None:
+    """Tokenize CORPUS once into ENCODED_DIR, for audit, count, mask and compare to read.
+
+    Writes docs-*.arrow and words-*.arrow (token ids, words, documents),
+    encoded.json and a copy of the tokenizer. Later stages given ENCODED_DIR as
+    CORPUS write byte-identical outputs to those from the raw corpus.
+    """
+    from .encoded.write import encode_corpus, format_encode_summary
+
+    manifest = encode_corpus(list(corpus), tokenizer=tokenizer, output=output,
+                             corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
+                             overwrite=overwrite, resume=resume)
+    click.echo(format_encode_summary(manifest))
 
 
 # ---------------------------------------------------------------- count (ngrams engineer)
 
 @cli.command("count", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option("-t", "--tokenizer", required=True, type=click.Path(),
-              help="The tokenizer.json whose pre-tokenization defines the words.")
+@click.option("-t", "--tokenizer", default=None, type=click.Path(),
+              help="The tokenizer.json whose pre-tokenization defines the words (optional when CORPUS is an "
+                   "encoded directory: it must then be the one it was encoded with).")
 @click.option("-o", "--output", required=True, type=click.Path(), help="COUNTS_DIR to write.")
 @click.option("--max-n", type=int, default=5, show_default=True, help="Longest n-gram to count (1 to 8).")
 @click.option("--min-count", type=int, default=10, show_default=True,
@@ -213,7 +173,7 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
 @corpus_options
 @click.pass_context
 @user_errors
-def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output: str, max_n: int, min_count: int,
+def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, output: str, max_n: int, min_count: int,
               memory: str, overwrite: bool, resume: bool, **copts: Any) -> None:
     """Count word n-grams of CORPUS exactly, in bounded memory.
 
@@ -307,7 +267,8 @@ def _pct(x: float | None) -> str:
 
 @cli.command("mask", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option("-t", "--tokenizer", required=True, type=click.Path(), help="The tokenizer.json to encode with.")
+@click.option("-t", "--tokenizer", default=None, type=click.Path(),
+              help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).")
 @click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="Shards directory to write.")
 @click.option("--strategy", type=click.Choice(["token", "word", "span", "pmi"]), default="token", show_default=True,
               help="How tokens are grouped into the units the sampler masks.")
@@ -327,7 +288,7 @@ def _pct(x: float | None) -> str:
 @corpus_options
 @click.pass_context
 @user_errors
-def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, output: str, strategy: str,
+def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, output: str, strategy: str,
              units_path: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
              seq_len: int, no_pack: bool, copies: int, seed: int, fmt: str, shard_rows: int, dynamic: bool,
              overwrite: bool, resume: bool, **copts: Any) -> None:
@@ -407,17 +368,29 @@ def show_cmd(directory: str, count: int) -> None:
 @click.argument("directory", type=click.Path())
 @user_errors
 def verify_cmd(directory: str) -> None:
-    """Check shards against manifest.json (sha256, counts) and the row invariants; exit 1 on any fault."""
+    """Check shards against manifest.json (sha256, counts) and the row invariants; exit 1 on any fault.
+
+    An encoded directory (from maskprep encode) is checked against its encoded.json instead.
+    """
+    from .encoded.check import verify_encoded
+    from .encoded.format import is_encoded_dir
     from .shards.check import verify_shards
 
-    report = verify_shards(directory)
-    for note in report.notes:
+    if is_encoded_dir(directory):
+        enc = verify_encoded(directory)
+        faults, notes = enc.faults, []
+        ok = f"{enc.tasks} tasks, {enc.documents:,} documents, {enc.tokens:,} tokens"
+    else:
+        report = verify_shards(directory)
+        faults, notes = report.faults, report.notes
+        ok = f"{report.shards} shards, {report.rows:,} rows"
+    for note in notes:
         click.echo(f"note: {note}", err=True)
-    if not report.ok:
-        for fault in report.faults:
-            click.echo(fault, err=True)
-        raise MaskprepError(f"{directory}: {len(report.faults)} fault(s); first: {report.faults[0]}")
-    click.echo(f"ok: {report.shards} shards, {report.rows:,} rows in {directory} match manifest.json")
+    for fault in faults:
+        click.echo(fault, err=True)
+    if faults:
+        raise MaskprepError(f"{directory}: {len(faults)} fault(s); first: {faults[0]}")
+    click.echo(f"ok: {ok} in {directory} match {'encoded' if is_encoded_dir(directory) else 'manifest'}.json")
 
 
 # ---------------------------------------------------------------- compare / run / demo (lead)
@@ -433,7 +406,8 @@ def _parse_sample(text: str) -> int | None:
 
 @cli.command("compare", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option("-t", "--tokenizer", required=True, type=click.Path(), help="The tokenizer.json to encode with.")
+@click.option("-t", "--tokenizer", default=None, type=click.Path(),
+              help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).")
 @click.option("--units", "units_path", type=click.Path(), default=None,
               help="Unit vocabulary (units.parquet from maskprep units): enables pmi and within-unit leakage.")
 @click.option("--strategies", default=None, metavar="S,S,...",
@@ -448,7 +422,7 @@ def _parse_sample(text: str) -> int | None:
 @corpus_options
 @click.pass_context
 @user_errors
-def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, units_path: str | None,
+def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, units_path: str | None,
                 strategies: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
                 seq_len: int, no_pack: bool, sample: str, seed: int, examples: int, output: str,
                 **copts: Any) -> None:

@@ -75,7 +75,8 @@ def test_audit_cli_table_and_outputs(tmp_path: Path, shakespeare_small: Path, sm
     (["--vocab-sizes", "2000,x"], "Error: --vocab-sizes: '2000,x' is not a comma-separated list of positive integers (e.g. 2000,8000,30000)"),
     (["--vocab-sizes", "0"], "Error: --vocab-sizes: '0' is not a comma-separated list of positive integers "
                              "(e.g. 2000,8000,30000)"),
-    ([], "Error: audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,..."),
+    ([], "Error: audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,... (or an encoded directory "
+         "as CORPUS: its tokenizer is audited)"),
     (["-t", "missing.json"], "Error: missing.json: tokenizer file not found"),
 ])
 def test_audit_option_errors(tmp_path: Path, args: list[str], message: str) -> None:

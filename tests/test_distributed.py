@@ -109,6 +109,33 @@ def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(tmp_pat
         assert differ == [], f"{name}: {differ}"
 
 
+def test_encode_and_the_stages_on_an_encoded_directory_are_byte_identical_on_dask(tmp_path, cluster_address,
+                                                                                  three_files, small_wordpiece):
+    # Reference: the same stages on the raw corpus with one local process.
+    tok = str(small_wordpiece)
+    units = tmp_path / "units.parquet"
+    outputs = {}
+    for name, where in (("raw", ["--workers", "1"]), ("dask", ["--dask", cluster_address])):
+        base = tmp_path / name
+        if name == "raw":
+            corpus, t = three_files, ["-t", tok]
+        else:
+            invoke(*where, "encode", *three_files, "-t", tok, "-o", str(tmp_path / "encoded"))
+            corpus, t = [str(tmp_path / "encoded")], []
+        invoke(*where, "count", *corpus, *t, "-o", str(base / "counts"), "--max-n", "3", "--min-count", "2")
+        if name == "raw":
+            invoke("units", str(base / "counts"), "-o", str(units), "--top", "400", "--show", "0")
+        invoke(*where, "mask", *corpus, *t, "-o", str(base / "shards"), "--strategy", "pmi", "--units", str(units),
+               "--copies", "2", "--shard-rows", "300")
+        invoke(*where, "compare", *corpus, *t, "-o", str(base / "compare"), "--units", str(units), "--sample", "900")
+        outputs[name] = all_files(base)
+    assert sorted(outputs["raw"]) == sorted(outputs["dask"])
+    assert [f for f in outputs["raw"] if outputs["raw"][f] != outputs["dask"][f]] == []
+    local = tmp_path / "encoded-local"
+    invoke("--workers", "2", "encode", *three_files, "-t", tok, "-o", str(local))
+    assert all_files(local) == all_files(tmp_path / "encoded")
+
+
 def test_relative_paths_resolve_against_the_driver_not_the_worker(tmp_path, cluster_address, tiny_files,
                                                                   small_wordpiece, monkeypatch):
     # the workers' working directory is this process's; the driver works from another one

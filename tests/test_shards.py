@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+import maskprep.shards.taskloop as loop_mod
 import maskprep.shards.write as shards_mod
 from maskprep.corpus.reader import iter_batches, plan_tasks, resolve_inputs
 from maskprep.errors import MaskprepError
@@ -174,17 +175,17 @@ def test_parquet_is_zstd_and_deterministic(tmp_path, info, three_files):
 
 def test_resume_after_a_failed_task_equals_an_uninterrupted_run(tmp_path, info, three_files, monkeypatch):
     run(tmp_path / "ref", three_files, info, strategy="word", copies=2)
-    real = shards_mod.mask_batch
+    real = loop_mod.mask_batch  # the task loop that mask and compare share
 
     def failing(*args, **kwargs):
         if int(kwargs["sequence_ids"][0]) >> 32 == 1:
             raise MaskprepError("simulated interruption")
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(shards_mod, "mask_batch", failing)
+    monkeypatch.setattr(loop_mod, "mask_batch", failing)
     with pytest.raises(MaskprepError, match="simulated interruption"):
         run(tmp_path / "out", three_files, info, strategy="word", copies=2)
-    monkeypatch.setattr(shards_mod, "mask_batch", real)
+    monkeypatch.setattr(loop_mod, "mask_batch", real)
     out = tmp_path / "out"
     names = sorted(p.name for p in out.iterdir())
     assert not (out / "_maskprep" / "manifest.json").exists()  # nothing looks finished

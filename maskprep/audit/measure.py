@@ -8,7 +8,9 @@ of continuation tokens (tokens that are not the first of their word), and the
 same by frequency band of word types (top 1k, 1k-10k, 10k-100k, rarer). It
 lists the most frequent words split into the most pieces (see `words`).
 
-Statistics are accumulated per distinct word form (word key and a hash of its
+Each corpus task (or task of an encoded directory) is measured in its own
+worker task; the driver adds up the tasks' tables. Statistics are
+accumulated per distinct word form (word key and a hash of its
 token ids; numpy reductions per batch, merged by key), so memory grows with the
 number of distinct words, not with the corpus. Whitespace-only pieces of the
 pre-tokenization are not words and are left out of every figure.
@@ -24,13 +26,14 @@ from typing import Any
 
 import numpy as np
 
-from ..corpus.reader import CorpusOptions, ReadStats, iter_batches, iter_corpus, plan_tasks, resolve_inputs
+from ..corpus.reader import CorpusOptions, ReadStats, iter_corpus, resolve_inputs
+from ..encoded.source import SourceTask, TaskReader, open_source, read_stats_of
 from ..errors import MaskprepError
 from .._files import atomic_write_json
 from ..progress import Progress
 from ..report.html import write_page
 from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType,
-                                  encode_stream, load_tokenizer, save_tokenizer, unique_rows)
+                                  save_tokenizer, tokenizer_from_json, unique_rows)
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
 from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
@@ -91,6 +94,9 @@ def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase
     >>> train_on_corpus(["sample_corpus"], model="wordpiece", vocab_size=8000, lowercase=True)  # doctest: +SKIP
     """
     config = TrainConfig(model=model, vocab_size=vocab_size, lowercase=lowercase)
+    if open_source(corpus, corpus_options).encoded:
+        raise MaskprepError(f"{', '.join(corpus)}: an encoded directory holds token ids, not text; train "
+                            "tokenizers on the raw corpus files")
     files = resolve_inputs(corpus)
     stats = ReadStats()
     info: TokenizerInfo | None = None
@@ -113,64 +119,96 @@ def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase
     return info
 
 
-def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: CorpusOptions = CorpusOptions(),
-                    top_words: int = 25, frequent_types: int = 1000, quiet: bool = False) -> dict[str, Any]:
-    """Fragmentation figures of one tokenizer on a corpus (one streaming pass).
+@dataclass(frozen=True)
+class _AuditJob:
+    tokenizer_json: str
+    tokenizer_name: str
+    options: CorpusOptions
 
-    >>> audit_tokenizer(load_tokenizer("tok.json"), ["sample_corpus"])["tokens_per_word"]  # doctest: +SKIP
-    1.21
-    """
-    files = resolve_inputs(corpus)
-    tasks = plan_tasks(files, corpus_options)
-    stats = ReadStats()
+
+def _task_words(info: TokenizerInfo, reader: TaskReader) -> list[WordType]:
+    """The word forms (kind WORD) of one task: from its word table, or from its fresh tokenizer cache."""
+    table = reader.word_table()
+    if table is None:  # raw text: this task's own tokenizer cache holds exactly its word types
+        return [wt for wt in info.word_types() if wt.kind == WORD]
+    sel = np.flatnonzero(table.fields["word_kinds"] == WORD)
+    keys, offs = table.fields["word_keys"], table.offsets
+    return [WordType(int(keys[i]), WORD, text, tuple(table.ids[offs[i]:offs[i + 1]].tolist()))
+            for i, text in zip(sel.tolist(), table.texts.take(sel).to_pylist())]  # one step per word type
+
+
+def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
+    """Task function: per-word-form figures of one task (raw text or an encoded directory's)."""
+    info = tokenizer_from_json(job.tokenizer_json, name=job.tokenizer_name)  # a fresh word-type cache
+    reader = TaskReader(task, info, job.options)
     table = _FormTable()
     pending: list[tuple[np.ndarray, ...]] = []
     pending_words = 0
     tokens_total = unk_total = cont_total = 0
     unk = info.unk_id
-    total_bytes = sum(f.stat().st_size for f in files)
-    with Progress(f"audit {info.name}", total=float(total_bytes), unit="bytes (on disk)", quiet=quiet) as progress:
-        for task in tasks:
-            before = stats.bytes_read
-            batches = iter_batches(task, corpus_options, stats)
-            for batch in encode_stream(info, batches):
-                lengths = batch.word_lengths
-                keep = batch.word_kinds != SPACE
-                if not keep.all():
-                    tok_keep = np.repeat(keep, lengths)
-                else:
-                    tok_keep = None
-                ids = batch.ids if tok_keep is None else batch.ids[tok_keep]
-                tokens_total += len(ids)
-                if unk is not None:
-                    unk_total += int(np.count_nonzero(ids == unk))
-                lk = lengths[keep]
-                cont_total += int((lk - 1).clip(min=0).sum())
-                # Reduce this batch to distinct word forms before merging (numpy, no Python loop).
-                forms = form_hashes(batch.ids, batch.word_offsets)[keep]
-                rows, first, inv = unique_rows(np.stack([batch.word_keys[keep], forms], axis=1))
-                n = len(rows)
-                pending.append((rows,
-                                np.bincount(inv, minlength=n).astype(np.int64),
-                                np.bincount(inv, weights=lk, minlength=n).astype(np.int64),
-                                np.bincount(inv, weights=(lk >= 2), minlength=n).astype(np.int64),
-                                np.bincount(inv, weights=batch.word_chars[keep], minlength=n).astype(np.int64),
-                                batch.word_kinds[keep][first]))
-                pending_words += n
-                if pending_words > 2_000_000:
-                    _flush(table, pending)
-                    pending_words = 0
-                progress.advance(_disk_share(task, files, stats.bytes_read - before))
-                before = stats.bytes_read
+    for batch in reader:
+        lengths = batch.word_lengths
+        keep = batch.word_kinds != SPACE
+        ids = batch.ids if keep.all() else batch.ids[np.repeat(keep, lengths)]
+        tokens_total += len(ids)
+        if unk is not None:
+            unk_total += int(np.count_nonzero(ids == unk))
+        lk = lengths[keep]
+        cont_total += int((lk - 1).clip(min=0).sum())
+        # Reduce this batch to distinct word forms before merging (numpy, no Python loop).
+        forms = form_hashes(batch.ids, batch.word_offsets)[keep]
+        rows, first, inv = unique_rows(np.stack([batch.word_keys[keep], forms], axis=1))
+        n = len(rows)
+        pending.append((rows, np.bincount(inv, minlength=n).astype(np.int64),
+                        np.bincount(inv, weights=lk, minlength=n).astype(np.int64),
+                        np.bincount(inv, weights=(lk >= 2), minlength=n).astype(np.int64),
+                        np.bincount(inv, weights=batch.word_chars[keep], minlength=n).astype(np.int64),
+                        batch.word_kinds[keep][first]))
+        pending_words += n
+        if pending_words > 2_000_000:
+            _flush(table, pending)
+            pending_words = 0
+    _flush(table, pending)
+    return {"table": (table.keys, table.occ, table.tokens, table.split, table.chars, table.kind),
+            "totals": (tokens_total, unk_total, cont_total), "read": reader.consumed.to_dict(),
+            "words": _task_words(info, reader)}
+
+
+def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: CorpusOptions = CorpusOptions(),
+                    top_words: int = 25, frequent_types: int = 1000, quiet: bool = False,
+                    executor: Any = None) -> dict[str, Any]:
+    """Fragmentation figures of one tokenizer on a corpus or an encoded directory (tasks in parallel).
+
+    >>> audit_tokenizer(load_tokenizer("tok.json"), ["sample_corpus"])["tokens_per_word"]  # doctest: +SKIP
+    1.21
+    """
+    from ..execute import Executor, map_tasks
+
+    source = open_source(corpus, corpus_options)
+    source.tokenizer(info, stage="audit")  # an encoded directory must have been made with this tokenizer
+    executor = executor or Executor(quiet=quiet)
+    job = _AuditJob(info.json, info.name, source.options)
+    table, stats = _FormTable(), ReadStats()
+    pending: list[tuple[np.ndarray, ...]] = []
+    totals = [0, 0, 0]
+    words: dict[tuple[int, tuple[int, ...]], WordType] = {}
+    tasks = source.tasks
+    for res in map_tasks(_audit_task, [(job, t) for t in tasks], executor=executor, label=f"audit {info.name}",
+                         describe=lambda i: tasks[i].describe(), weights=[t.weight / 1e6 for t in tasks],
+                         unit="MB"):
+        pending.append(res["table"])
+        if sum(len(p[0]) for p in pending) > 2_000_000:
+            _flush(table, pending)
+        totals = [a + b for a, b in zip(totals, res["totals"])]
+        stats.merge(read_stats_of(res["read"]))
+        for wt in res["words"]:
+            words.setdefault((wt.key, wt.ids), wt)
     _flush(table, pending)
     if stats.documents == 0:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
-    return _summarise(info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types)
-
-
-def _disk_share(task: Any, files: list[Path], decoded: int) -> float:
-    # Progress is in bytes on disk; compressed files advance in proportion (approximate, display only).
-    return float(decoded) if task.compression is None else float(decoded) / 4.0
+    forms = [words[k] for k in sorted(words)]  # in an order that does not depend on the tasks
+    tokens_total, unk_total, cont_total = totals
+    return _summarise(info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types, forms)
 
 
 def _flush(table: _FormTable, pending: list[tuple[np.ndarray, ...]]) -> None:
@@ -182,7 +220,7 @@ def _flush(table: _FormTable, pending: list[tuple[np.ndarray, ...]]) -> None:
 
 def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total: int,
                cont_total: int, stats: ReadStats, top_words: int,
-               frequent_types: int) -> dict[str, Any]:
+               frequent_types: int, forms: list[WordType]) -> dict[str, Any]:
     # Word types from their forms: keys are sorted by word key, so forms of one word are adjacent.
     word_keys, word_of_form = np.unique(f.keys[:, 0], return_inverse=True)
     nw = len(word_keys)
@@ -230,16 +268,17 @@ def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total:
         "tokens_per_char": tok_a / chars_a if chars_a else None,
         "unk_rate": unk_total / tokens_total if tokens_total else 0.0,
         "continuation_share": cont_total / tokens_total if tokens_total else 0.0,
-        "bands": bands, "worst_words": _word_rows(info, f, word_keys, word_of_form, order, listed),
+        "bands": bands, "worst_words": _word_rows(info, f, word_keys, word_of_form, order, listed,
+                                                     forms),
     }
 
 
 def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
                word_of_form: np.ndarray, order: np.ndarray,
-               listed: np.ndarray) -> list[dict[str, Any]]:
+               listed: np.ndarray, all_forms: list[WordType]) -> list[dict[str, Any]]:
     """The listed words with every form: its pieces (decoded), tokens and share of uses."""
     words = order[listed]
-    cached = cached_forms(info, (int(word_keys[w]) for w in words))
+    cached = cached_forms(all_forms, (int(word_keys[w]) for w in words))
     rows = []
     for rank0, w in zip(listed.tolist(), words.tolist()):
         key = int(word_keys[w])
@@ -269,15 +308,21 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
 
 def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
               corpus_options: CorpusOptions = CorpusOptions(), quiet: bool = False,
-              size_option: str = "--vocab-sizes") -> dict[str, Any]:
+              size_option: str = "--vocab-sizes", executor: Any = None) -> dict[str, Any]:
     """Audit given and freshly trained tokenizers; write audit.json and audit.html.
 
     A size the corpus cannot give stops the audit with an error naming `size_option` and the size.
 
     >>> run_audit(["sample_corpus"], AuditConfig(vocab_sizes=(2000, 8000)), output=Path("out"))  # doctest: +SKIP
     """
-    infos: list[TokenizerInfo] = [load_tokenizer(p) for p in config.tokenizers]
-    resolve_inputs(corpus)  # fail early on bad paths, before any training
+    source = open_source(corpus, corpus_options)  # fail early on bad paths, before any training
+    infos: list[TokenizerInfo] = [source.tokenizer(p, stage="audit") for p in config.tokenizers]
+    if source.encoded:
+        if config.vocab_sizes:
+            raise MaskprepError(f"{size_option}: {source.describe()} is an encoded directory; training needs "
+                                "the raw text: give the corpus files instead")
+        if not infos:
+            infos.append(source.tokenizer(None, stage="audit"))
     for size in config.vocab_sizes:
         name = f"{config.model}-{size}"
         tok_path = output / "tokenizers" / f"{name}.json"
@@ -289,8 +334,9 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
         if names.count(info.name) > 1:
             info.name = f"{info.name}#{i + 1}"
     results = [audit_tokenizer(info, corpus, corpus_options=corpus_options, top_words=config.top_words,
-                               frequent_types=config.frequent_types, quiet=quiet) for info in infos]
-    doc = {"corpus": [str(f) for f in resolve_inputs(corpus)], "bands": [b[2] for b in BANDS],
+                               frequent_types=config.frequent_types, quiet=quiet, executor=executor)
+               for info in infos]
+    doc = {"corpus": list(source.files), "bands": [b[2] for b in BANDS],
            "notes": ["Words are the tokenizer's own pre-tokenization pieces; punctuation-only words are left out "
                      "of tokens_per_word and split_share but kept in tokens_per_word_all.",
                      "Frequency bands rank word types by their count in this corpus."],

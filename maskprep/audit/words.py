@@ -99,11 +99,11 @@ def select_fragmented(
     return np.asarray(pos[order][:top_words], dtype=np.int64)
 
 
-def cached_forms(info: TokenizerInfo, keys: Iterable[int]) -> dict[int, list[WordType]]:
-    """The forms of these word keys that the tokenizer's word-type cache holds, by key."""
+def cached_forms(forms: Iterable[WordType], keys: Iterable[int]) -> dict[int, list[WordType]]:
+    """The forms of these word keys among `forms` (the word types the audit's tasks saw), by key."""
     wanted = set(keys)
     out: dict[int, list[WordType]] = {}
-    for wt in info.word_types():
+    for wt in forms:
         if wt.key in wanted:
             out.setdefault(wt.key, []).append(wt)
     return out

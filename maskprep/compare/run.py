@@ -7,10 +7,11 @@ measures what each one hides with the code that writes ``stats.json``
 within-unit leakage (against the pmi segmentation of the same words, when a
 unit vocabulary is given), the easy-target share (punctuation or the 100 most
 frequent words of the sample itself), targets by word-frequency band and
-targets per sequence. The per-batch calls are those of `shards.write_shards`
-(`masking.strategy_units`, `masking.mask_batch`, `MaskStats.add`), so with
-the whole corpus the figures equal the ``stats.json`` of ``maskprep mask``
-with the same options and seed.
+targets per sequence. It runs the task loop of `shards.write_shards`
+(`shards.taskloop.TaskLoop`) and measures with `MaskStats.add`, so with the
+whole corpus the figures equal the ``stats.json`` of ``maskprep mask`` with
+the same options and seed. CORPUS may be an encoded directory
+(`maskprep encode`): the figures are then byte for byte those of the raw corpus.
 
 Sampling: ``sample=N`` takes at most N sequences, spread over the corpus
 tasks in proportion to their bytes on disk (largest remainders), each task
@@ -23,7 +24,6 @@ shards and does not choose units.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -32,8 +32,10 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from ..errors import MaskprepError
-from ..masking.sampler import MaskingConfig, MixPer, Strategy, mask_batch, strategy_units
+from ..encoded.source import SourceTask
+from ..masking.sampler import MaskingConfig, MixPer, Strategy
 from ..packing import PackedBatch, PackingConfig
+from ..shards.taskloop import LoopJob, TaskLoop
 from ..masking.strategies import check_seed
 from ..stats.masks import MaskStats
 from ..stats.targets import TOP_WORDS, TargetStats, targets_per_sequence
@@ -137,89 +139,36 @@ class CompareConfig:
 
 @dataclass(frozen=True)
 class _Job:
-    tokenizer_json: str
-    tokenizer_name: str
-    tokenizer_hash: str
+    loop: LoopJob
     config: CompareConfig
     strategies: tuple[Strategy, ...]
-    corpus_options: Any
-    units: Any  # {n: (keys, scores)} or None
-    units_digest: str | None
 
 
-_CACHE: dict[tuple[str, str], Any] = {}
-
-
-def _cached(kind: str, digest: str, make: Any) -> Any:
-    if (kind, digest) not in _CACHE:
-        if len(_CACHE) > 8:
-            _CACHE.clear()
-        _CACHE[(kind, digest)] = make()
-    return _CACHE[(kind, digest)]
-
-
-def _head(pb: PackedBatch, k: int) -> PackedBatch:
-    return dataclasses.replace(pb, **{f.name: getattr(pb, f.name)[:k] for f in dataclasses.fields(pb)})
-
-
-def _compare_task(job: _Job, task: Any, quota: int | None) -> dict[str, Any]:
-    """Pack one corpus task (its first `quota` sequences) and mask them with every strategy."""
-    from ..corpus.reader import ReadStats, iter_batches
-    from ..packing import TaskPacker
-    from ..masking.strategies import UnitTable
-    from ..tokenizer.encoding import encode_stream, tokenizer_from_json
-
-    info = _cached("tok", job.tokenizer_hash, lambda: tokenizer_from_json(job.tokenizer_json,
-                                                                          name=job.tokenizer_name))
-    table = None
-    if job.units is not None:
-        table = _cached("units", job.units_digest or "", lambda: UnitTable.from_by_length(job.units))
+def _compare_task(job: _Job, task: SourceTask, quota: int | None) -> dict[str, Any]:
+    """Pack one task (its first `quota` sequences) and mask them with every strategy (`TaskLoop`)."""
+    loop = TaskLoop(job.loop, task)
     cfg = job.config
-    mask_id = info.require_mask()
-    random_ids = info.normal_ids()
     masking = {s: cfg.masking(s) for s in job.strategies}
     pmi_cfg = cfg.masking(Strategy.PMI)
     stats = {s: MaskStats() for s in job.strategies}
     targets = {s: TargetStats() for s in job.strategies}
     examples: list[dict[str, Any]] = []
     fallback: list[dict[str, Any]] = []
-    read = ReadStats()
-    packer = TaskPacker(info, cfg.packing(), task_index=task.index)
-
-    def packed() -> Any:
-        for encoded in encode_stream(info, iter_batches(task, job.corpus_options, read)):
-            yield from packer.add(encoded)
-        yield from packer.finish()
-
-    done = 0
-    for pb in packed():
-        if quota is not None and done + len(pb) > quota:
-            pb = _head(pb, quota - done)
-        done += len(pb)
-        groups = None
-        if table is not None:  # the vocabulary units of these words, for within-unit leakage
-            groups = strategy_units(pb.special, pb.word_ids, config=pmi_cfg, sequence_ids=pb.sequence_ids,
-                                    seed=cfg.seed, copy=0, word_keys=pb.word_keys, word_kinds=pb.word_kinds,
-                                    units=table)
+    for pb in loop.packed(quota):
+        # the vocabulary units of these words, for within-unit leakage (the pmi strategy's own units)
+        groups = loop.units(pb, pmi_cfg) if loop.table is not None else None
         rows: dict[Strategy, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         for s in job.strategies:
-            # The calls and arguments of shards._shard_task for copy 0.
-            units = groups if s is Strategy.PMI and groups is not None else strategy_units(
-                pb.special, pb.word_ids, config=masking[s], sequence_ids=pb.sequence_ids, seed=cfg.seed, copy=0,
-                word_keys=pb.word_keys, word_kinds=pb.word_kinds, units=table)
-            masked, labels = mask_batch(pb.input_ids, units, sequence_ids=pb.sequence_ids, seed=cfg.seed, copy=0,
-                                        config=masking[s], mask_token_id=mask_id, random_token_ids=random_ids)
+            units, masked, labels = loop.mask(pb, masking[s], 0)
             stats[s].add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
-                         attention_mask=pb.attention_mask, mask_token_id=mask_id, first_copy=True)
+                         attention_mask=pb.attention_mask, mask_token_id=loop.mask_id, first_copy=True)
             targets[s].add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
                            word_keys=pb.word_keys, word_kinds=pb.word_kinds, attention_mask=pb.attention_mask,
-                           mask_token_id=mask_id, group_ids=groups)
+                           mask_token_id=loop.mask_id, group_ids=groups)
             rows[s] = (masked, labels, units)
         if len(examples) < cfg.examples:
             _pick_examples(pb, rows, groups, examples, fallback, cfg.examples)
-        if quota is not None and done >= quota:
-            break
-    return {"task": task.index, "sequences": done, "read": read.to_dict(),
+    return {"task": task.index, "sequences": loop.sequences, "read": loop.read.to_dict(),
             "stats": {s.value: stats[s].to_state() for s in job.strategies},
             "targets": {s.value: targets[s].to_state() for s in job.strategies},
             "examples": (examples + fallback)[:cfg.examples]}
@@ -242,22 +191,6 @@ def _pick_examples(pb: PackedBatch, rows: Mapping[Strategy, tuple[np.ndarray, ..
 
 
 # ------------------------------------------------------------------ the driver
-
-def _task_weights(tasks: Sequence[Any]) -> list[float]:
-    """Bytes on disk of each task (a share of its file when the task is a part of one)."""
-    import os
-
-    per_file: dict[str, int] = {}
-    for t in tasks:
-        per_file[t.path] = per_file.get(t.path, 0) + 1
-    out = []
-    for t in tasks:
-        if t.fmt in ("txt", "jsonl") and t.compression is None and t.end >= 0:
-            out.append(float(t.end - t.start))
-        else:
-            out.append(os.path.getsize(t.path) / per_file[t.path])
-    return out
-
 
 def sample_quotas(weights: Sequence[float], sample: int | None) -> list[int | None]:
     """Split `sample` sequences over tasks in proportion to `weights` (largest remainders).
@@ -321,15 +254,16 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     >>> doc["strategies"]["pmi"]["within_word_leakage"]  # doctest: +SKIP
     0.0
     """
-    from ..corpus.reader import CorpusOptions, ReadStats, corpus_fingerprint, plan_tasks, resolve_inputs
+    from ..corpus.reader import ReadStats
+    from ..encoded.source import open_source, read_stats_of
     from ..execute import Executor, map_tasks
     from .._files import atomic_write_json
     from ..packing import check_packing_tokenizer
-    from ..tokenizer.encoding import TokenizerInfo, load_tokenizer
 
-    corpus_options = corpus_options or CorpusOptions()
     executor = executor or Executor()
-    info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
+    source = open_source(list(corpus), corpus_options)
+    corpus_options = source.options
+    info = source.tokenizer(tokenizer, stage="compare")
     info.require_mask()
     check_packing_tokenizer(info)
     config.packing().check(info)
@@ -339,11 +273,12 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     if out.exists() and not out.is_dir():
         raise MaskprepError(f"-o {out}: exists and is not a directory")
 
-    files = resolve_inputs(list(corpus))
-    tasks = plan_tasks(files, corpus_options)
-    quotas = sample_quotas(_task_weights(tasks), config.sample)
-    job = _Job(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash, config=config,
-               strategies=strategies, corpus_options=corpus_options, units=by_length, units_digest=units_digest)
+    tasks = source.tasks
+    quotas = sample_quotas([t.weight for t in tasks], config.sample)
+    loop = LoopJob(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
+                   packing=config.packing(), corpus_options=corpus_options, seed=config.seed, units=by_length,
+                   units_digest=units_digest)
+    job = _Job(loop=loop, config=config, strategies=strategies)
     todo = [(job, t, q) for t, q in zip(tasks, quotas) if q != 0]
     results = list(map_tasks(_compare_task, todo, executor=executor, label="compare",
                              describe=lambda i: todo[i][1].describe()))
@@ -355,8 +290,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
         for s in strategies:
             stats[s].merge(MaskStats.from_state(res["stats"][s.value]))
             targets[s].merge(TargetStats.from_state(res["targets"][s.value]))
-        r = res["read"]
-        read.merge(ReadStats(r["documents"], r["empty_skipped"], r["invalid_utf8_replaced"], r["bytes_read"]))
+        read.merge(read_stats_of(res["read"]))
         examples.extend(res["examples"])
     sequences = sum(res["sequences"] for res in results)
     if sequences == 0:
@@ -381,7 +315,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
         "sample": {"sequences": sequences, "asked": config.sample, "tasks": len(todo),
                    "how": "all sequences" if config.sample is None else
                    "the first sequences of each corpus task, tasks weighted by their bytes on disk"},
-        "corpus": {"files": [str(f) for f in files], "fingerprint": corpus_fingerprint(files, corpus_options),
+        "corpus": {"files": list(source.files), "fingerprint": source.fingerprint,
                    **read.to_dict()},
         "tokenizer": info.describe(), "units": units_doc,
         "notes": _notes(config, units_doc is not None),

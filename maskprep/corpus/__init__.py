@@ -13,7 +13,8 @@ from .reader import (
     iter_documents,
     plan_tasks,
     resolve_inputs,
+    task_weights,
 )
 
 __all__ = ["CorpusOptions", "CorpusTask", "ReadStats", "corpus_fingerprint", "iter_batches",
-           "iter_corpus", "iter_documents", "plan_tasks", "resolve_inputs"]
+           "iter_corpus", "iter_documents", "plan_tasks", "resolve_inputs", "task_weights"]

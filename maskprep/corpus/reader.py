@@ -192,6 +192,24 @@ def plan_tasks(files: list[Path], options: CorpusOptions = CorpusOptions()) -> l
     return tasks
 
 
+def task_weights(tasks: list[CorpusTask]) -> list[float]:
+    """Bytes on disk of each task (a share of its file when the task is a part of one).
+
+    >>> task_weights([])
+    []
+    """
+    per_file: dict[str, int] = {}
+    for t in tasks:
+        per_file[t.path] = per_file.get(t.path, 0) + 1
+    out = []
+    for t in tasks:
+        if t.fmt in TEXT_FORMATS and t.compression is None and t.end >= 0:
+            out.append(float(t.end - t.start))
+        else:
+            out.append(os.path.getsize(t.path) / per_file[t.path])
+    return out
+
+
 def iter_documents(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
                    stats: ReadStats | None = None) -> Iterator[str]:
     """Yield the non-empty documents of one task, in file order.

@@ -41,14 +41,14 @@ from pathlib import Path
 import numpy as np
 
 from .._version import __version__
-from ..corpus.reader import CorpusOptions, CorpusTask, corpus_fingerprint, plan_tasks, \
-    resolve_inputs
+from ..corpus.reader import CorpusOptions, corpus_fingerprint
+from ..encoded.source import open_source
 from ..errors import MaskprepError
 from ..execute import Executor, map_tasks, pool_running
 from .._files import fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
-from ..tokenizer.encoding import TokenizerInfo, load_tokenizer
+from ..tokenizer.encoding import TokenizerInfo
 
 from .types import FORMAT_VERSION, MAX_N, MIN_TASK_MEMORY, POOL_ROWS, TASK_BYTES, CountConfig, CountSummary, \
     TaskCounts, parse_memory
@@ -59,16 +59,8 @@ __all__ = ["CountConfig", "CountSummary", "count_ngrams", "finish_counts", "task
 
 # ---------------------------------------------------------------- the driver
 
-def _task_megabytes(task: CorpusTask) -> float:
-    if task.end >= 0 and task.fmt in ("txt", "jsonl"):
-        return (task.end - task.start) / 1e6
-    try:
-        return os.path.getsize(task.path) / 1e6
-    except OSError:
-        return 1.0
-
-
-def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo, output: str | Path,
+def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo | None,
+                 output: str | Path,
                  config: CountConfig = CountConfig(), corpus_options: CorpusOptions = CorpusOptions(),
                  executor: Executor = Executor(), overwrite: bool = False, quiet: bool = False,
                  resume: bool = False) -> CountSummary:
@@ -83,13 +75,16 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
 
     started = time.monotonic()
     output = Path(output)
-    files = resolve_inputs(list(corpus))
-    info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
+    source = open_source(list(corpus), corpus_options, task_bytes=TASK_BYTES)
+    corpus_options = source.options
+    files = [Path(f) for f in source.files]
+    info = source.tokenizer(tokenizer, stage="count")
     executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
-    task_options = dataclasses.replace(corpus_options, chunk_bytes=min(corpus_options.chunk_bytes, TASK_BYTES))
-    tasks = plan_tasks(files, task_options)
+    task_options = corpus_options if source.encoded else dataclasses.replace(
+        corpus_options, chunk_bytes=min(corpus_options.chunk_bytes, TASK_BYTES))
+    tasks = source.tasks
     share = task_share(config, executor, len(tasks))
-    fingerprint = corpus_fingerprint(files, corpus_options)
+    fingerprint = source.fingerprint
     identity = count_state.run_identity(config, info, fingerprint, task_options, format_version=FORMAT_VERSION)
     with count_state.open_state(output, identity, resume=resume, overwrite=overwrite) as state:
         if state.finished:  # --resume on counts finished with these options: nothing to do
@@ -98,11 +93,10 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
         state.clean(count_state.attempts_of(done))
         todo = [t for t in tasks if t.index not in done]
         root = os.path.abspath(state.root)  # absolute paths: a Dask worker's cwd is not the driver's
-        args = [(dataclasses.replace(t, path=os.path.abspath(t.path)), info.json, config, root, task_options,
-                 share, state.digest) for t in todo]
+        args = [(t, info.json, config, root, corpus_options, share, state.digest) for t in todo]
         for result in map_tasks(count_state.count_recorded, args, executor=executor, label="count",
                                 describe=lambda i: todo[i].describe(),
-                                weights=[_task_megabytes(t) for t in todo], unit="MB", shared=output):
+                                weights=[t.weight / 1e6 for t in todo], unit="MB", shared=output):
             done[result.task_index] = result
         summary = finish_counts([done[t.index] for t in tasks], info=info, output=output,
                                 spill=state.attempt("merge").resolve(), config=config, files=files,

@@ -1,4 +1,4 @@
-"""One counting task: encode a corpus task batch by batch and count its n-grams into sorted spills.
+"""One counting task: read a task's encoded batches (tokenizing raw text, or from an encoded directory) and count its n-grams into sorted spills.
 
 `ChunkCounter` counts all n = 1..max_n of each batch at once (`kernels.count_block`),
 buffers the distinct n-grams per coarse key range and, when its share of ``--memory``
@@ -14,8 +14,10 @@ from pathlib import Path
 
 import numpy as np
 
-from ..corpus.reader import CorpusOptions, CorpusTask, ReadStats, iter_batches
-from ..tokenizer.encoding import SPACE, WORD, EncodedBatch, TokenizerInfo, encode_stream, tokenizer_from_json
+from ..corpus.reader import CorpusOptions
+from ..encoded.format import WordTable
+from ..encoded.source import SourceTask, TaskReader
+from ..tokenizer.encoding import SPACE, WORD, EncodedBatch, TokenizerInfo, tokenizer_from_json
 from .files import collision_error
 from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, reduce_rows
 from .spills import RunInfo, RunWriter, disk_error
@@ -173,6 +175,16 @@ class ChunkCounter:
         for i, text in zip(missing, self.info.tokenizer.decode_batch(lists, skip_special_tokens=False)):
             self.vocab[int(uniq[i])] = text.strip()
 
+    def add_word_table(self, table: WordTable) -> None:
+        """Texts of the words of an encoded task (its word table); two texts with one key raise."""
+        keys, kinds = table.fields["word_keys"], table.fields["word_kinds"]
+        sel = np.flatnonzero(kinds == WORD)
+        vocab = self.vocab
+        for key, text in zip(keys[sel].tolist(), table.texts.take(sel).to_pylist()):  # one step per word type
+            prev = vocab.setdefault(key, text)
+            if prev != text:
+                raise collision_error(key, prev, text)
+
     def abort(self) -> None:
         """Drop the buffer (files are removed with the spill directory)."""
         self.buffers = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(self.max_n)]
@@ -183,21 +195,23 @@ def _batch_chars(config: CountConfig, share: int) -> int:
     return config.batch_chars or int(np.clip(share // 256, 16_384, 1 << 20))
 
 
-def count_task(task: CorpusTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
-                corpus_options: CorpusOptions, share: int) -> TaskCounts:
-    """Task function: count one corpus task, spilling runs under `spill_dir`.
+def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
+               corpus_options: CorpusOptions, share: int) -> TaskCounts:
+    """Task function: count one task (raw text or an encoded directory's), spilling runs under `spill_dir`.
 
     >>> count_task(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x", CorpusOptions(), 1 << 28)  # doctest: +SKIP
     """
     info = tokenizer_from_json(tokenizer_json)  # a fresh word-type cache per task: its entries give the texts
     counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,
                            tag=f"t{task.index:06d}")
-    stats = ReadStats()
+    reader = TaskReader(task, info, corpus_options, batch_chars=_batch_chars(config, share))
     try:
-        for batch in encode_stream(info, iter_batches(task, corpus_options, stats,
-                                                      batch_chars=_batch_chars(config, share))):
+        table = reader.word_table()
+        if table is not None:  # encoded input: the word texts are in the task's word table
+            counter.add_word_table(table)
+        for batch in reader:
             counter.add(batch)
-        return counter.finish(task_index=task.index, documents=stats.documents)
+        return counter.finish(task_index=task.index, documents=reader.consumed.documents)
     except BaseException:
         counter.abort()
         raise

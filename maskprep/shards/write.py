@@ -46,7 +46,6 @@ This module does not read shards back (see `maskprep.shards.read` and
 
 from __future__ import annotations
 
-import dataclasses
 import json
 import os
 from dataclasses import asdict, dataclass, field
@@ -59,9 +58,11 @@ from .._files import atomic_path, atomic_write_text, file_sha256
 from .._resume import RunDir, Stage, claim, write_record
 from .._version import __version__
 from ..errors import MaskprepError
-from ..masking.sampler import MaskingConfig, Strategy, mask_batch, strategy_units
-from ..packing import PackingConfig, TaskPacker, check_packing_tokenizer
+from ..encoded.source import SourceTask
+from ..masking.sampler import MaskingConfig, Strategy
+from ..packing import PackingConfig, check_packing_tokenizer
 from ..stats.masks import MaskStats
+from .taskloop import LoopJob, TaskLoop
 from .layout import FORMAT_VERSION, FORMATS as _FORMATS, META_DIR, METADATA_FILES, METADATA_KEY, \
     STATE_DIR, ShardManifest, ShardRecord, new_metadata_path, shard_name
 
@@ -174,69 +175,32 @@ class _ShardWriter:
 @dataclass(frozen=True)
 class _Job:
     out: str
-    tokenizer_json: str
-    tokenizer_name: str
-    tokenizer_hash: str
+    loop: LoopJob
     masking: MaskingConfig
-    packing: PackingConfig
     shards: ShardConfig
-    corpus_options: Any
-    units: Any  # {n: (keys, scores)} or None
-    units_digest: str | None
     run_digest: str
     metadata: Mapping[str, Any] = field(default_factory=dict)
-
-
-_CACHE: dict[tuple[str, str], Any] = {}
-
-
-def _cached(kind: str, digest: str, make: Any) -> Any:
-    key = (kind, digest)
-    if key not in _CACHE:
-        if len(_CACHE) > 8:
-            _CACHE.clear()
-        _CACHE[key] = make()
-    return _CACHE[key]
 
 
 def _done_path(out: Path, task: int) -> Path:
     return out / STATE_DIR / MASK_STAGE_RECORD.format(task)
 
 
-def _shard_task(job: _Job, task: Any) -> dict[str, Any]:
-    """Encode, pack, mask and write one corpus task; returns its done-record."""
-    from ..corpus.reader import ReadStats, iter_batches
-    from ..masking.strategies import UnitTable
-    from ..tokenizer.encoding import encode_stream, tokenizer_from_json
-
+def _shard_task(job: _Job, task: SourceTask) -> dict[str, Any]:
+    """Pack, mask and write one task (`TaskLoop`, from raw text or an encoded directory); returns its done-record."""
     out = Path(job.out)
-    info = _cached("tok", job.tokenizer_hash, lambda: tokenizer_from_json(job.tokenizer_json,
-                                                                          name=job.tokenizer_name))
-    table = None
-    if job.units is not None:
-        table = _cached("units", job.units_digest or "", lambda: UnitTable.from_by_length(job.units))
+    loop = TaskLoop(job.loop, task)
     for stale in out.glob(f"shard-{task.index:05d}-*"):
         stale.unlink()
-    mask_id = info.require_mask()
-    random_ids = info.normal_ids()
     cfg, mcfg = job.shards, job.masking
     writers = [_ShardWriter(out, task=task.index, copy=c, config=cfg, metadata=job.metadata)
                for c in range(cfg.copies)]
     stats = MaskStats()
-    read = ReadStats()
-    packer = TaskPacker(info, job.packing, task_index=task.index)
-
-    def emit(pb: Any) -> None:
-        units = None
+    for pb in loop.packed():
         for c, writer in enumerate(writers):
-            if units is None or mcfg.strategy is Strategy.SPAN:
-                units = strategy_units(pb.special, pb.word_ids, config=mcfg, sequence_ids=pb.sequence_ids,
-                                       seed=cfg.seed, copy=c, word_keys=pb.word_keys, word_kinds=pb.word_kinds,
-                                       units=table)
-            masked, labels = mask_batch(pb.input_ids, units, sequence_ids=pb.sequence_ids, seed=cfg.seed, copy=c,
-                                        config=mcfg, mask_token_id=mask_id, random_token_ids=random_ids)
+            units, masked, labels = loop.mask(pb, mcfg, c)
             stats.add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
-                      attention_mask=pb.attention_mask, mask_token_id=mask_id, first_copy=c == 0)
+                      attention_mask=pb.attention_mask, mask_token_id=loop.mask_id, first_copy=c == 0)
             cols: dict[str, np.ndarray] = {"input_ids": pb.input_ids if cfg.dynamic else masked}
             cols["unit_ids" if cfg.dynamic else "labels"] = units if cfg.dynamic else labels
             cols["attention_mask"] = pb.attention_mask
@@ -245,15 +209,9 @@ def _shard_task(job: _Job, task: Any) -> dict[str, Any]:
             cols["_maskable"] = (units >= 0).sum(axis=1, dtype=np.int64)
             cols["_targets"] = (labels != -100).sum(axis=1, dtype=np.int64)
             writer.add(cols)
-
-    for encoded in encode_stream(info, iter_batches(task, job.corpus_options, read)):
-        for pb in packer.add(encoded):
-            emit(pb)
-    for pb in packer.finish():
-        emit(pb)
     records = [r for w in writers for r in w.close()]
     done = {"task": task.index, "run": job.run_digest, "shards": [asdict(r) for r in records],
-            "stats": stats.to_state(), "read": read.to_dict()}
+            "stats": stats.to_state(), "read": loop.read.to_dict()}
     write_record(_done_path(out, task.index), done)
     return done
 
@@ -316,13 +274,13 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
 
     >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json", output="shards")  # doctest: +SKIP
     """
-    from ..corpus.reader import CorpusOptions, corpus_fingerprint, plan_tasks, resolve_inputs
+    from ..encoded.source import open_source
     from ..execute import Executor
-    from ..tokenizer.encoding import TokenizerInfo, load_tokenizer
 
-    corpus_options = corpus_options or CorpusOptions()
     executor = executor or Executor()
-    info = tokenizer if isinstance(tokenizer, TokenizerInfo) else load_tokenizer(tokenizer)
+    source = open_source(list(corpus), corpus_options)
+    corpus_options = source.options
+    info = source.tokenizer(tokenizer, stage="mask")
     mask_id = info.require_mask()
     cls_id, sep_id, pad_id = check_packing_tokenizer(info)
     packing.check(info)
@@ -343,9 +301,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
         raise MaskprepError(f"--units is only used by --strategy pmi (this run uses {masking.strategy.value}); "
                             "drop --units or pass --strategy pmi")
 
-    files = resolve_inputs(list(corpus))
-    tasks = plan_tasks(files, corpus_options)
-    fingerprint = corpus_fingerprint(files, corpus_options)
+    tasks, files, fingerprint = source.tasks, list(source.files), source.fingerprint
     mcfg = {"strategy": masking.strategy.value, "rate": masking.rate, "mix": list(masking.mix),
             "mix_per": masking.mix_per.value, "span_p": masking.span_p, "span_max": masking.span_max}
     options = {**mcfg, "seq_len": packing.seq_len, "pack": packing.pack, "copies": shards.copies,
@@ -373,6 +329,7 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
                    ids: tuple[int, int, int, int]) -> tuple[ShardManifest, dict[str, Any]]:
     """Run the tasks not yet done in a claimed shards directory, then write its finished files."""
     from ..corpus.reader import ReadStats
+    from ..encoded.source import read_stats_of
     from ..execute import map_tasks
 
     mask_id, cls_id, sep_id, pad_id = ids
@@ -387,12 +344,16 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
                 "pad_id": pad_id, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
                 "units_sha256": units_digest}
     # tasks get absolute paths: a Dask worker's working directory is not the driver's
-    job = _Job(out=os.path.abspath(out), metadata=metadata, **job_args)
+    loop = LoopJob(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash, packing=packing,
+                   corpus_options=job_args["corpus_options"], seed=shards.seed, units=job_args["units"],
+                   units_digest=units_digest)
+    job = _Job(out=os.path.abspath(out), loop=loop, masking=job_args["masking"], shards=shards,
+               run_digest=job_args["run_digest"], metadata=metadata)
     done: dict[int, dict[str, Any]] = {}
     if run.resumed:
         done = run.done([t.index for t in tasks], files=lambda rec: rec["shards"], base=out)
     todo = [t for t in tasks if t.index not in done]
-    args = [(job, dataclasses.replace(t, path=os.path.abspath(t.path))) for t in todo]
+    args = [(job, t) for t in todo]
     for rec in map_tasks(_shard_task, args, executor=executor, label="mask", describe=lambda i: todo[i].describe(),
                          shared=out):
         done[rec["task"]] = rec
@@ -402,8 +363,7 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
     for t in tasks:
         rec = done[t.index]
         stats.merge(MaskStats.from_state(rec["stats"]))
-        r = rec["read"]
-        read.merge(ReadStats(r["documents"], r["empty_skipped"], r["invalid_utf8_replaced"], r["bytes_read"]))
+        read.merge(read_stats_of(rec["read"]))
         records.extend(ShardRecord(**s) for s in rec["shards"])
     totals = {"shards": len(records), "rows": stats.rows, "sequences": stats.sequences, "tokens": stats.tokens,
               "maskable": stats.maskable, "targets": stats.targets}

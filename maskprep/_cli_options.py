@@ -1,0 +1,91 @@
+"""Shared pieces of the command line: option groups, the executor from global options, error handling.
+
+`maskprep.cli` defines the commands with these; nothing here runs a stage.
+"""
+
+from __future__ import annotations
+
+import functools
+import sys
+from typing import Any, Callable
+
+import click
+
+from .errors import MaskprepError
+
+__all__ = ["CONTEXT", "executor_from", "is_quiet", "user_errors", "corpus_options", "masking_options",
+           "make_corpus_options"]
+
+CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
+
+
+def executor_from(ctx: click.Context) -> Any:
+    """The `Executor` for the global --workers / --dask / --quiet options."""
+    from .execute import Executor, default_workers
+
+    obj = ctx.find_root().obj or {}
+    workers = obj.get("workers")
+    if workers is not None and workers < 1:
+        raise MaskprepError(f"--workers: expected a positive whole number, got {workers}")
+    return Executor(workers=workers or default_workers(), dask=obj.get("dask"), quiet=bool(obj.get("quiet")))
+
+
+def is_quiet(ctx: click.Context) -> bool:
+    return bool((ctx.find_root().obj or {}).get("quiet"))
+
+
+def user_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """Turn `MaskprepError` into one clean click error (exit 1)."""
+
+    @functools.wraps(fn)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return fn(*args, **kwargs)
+        except MaskprepError as exc:
+            raise click.ClickException(str(exc)) from None
+        except KeyboardInterrupt:
+            click.echo("interrupted; partial outputs were not renamed into place (use --resume where offered)",
+                       err=True)
+            sys.exit(130)
+
+    return wrapper
+
+
+def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """The options every command that reads a corpus shares."""
+    fn = click.option("--doc-sep", type=click.Choice(["line", "blank"]), default="line", show_default=True,
+                      help="Text files: one document per line, or documents separated by blank lines.")(fn)
+    fn = click.option("--text-field", default="text", show_default=True,
+                      help="JSONL: the field holding the text.")(fn)
+    fn = click.option("--text-column", default="text", show_default=True,
+                      help="Parquet/Arrow: the column holding the text.")(fn)
+    fn = click.option("--strict", is_flag=True,
+                      help="Invalid UTF-8 is an error (naming file, line and byte) instead of being replaced.")(fn)
+    return fn
+
+
+def masking_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """The masking and packing options shared by mask and compare."""
+    for opt in reversed([
+        click.option("--rate", type=float, default=0.15, show_default=True,
+                     help="Share of maskable (non-special) tokens made targets, per sequence."),
+        click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
+                     help="How targets are shown: mask token, random token, unchanged."),
+        click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
+                     help="Draw the mix per target token or once per masked unit."),
+        click.option("--span-p", type=float, default=0.2, show_default=True,
+                     help="span: geometric parameter of span lengths."),
+        click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words."),
+        click.option("--seq-len", type=int, default=128, show_default=True,
+                     help="Tokens per sequence, special tokens included."),
+        click.option("--no-pack", is_flag=True,
+                     help="One document per sequence (split when too long) instead of packing."),
+    ]):
+        fn = opt(fn)
+    return fn
+
+
+def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict: bool) -> Any:
+    from .corpus.reader import CorpusOptions
+
+    return CorpusOptions(doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict)
