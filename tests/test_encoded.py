@@ -111,7 +111,7 @@ def test_count_mask_compare_audit_on_an_encoded_directory_equal_the_raw_corpus(t
                    str(units), "--sample", "700")
             invoke("--workers", workers, "audit", *corpus, "-t", tok, "-o", str(out / "audit"))
         raw, enc = all_files(base / "raw"), all_files(base / "enc")
-        assert {"counts/counts.json", "shards/manifest.json", "span/stats.json", "compare/compare.json",
+        assert {"counts/counts.json", "shards/_maskprep/manifest.json", "span/_maskprep/stats.json", "compare/compare.json",
                 "audit/audit.json"} <= set(raw)
         assert sorted(raw) == sorted(enc)
         assert [f for f in raw if raw[f] != enc[f]] == []
