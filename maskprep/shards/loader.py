@@ -310,10 +310,8 @@ class ShardLoader:
         files, parts, _ = self.pieces()
         n = hi - lo
         inv = None
-        if self.shuffle:
-            perm = np.argsort(_keys(self.seed, epoch, _TAG_ROWS, np.arange(lo, hi)), kind="stable")
-            inv = np.empty(n, dtype=np.int64)
-            inv[perm] = np.arange(n)
+        if self.shuffle:  # row lo + i goes to place inv[i] of the window: a random permutation
+            inv = np.argsort(_keys(self.seed, epoch, _TAG_ROWS, np.arange(lo, hi)), kind="stable")
         out: dict[str, np.ndarray] | None = None
         j = int(np.searchsorted(starts, lo, side="right")) - 1
         while j < len(order) and starts[j] < hi:

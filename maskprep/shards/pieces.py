@@ -4,9 +4,10 @@ A *piece* is one record batch of an Arrow file (1,024 rows) or one row group of
 a Parquet file (8,192 rows), the last of a file shorter: the writer cuts files
 so, hence the pieces follow from the manifest; each is checked when read.
 Arrow files are memory-mapped, so a piece's columns are numpy views of the
-mapped file; Parquet row groups are decoded by pyarrow, the next one ahead in
-a thread (pyarrow releases the GIL while decoding). At most 64 files are kept
-open. Pickling (to a data-loader worker) drops the open files.
+mapped file (kept while the file is open); Parquet row groups are decoded by
+pyarrow, the next one ahead in a thread (pyarrow releases the GIL while
+decoding). At most 64 files are kept open. Pickling (to a data-loader worker)
+drops the open files.
 
 This module does not order, shuffle or batch rows.
 """
@@ -35,12 +36,20 @@ class PieceFiles:
         self.arrow = shards.options["format"] == "arrow"
         self._pieces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
         self._readers: dict[int, Any] = {}
+        self._views: dict[tuple[int, int], dict[str, np.ndarray]] = {}  # Arrow pieces as numpy
         self._group: tuple[tuple[int, int], dict[str, np.ndarray]] | None = None
         self._ahead: tuple[tuple[int, int], Any] | None = None  # the row group being decoded
         self._thread: Any = None
 
     def __getstate__(self) -> dict[str, Any]:
-        return {**self.__dict__, "_readers": {}, "_group": None, "_ahead": None, "_thread": None}
+        return {
+            **self.__dict__,
+            "_readers": {},
+            "_views": {},
+            "_group": None,
+            "_ahead": None,
+            "_thread": None,
+        }
 
     def pieces(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(shard index, piece index in the file, rows) of every piece, in manifest order."""
@@ -58,7 +67,9 @@ class PieceFiles:
 
         if i not in self._readers:
             if len(self._readers) >= _OPEN_FILES:
-                self._readers.pop(next(iter(self._readers)))
+                gone = next(iter(self._readers))
+                self._views = {k: v for k, v in self._views.items() if k[0] != gone}
+                self._readers.pop(gone)
             path = self.shards.files[i]
             if not path.is_file():
                 raise MaskprepError(f"{path}: shard listed in the manifest is missing")
@@ -91,6 +102,8 @@ class PieceFiles:
 
         if self._group is not None and self._group[0] == (i, part):
             return self._group[1]
+        if (i, part) in self._views:  # Arrow: views of the mapped file, kept while it is open
+            return self._views[(i, part)]
         self._group = None  # free the previous row group before decoding the next
         pending, self._ahead = self._ahead, None
         data = pending[1].result() if pending is not None else None  # never two reads at once
@@ -128,4 +141,6 @@ class PieceFiles:
                 out[name] = col.to_numpy()
         if not self.arrow:
             self._group = ((i, part), out)
+        else:
+            self._views[(i, part)] = out
         return out
