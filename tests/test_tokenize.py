@@ -165,9 +165,9 @@ def test_bpe_training_is_reproducible(shakespeare_small: Path) -> None:
 
 
 def test_wordpiece_ids_are_a_function_of_the_token_set(shakespeare_small: Path) -> None:
-    # The WordPiece trainer breaks ties between equally frequent merges differently from run to
-    # run, so two trainings may differ in a few tokens; the ids, though, never depend on the run:
-    # special tokens first, then every other token in sorted order.
+    # The library's WordPiece trainer numbers tokens in a run-dependent order; ids here never
+    # depend on the run: special tokens first, then every other token in sorted order.
+    # (Reproducible tie-breaking is tested in test_train_determinism.py.)
     from maskprep.corpus.reader import iter_corpus
 
     info = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="wordpiece", vocab_size=3000))

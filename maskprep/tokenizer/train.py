@@ -5,8 +5,9 @@ the five special tokens the later stages need (padding, unknown, sequence
 start, separator, mask) and a post-processor template that puts the start
 and separator tokens around a sequence. `TrainConfig` says which family and
 size; `check_trained_size` refuses a tokenizer that stopped short of it.
-WordPiece vocabularies are renumbered in a fixed order after training, so
-ids depend only on which tokens exist.
+WordPiece training gets its ties broken in a fixed order (see wordcounts.py),
+and its vocabulary is renumbered in a fixed order after training, so ids
+depend only on which tokens exist: training is byte-identical from run to run.
 
 Unigram vocabularies are learnt by sentencepiece (see unigram.py).
 
@@ -23,6 +24,7 @@ from typing import Any, Iterable, Iterator
 from ..errors import MaskprepError
 from .encoding import TokenizerInfo
 from .unigram import VocabSizeError, size_message, train_unigram, unigram_skeleton
+from .wordcounts import drop_added, train_wordpiece
 
 MODELS = ("wordpiece", "bpe", "unigram")
 ROLE_ORDER = ("pad", "unk", "cls", "sep", "mask")  # special tokens take ids 0-4 in this order
@@ -109,13 +111,16 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
         except VocabSizeError as exc:
             message = size_message(option, exc.requested, exc.supported, exc.too_small)
             raise MaskprepError(message) from None
+    elif config.model == "wordpiece":
+        specials = [SPECIALS["wordpiece"][r] for r in ROLE_ORDER]
+        train_wordpiece(tok, texts, specials, vocab_size=config.vocab_size,
+                        min_frequency=config.min_frequency, show_progress=False)
+        tok = _from_str(drop_added(tok.to_str(), specials))
     else:
         tok.train_from_iterator(_batched(texts), trainer=trainer)
-    from tokenizers import Tokenizer
-
     # One save/load round trip settles float formatting, so the hash of the
     # tokenizer in memory equals the hash of the file it is saved to.
-    tok = Tokenizer.from_str(_canonical_ids(tok.to_str()))
+    tok = _from_str(_canonical_ids(tok.to_str()))
     info = TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
     if check_size:
         check_trained_size(info, config, option)
@@ -126,8 +131,8 @@ def _canonical_ids(text: str) -> str:
     """Give a trained WordPiece vocabulary ids in a fixed order.
 
     The library's WordPiece trainer numbers its tokens in an order that varies
-    from run to run (its alphabet comes from a hash map), and breaks ties
-    between equally frequent merges differently, so a few tokens can differ.
+    from run to run (its alphabet comes from a hash map); ties between equally
+    frequent merges are settled by `train_wordpiece` (wordcounts.py).
     WordPiece encoding depends only on which tokens exist, so special tokens
     keep their ids and the others are numbered in sorted order: ids are then a
     function of the token set. (Byte-level BPE training is reproducible as it
@@ -150,6 +155,12 @@ def _canonical_ids(text: str) -> str:
         next_id += 1
     model["vocab"] = dict(sorted(renumbered.items(), key=lambda kv: kv[1]))
     return json.dumps(spec, ensure_ascii=False)
+
+
+def _from_str(text: str) -> Any:
+    from tokenizers import Tokenizer
+
+    return Tokenizer.from_str(text)
 
 
 def check_trained_size(info: TokenizerInfo, config: TrainConfig, option: str = "--vocab-size") -> None:
