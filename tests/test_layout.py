@@ -81,7 +81,7 @@ def test_cycle_finder_finds_a_cycle() -> None:
 
 
 def test_stages_are_subpackages_in_data_flow_order() -> None:
-    stages = ["corpus", "tokenizer", "audit", "count", "units", "masking", "stats", "shards",
+    stages = ["corpus", "tokenizer", "encoded", "audit", "count", "units", "masking", "stats", "shards",
               "compare", "report", "pipeline"]
     for stage in stages:
         assert (PACKAGE / stage / "__init__.py").is_file(), stage

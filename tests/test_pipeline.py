@@ -20,7 +20,7 @@ from maskprep.errors import MaskprepError
 from maskprep.pipeline.runner import STAGE_FILE, run_pipeline, sample_corpus_dir
 from maskprep.pipeline.config import find_key_line, load_run_config
 
-ALL = ["tokenizer", "audit", "count", "units", "mask.token", "mask.pmi", "compare"]
+ALL = ["tokenizer", "encode", "audit", "count", "units", "mask.token", "mask.pmi", "compare"]
 
 
 def write_config(path: Path, corpus: Path, **changes: str) -> Path:
@@ -96,10 +96,14 @@ def test_first_run_runs_every_stage_and_writes_their_outputs(first_run):
                 "units/units.parquet", "mask/token/_maskprep/manifest.json", "mask/pmi/_maskprep/stats.json", "compare/compare.json",
                 "compare/compare.html"):
         assert (out / rel).is_file(), rel
-    for d in ("tokenizer", "audit", "counts", "units", "mask/token", "mask/pmi", "compare"):
+    for d in ("tokenizer", "encoded", "audit", "counts", "units", "mask/token", "mask/pmi", "compare"):
         rec = json.loads((out / d / STAGE_FILE).read_text())
         assert len(rec["fingerprint"]) == 64 and rec["files"]
-    assert "7 stage(s) ran, 0 up to date" in output
+    assert "8 stage(s) ran, 0 up to date" in output
+    # The corpus is tokenized once: the later stages read OUT/encoded/ (their fingerprints cover it).
+    assert (out / "encoded" / "encoded.json").is_file()
+    for d in ("counts", "mask/token", "compare"):
+        assert "encoded" in json.loads((out / d / STAGE_FILE).read_text())["inputs"], d
     # The comparison uses the [mask] options it inherits.
     cmp = json.loads((out / "compare" / "compare.json").read_text())
     assert cmp["options"]["seq_len"] == 64 and cmp["sample"]["sequences"] == 150
@@ -111,7 +115,7 @@ def test_second_run_skips_every_stage(copy_of_run):
     r = run(config, out)
     assert r.exit_code == 0, r.output
     assert statuses(out) == {name: "skipped" for name in ALL}
-    assert "0 stage(s) ran, 7 up to date" in r.output
+    assert "0 stage(s) ran, 8 up to date" in r.output
 
 
 @pytest.mark.parametrize("key,line,rerun", [

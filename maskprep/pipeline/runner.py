@@ -6,8 +6,13 @@ or load the given file), audit, count, units, mask (one stage per strategy)
 and compare, each writing into its own directory of the run's output
 directory::
 
-    OUT/tokenizer/tokenizer.json   OUT/audit/   OUT/counts/   OUT/units/units.parquet
-    OUT/mask/<strategy>/           OUT/compare/ OUT/pipeline.json
+    OUT/tokenizer/tokenizer.json   OUT/encoded/  OUT/audit/   OUT/counts/   OUT/units/units.parquet
+    OUT/mask/<strategy>/           OUT/compare/  OUT/pipeline.json
+
+The corpus is tokenized once per run, by the ``encode`` stage (`maskprep.encoded`),
+and count, mask, compare and the audit of the run's tokenizer read ``OUT/encoded/``
+(their outputs are those of the raw corpus, byte for byte), so changing a masking
+option reruns only the masks.
 
 Each stage directory holds ``.stage.json``: a fingerprint over the stage's
 options, the fingerprints of its inputs (corpus contents, tokenizer hash,
@@ -223,6 +228,20 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
         tok_path = cfg.tokenizer_path
     info = load_tokenizer(tok_path)
     inputs = {**base_inputs, "tokenizer": info.hash}
+    if any(x is not None for x in (cfg.audit, cfg.count, cfg.mask, cfg.compare)):
+        # tokenize once: every later stage reads the encoded directory (same outputs as from the raw corpus)
+        from ..encoded.write import encode_corpus
+
+        def run_enc(d: Path) -> list[str]:
+            encode_corpus(corpus, tokenizer=info, output=d, corpus_options=copts, executor=executor,
+                          overwrite=True)
+            return _files_in(d)
+
+        enc_fp = runner.stage("encode", "encoded", {"words": "tokenizer"}, inputs, run_enc).fingerprint
+        inputs = {**inputs, "encoded": enc_fp}
+        raw, corpus = corpus, [str(out / "encoded")]
+    else:
+        raw = corpus
 
     if cfg.audit is not None:
         from ..audit.measure import AuditConfig, run_audit
@@ -234,8 +253,12 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
                                 lowercase=a["lowercase"], top_words=a["top_words"])
         extra = {"audited": [file_sha256(p) for p in a["tokenizers"]]}
 
+        # only the run's own tokenizer can read the encoded directory; others tokenize the raw text
+        own = not audit_cfg.vocab_sizes and all(Path(p) == Path(tok_path) for p in given)
+
         def run_aud(d: Path) -> list[str]:
-            run_audit(corpus, audit_cfg, output=d, corpus_options=copts, quiet=quiet,
+            run_audit(corpus if own else raw, audit_cfg, output=d, corpus_options=copts, quiet=quiet,
+                      executor=executor,
                       size_option="[audit] vocab_sizes")
             return _files_in(d)
 
@@ -349,7 +372,7 @@ def run_demo(*, output: str | Path = "maskprep-demo", force: bool = False, execu
                         quiet=quiet)
 
 
-_MAIN_FILES = {"tokenizer": "tokenizer.json", "audit": "audit.html", "count": "counts.json",
+_MAIN_FILES = {"tokenizer": "tokenizer.json", "encode": "encoded.json", "audit": "audit.html", "count": "counts.json",
                "units": "units.tsv", "compare": "compare.html"}
 
 
