@@ -35,17 +35,24 @@ def is_quiet(ctx: click.Context) -> bool:
 
 
 def user_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
-    """Turn `MaskprepError` into one clean click error (exit 1)."""
+    """Turn `MaskprepError` and OS errors into one clean click error (exit 1); Ctrl-C: exit 130."""
 
     @functools.wraps(fn)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
+        from ._interrupt import say_interrupted
+        from .errors import os_error_text
+
         try:
             return fn(*args, **kwargs)
         except MaskprepError as exc:
             raise click.ClickException(str(exc)) from None
+        except OSError as exc:
+            raise click.ClickException(os_error_text(exc)) from None
+        except MemoryError:
+            raise click.ClickException("out of memory; lower --memory or --workers, or free "
+                                       "memory") from None
         except KeyboardInterrupt:
-            click.echo("interrupted; partial outputs were not renamed into place (use --resume where offered)",
-                       err=True)
+            say_interrupted()
             sys.exit(130)
 
     return wrapper

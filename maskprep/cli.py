@@ -513,8 +513,23 @@ def demo_cmd(ctx: click.Context, output: str, force: bool, where: bool) -> None:
 
 
 def main() -> None:
-    """Console-script entry point."""
-    cli(obj={})
+    """Console-script entry point: Ctrl-C exits 130 within 2 s (see `maskprep._interrupt`)."""
+    from . import _interrupt
+
+    _interrupt.install()
+    code: Any = 0
+    try:
+        cli(obj={})
+    except SystemExit as exc:
+        code = exc.code
+    except KeyboardInterrupt:  # outside a command (option parsing, start-up): nothing to clean
+        code = 130
+    if code is None:
+        code = 0
+    elif not isinstance(code, int):
+        sys.stderr.write(f"{code}\n")
+        code = 1
+    _interrupt.finish(code)
 
 
 if __name__ == "__main__":

@@ -16,3 +16,44 @@ class MaskprepError(Exception):
     Traceback (most recent call last):
     maskprep.errors.MaskprepError: corpus.txt: file not found
     """
+
+
+_ADVICE = {
+    "EACCES": "check the permissions, or choose another path",
+    "EPERM": "check the permissions, or choose another path",
+    "EROFS": "the filesystem is read-only; choose another path",
+    "ENOSPC": "no space left on the device; free space or write to a larger disk (finished tasks "
+              "are kept for --resume where offered)",
+    "EDQUOT": "the disk quota is used up; free space or write elsewhere",
+    "EFBIG": "the file is larger than this system allows (file size limit)",
+    "ENOTDIR": "a part of this path is a file, not a directory",
+    "EISDIR": "this is a directory; give a file",
+    "EEXIST": "a file is in the way",
+    "ENOENT": "no such file or directory",
+    "ELOOP": "a symbolic link loop (a link that points back to itself)",
+    "EMFILE": "too many open files; raise the limit (ulimit -n) or lower --workers",
+    "ENAMETOOLONG": "the file name is too long",
+}
+
+
+def os_error_text(exc: OSError, *, doing: str = "") -> str:
+    """One line for an OS error: the path, what went wrong, what to do.
+
+    >>> import errno, os
+    >>> os_error_text(PermissionError(errno.EACCES, os.strerror(errno.EACCES), "out/a.json"))
+    'out/a.json: permission denied (check the permissions, or choose another path)'
+    """
+    import errno as _errno
+
+    name = _errno.errorcode.get(exc.errno or 0, "")
+    reason = (exc.strerror or str(exc) or type(exc).__name__).rstrip(".")
+    reason = reason[:1].lower() + reason[1:]
+    advice = _ADVICE.get(name)
+    where = exc.filename if exc.filename is not None else ""
+    if exc.filename2 is not None:
+        where = f"{where} -> {exc.filename2}"
+    text = f"{where}: " if where else ""
+    text += f"{reason}{' while ' + doing if doing else ''}"
+    if advice and advice != reason:
+        text += f" ({advice})"
+    return text

@@ -40,10 +40,12 @@ directory).
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
 import signal
 import sys
+import threading
 import traceback
 import uuid
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
@@ -52,10 +54,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterator, Sequence
 
-from .errors import MaskprepError
+from .errors import MaskprepError, os_error_text
 from .progress import Progress
 
-__all__ = ["Executor", "default_workers", "map_tasks", "pool_running", "shutdown_pools", "DASK_INSTALL_HINT"]
+__all__ = ["Executor", "default_workers", "map_tasks", "pool_running", "shutdown_pools",
+           "kill_pools", "DASK_INSTALL_HINT"]
 
 DASK_INSTALL_HINT = "pip install 'maskprep[dask]' (or: pip install 'dask[distributed]')"
 _ONE_THREAD = {"RAYON_NUM_THREADS": "1", "TOKENIZERS_PARALLELISM": "false"}
@@ -95,6 +98,10 @@ def _call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
         return True, fn(*args)
     except MaskprepError as exc:
         return False, str(exc)
+    except OSError as exc:  # an OS error is the user's to fix: one line, no traceback
+        return False, os_error_text(exc)
+    except MemoryError:
+        return False, "out of memory (lower --memory or --workers, or free memory)"
     except Exception as exc:  # reported with the task's description by the driver
         return False, f"{type(exc).__name__}: {exc}\n{traceback.format_exc(limit=6)}"
 
@@ -203,17 +210,53 @@ def pool_running(workers: int) -> bool:
 
 
 def _drop_pool(workers: int, *, terminate: bool) -> None:
-    """Forget a pool; with `terminate`, stop its processes now (after Ctrl-C or a dead worker)."""
+    """Forget a pool; with `terminate`, kill its processes now (after Ctrl-C or a dead worker).
+
+    Futures are not cancelled when terminating: the pool's own thread then fails them, which it
+    cannot do to a cancelled future without an error (CPython 3.11).
+    """
     pool = _POOLS.pop(workers, None)
     if pool is None:
         return
     if terminate:
-        for proc in list((getattr(pool, "_processes", None) or {}).values()):
-            try:
-                proc.terminate()
-            except (OSError, AttributeError):  # pragma: no cover - already gone
-                pass
-    pool.shutdown(wait=not terminate, cancel_futures=True)
+        _kill(pool)
+    pool.shutdown(wait=not terminate, cancel_futures=not terminate)
+
+
+def _kill(pool: ProcessPoolExecutor) -> None:
+    for proc in list((getattr(pool, "_processes", None) or {}).values()):
+        try:
+            proc.kill()  # workers keep no state worth saving: tasks record their work atomically
+        except (OSError, AttributeError, ValueError):  # pragma: no cover - already gone
+            pass
+
+
+def kill_pools() -> None:
+    """Kill every kept worker process at once (Ctrl-C): ``kill_pools()``."""
+    for pool in list(_POOLS.values()):
+        _kill(pool)
+    _POOLS.clear()
+
+
+@contextlib.contextmanager
+def _workers_ignore_sigint() -> Iterator[None]:
+    """Start worker processes with Ctrl-C ignored from their first instruction.
+
+    A pool spawns its processes inside ``submit``. A spawned process inherits an ignored SIGINT
+    (not a handler), so for that moment the driver ignores it too, with the signal blocked so that
+    one arriving meanwhile stays pending and reaches the driver's own handler right after.
+    Without this a worker still importing maskprep would print a traceback on Ctrl-C.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    old_mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    old = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, old)
+        signal.pthread_sigmask(signal.SIG_SETMASK, old_mask)
 
 
 def shutdown_pools() -> None:
@@ -243,7 +286,8 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
         while emit < n:
             while nxt < n and len(futures) + len(done) < window:
                 try:
-                    futures[nxt] = pool.submit(_call_local, cwd, fn, args_list[nxt])
+                    with _workers_ignore_sigint():
+                        futures[nxt] = pool.submit(_call_local, cwd, fn, args_list[nxt])
                 except BrokenProcessPool:
                     raise died(nxt) from None
                 nxt += 1
@@ -261,9 +305,7 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
                     raise MaskprepError(f"{describe(i)}: {value}")
                 progress.advance(weights[i])
                 done[i] = value
-    except KeyboardInterrupt:
-        for f in futures.values():
-            f.cancel()
+    except KeyboardInterrupt:  # the caller kills the pool; cancelled futures would upset its thread
         raise
     except BaseException:  # a failed task, or the caller stopped early
         running = [f for f in futures.values() if not f.cancel()]
