@@ -55,11 +55,13 @@ def test_word_counts_match_the_tokenizers_own_pipeline(shakespeare_text_files: l
     # Reference: the `tokenizers` BERT normaliser and pre-tokenizer run on each whole document.
     # Counting chunks first must give exactly the same word counts.
     docs = [d for f in shakespeare_text_files[:2] for d in speeches(f)]
-    docs += ["Tab\there,\r\nCRLF; NBSP\u00a0inside; café naïve; 東京; vt\x0bjoined ff\x0cjoined"]
+    docs += ["Tab\there,\r\nCRLF; NBSP\u00a0inside; café naïve; 東京;",
+             "vt\x0bjoined ff\x0cjoined"]
     tok, _ = build_empty_tokenizer(TrainConfig(model="wordpiece", vocab_size=1000))
     expected: collections.Counter[str] = collections.Counter()
     for d in docs:
-        expected.update(w for w, _ in tok.pre_tokenizer.pre_tokenize_str(tok.normalizer.normalize_str(d)))
+        words = tok.pre_tokenizer.pre_tokenize_str(tok.normalizer.normalize_str(d))
+        expected.update(w for w, _ in words)
     assert word_counts(tok, chunk_counts(docs)) == expected
     assert expected["vtjoined"] == 1  # the normaliser removes the vertical tab, joining the words
 

@@ -93,7 +93,9 @@ def repeated(counts: collections.Counter[str], batch: int = 1000) -> Iterator[li
         yield out
 
 
-def train_wordpiece(tok: Any, texts: Iterable[str], specials: list[str], **trainer_args: Any) -> Any:
+def train_wordpiece(
+    tok: Any, texts: Iterable[str], specials: list[str], **trainer_args: Any
+) -> Any:
     """Train `tok` (a WordPiece tokenizer with a BERT normaliser) reproducibly; returns `tok`.
 
     `specials` take the first ids in their order; `trainer_args` go to `WordPieceTrainer`.
