@@ -15,6 +15,7 @@ from typing import Any
 import click
 
 from .errors import MaskprepError
+from .wording import plural
 
 from ._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, make_corpus_options, masking_options, \
     user_errors
@@ -247,7 +248,7 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
     parquet, tsv = write_units(vocab, output)
     if show_n:
         click.echo(format_top_units(vocab, per_length=show_n))
-    click.echo(f"wrote {parquet} ({len(vocab):,} units, measure {measure}) and {tsv}")
+    click.echo(f"wrote {parquet} ({plural(len(vocab), 'unit')}, measure {measure}) and {tsv}")
 
 
 # ---------------------------------------------------------------- mask / show / verify (shards engineer)
@@ -318,8 +319,9 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None,
     mix_ = stats["mix"]
     units_ = stats["unit_lengths"]
     kind = "dynamic (unmasked, with unit_ids)" if dynamic else "masked"
-    click.echo(f"wrote {stats['rows']:,} {kind} rows ({stats['sequences']:,} sequences x {copies} "
-               f"cop{'y' if copies == 1 else 'ies'}) in {manifest.totals['shards']} {fmt} shards to {output}")
+    click.echo(f"wrote {plural(stats['rows'], kind + ' row')} ({plural(stats['sequences'], 'sequence')} x "
+               f"{plural(copies, 'copy', 'copies')}) in {plural(manifest.totals['shards'], fmt + ' shard')} "
+               f"to {output}")
     click.echo(f"tokens {stats['tokens']:,} (maskable {stats['maskable_tokens']:,}); targets {stats['targets']:,} = "
                f"{_pct(rate_['corpus'])} of maskable tokens (asked {rate:g}; per sequence "
                f"{_pct(rate_['per_sequence_min'])} to {_pct(rate_['per_sequence_max'])}, median "
@@ -379,17 +381,17 @@ def verify_cmd(directory: str) -> None:
     if is_encoded_dir(directory):
         enc = verify_encoded(directory)
         faults, notes = enc.faults, []
-        ok = f"{enc.tasks} tasks, {enc.documents:,} documents, {enc.tokens:,} tokens"
+        ok = f"{plural(enc.tasks, 'task')}, {plural(enc.documents, 'document')}, {plural(enc.tokens, 'token')}"
     else:
         report = verify_shards(directory)
         faults, notes = report.faults, report.notes
-        ok = f"{report.shards} shards, {report.rows:,} rows"
+        ok = f"{plural(report.shards, 'shard')}, {plural(report.rows, 'row')}"
     for note in notes:
         click.echo(f"note: {note}", err=True)
     for fault in faults:
         click.echo(fault, err=True)
     if faults:
-        raise MaskprepError(f"{directory}: {len(faults)} fault(s); first: {faults[0]}")
+        raise MaskprepError(f"{directory}: {plural(len(faults), 'fault')}; first: {faults[0]}")
     click.echo(f"ok: {ok} in {directory} match {'encoded' if is_encoded_dir(directory) else 'manifest'}.json")
 
 
@@ -455,7 +457,7 @@ def _print_run(result: Any) -> None:
         click.echo("")
         click.echo(format_compare_table(result.compare))
     ran = sum(s.status == "ran" for s in result.stages)
-    click.echo(f"\n{ran} stage(s) ran, {len(result.stages) - ran} up to date; outputs in {result.output}"
+    click.echo(f"\n{plural(ran, 'stage')} ran, {len(result.stages) - ran} up to date; outputs in {result.output}"
                f" (summary: {result.output / 'pipeline.json'})")
 
 

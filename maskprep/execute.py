@@ -55,6 +55,7 @@ from pathlib import Path
 from typing import Any, Callable, Iterator, Sequence
 
 from .errors import MaskprepError, os_error_text
+from .wording import plural
 from .progress import Progress
 
 __all__ = ["Executor", "default_workers", "map_tasks", "pool_running", "shutdown_pools",
@@ -352,7 +353,7 @@ def _check_shared(client: Any, address: str, directory: str | Path) -> None:
         probe.unlink(missing_ok=True)
     blind = sorted(w for w, ok in seen.items() if not ok)
     if blind:
-        raise MaskprepError(f"--dask {address}: {len(blind)} of {len(seen)} workers cannot see {where} "
+        raise MaskprepError(f"--dask {address}: {len(blind)} of {plural(len(seen), 'worker')} cannot see {where} "
                             f"(first: {blind[0]}); the corpus and the output directory must be on a filesystem "
                             "shared by this machine and every worker, at the same path")
 

@@ -3,6 +3,11 @@
 One small reporter used by every long stage. It writes at most a few lines per
 second, to stderr only, and nothing at all when quiet. It never touches stdout,
 so command output stays clean for pipes.
+
+A total is often an estimate (bytes on disk for text that decodes to more or
+fewer bytes). The figures shown stay true: a count that passes its total
+raises the total with it, and a stage that ends normally ends on its done
+figure, so a line never reads "(1.32M/1.31M ...)".
 """
 
 from __future__ import annotations
@@ -29,8 +34,8 @@ class Progress:
     def __enter__(self) -> "Progress":
         return self
 
-    def __exit__(self, *exc: object) -> None:
-        self.finish()
+    def __exit__(self, exc_type: object, *exc: object) -> None:
+        self.finish(complete=exc_type is None)
 
     def advance(self, amount: float = 1.0) -> None:
         self.done += amount
@@ -39,7 +44,10 @@ class Progress:
             self._last = now
             self._write(final=False)
 
-    def finish(self) -> None:
+    def finish(self, *, complete: bool = True) -> None:
+        """Write the last line; a complete stage ends at 100% of what it did (total := done)."""
+        if self.total is not None and complete and self.done > 0:
+            self.total = self.done
         if not self.quiet:
             self._write(final=True)
             self.quiet = True  # finish once
@@ -47,7 +55,8 @@ class Progress:
     def _write(self, *, final: bool) -> None:
         elapsed = time.monotonic() - self._start
         if self.total:
-            share = min(self.done / self.total, 1.0)
+            self.total = max(self.total, self.done)  # an estimate that fell short grows with the count
+            share = self.done / self.total
             msg = f"{self.label}: {share:6.1%} ({_fmt(self.done)}/{_fmt(self.total)} {self.unit})"
         else:
             msg = f"{self.label}: {_fmt(self.done)} {self.unit}"

@@ -99,7 +99,7 @@ def test_first_run_runs_every_stage_and_writes_their_outputs(first_run):
     for d in ("tokenizer", "encoded", "audit", "counts", "units", "mask/token", "mask/pmi", "compare"):
         rec = json.loads((out / d / STAGE_FILE).read_text())
         assert len(rec["fingerprint"]) == 64 and rec["files"]
-    assert "8 stage(s) ran, 0 up to date" in output
+    assert "8 stages ran, 0 up to date" in output
     # The corpus is tokenized once: the later stages read OUT/encoded/ (their fingerprints cover it).
     assert (out / "encoded" / "encoded.json").is_file()
     for d in ("counts", "mask/token", "compare"):
@@ -115,7 +115,7 @@ def test_second_run_skips_every_stage(copy_of_run):
     r = run(config, out)
     assert r.exit_code == 0, r.output
     assert statuses(out) == {name: "skipped" for name in ALL}
-    assert "0 stage(s) ran, 8 up to date" in r.output
+    assert "0 stages ran, 8 up to date" in r.output
 
 
 @pytest.mark.parametrize("key,line,rerun", [
@@ -251,4 +251,4 @@ def test_demo_runs_in_time_and_its_shards_verify(tmp_path):
         for key in ("targets", "masking_rate", "within_word_leakage", "multiword_share"):
             assert cmp["strategies"][strategy][key] == stats[key]
     again = CliRunner().invoke(cli, ["--quiet", "--workers", "2", "demo", "-o", str(out)])
-    assert again.exit_code == 0 and "0 stage(s) ran" in again.output
+    assert again.exit_code == 0 and "0 stages ran" in again.output

@@ -33,7 +33,8 @@ from .._files import atomic_write_json
 from ..progress import Progress
 from ..report.html import write_page
 from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType,
-                                  save_tokenizer, tokenizer_from_json, unique_rows)
+                                  save_tokenizer, tokenizer_from_json, unique_rows,
+                                  warn_literal_specials)
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
 from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
@@ -206,6 +207,7 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
     _flush(table, pending)
     if stats.documents == 0:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
+    warn_literal_specials(info, stats.literal_specials, ", ".join(corpus))
     forms = [words[k] for k in sorted(words)]  # in an order that does not depend on the tasks
     tokens_total, unk_total, cont_total = totals
     return _summarise(info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types, forms)

@@ -32,6 +32,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from ..errors import MaskprepError
+from ..wording import plural
 from ..encoded.source import SourceTask
 from ..masking.sampler import MaskingConfig, MixPer, Strategy
 from ..packing import PackedBatch, PackingConfig
@@ -295,6 +296,9 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     sequences = sum(res["sequences"] for res in results)
     if sequences == 0:
         raise MaskprepError(f"{', '.join(map(str, corpus))}: corpus is empty (no non-empty documents)")
+    from ..tokenizer.encoding import warn_literal_specials
+
+    warn_literal_specials(info, read.literal_specials, ", ".join(map(str, corpus)))
     examples = sorted(examples, key=lambda e: not e["rich"])[:config.examples]  # stable: task order kept
 
     figures = {}
@@ -375,7 +379,7 @@ def format_compare_table(doc: dict[str, Any]) -> str:
         if j == 0:
             lines.append("  ".join("-" * w for w in widths))
     s = doc["sample"]
-    lines.append(f"\n{s['sequences']:,} sequences of {doc['options']['seq_len']} tokens, seed {doc['options']['seed']}"
+    lines.append(f"\n{plural(s['sequences'], 'sequence')} of {doc['options']['seq_len']} tokens, seed {doc['options']['seed']}"
                  f", asked rate {doc['options']['rate']:g} of maskable tokens")
     for name, why in doc["skipped"].items():
         lines.append(f"{name}: {why}")

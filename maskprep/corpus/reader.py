@@ -25,9 +25,9 @@ import io
 import json
 import os
 import zlib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import IO, Iterator, cast
+from typing import IO, Any, Iterator, cast
 
 from ..errors import MaskprepError
 
@@ -90,16 +90,27 @@ class ReadStats:
     empty_skipped: int = 0
     invalid_utf8: int = 0   # documents (lines) in which invalid bytes were replaced
     bytes_read: int = 0
+    # literal special-token strings of the text ("[MASK]") that the tokenizer read as special
+    # tokens, by string; filled by `encode_stream(..., stats=)`
+    literal_specials: dict[str, int] = field(default_factory=dict)
 
     def merge(self, other: "ReadStats") -> None:
         self.documents += other.documents
         self.empty_skipped += other.empty_skipped
         self.invalid_utf8 += other.invalid_utf8
         self.bytes_read += other.bytes_read
+        for s, n in other.literal_specials.items():
+            self.literal_specials[s] = self.literal_specials.get(s, 0) + n
 
-    def to_dict(self) -> dict[str, int]:
+    def to_dict(self) -> dict[str, Any]:
         return {"documents": self.documents, "empty_skipped": self.empty_skipped,
-                "invalid_utf8_replaced": self.invalid_utf8, "bytes_read": self.bytes_read}
+                "invalid_utf8_replaced": self.invalid_utf8, "bytes_read": self.bytes_read,
+                "literal_special_tokens": dict(sorted(self.literal_specials.items()))}
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> "ReadStats":
+        return cls(int(d["documents"]), int(d["empty_skipped"]), int(d["invalid_utf8_replaced"]),
+                   int(d["bytes_read"]), {str(k): int(v) for k, v in d.get("literal_special_tokens", {}).items()})
 
 
 def detect_format(path: str | Path) -> tuple[str, str | None] | None:

@@ -44,11 +44,12 @@ from .._version import __version__
 from ..corpus.reader import CorpusOptions, corpus_fingerprint
 from ..encoded.source import open_source
 from ..errors import MaskprepError
+from ..wording import plural
 from ..execute import Executor, map_tasks, pool_running
 from .._files import fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
-from ..tokenizer.encoding import TokenizerInfo
+from ..tokenizer.encoding import TokenizerInfo, warn_literal_specials
 
 from .types import FORMAT_VERSION, MAX_N, MIN_TASK_MEMORY, POOL_ROWS, TASK_BYTES, CountConfig, CountSummary, \
     TaskCounts, parse_memory
@@ -187,12 +188,17 @@ def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Pat
                    executor=_for_rows(executor, 2 * sum(kept)), label="write",
                    describe=lambda i: f"ngrams-{order[i]}.parquet"))
     documents = sum(r.documents for r in results)
+    literal: dict[str, int] = {}
+    for r in results:
+        for s, k in r.literal_specials.items():
+            literal[s] = literal.get(s, 0) + k
+    warn_literal_specials(info, literal, ", ".join(str(f) for f in files))
     meta = {
         "format_version": FORMAT_VERSION, "N": totals[0], "max_n": max_n, "min_count": config.min_count,
         "totals": {str(n): totals[n - 1] for n in range(1, max_n + 1)},
         "distinct": {str(n): distinct[n - 1] for n in range(1, max_n + 1)},
         "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
-        "documents": documents,
+        "documents": documents, "literal_special_tokens": dict(sorted(literal.items())),
         "tokenizer_hash": info.hash, "tokenizer_name": info.name,
         "corpus_fingerprint": fingerprint or corpus_fingerprint(files, corpus_options),
         "corpus_files": [str(f) for f in files],
@@ -221,8 +227,9 @@ def format_summary(summary: CountSummary) -> str:
 
     >>> print(format_summary(summary))  # doctest: +SKIP
     """
-    lines = [f"counted N = {summary.N:,} word positions in {summary.documents:,} documents "
-             f"({summary.tasks} tasks, {summary.spill_runs} sorted runs spilled, {summary.seconds:.1f}s)",
+    lines = [f"counted N = {plural(summary.N, 'word position')} in {plural(summary.documents, 'document')} "
+             f"({plural(summary.tasks, 'task')}, {plural(summary.spill_runs, 'sorted run')} spilled, "
+             f"{summary.seconds:.1f}s)",
              f"{'n':>3}  {'occurrences':>14}  {'distinct':>12}  {'kept (count >= ' + str(summary.min_count) + ')':>20}"]
     for n in range(1, summary.max_n + 1):
         lines.append(f"{n:>3}  {summary.totals[n]:>14,}  {summary.distinct[n]:>12,}  {summary.kept[n]:>20,}")

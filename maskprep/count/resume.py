@@ -180,6 +180,7 @@ def count_recorded(task: Any, tokenizer_json: str, config: Any, state_dir: str, 
     record = {"state_version": STATE_VERSION, "run": digest, "task": result.task_index,
               "totals": list(result.totals), "words": result.words, "flushes": result.flushes,
               "documents": result.documents, "words_file": file_entry(root, result.words_path),
+              "literal_specials": dict(sorted(result.literal_specials.items())),
               "runs": [{**file_entry(root, r.path), "n": r.n, "rows": r.rows,
                         "offsets": np.asarray(r.offsets, np.int64).tolist()} for r in result.runs]}
     write_record(root / COUNT_STAGE_RECORD.format(task.index), record)
@@ -193,6 +194,7 @@ def _result_of(root: Path, rec: Mapping[str, Any]) -> Any:
                 for r in rec["runs"]]
         return TaskCounts(task_index=int(rec["task"]), runs=runs, totals=[int(x) for x in rec["totals"]],
                            words_path=str(root / rec["words_file"]["file"]), words=int(rec["words"]),
-                           flushes=int(rec["flushes"]), documents=int(rec["documents"]))
+                           flushes=int(rec["flushes"]), documents=int(rec["documents"]),
+                           literal_specials={str(k): int(v) for k, v in rec.get("literal_specials", {}).items()})
     except (KeyError, TypeError, ValueError):
         return None

@@ -211,7 +211,9 @@ def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill
             counter.add_word_table(table)
         for batch in reader:
             counter.add(batch)
-        return counter.finish(task_index=task.index, documents=reader.consumed.documents)
+        result = counter.finish(task_index=task.index, documents=reader.consumed.documents)
+        result.literal_specials.update(reader.consumed.literal_specials)
+        return result
     except BaseException:
         counter.abort()
         raise

@@ -86,6 +86,7 @@ class TaskCounts:
     words: int
     flushes: int
     documents: int
+    literal_specials: dict[str, int] = field(default_factory=dict)  # special-token strings in the text
 
 
 @dataclass(frozen=True)

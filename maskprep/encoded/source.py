@@ -30,7 +30,8 @@ from typing import Any, Iterator, Sequence
 from ..corpus.reader import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, iter_batches, plan_tasks, \
     resolve_inputs, task_weights
 from ..errors import MaskprepError
-from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer
+from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
+    tally_literal_specials
 from .format import BATCH_CHARS, MANIFEST, EncodedManifest, EncodedTask, WordTable, is_encoded_dir, \
     is_unfinished_encoded_dir, iter_encoded, read_word_table
 
@@ -53,8 +54,7 @@ class SourceTask:
 
 def read_stats_of(doc: dict[str, int] | Any) -> ReadStats:
     """`ReadStats` from its `to_dict()` form."""
-    return ReadStats(int(doc["documents"]), int(doc["empty_skipped"]), int(doc["invalid_utf8_replaced"]),
-                     int(doc["bytes_read"]))
+    return ReadStats.from_dict(doc)
 
 
 @dataclass(frozen=True)
@@ -174,11 +174,16 @@ class TaskReader:
         return self._table
 
     def __iter__(self) -> Iterator[EncodedBatch]:
+        literal: dict[str, int] = {}  # special-token strings met in the text, for the warning
         if self.task.encoded is not None:
-            yield from self._encoded(self.task.encoded)
+            batches = self._encoded(self.task.encoded)
         else:
             assert self.task.raw is not None
-            yield from self._raw(self.task.raw)
+            batches = self._raw(self.task.raw)
+        for batch in batches:
+            tally_literal_specials(self.info, batch, literal)
+            yield batch
+        self.consumed.literal_specials = literal
 
     def _encoded(self, task: EncodedTask) -> Iterator[EncodedBatch]:
         deltas = list(task.batches)

@@ -60,6 +60,13 @@ _TYPE_NAMES = {list: "a list", str: "a string", int: "a whole number", float: "a
                dict: "a table"}
 
 
+def _type_names(types: tuple[type, ...]) -> str:
+    """What a key takes, in words: (float, int) is "a number", not "a number or a whole number"."""
+    if float in types:
+        types = tuple(t for t in types if t is not int)
+    return " or ".join(_TYPE_NAMES[t] for t in types)
+
+
 @dataclass(frozen=True)
 class RunConfig:
     """A checked pipeline file: every stage's options, paths made absolute.
@@ -140,7 +147,7 @@ class _Checker:
                 raise self.fail(section, key, f"unknown key; [{section}] takes {', '.join(allowed)}")
             types = allowed[key]
             if isinstance(v, bool) and bool not in types or not isinstance(v, types):
-                names = " or ".join(_TYPE_NAMES[t] for t in types)
+                names = _type_names(types)
                 raise self.fail(section, key, f"must be {names}, got {_shown(v)}")
         return dict(value)
 

@@ -21,7 +21,9 @@ package's source files), plus the files it wrote. A stage whose fingerprint is
 unchanged and whose files are all present is skipped; otherwise its directory
 is replaced. A changed option therefore reruns that stage and the stages that
 use its output or inherit the option (e.g. [mask] rate also reaches compare),
-nothing else. ``force=True`` reruns everything.
+nothing else. ``force=True`` reruns everything. pipeline.json lists every stage
+with its time: this run's for a stage that ran, and for a skipped one the time
+it took when it last ran, marked ``"seconds_from": "an earlier run (skipped now)"``.
 
 `run_demo` runs ``demo.toml`` of the bundled sample corpus (`sample_corpus_dir`).
 This module computes nothing itself; it calls each stage's library function.
@@ -56,9 +58,18 @@ class StageResult:
 
     name: str
     status: str  # "ran" or "skipped"
-    seconds: float
+    seconds: float  # this run's; 0.0 when skipped
     output: Path
     fingerprint: str
+    earlier_seconds: float | None = None  # a skipped stage: its time when it last ran (if recorded)
+
+    def timing(self) -> dict[str, Any]:
+        """The stage's time for pipeline.json, saying which run it comes from."""
+        if self.status == "ran":
+            return {"seconds": round(self.seconds, 3), "seconds_from": "this run"}
+        if self.earlier_seconds is None:
+            return {"seconds": None, "seconds_from": "not recorded"}
+        return {"seconds": round(self.earlier_seconds, 3), "seconds_from": "an earlier run (skipped now)"}
 
 
 @dataclass(frozen=True)
@@ -137,7 +148,9 @@ class _Runner:
             except (OSError, ValueError):
                 old = {}
             if old.get("fingerprint") == fp and all((d / f).exists() for f in old.get("files", ["?"])):
-                result = StageResult(name, "skipped", 0.0, d, fp)
+                earlier = old.get("seconds")
+                result = StageResult(name, "skipped", 0.0, d, fp,
+                                     float(earlier) if isinstance(earlier, (int, float)) else None)
                 self._log(result)
                 self.results.append(result)
                 return result
@@ -152,7 +165,8 @@ class _Runner:
         files = sorted(run(d))
         seconds = time.monotonic() - start
         write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
-                                   "inputs": inputs, "code": code_version(), "files": files})
+                                   "inputs": inputs, "code": code_version(), "files": files,
+                                   "seconds": round(seconds, 3)})
         result = StageResult(name, "ran", seconds, d, fp)
         self._log(result)
         self.results.append(result)
@@ -328,7 +342,7 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
     write_json(out / RUN_FILE, {
         "format": "maskprep-run", "config": str(cfg.path), "code": code_version(),
         "stages": [{"name": s.name, "status": s.status, "output": str(s.output.relative_to(out)),
-                    "fingerprint": s.fingerprint} for s in result.stages]})
+                    "fingerprint": s.fingerprint, **s.timing()} for s in result.stages]})
     return result
 
 

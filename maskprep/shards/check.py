@@ -35,6 +35,7 @@ from typing import Any, Iterator
 import numpy as np
 
 from ..errors import MaskprepError
+from ..wording import plural
 from .._files import read_json
 from ..masking.sampler import IGNORE_LABEL
 from .layout import META_DIR, METADATA_KEY, ShardRecord
@@ -317,7 +318,7 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     tokenizer = load_tokenizer(tok_path).tokenizer
     mask_id = int(ss.manifest.tokenizer["mask_token_id"])
     o = ss.options
-    lines = [f"{ss.directory}: {len(ss)} rows, strategy {o['strategy']}, rate {o['rate']}, mix "
+    lines = [f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, rate {o['rate']}, mix "
              f"{'/'.join(str(x) for x in o['mix'])}, seed {o['seed']}, "
              + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static"),
              ("masked runs in colour" if color else "{...} a masked run")
@@ -340,7 +341,8 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
                 seq = int(batch["sequence_id"][r])
                 lines.append("")
                 lines.append(f"{record.file} row {row_in_file + r}: sequence {seq >> 32}:{seq & 0xFFFFFFFF}, copy "
-                             f"{record.copy}, {length} tokens, {sum(target)} targets in {len(runs)} runs"
+                             f"{record.copy}, {plural(length, 'token')}, {plural(sum(target), 'target')} in "
+                             f"{plural(len(runs), 'run')}"
                              + (f", {masked.shape[1] - length} padding" if length < masked.shape[1] else ""))
                 random = [t and s != mask_id and s != o for t, s, o in zip(target, shown_ids, orig_ids)]
                 in_context = _pieces(tokenizer, shown_ids)

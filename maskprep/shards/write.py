@@ -331,6 +331,7 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
     from ..corpus.reader import ReadStats
     from ..encoded.source import read_stats_of
     from ..execute import map_tasks
+    from ..tokenizer.encoding import warn_literal_specials
 
     mask_id, cls_id, sep_id, pad_id = ids
     shards, packing = job_args["shards"], job_args["packing"]
@@ -365,6 +366,7 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
         stats.merge(MaskStats.from_state(rec["stats"]))
         read.merge(read_stats_of(rec["read"]))
         records.extend(ShardRecord(**s) for s in rec["shards"])
+    warn_literal_specials(info, read.literal_specials, ", ".join(str(f) for f in files))
     totals = {"shards": len(records), "rows": stats.rows, "sequences": stats.sequences, "tokens": stats.tokens,
               "maskable": stats.maskable, "targets": stats.targets}
     manifest = ShardManifest(

@@ -225,16 +225,63 @@ def set_encode_ahead(enabled: bool) -> None:
     os.environ[ENCODE_AHEAD_ENV] = "1" if enabled else "0"
 
 
-def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator[EncodedBatch]:
+def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]], *,
+                  stats: Any = None) -> Iterator[EncodedBatch]:
     """Encode batches of documents, encoding the next batch while this one is grouped.
 
     The tokenizer releases the GIL while it encodes, so one batch of look-ahead
     in a helper thread overlaps its work with the numpy grouping here (unless
     `set_encode_ahead(False)`, or this process may use only one core).
 
+    With `stats` (a `ReadStats`), literal special-token strings met in the text
+    ("[MASK]" written in a document, which the tokenizer reads as the special
+    token) are counted by string in ``stats.literal_specials``.
+
     >>> sum(b.num_words for b in encode_stream(info, iter_batches(task)))  # doctest: +SKIP
     120345
     """
+    for batch in _encode_ahead(info, batches):
+        if stats is not None:
+            tally_literal_specials(info, batch, stats.literal_specials)
+        yield batch
+
+
+def tally_literal_specials(info: TokenizerInfo, batch: EncodedBatch, into: dict[str, int]) -> None:
+    """Add the batch's special-token words (all literal: no specials are added when encoding) to `into`."""
+    special = batch.word_kinds == SPECIAL
+    if not special.any():
+        return
+    ids, counts = np.unique(batch.ids[batch.word_offsets[:-1][special]], return_counts=True)
+    for i, n in zip(ids.tolist(), counts.tolist()):
+        s = info.tokenizer.id_to_token(int(i))
+        into[s] = into.get(s, 0) + int(n)
+
+
+_WARNED: set[tuple[str, ...]] = set()
+
+
+def warn_literal_specials(info: TokenizerInfo, counts: dict[str, int], corpus: str) -> None:
+    """One line on stderr if the corpus text held special-token strings; once per process for
+    the same special tokens (a pipeline reads the corpus several times)."""
+    if not counts:
+        return
+    key = tuple(sorted(t.content for t in info.tokenizer.get_added_tokens_decoder().values() if t.special))
+    if key in _WARNED:
+        return
+    _WARNED.add(key)
+    import sys
+
+    total = sum(counts.values())
+    each = ", ".join(f"{s} x{n:,}" for s, n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0])))
+    sys.stderr.write(
+        f"warning: {corpus}: the text holds {total:,} literal special-token "
+        f"string{'' if total == 1 else 's'} ({each}); tokenizer {info.name} reads each as its special "
+        "token (never counted or masked as a word). Remove or escape them in the corpus if they "
+        "are meant as text.\n")
+    sys.stderr.flush()
+
+
+def _encode_ahead(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator[EncodedBatch]:
     from concurrent.futures import ThreadPoolExecutor
 
     def raw(texts: list[str]) -> list[Any]:

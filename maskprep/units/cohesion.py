@@ -52,6 +52,7 @@ from typing import Mapping, Union
 import numpy as np
 
 from ..errors import MaskprepError
+from ..wording import plural
 
 __all__ = ["Measure", "CountTable", "NgramIndex", "score_ngrams", "score_with_split_pmi", "binary_split_pmi",
            "MAX_N"]
@@ -195,7 +196,8 @@ class CountTable:
         missing = rows < 0
         if missing.any():
             raise MaskprepError(
-                f"corrupt counts: {int(missing.sum())} {what}(s) of length {self.k} are missing from "
+                f"corrupt counts: {plural(int(missing.sum()), what)} of length {self.k} "
+                f"{'is' if int(missing.sum()) == 1 else 'are'} missing from "
                 f"the {self.k}-gram counts although a longer n-gram containing them was kept; "
                 "re-run maskprep count with one --min-count for every n")
         return self.counts[rows]
@@ -220,7 +222,8 @@ _CACHE_ENTRIES = 1 << 17
 
 def _missing(k: int, count: int) -> MaskprepError:
     return MaskprepError(
-        f"corrupt counts: {count} part(s) of length {k} are missing from the {k}-gram counts although a "
+        f"corrupt counts: {plural(count, 'part')} of length {k} {'is' if count == 1 else 'are'} missing "
+        f"from the {k}-gram counts although a "
         "longer n-gram containing them was kept; re-run maskprep count with one --min-count for every n")
 
 

@@ -24,6 +24,7 @@ import numpy as np
 from .._version import __version__
 from .cohesion import Measure
 from ..errors import MaskprepError
+from ..wording import plural
 from .._files import atomic_path
 from .select import UnitVocabulary
 
@@ -157,7 +158,7 @@ def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
     unit = " in nats" if vocab.measure in (Measure.PMI, Measure.PMI_NAIVE) else ""
     n = np.asarray(vocab.n, dtype=np.int64)
     lengths = np.unique(n).tolist()
-    head = (f"{len(vocab)} units by {vocab.measure.value} (range {vocab.measure.range_text}), "
+    head = (f"{plural(len(vocab), 'unit')} by {vocab.measure.value} (range {vocab.measure.range_text}), "
             + ", ".join(f"{int((n == k).sum())} of {k} words" for k in lengths))
     if not len(vocab):
         return f"0 units by {vocab.measure.value}: no n-gram passed the filters (count, positive association)"
@@ -180,10 +181,11 @@ def _filters_line(vocab: UnitVocabulary) -> str:
     parts = []
     if k > 0:
         shown = ", ".join(words[:12]) + (", ..." if len(words) > 12 else "")
-        parts.append(f"{int(src.get('dropped_edge', 0)):,} candidates began or ended with one of the {len(words)} "
-                     f"most frequent words ({shown})")
+        parts.append(f"{plural(int(src.get('dropped_edge', 0)), 'candidate')} began or ended with one of "
+                     f"the {plural(len(words), 'most frequent word')} ({shown})")
     if share > 0:
-        parts.append(f"{int(src.get('dropped_fragment', 0)):,} were fragments (one n-gram a word longer holds "
+        frags = int(src.get("dropped_fragment", 0))
+        parts.append(f"{frags:,} {'was a fragment' if frags == 1 else 'were fragments'} (one n-gram a word longer holds "
                      f">= {share:g} of their occurrences)")
     if not parts:
         return "filters: none (--edge-words 0 --fragment-share 0)"

@@ -38,6 +38,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..errors import MaskprepError
+from ..wording import plural
 
 __all__ = ["word_splitting", "retarget_units", "unit_token_ids"]
 
@@ -193,11 +194,11 @@ def _words_differ(path: Any, vocab: Any, info: Any, bad: np.ndarray) -> str:
             ]
             examples.append(f"{', '.join(pairs)} (in {text!r})")
         else:
-            examples.append(f"{text!r} reads as {len(now)} word(s) {' | '.join(now)!r}")
+            examples.append(f"{text!r} reads as {plural(len(now), 'word')} {' | '.join(now)!r}")
     more = f" and {len(bad) - 4:,} more" if len(bad) > 4 else ""
     return (
         f"--units {path}: the words are split the same way, but this tokenizer reads the "
-        f"words of {len(bad):,} of the {len(vocab):,} units differently from the tokenizer that "
+        f"words of {len(bad):,} of the {plural(len(vocab), 'unit')} differently from the tokenizer that "
         f"built them: {'; '.join(examples)}{more}; rebuild the units with maskprep count and "
         "maskprep units using this tokenizer"
     )

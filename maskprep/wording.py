@@ -1,0 +1,24 @@
+"""Counts in words for messages: ``plural(1, "task")`` is "1 task", ``plural(3, "task")`` "3 tasks".
+
+One helper so every line the user reads says "1 shard" and "2 shards", never
+"1 shards". Numbers get thousands separators; irregular plurals are given.
+"""
+
+from __future__ import annotations
+
+__all__ = ["plural"]
+
+
+def plural(n: int | float, noun: str, many: str | None = None) -> str:
+    """``n`` and the noun, singular for exactly one.
+
+    >>> plural(1, "arrow shard"), plural(2, "arrow shard"), plural(1_234, "row")
+    ('1 arrow shard', '2 arrow shards', '1,234 rows')
+    >>> plural(1, "copy", "copies"), plural(0, "copy", "copies")
+    ('1 copy', '0 copies')
+    """
+    word = noun if n == 1 else (many if many is not None else noun + "s")
+    number = f"{n:,}" if isinstance(n, int) or float(n).is_integer() else f"{n:,.2f}"
+    if not isinstance(n, int) and float(n).is_integer():
+        number = f"{int(n):,}"
+    return f"{number} {word}"
