@@ -19,6 +19,7 @@ from click.testing import CliRunner
 from maskprep.audit.measure import audit_tokenizer
 from maskprep.cli import cli
 from maskprep.progress import Progress
+from maskprep.shards.layout import metadata_path
 from maskprep.tokenizer.encoding import _WARNED, load_tokenizer
 from maskprep.wording import plural
 
@@ -115,7 +116,7 @@ def test_verify_and_show_name_a_missing_directory(tmp_path: Path) -> None:
     empty = tmp_path / "empty"
     empty.mkdir()
     r = _invoke("verify", str(empty))
-    assert r.exit_code == 1 and "no manifest.json" in r.output
+    assert r.exit_code == 1 and "manifest.json; not a finished shards directory" in r.output
 
 
 # ---------------------------------------------------------------- stage times in pipeline.json
@@ -165,7 +166,7 @@ def test_literal_special_tokens_are_reported_once(tmp_path: Path, small_wordpiec
         r = CliRunner().invoke(cli, ["--quiet", "--workers", "2", *args])
         assert r.exit_code == 0, r.output
         assert r.stderr.splitlines() == [warning], (args[0], r.stderr)
-    manifest = json.loads((tmp_path / "m" / "manifest.json").read_text())
+    manifest = json.loads(metadata_path(tmp_path / "m", "manifest.json").read_text())
     assert manifest["corpus"]["literal_special_tokens"] == {"[CLS]": 1, "[MASK]": 3}
     counts = json.loads((tmp_path / "c" / "counts.json").read_text())
     assert counts["literal_special_tokens"] == {"[CLS]": 1, "[MASK]": 3}
