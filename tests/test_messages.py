@@ -131,7 +131,7 @@ def test_pipeline_json_keeps_the_times_of_skipped_stages(tmp_path: Path, shakesp
     assert {s["seconds_from"] for s in first.values()} == {"this run"}
     assert all(s["seconds"] > 0 for s in first.values())
     r = _invoke("--quiet", "--workers", "1", "run", str(cfg), "-o", str(out))
-    assert r.exit_code == 0 and "0 stages ran, 2 up to date" in r.stdout
+    assert r.exit_code == 0 and re.search(r"\n0 stages ran, \d+ up to date", r.stdout), r.stdout
     again = {s["name"]: s for s in json.loads((out / "pipeline.json").read_text())["stages"]}
     for name, s in again.items():
         assert s["status"] == "skipped"
