@@ -12,6 +12,8 @@ figures and same-run ratios:
   mask     `mask` end to end vs the bare batch-encode pass (>= 0.5x)
   workers  --workers 2 vs --workers 1 for count and mask (>= 1.6x on 2 cores),
            and Dask LocalCluster overhead vs the local pool
+  encoded  encode, and count / mask / compare on an encoded directory, vs one bare
+           encode_batch_fast pass (<= 1.4x; <= 0.4x each; whole run <= 3x), peak memory
   loader   ShardLoader (shuffle, world_size 2) vs pyarrow reading the same files (>= 0.8x),
            and its peak heap against the shuffle buffer it states
 
@@ -36,6 +38,7 @@ SECTIONS = {
     "mask": ("bench_mask.py", [], ["--quick"]),
     "workers": ("bench_workers.py", [], ["--quick"]),
     "loader": ("bench_loader.py", ["--rounds", "5"], ["--quick"]),
+    "encoded": ("bench_encoded.py", ["--flat", "10,200"], ["--quick"]),
 }
 
 

@@ -68,7 +68,7 @@ def _api_faults(path: Path) -> list[str]:
 def test_bench_scripts_are_found() -> None:
     names = {p.name for p in BENCH}
     assert {"bench.py", "bench_audit.py", "bench_counting.py", "bench_mask.py", "bench_masking.py",
-            "bench_workers.py", "bench_loader.py", "units_frequent_words.py", "tokenizer_quality.py", "_benchlib.py"} <= names
+            "bench_workers.py", "bench_loader.py", "units_frequent_words.py", "tokenizer_quality.py", "_benchlib.py", "bench_encoded.py"} <= names
 
 
 @pytest.mark.parametrize("path", BENCH, ids=lambda p: p.name)
@@ -119,6 +119,7 @@ QUICK = {
     "tokenizer_quality.py": (["--lines", "1500"], "unigram-2000", False),
     "bench_counting.py": (["--lines", "2000", "--speed-mb", "1", "--sizes", "1,2", "--vocab-size", "4000"],
                           "same counts for every kept n-gram: True", True),
+    "bench_encoded.py": ([], "peak memory on the encoded directory", True),
     "bench_workers.py": (["--copies", "1", "--lines", "1000", "--files", "2", "--vocab-size", "2000"],
                          "outputs identical across set-ups: yes", True),
 }

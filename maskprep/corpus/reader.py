@@ -8,7 +8,8 @@ text files are read line by line, Parquet by row group, Arrow by record batch.
 
 Inputs are split into `CorpusTask`s (a whole file, a byte range aligned to line
 boundaries, or a range of row groups) so that later stages can work on them in
-parallel. The split depends only on the files and `chunk_bytes`, never on the
+parallel. The split depends only on the files and `chunk_bytes` (by default
+chosen from the corpus size, `task_size`), never on the
 number of workers, and tasks are numbered in corpus order.
 
 What it does not do: tokenize, deduplicate or clean text. Invalid UTF-8 is
@@ -50,12 +51,12 @@ class CorpusOptions:
     text_field: str = "text"       # JSONL field holding the text
     text_column: str = "text"      # Parquet / Arrow column holding the text
     strict: bool = False           # invalid UTF-8 is an error instead of being replaced
-    chunk_bytes: int = 64 << 20    # uncompressed text files are split into ranges of about this size
+    chunk_bytes: int | None = None  # task size (see `task_size`); None: chosen from the corpus size
 
     def __post_init__(self) -> None:
         if self.doc_sep not in ("line", "blank"):
             raise MaskprepError(f"--doc-sep: expected 'line' or 'blank', got {self.doc_sep!r}")
-        if self.chunk_bytes < 1024:
+        if self.chunk_bytes is not None and self.chunk_bytes < 1024:
             raise MaskprepError(f"chunk size {self.chunk_bytes} bytes is too small; use at least 1024")
 
 
@@ -173,6 +174,28 @@ def resolve_inputs(inputs: list[str] | tuple[str, ...]) -> list[Path]:
     return unique
 
 
+MIN_TASK_BYTES = 1 << 20
+MAX_TASK_BYTES = 64 << 20
+TASKS_WANTED = 32
+
+
+def task_size(files: list[Path], options: CorpusOptions = CorpusOptions()) -> int:
+    """Bytes per task: `options.chunk_bytes`, or else the power of two nearest below 1/32 of the corpus's
+    bytes on disk, from 1 MiB to 64 MiB, so a corpus makes enough tasks to keep every core busy to the end
+    (the split depends on the files only, never on the number of workers).
+
+    >>> task_size([]) >> 20
+    1
+    """
+    if options.chunk_bytes is not None:
+        return options.chunk_bytes
+    total = sum(os.path.getsize(f) for f in files)
+    size = MIN_TASK_BYTES
+    while size * 2 <= min(total / TASKS_WANTED, MAX_TASK_BYTES):
+        size *= 2
+    return size
+
+
 def plan_tasks(files: list[Path], options: CorpusOptions = CorpusOptions()) -> list[CorpusTask]:
     """Split corpus files into tasks, in corpus order, independent of worker count.
 
@@ -180,6 +203,7 @@ def plan_tasks(files: list[Path], options: CorpusOptions = CorpusOptions()) -> l
     ['a.txt']
     """
     tasks: list[CorpusTask] = []
+    chunk = task_size(files, options)
     for f in files:
         fmt, comp = detect_format(f)  # type: ignore[misc]
         path = str(f)
@@ -188,12 +212,12 @@ def plan_tasks(files: list[Path], options: CorpusOptions = CorpusOptions()) -> l
             if size == 0:
                 tasks.append(CorpusTask(len(tasks), path, fmt, comp))
                 continue
-            for start in range(0, size, options.chunk_bytes):
-                end = min(start + options.chunk_bytes, size)
+            for start in range(0, size, chunk):
+                end = min(start + chunk, size)
                 tasks.append(CorpusTask(len(tasks), path, fmt, comp, start, end))
         elif fmt == "parquet" and comp is None:
             groups = _parquet_row_groups(path)
-            per = max(1, _groups_per_task(path, groups, options.chunk_bytes))
+            per = max(1, _groups_per_task(path, groups, chunk))
             if groups == 0:
                 tasks.append(CorpusTask(len(tasks), path, fmt, comp))
             for g in range(0, groups, per):

@@ -82,7 +82,7 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     info = source.tokenizer(tokenizer, stage="count")
     executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
     task_options = corpus_options if source.encoded else dataclasses.replace(
-        corpus_options, chunk_bytes=min(corpus_options.chunk_bytes, TASK_BYTES))
+        corpus_options, chunk_bytes=min(corpus_options.chunk_bytes or TASK_BYTES, TASK_BYTES))
     tasks = source.tasks
     share = task_share(config, executor, len(tasks))
     fingerprint = source.fingerprint

@@ -28,7 +28,7 @@ from pathlib import Path
 from typing import Any, Iterator, Sequence
 
 from ..corpus.reader import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, iter_batches, plan_tasks, \
-    resolve_inputs, task_weights
+    resolve_inputs, task_size, task_weights
 from ..errors import MaskprepError
 from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
     tally_literal_specials
@@ -142,6 +142,8 @@ def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = No
         tasks = tuple(SourceTask(t.index, t.source, t.weight, encoded=t) for t in m.tasks)
         return Source(tuple(names), tuple(m.corpus["files"]), str(m.corpus["fingerprint"]), opts, tasks, m)
     files = resolve_inputs(names)
+    options = dataclasses.replace(options, chunk_bytes=task_size(files, options))  # recorded as a number
+    assert options.chunk_bytes is not None
     task_opts = options if task_bytes is None else dataclasses.replace(
         options, chunk_bytes=min(options.chunk_bytes, task_bytes))
     planned = plan_tasks(files, task_opts)
