@@ -14,7 +14,7 @@ import click
 from .errors import MaskprepError
 
 __all__ = ["CONTEXT", "executor_from", "is_quiet", "user_errors", "corpus_options", "masking_options",
-           "make_corpus_options"]
+           "make_corpus_options", "words_option", "make_words"]
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
@@ -96,3 +96,24 @@ def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict:
     from .corpus.reader import CorpusOptions
 
     return CorpusOptions(doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict)
+
+
+_WORDS_HELP = ("What a word is: tokenizer = the tokenizer's own pre-tokenization (scripts with spaces); "
+               "zh, ja, th = runs of Chinese, Japanese or Thai cut by a segmentation library (pip install "
+               "'maskprep[zh]' etc.), other text keeps the tokenizer's words; auto = the segmenter of each "
+               "run's script; cohesion = words learnt from this corpus's character n-gram cohesion.")
+
+
+def words_option(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """The --words option of every command that groups tokens into words (read with `make_words`)."""
+    return click.option("--words", "words", type=click.Choice(["tokenizer", "zh", "ja", "th", "auto", "cohesion"]),
+                        default="tokenizer", show_default=True, help=_WORDS_HELP)(fn)
+
+
+def make_words(copts: dict[str, Any], corpus: Any, ctx: click.Context) -> tuple[Any, Any]:
+    """(CorpusOptions, WordsConfig) from a command's corpus options and --words (cohesion: learnt first)."""
+    from .units.words import resolve_words
+
+    words = copts.pop("words", "tokenizer")
+    options = make_corpus_options(**copts)
+    return options, resolve_words(words, list(corpus), corpus_options=options, quiet=is_quiet(ctx))

@@ -17,7 +17,8 @@ import click
 from .errors import MaskprepError
 from .wording import plural
 
-from ._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, make_corpus_options, masking_options, \
+from ._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, make_corpus_options, make_words, \
+    words_option, masking_options, \
     user_errors
 
 
@@ -98,6 +99,7 @@ def parse_vocab_sizes(text: str | None) -> list[int]:
 @click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="Output directory.")
 @click.option("--top-words", type=int, default=25, show_default=True,
               help="How many badly fragmented frequent words to list.")
+@words_option
 @corpus_options
 @click.pass_context
 @user_errors
@@ -119,10 +121,11 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
                             "directory as CORPUS: its tokenizer is audited)")
     if top_words < 1 or top_words > 10000:
         raise MaskprepError(f"--top-words: expected 1 to 10000, got {top_words}")
+    co, words_cfg = make_words(copts, corpus, ctx)
     result = run_audit(list(corpus), AuditConfig(tokenizers=tuple(tokenizers), vocab_sizes=tuple(sizes),
                                                 model=model, lowercase=lowercase, top_words=top_words),
-                       output=Path(output), corpus_options=make_corpus_options(**copts), quiet=is_quiet(ctx),
-                       executor=executor_from(ctx))
+                       output=Path(output), corpus_options=co, quiet=is_quiet(ctx),
+                       executor=executor_from(ctx), words=words_cfg)
     click.echo(format_audit_table(result))
     click.echo(f"\nwrote {Path(output) / 'audit.json'} and {Path(output) / 'audit.html'}")
 
@@ -135,6 +138,7 @@ def audit_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizers: tuple[str
 @click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="ENCODED_DIR to write.")
 @click.option("--overwrite", is_flag=True, help="Replace an existing encoded directory.")
 @click.option("--resume", is_flag=True, help="Finish an interrupted encode with the same options and inputs.")
+@words_option
 @corpus_options
 @click.pass_context
 @user_errors
@@ -148,9 +152,10 @@ def encode_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, outp
     """
     from .encoded.write import encode_corpus, format_encode_summary
 
+    co, words_cfg = make_words(copts, corpus, ctx)
     manifest = encode_corpus(list(corpus), tokenizer=tokenizer, output=output,
-                             corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
-                             overwrite=overwrite, resume=resume)
+                             corpus_options=co, executor=executor_from(ctx),
+                             overwrite=overwrite, resume=resume, words=words_cfg)
     click.echo(format_encode_summary(manifest))
 
 
@@ -171,6 +176,7 @@ def encode_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, outp
 @click.option("--overwrite", is_flag=True, help="Replace the counts in an existing, non-empty COUNTS_DIR.")
 @click.option("--resume", is_flag=True,
               help="Finish an interrupted count with the same options and inputs; finished tasks are not redone.")
+@words_option
 @corpus_options
 @click.pass_context
 @user_errors
@@ -186,9 +192,10 @@ def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None
     """
     from .count.driver import CountConfig, count_ngrams, format_summary
 
-    config = CountConfig(max_n=max_n, min_count=min_count, memory=memory)
+    co, words_cfg = make_words(copts, corpus, ctx)
+    config = CountConfig(max_n=max_n, min_count=min_count, memory=memory, words=words_cfg)
     summary = count_ngrams(list(corpus), tokenizer=tokenizer, output=Path(output), config=config,
-                           corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
+                           corpus_options=co, executor=executor_from(ctx),
                            overwrite=overwrite, quiet=is_quiet(ctx), resume=resume)
     click.echo(format_summary(summary))
 
@@ -286,6 +293,7 @@ def _pct(x: float | None) -> str:
               help="Write unmasked input_ids and unit_ids, to mask on the fly with maskprep.mask_batch.")
 @click.option("--overwrite", is_flag=True, help="Replace the shards in an existing output directory.")
 @click.option("--resume", is_flag=True, help="Finish an interrupted run with the same options.")
+@words_option
 @corpus_options
 @click.pass_context
 @user_errors
@@ -310,10 +318,11 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None,
                             mix_per=MixPer(mix_per), span_p=span_p, span_max=span_max)
     packing = PackingConfig(seq_len=seq_len, pack=not no_pack)
     shards = ShardConfig(format=fmt, shard_rows=shard_rows, copies=copies, seed=seed, dynamic=dynamic)
+    co, words_cfg = make_words(copts, corpus, ctx)
     manifest, stats = write_shards(list(corpus), tokenizer=tokenizer, output=output, masking=masking,
                                    packing=packing, shards=shards, units=units_path,
-                                   corpus_options=make_corpus_options(**copts), executor=executor_from(ctx),
-                                   overwrite=overwrite, resume=resume)
+                                   corpus_options=co, executor=executor_from(ctx),
+                                   overwrite=overwrite, resume=resume, words=words_cfg)
     _units_note(manifest.options.get("units_tokenizer_hash"))
     rate_ = stats["masking_rate"]
     mix_ = stats["mix"]
@@ -421,6 +430,7 @@ def _parse_sample(text: str) -> int | None:
 @click.option("--examples", type=int, default=3, show_default=True, help="Example sequences shown in compare.html.")
 @click.option("-o", "--output", required=True, type=click.Path(file_okay=False),
               help="Directory for compare.json and compare.html.")
+@words_option
 @corpus_options
 @click.pass_context
 @user_errors
@@ -441,8 +451,9 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | No
                            mix_per=MixPer(mix_per), span_p=span_p,
                            span_max=span_max, seq_len=seq_len, pack=not no_pack, seed=seed,
                            sample=_parse_sample(sample), examples=examples)
+    co, words_cfg = make_words(copts, corpus, ctx)
     doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,
-                             corpus_options=make_corpus_options(**copts), executor=executor_from(ctx))
+                             corpus_options=co, executor=executor_from(ctx), words=words_cfg)
     click.echo(format_compare_table(doc))
     _units_note((doc.get("units") or {}).get("built_with_tokenizer"))
     click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")

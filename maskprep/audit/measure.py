@@ -36,6 +36,7 @@ from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, Wo
                                   save_tokenizer, tokenizer_from_json, unique_rows,
                                   warn_literal_specials)
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
+from ..tokenizer.words import WordsConfig, code_points, script_classes
 from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
 
@@ -125,6 +126,7 @@ class _AuditJob:
     tokenizer_json: str
     tokenizer_name: str
     options: CorpusOptions
+    words: WordsConfig | None = None
 
 
 def _task_words(info: TokenizerInfo, reader: TaskReader) -> list[WordType]:
@@ -141,13 +143,14 @@ def _task_words(info: TokenizerInfo, reader: TaskReader) -> list[WordType]:
 def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
     """Task function: per-word-form figures of one task (raw text or an encoded directory's)."""
     info = tokenizer_from_json(job.tokenizer_json, name=job.tokenizer_name)  # a fresh word-type cache
-    reader = TaskReader(task, info, job.options)
+    reader = TaskReader(task, info, job.options, words=job.words)
     table = _FormTable()
     pending: list[tuple[np.ndarray, ...]] = []
     pending_words = 0
-    tokens_total = unk_total = cont_total = 0
+    tokens_total = unk_total = cont_total = crossing = 0
     unk = info.unk_id
     for batch in reader:
+        crossing += batch.crossing_tokens  # raw text; an encoded task gives its total below
         lengths = batch.word_lengths
         keep = batch.word_kinds != SPACE
         ids = batch.ids if keep.all() else batch.ids[np.repeat(keep, lengths)]
@@ -170,15 +173,19 @@ def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
             _flush(table, pending)
             pending_words = 0
     _flush(table, pending)
+    if task.encoded is not None:
+        crossing = task.encoded.crossing_tokens
     return {"table": (table.keys, table.occ, table.tokens, table.split, table.chars, table.kind),
-            "totals": (tokens_total, unk_total, cont_total), "read": reader.consumed.to_dict(),
+            "totals": (tokens_total, unk_total, cont_total, crossing), "read": reader.consumed.to_dict(),
             "words": _task_words(info, reader)}
 
 
 def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: CorpusOptions = CorpusOptions(),
                     top_words: int = 25, frequent_types: int = 1000, quiet: bool = False,
-                    executor: Any = None) -> dict[str, Any]:
+                    executor: Any = None, words: WordsConfig | None = None) -> dict[str, Any]:
     """Fragmentation figures of one tokenizer on a corpus or an encoded directory (tasks in parallel).
+
+    `words` chooses the word definition (default: the tokenizer's own words).
 
     >>> audit_tokenizer(load_tokenizer("tok.json"), ["sample_corpus"])["tokens_per_word"]  # doctest: +SKIP
     1.21
@@ -188,11 +195,12 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
     source = open_source(corpus, corpus_options)
     source.tokenizer(info, stage="audit")  # an encoded directory must have been made with this tokenizer
     executor = executor or Executor(quiet=quiet)
-    job = _AuditJob(info.json, info.name, source.options)
+    wcfg: WordsConfig = source.check_words(words or WordsConfig())
+    job = _AuditJob(info.json, info.name, source.options, None if wcfg.is_tokenizer else wcfg)
     table, stats = _FormTable(), ReadStats()
     pending: list[tuple[np.ndarray, ...]] = []
-    totals = [0, 0, 0]
-    words: dict[tuple[int, tuple[int, ...]], WordType] = {}
+    totals = [0, 0, 0, 0]
+    seen: dict[tuple[int, tuple[int, ...]], WordType] = {}
     tasks = source.tasks
     for res in map_tasks(_audit_task, [(job, t) for t in tasks], executor=executor, label=f"audit {info.name}",
                          describe=lambda i: tasks[i].describe(), weights=[t.weight / 1e6 for t in tasks],
@@ -203,14 +211,40 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
         totals = [a + b for a, b in zip(totals, res["totals"])]
         stats.merge(read_stats_of(res["read"]))
         for wt in res["words"]:
-            words.setdefault((wt.key, wt.ids), wt)
+            seen.setdefault((wt.key, wt.ids), wt)
     _flush(table, pending)
     if stats.documents == 0:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
     warn_literal_specials(info, stats.literal_specials, ", ".join(corpus))
-    forms = [words[k] for k in sorted(words)]  # in an order that does not depend on the tasks
-    tokens_total, unk_total, cont_total = totals
-    return _summarise(info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types, forms)
+    forms = [seen[k] for k in sorted(seen)]  # in an order that does not depend on the tasks
+    tokens_total, unk_total, cont_total, crossing = totals
+    result = _summarise(info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types, forms)
+    result["words_definition"] = wcfg.describe()
+    result["boundary_crossing_tokens"] = crossing
+    result["boundary_crossing_share"] = crossing / tokens_total if tokens_total else 0.0
+    result["unspaced_script_share"] = _unspaced_share(table, forms)
+    return result
+
+
+def _unspaced_share(table: _FormTable, forms: list[WordType]) -> float:
+    """Share of the words' characters (by occurrence) in scripts written without spaces (CJK, Thai)."""
+    if not forms or len(table.keys) == 0:
+        return 0.0
+    text_of = {wt.key: wt.text for wt in forms}
+    keys, inv = np.unique(table.keys[:, 0], return_inverse=True)
+    occ = np.bincount(inv, weights=table.occ.astype(np.float64), minlength=len(keys))
+    known = [i for i, k in enumerate(keys.tolist()) if k in text_of]  # one step per word type
+    if not known:
+        return 0.0
+    texts = [text_of[int(keys[i])] for i in known]
+    lens = np.fromiter(map(len, texts), np.int64, count=len(texts))
+    cls = script_classes(code_points("".join(texts))) != 0
+    starts = np.concatenate(([0], np.cumsum(lens)[:-1]))
+    script = np.add.reduceat(cls.astype(np.int64), starts) if len(cls) else np.zeros(len(texts))
+    script = np.where(lens > 0, script, 0)
+    w = occ[known]
+    total = float((w * lens).sum())
+    return float((w * script).sum() / total) if total else 0.0
 
 
 def _flush(table: _FormTable, pending: list[tuple[np.ndarray, ...]]) -> None:
@@ -310,7 +344,8 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
 
 def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
               corpus_options: CorpusOptions = CorpusOptions(), quiet: bool = False,
-              size_option: str = "--vocab-sizes", executor: Any = None) -> dict[str, Any]:
+              size_option: str = "--vocab-sizes", executor: Any = None,
+              words: WordsConfig | None = None) -> dict[str, Any]:
     """Audit given and freshly trained tokenizers; write audit.json and audit.html.
 
     A size the corpus cannot give stops the audit with an error naming `size_option` and the size.
@@ -336,10 +371,12 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
         if names.count(info.name) > 1:
             info.name = f"{info.name}#{i + 1}"
     results = [audit_tokenizer(info, corpus, corpus_options=corpus_options, top_words=config.top_words,
-                               frequent_types=config.frequent_types, quiet=quiet, executor=executor)
-               for info in infos]
+                               frequent_types=config.frequent_types, quiet=quiet, executor=executor,
+                               words=words) for info in infos]
+    w = words or WordsConfig()
     doc = {"corpus": list(source.files), "bands": [b[2] for b in BANDS],
-           "notes": ["Words are the tokenizer's own pre-tokenization pieces; punctuation-only words are left out "
+           "words": w.describe(), "words_label": w.label(),
+           "notes": [words_note(w, results), "Punctuation-only words are left out "
                      "of tokens_per_word and split_share but kept in tokens_per_word_all.",
                      "Frequency bands rank word types by their count in this corpus."],
            "fragmented_list": {"frequent_types": config.frequent_types,
@@ -349,3 +386,18 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
     atomic_write_json(output / "audit.json", doc)
     write_page(output / "audit.html", render_audit_html(doc))
     return doc
+
+
+def words_note(words: WordsConfig, results: list[dict[str, Any]]) -> str:
+    """The sentence that says which words the figures are about (and warns where that misleads)."""
+    if words.is_tokenizer:
+        note = "Words are the tokenizer's own pre-tokenization pieces (--words tokenizer)."
+        share = max((r.get("unspaced_script_share", 0.0) for r in results), default=0.0)
+        if share >= 0.2:
+            note += (f" {share:.0%} of this corpus's word characters are of scripts written without spaces "
+                     "(CJK, Thai): there these pieces are single characters or whole clauses, not words, "
+                     "so the per-word figures say little; use --words zh, ja, th, auto or cohesion.")
+        return note
+    return (f"Words are those of --words {words.label()}: each token belongs to the word holding its "
+            "first character; tokens running past the end of their word are counted as "
+            "boundary-crossing and join the word they start in.")

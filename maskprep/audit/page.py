@@ -74,6 +74,8 @@ _LEGEND = (
     "among all tokens; cont.: continuation tokens (every token of a word but its first) among all "
     "tokens."
 )
+_CROSSING = (" crossing: tokens running past the end of the word they start in (they join that "
+             "word), among all tokens.")
 
 
 def visible_bands(doc: dict[str, Any]) -> list[int]:
@@ -89,10 +91,21 @@ def _word_text(w: dict[str, Any]) -> str:
     return f"{w['word']} ({w['pieces']}{share})"
 
 
+def _segmented(doc: dict[str, Any]) -> bool:
+    """Whether the words are not the tokenizer's (then boundary-crossing tokens are shown)."""
+    return bool(doc.get("words", {}).get("definition", "tokenizer") != "tokenizer")
+
+
+def words_line(doc: dict[str, Any]) -> str:
+    return "words: " + doc.get("words_label", "tokenizer (its pre-tokenization)")
+
+
 def format_audit_table(doc: dict[str, Any]) -> str:
     """The terminal summary: a row per tokenizer, a legend, tokens per word by band, word lists."""
+    crossing = _segmented(doc)
     rows = [
         ("tokenizer", "vocab", "tok/word", "tok/word all", "split", "tok/char", "unk", "cont.")
+        + (("crossing",) if crossing else ())
     ]
     for r in doc["tokenizers"]:
         rows.append(
@@ -106,10 +119,17 @@ def format_audit_table(doc: dict[str, Any]) -> str:
                 f"{r['unk_rate']:.2%}",
                 f"{r['continuation_share']:.1%}",
             )
+            + ((f"{r.get('boundary_crossing_share', 0.0):.2%}",) if crossing else ())
         )
+    note = doc["notes"][0] if doc.get("notes") else ""
     out = [
+        words_line(doc),
         _format_rows(rows),
-        textwrap.fill(_LEGEND, width=100),
+        textwrap.fill(_LEGEND + (_CROSSING if crossing else ""), width=100),
+    ]
+    if crossing or "written without spaces" in note:
+        out.append(textwrap.fill("note: " + note, width=100))
+    out += [
         "",
         "tokens per word by frequency band of word types",
     ]
@@ -201,6 +221,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
         percent=True,
         slots=slots,
     )
+    crossing = _segmented(doc)
     summary = report.table(
         headers=[
             "tokenizer",
@@ -211,6 +232,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
             "tokens/char",
             "unknown rate",
             "continuation share",
+            *(["boundary-crossing tokens"] if crossing else []),
             "words",
             "word types",
         ],
@@ -224,6 +246,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
                 r["tokens_per_char"],
                 r["unk_rate"],
                 r["continuation_share"],
+                *([r.get("boundary_crossing_share", 0.0)] if crossing else []),
                 r["words"],
                 r["word_types"],
             ]
@@ -233,6 +256,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
             "split share": "{:.1%}",
             "unknown rate": "{:.2%}",
             "continuation share": "{:.1%}",
+            "boundary-crossing tokens": "{:.2%}",
         },
     )
     band_rows = []
@@ -284,7 +308,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
     )
     return report.page(
         title="Vocabulary fragmentation audit",
-        subtitle="Corpus: " + ", ".join(doc["corpus"]),
+        subtitle="Corpus: " + ", ".join(doc["corpus"]) + "; " + words_line(doc),
         sections=sections,
         notes=notes,
     )

@@ -11,7 +11,7 @@ average of all of them.
 `select_fragmented` is the one rule that decides which words are listed, for
 audit.json, the terminal and the page alike: among the most frequent word
 types, those whose most frequent form takes two tokens or more, most pieces
-first. `readable_pieces` turns token ids into the text of each piece.
+first. `maskprep.tokenizer.pieces.readable_pieces` turns token ids into the text of each piece.
 
 It measures nothing itself: the counts come from `measure`.
 """
@@ -24,18 +24,11 @@ from typing import Any
 import numpy as np
 
 from ..tokenizer.encoding import TokenizerInfo, WordType
+from ..tokenizer.pieces import JOIN, PARTIAL, SPACE_MARK, readable_pieces
 
 #: Multiplier of the form hash (odd, so multiplication is invertible mod 2^64).
 _MULT = 0x9E3779B97F4A7C15
 _MASK = (1 << 64) - 1
-#: Shown between the pieces of a word, in the terminal and on the page.
-JOIN = "\u00b7"
-#: Shown for a leading space that belongs to the word's form.
-SPACE_MARK = "\u2423"
-#: Shown for a piece that holds only part of a character's bytes.
-PARTIAL = "\u2026"
-
-
 def form_hashes(ids: np.ndarray, word_offsets: np.ndarray) -> np.ndarray:
     """A uint64 hash of each word's token ids: sum of (id + 1) * M^(position + 1), plus the length.
 
@@ -107,36 +100,6 @@ def cached_forms(forms: Iterable[WordType], keys: Iterable[int]) -> dict[int, li
         if wt.key in wanted:
             out.setdefault(wt.key, []).append(wt)
     return out
-
-
-def readable_pieces(info: TokenizerInfo, ids: Sequence[int]) -> tuple[list[str], bool]:
-    """The text of each token of one word form, and whether the form starts with whitespace.
-
-    Each piece is what the tokenizer's decoder adds for that token after a
-    preceding word, so continuation markers (``##``), space markers (``Ġ``,
-    ``▁``) and byte symbols become plain text. A character whose bytes are
-    spread over several tokens is shown in the token that completes it; the
-    tokens before hold ``…``. Where decoding is not incremental, the raw token
-    strings are returned.
-    """
-    tok = info.tokenizer
-    ref = tok.encode("a", add_special_tokens=False).ids[:1]
-    texts = tok.decode_batch(
-        [ref + list(ids[:k]) for k in range(len(ids) + 1)], skip_special_tokens=False
-    )
-    base, done, pieces = texts[0], "", []
-    for k, text in enumerate(texts[1:], 1):
-        if not text.startswith(base):
-            return [tok.id_to_token(int(i)) or "?" for i in ids], False
-        now = text[len(base) :]
-        if k < len(ids) and now.endswith("\ufffd"):
-            now = now[:-1]  # an incomplete character, completed by a later token
-        if not now.startswith(done):
-            return [tok.id_to_token(int(i)) or "?" for i in ids], False
-        pieces.append(now[len(done) :])
-        done = now
-    lead = bool(done) and done[0].isspace()
-    return pieces, lead
 
 
 def shown_forms(info: TokenizerInfo, forms: Sequence[Sequence[int]]) -> list[str]:

@@ -213,13 +213,14 @@ def sample_quotas(weights: Sequence[float], sample: int | None) -> list[int | No
     return base  # type: ignore[return-value]
 
 
-def _load_units(units: str | Path | None, info: Any) -> tuple[Any, str | None, dict[str, Any] | None]:
+def _load_units(units: str | Path | None, info: Any,
+                words: Any = None) -> tuple[Any, str | None, dict[str, Any] | None]:
     if units is None:
         return None, None, None
     from ..shards.write import file_sha256
     from ..units.files import read_units_for
 
-    vocab = read_units_for(units, info)
+    vocab = read_units_for(units, info, words)
     digest = file_sha256(units)
     lengths = {str(k): int(v) for k, v in zip(*np.unique(np.asarray(vocab.n), return_counts=True))}
     doc = {"path": str(units), "sha256": digest, "units": len(vocab), "measure": vocab.measure.value,
@@ -248,8 +249,11 @@ def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[St
 
 def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                        config: CompareConfig = CompareConfig(), units: str | Path | None = None,
-                       corpus_options: Any = None, executor: Any = None) -> dict[str, Any]:
+                       corpus_options: Any = None, executor: Any = None, words: Any = None) -> dict[str, Any]:
     """Mask the same sequences with each strategy; write compare.json and compare.html; return the JSON.
+
+    `words` (a `WordsConfig`, default the tokenizer's words) defines the words of
+    the word, span and pmi strategies and of the leakage figures.
 
     >>> doc = compare_strategies(["plays.txt"], tokenizer="tokenizer.json", output="cmp", units="units.parquet")  # doctest: +SKIP
     >>> doc["strategies"]["pmi"]["within_word_leakage"]  # doctest: +SKIP
@@ -260,15 +264,17 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     from ..execute import Executor, map_tasks
     from .._files import atomic_write_json
     from ..packing import check_packing_tokenizer
+    from ..tokenizer.words import words_option
 
     executor = executor or Executor()
     source = open_source(list(corpus), corpus_options)
+    words = source.check_words(words_option(words))
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="compare")
     info.require_mask()
     check_packing_tokenizer(info)
     config.packing().check(info)
-    by_length, units_digest, units_doc = _load_units(units, info)
+    by_length, units_digest, units_doc = _load_units(units, info, words)
     strategies, skipped = resolve_strategies(config, by_length is not None)
     out = Path(output)
     if out.exists() and not out.is_dir():
@@ -278,7 +284,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     quotas = sample_quotas([t.weight for t in tasks], config.sample)
     loop = LoopJob(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
                    packing=config.packing(), corpus_options=corpus_options, seed=config.seed, units=by_length,
-                   units_digest=units_digest)
+                   units_digest=units_digest, words=None if words.is_tokenizer else words)
     job = _Job(loop=loop, config=config, strategies=strategies)
     todo = [(job, t, q) for t, q in zip(tasks, quotas) if q != 0]
     results = list(map_tasks(_compare_task, todo, executor=executor, label="compare",
@@ -321,7 +327,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
                    "the first sequences of each corpus task, tasks weighted by their bytes on disk"},
         "corpus": {"files": list(source.files), "fingerprint": source.fingerprint,
                    **read.to_dict()},
-        "tokenizer": info.describe(), "units": units_doc,
+        "tokenizer": info.describe(), "units": units_doc, "words": words.describe(),
         "notes": _notes(config, units_doc is not None),
     }
     from .page import render_compare_html

@@ -77,6 +77,7 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     started = time.monotonic()
     output = Path(output)
     source = open_source(list(corpus), corpus_options, task_bytes=TASK_BYTES)
+    source.check_words(config.words)
     corpus_options = source.options
     files = [Path(f) for f in source.files]
     info = source.tokenizer(tokenizer, stage="count")
@@ -199,7 +200,7 @@ def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Pat
         "distinct": {str(n): distinct[n - 1] for n in range(1, max_n + 1)},
         "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
         "documents": documents, "literal_special_tokens": dict(sorted(literal.items())),
-        "tokenizer_hash": info.hash, "tokenizer_name": info.name,
+        "tokenizer_hash": info.hash, "tokenizer_name": info.name, "words": config.words.describe(),
         "corpus_fingerprint": fingerprint or corpus_fingerprint(files, corpus_options),
         "corpus_files": [str(f) for f in files],
         "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,

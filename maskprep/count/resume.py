@@ -65,7 +65,8 @@ _LABELS = {"max_n": "--max-n", "min_count": "--min-count", "tokenizer_hash": "to
            "corpus_fingerprint": "corpus (file names, sizes and contents)", "doc_sep": "--doc-sep",
            "text_field": "--text-field", "text_column": "--text-column", "task_bytes": "task size",
            "format_version": "counts format version", "maskprep_version": "maskprep version",
-           "state_version": "resume state version"}
+           "state_version": "resume state version",
+           "words": "--words (word definition)"}
 
 
 def run_identity(config: Any, info: Any, fingerprint: str, task_options: Any, *, format_version: int) -> dict[str, Any]:
@@ -78,7 +79,7 @@ def run_identity(config: Any, info: Any, fingerprint: str, task_options: Any, *,
             "max_n": config.max_n, "min_count": config.min_count, "tokenizer_hash": info.hash,
             "corpus_fingerprint": fingerprint, "doc_sep": task_options.doc_sep,
             "text_field": task_options.text_field, "text_column": task_options.text_column,
-            "task_bytes": task_options.chunk_bytes}
+            "task_bytes": task_options.chunk_bytes, "words": config.words.describe()}
 
 
 def _drop_old_spills(output: Path) -> None:

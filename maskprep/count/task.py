@@ -62,8 +62,9 @@ class ChunkCounter:
     """
 
     def __init__(self, info: TokenizerInfo, *, max_n: int, spill_dir: Path, share: int, tag: str,
-                 block_words: int | None = None) -> None:
+                 block_words: int | None = None, joined: bool = False) -> None:
         self.info = info
+        self.joined = joined  # segmenter words (their texts are made without whitespace)
         self.max_n = max_n
         self.spill_dir = spill_dir
         self.tag = tag
@@ -172,8 +173,8 @@ class ChunkCounter:
         missing = [i for i, k in enumerate(uniq.tolist()) if k not in self.vocab]
         wo = batch.word_offsets
         lists = [batch.ids[wo[w]:wo[w + 1]].tolist() for w in words[first[missing]].tolist()]
-        for i, text in zip(missing, self.info.tokenizer.decode_batch(lists, skip_special_tokens=False)):
-            self.vocab[int(uniq[i])] = text.strip()
+        for i, text in zip(missing, self.info.canonical_texts(lists, joined=self.joined)):
+            self.vocab[int(uniq[i])] = text
 
     def add_word_table(self, table: WordTable) -> None:
         """Texts of the words of an encoded task (its word table); two texts with one key raise."""
@@ -203,8 +204,9 @@ def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill
     """
     info = tokenizer_from_json(tokenizer_json)  # a fresh word-type cache per task: its entries give the texts
     counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,
-                           tag=f"t{task.index:06d}")
-    reader = TaskReader(task, info, corpus_options, batch_chars=_batch_chars(config, share))
+                           tag=f"t{task.index:06d}", joined=not config.words.is_tokenizer)
+    reader = TaskReader(task, info, corpus_options, batch_chars=_batch_chars(config, share),
+                        words=None if config.words.is_tokenizer else config.words)
     try:
         table = reader.word_table()
         if table is not None:  # encoded input: the word texts are in the task's word table

@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import MaskprepError
+from ..tokenizer.words import WordsConfig, words_option
 from .spills import RunInfo
 
 __all__ = ["CountConfig", "TaskCounts", "CountSummary", "parse_memory", "FORMAT_VERSION", "MAX_N",
@@ -60,6 +61,7 @@ class CountConfig:
     min_count: int = 10
     memory: str | int = "1GiB"
     batch_chars: int | None = None
+    words: WordsConfig = WordsConfig()
 
     def __post_init__(self) -> None:
         if not isinstance(self.max_n, int) or not 1 <= self.max_n <= MAX_N:
@@ -69,6 +71,8 @@ class CountConfig:
         if self.batch_chars is not None and self.batch_chars < 1:
             raise MaskprepError(f"batch_chars: expected a positive number, got {self.batch_chars}")
         parse_memory(self.memory)
+        if not isinstance(self.words, WordsConfig):
+            object.__setattr__(self, "words", words_option(self.words))
 
     @property
     def memory_bytes(self) -> int:

@@ -102,9 +102,12 @@ class EncodedTask:
     types: int
     read: Mapping[str, int]
     batches: tuple[tuple[int, int, int, int], ...]  # per batch: documents, empty skipped, invalid, bytes
+    crossing_tokens: int = 0    # tokens running past the end of their word (segmenter words only)
 
     def to_json(self) -> dict[str, Any]:
         doc = dataclasses.asdict(self)
+        if not self.crossing_tokens:  # the tokenizer's words: listed as before
+            doc.pop("crossing_tokens")
         doc["batches"] = [list(b) for b in self.batches]
         doc["read"] = dict(self.read)
         return doc
@@ -112,10 +115,10 @@ class EncodedTask:
     @classmethod
     def from_json(cls, doc: Mapping[str, Any]) -> "EncodedTask":
         fields = {f.name for f in dataclasses.fields(cls)}
-        missing = fields - set(doc)
+        missing = fields - set(doc) - {"crossing_tokens"}
         if missing:
             raise KeyError(", ".join(sorted(missing)))
-        values = {k: doc[k] for k in fields}
+        values = {k: doc[k] for k in fields if k in doc}
         values["batches"] = tuple(tuple(int(x) for x in b) for b in doc["batches"])
         values["read"] = dict(doc["read"])
         return cls(**values)
@@ -229,7 +232,7 @@ def _batch_from(words_of_doc: Any, doc_fields: Mapping[str, np.ndarray], table: 
     for name, col in table.fields.items():
         values[name] = col[types]
     values.update(doc_fields)
-    return EncodedBatch(**values)
+    return EncodedBatch(**values)  # type: ignore[arg-type]
 
 
 def iter_encoded(task: EncodedTask, table: WordTable | None = None) -> Iterator[EncodedBatch]:

@@ -103,6 +103,18 @@ class Source:
                                 "use the directory's tokenizer, or encode the corpus again with this one")
         return info
 
+    def check_words(self, words: Any) -> Any:
+        """`words` (a `WordsConfig`), checked against the word definition an encoded directory was made with."""
+        if self.manifest is None:
+            return words
+        recorded = self.manifest.doc.get("words", "tokenizer")
+        if isinstance(recorded, str):
+            recorded = {"definition": recorded}
+        if words.describe() != recorded:
+            raise MaskprepError(f"--words {words.definition}: {self.manifest.directory} was encoded with --words "
+                                f"{recorded.get('definition')} ({recorded}); pass that --words, or encode again")
+        return words
+
 
 def _check_options(directory: Path, recorded: dict[str, Any], options: CorpusOptions) -> CorpusOptions:
     """The encoded directory's reading options; options given on the command line must agree."""
@@ -162,8 +174,9 @@ class TaskReader:
     """
 
     def __init__(self, task: SourceTask, info: TokenizerInfo, options: CorpusOptions, *,
-                 batch_chars: int = BATCH_CHARS) -> None:
+                 batch_chars: int = BATCH_CHARS, words: Any = None) -> None:
         self.task, self.info, self.options, self.batch_chars = task, info, options, batch_chars
+        self.words = words  # a WordsConfig for raw text (None: the tokenizer's words)
         self.consumed = ReadStats()
         self._table: WordTable | None = None
 
@@ -206,7 +219,7 @@ class TaskReader:
                 seen = dataclasses.replace(total)
                 yield docs
 
-        for batch in encode_stream(self.info, texts()):
+        for batch in encode_stream(self.info, texts(), self.words):
             self.consumed.merge(pending.popleft())
             yield batch
         self.consumed = total

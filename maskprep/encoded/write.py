@@ -57,6 +57,7 @@ class _Job:
     vocab_size: int
     options: CorpusOptions
     run_digest: str
+    words: Any = None  # WordsConfig (None: the tokenizer's words)
 
 
 _CACHE: dict[str, TokenizerInfo] = {}
@@ -196,8 +197,9 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
     out = Path(job.out)
     ipc = pa.ipc.IpcWriteOptions(compression=COMPRESSION)
     types = _TypeIndex(info)
-    reader = TaskReader(task, info, job.options, batch_chars=BATCH_CHARS)
+    reader = TaskReader(task, info, job.options, batch_chars=BATCH_CHARS, words=job.words)
     schema = _docs_schema()
+    crossing = 0
     batches: list[list[int]] = []
     documents = words = tokens = 0
     docs_path, words_path = out / docs_name(task.index), out / words_name(task.index)
@@ -209,6 +211,7 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
                 documents += batch.num_docs
                 words += batch.num_words
                 tokens += len(batch.ids)
+                crossing += batch.crossing_tokens
     table = types.table(_ids_type(job.vocab_size))
     with atomic_path(words_path) as tmp:
         with pa.OSFile(str(tmp), "wb") as sink, pa.ipc.new_file(sink, table.schema, options=ipc) as writer:
@@ -217,7 +220,8 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
                       words=words_path.name, docs_bytes=docs_path.stat().st_size, docs_sha256=file_sha256(docs_path),
                       words_bytes=words_path.stat().st_size, words_sha256=file_sha256(words_path),
                       documents=documents, num_words=words, tokens=tokens, types=len(types),
-                      read=reader.consumed.to_dict(), batches=tuple(tuple(b) for b in batches))  # type: ignore[misc]
+                      read=reader.consumed.to_dict(), batches=tuple(tuple(b) for b in batches),  # type: ignore[misc]
+                      crossing_tokens=crossing)
     done = {"run": job.run_digest, "task": rec.to_json()}
     atomic_write_text(_done_path(out, task.index), json.dumps(done, sort_keys=True) + "\n")
     return rec.to_json()
@@ -312,14 +316,20 @@ def _finished(out: Path, task: int, run_digest: str) -> dict[str, Any] | None:
 
 def encode_corpus(corpus: Sequence[str], *, tokenizer: str | Path | TokenizerInfo, output: str | Path,
                   corpus_options: CorpusOptions | None = None, executor: Any = None, overwrite: bool = False,
-                  resume: bool = False) -> EncodedManifest:
+                  resume: bool = False, words: Any = None) -> EncodedManifest:
     """Tokenize a corpus once into an encoded directory; returns its manifest.
+
+    `words` (a `WordsConfig`; default the tokenizer's words) is the word definition
+    stored with the batches and recorded in the manifest.
 
     >>> encode_corpus(["plays.txt"], tokenizer="tokenizer.json", output="enc").doc["totals"]["tokens"]  # doctest: +SKIP
     1203311
     """
     from ..execute import Executor, map_tasks
+    from ..tokenizer.words import words_option
 
+    words = words_option(words)
+    recorded: Any = "tokenizer" if words.is_tokenizer else words.describe()
     executor = executor or Executor()
     source = open_source(list(corpus), corpus_options)
     if source.encoded:
@@ -330,7 +340,7 @@ def encode_corpus(corpus: Sequence[str], *, tokenizer: str | Path | TokenizerInf
     _refuse_overlap(out, source)
     options = {"tokenizer_hash": info.hash, "corpus_fingerprint": source.fingerprint, "doc_sep": opts.doc_sep,
                "text_field": opts.text_field, "text_column": opts.text_column, "strict": opts.strict,
-               "chunk_bytes": opts.chunk_bytes, "batch_chars": BATCH_CHARS, "words": "tokenizer",
+               "chunk_bytes": opts.chunk_bytes, "batch_chars": BATCH_CHARS, "words": recorded,
                "format_version": FORMAT_VERSION, "maskprep_version": __version__}
     digest = hashlib.sha256(json.dumps(options, sort_keys=True).encode()).hexdigest()
     if _prepare(out, options=options, overwrite=overwrite, resume=resume):
@@ -345,7 +355,8 @@ def encode_corpus(corpus: Sequence[str], *, tokenizer: str | Path | TokenizerInf
     check_free_space(out, int(estimate_bytes(source) * sum(t.weight for t in todo)
                               / max(1.0, sum(t.weight for t in source.tasks))))
     job = _Job(out=os.path.abspath(out), tokenizer_json=info.json, tokenizer_name=info.name,
-               tokenizer_hash=info.hash, vocab_size=info.vocab_size, options=opts, run_digest=digest)
+               tokenizer_hash=info.hash, vocab_size=info.vocab_size, options=opts, run_digest=digest,
+               words=None if words.is_tokenizer else words)
     for rec in map_tasks(encode_task, [(job, t) for t in todo], executor=executor, label="encode",
                          describe=lambda i: todo[i].describe(), weights=[t.weight / 1e6 for t in todo], unit="MB",
                          shared=out):
@@ -359,7 +370,7 @@ def encode_corpus(corpus: Sequence[str], *, tokenizer: str | Path | TokenizerInf
               "bytes": sum(t["docs_bytes"] + t["words_bytes"] for t in tasks)}
     manifest = {
         "format": FORMAT, "format_version": FORMAT_VERSION, "maskprep_version": __version__,
-        "options": options, "words": "tokenizer",
+        "options": options, "words": recorded,
         "tokenizer": {**info.describe(), "ids": str(_ids_type(info.vocab_size))},
         "corpus": {"files": list(source.files), "fingerprint": source.fingerprint,
                    "options": {k: options[k] for k in ("doc_sep", "text_field", "text_column", "strict",

@@ -11,7 +11,9 @@ The file (every table but ``[corpus]`` is optional; a stage runs when its
 table is present)::
 
     output = "prep"                     # or -o DIR on the command line
-    [corpus]    paths = ["data/"], doc_sep, text_field, text_column, strict
+    [corpus]    paths = ["data/"], doc_sep, text_field, text_column, strict,
+                words = "tokenizer" | "zh" | "ja" | "th" | "auto" | "cohesion" (one word
+                definition for every stage, so counts, units and masks agree)
     [tokenizer] path = "tokenizer.json" | model, vocab_size, lowercase (train one)
     [audit]     vocab_sizes, tokenizers, model, lowercase, top_words, include_tokenizer
     [count]     max_n, min_count, memory
@@ -42,7 +44,7 @@ _SHARDS = ("copies", "seed", "format", "shard_rows", "dynamic")
 SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
     "": {"output": (str,)},
     "corpus": {"paths": (list, str), "doc_sep": (str,), "text_field": (str,), "text_column": (str,),
-               "strict": (bool,)},
+               "strict": (bool,), "words": (str,)},
     "tokenizer": {"path": (str,), "model": (str,), "vocab_size": (int,), "lowercase": (bool,)},
     "audit": {"vocab_sizes": (list,), "tokenizers": (list,), "model": (str,), "lowercase": (bool,),
               "top_words": (int,), "include_tokenizer": (bool,)},
@@ -88,6 +90,7 @@ class RunConfig:
     mask: Mapping[str, Any] | None = None
     compare: Any = None  # CompareConfig or None
     text: str = field(default="", repr=False)
+    words: str = "tokenizer"  # [corpus] words: the word definition of every stage
 
 
 def find_key_line(text: str, section: str, key: str | None) -> int | None:
@@ -234,7 +237,12 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     files = tuple(str(p if Path(p).is_absolute() else c.base / p) for p in paths)
     c.check("corpus", "paths", corpus["paths"], lambda v: resolve_inputs(list(files)))
     _each(c, "corpus", "doc_sep,text_field,text_column,strict", corpus, CorpusOptions)
-    corpus_options = CorpusOptions(**{k: v for k, v in corpus.items() if k != "paths"})
+    corpus_options = CorpusOptions(**{k: v for k, v in corpus.items() if k not in ("paths", "words")})
+    words = corpus.get("words", "tokenizer")
+    if words != "cohesion":
+        from ..tokenizer.words import words_option
+
+        c.check("corpus", "words", words, words_option)
 
     tok = c.table("tokenizer") or {}
     tokenizer_path, train = None, None
@@ -255,7 +263,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     compare = _compare(c, mask, units is not None)
     return RunConfig(path=path, output=out, corpus=files, corpus_options=corpus_options,
                      tokenizer_path=tokenizer_path, train=train, audit=audit, count=count, units=units,
-                     mask=mask, compare=compare, text=text)
+                     mask=mask, compare=compare, text=text, words=words)
 
 
 def _audit(c: _Checker) -> dict[str, Any] | None:

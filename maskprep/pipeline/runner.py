@@ -31,6 +31,7 @@ This module computes nothing itself; it calls each stage's library function.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import importlib.resources
 import json
@@ -222,6 +223,9 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
     read_opts = {"doc_sep": copts.doc_sep, "text_field": copts.text_field, "text_column": copts.text_column,
                  "strict": copts.strict}
     base_inputs = {"corpus": corpus_fp, "reading": read_opts}
+    from ..units.words import resolve_words
+
+    words = resolve_words(cfg.words, corpus, corpus_options=copts, quiet=quiet)
 
     # tokenizer
     if cfg.train is not None:
@@ -241,17 +245,17 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
         assert cfg.tokenizer_path is not None
         tok_path = cfg.tokenizer_path
     info = load_tokenizer(tok_path)
-    inputs = {**base_inputs, "tokenizer": info.hash}
+    inputs = {**base_inputs, "tokenizer": info.hash, "words": words.describe()}
     if any(x is not None for x in (cfg.audit, cfg.count, cfg.mask, cfg.compare)):
         # tokenize once: every later stage reads the encoded directory (same outputs as from the raw corpus)
         from ..encoded.write import encode_corpus
 
         def run_enc(d: Path) -> list[str]:
             encode_corpus(corpus, tokenizer=info, output=d, corpus_options=copts, executor=executor,
-                          overwrite=True)
+                          overwrite=True, words=words)
             return _files_in(d)
 
-        enc_fp = runner.stage("encode", "encoded", {"words": "tokenizer"}, inputs, run_enc).fingerprint
+        enc_fp = runner.stage("encode", "encoded", {"words": words.describe()}, inputs, run_enc).fingerprint
         inputs = {**inputs, "encoded": enc_fp}
         raw, corpus = corpus, [str(out / "encoded")]
     else:
@@ -272,15 +276,14 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
 
         def run_aud(d: Path) -> list[str]:
             run_audit(corpus if own else raw, audit_cfg, output=d, corpus_options=copts, quiet=quiet,
-                      executor=executor,
-                      size_option="[audit] vocab_sizes")
+                      executor=executor, size_option="[audit] vocab_sizes", words=words)
             return _files_in(d)
 
         runner.stage("audit", "audit", {**a, "tokenizers": len(a["tokenizers"])}, {**inputs, **extra}, run_aud)
 
     counts_dir, units_path, units_fp = out / "counts", None, None
     if cfg.count is not None:
-        count_cfg = cfg.count
+        count_cfg = dataclasses.replace(cfg.count, words=words)
 
         def run_cnt(d: Path) -> list[str]:
             _count(corpus, tok_path, d, count_cfg, copts, executor, quiet)
@@ -316,7 +319,7 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
             def run_mask(d: Path, masking: MaskingConfig = masking, pmi: bool = pmi) -> list[str]:
                 write_shards(corpus, tokenizer=info, output=d, masking=masking, packing=m["packing"],
                              shards=m["shards"], units=units_path if pmi else None, corpus_options=copts,
-                             executor=executor, overwrite=True)
+                             executor=executor, overwrite=True, words=words)
                 return _files_in(d)
 
             runner.stage(f"mask.{strategy}", f"mask/{strategy}",
@@ -331,7 +334,7 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
 
         def run_cmp(d: Path) -> list[str]:
             compare_strategies(corpus, tokenizer=info, output=d, config=cc, units=units_path, corpus_options=copts,
-                               executor=executor)
+                               executor=executor, words=words)
             return ["compare.json", "compare.html"]
 
         r = runner.stage("compare", "compare", cc, {**inputs, "units": units_fp}, run_cmp)

@@ -154,6 +154,9 @@ def _check_schema(path: Path, ss: ShardSet, record: ShardRecord, faults: list[st
                              ("special_ids", ss.manifest.tokenizer["special_ids"])) if meta.get(k) != v]
     if meta.get("layout") != ("dynamic" if ss.dynamic else "static"):
         wrong.append("layout")
+    tokenizer_words = {"definition": "tokenizer"}  # files of the tokenizer's words carry no key
+    if meta.get("words", tokenizer_words) != ss.options.get("words", tokenizer_words):
+        wrong.append("words (the word definition)")
     if wrong:
         faults.append(f"{record.file}: schema metadata differs from the manifest in {', '.join(wrong)}")
     return meta
@@ -249,14 +252,11 @@ def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -
 
 # ------------------------------------------------------------------ show
 
-def _pieces(tokenizer: Any, ids: list[int]) -> list[str]:
-    """Decoded text of each token in context (prefix differences), falling back to the raw piece."""
-    prefixes = tokenizer.decode_batch([ids[:k] for k in range(len(ids) + 1)], skip_special_tokens=False)
-    out = []
-    for k in range(len(ids)):
-        a, b = prefixes[k], prefixes[k + 1]
-        out.append(b[len(a):] if b.startswith(a) else " " + (tokenizer.id_to_token(ids[k]) or "?"))
-    return out
+def _pieces(info: Any, ids: list[int]) -> list[str]:
+    """Decoded text of each token in running text (byte and space markers decoded, see `tokenizer.pieces`)."""
+    from ..tokenizer.pieces import running_text
+
+    return running_text(info, ids)
 
 
 def _runs(flags: list[bool]) -> list[tuple[int, int]]:
@@ -315,10 +315,12 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     tok_path = ss.metadata("tokenizer.json")
     if not tok_path.is_file():
         raise MaskprepError(f"{tok_path}: missing; the shards directory keeps a copy of its tokenizer")
-    tokenizer = load_tokenizer(tok_path).tokenizer
+    tokenizer = load_tokenizer(tok_path)
     mask_id = int(ss.manifest.tokenizer["mask_token_id"])
     o = ss.options
-    lines = [f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, rate {o['rate']}, mix "
+    words = o.get("words", {"definition": "tokenizer"})
+    lines = [f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, words {words['definition']}, "
+             f"rate {o['rate']}, mix "
              f"{'/'.join(str(x) for x in o['mix'])}, seed {o['seed']}, "
              + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static"),
              ("masked runs in colour" if color else "{...} a masked run")

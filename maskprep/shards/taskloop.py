@@ -42,6 +42,7 @@ class LoopJob:
     seed: int
     units: Any = None               # {n: (keys, scores)} or None
     units_digest: str | None = None
+    words: Any = None               # WordsConfig (None: the tokenizer's words)
 
 
 _CACHE: dict[tuple[str, str], Any] = {}
@@ -74,7 +75,7 @@ class TaskLoop:
             self.table = _cached("units", job.units_digest or "", lambda: UnitTable.from_by_length(job.units))
         self.mask_id = self.info.require_mask()
         self.random_ids = self.info.normal_ids()
-        self.reader = TaskReader(task, self.info, job.corpus_options)
+        self.reader = TaskReader(task, self.info, job.corpus_options, words=job.words)
         self.sequences = 0
         self._pb: PackedBatch | None = None
         self._units: dict[tuple[Any, ...], np.ndarray] = {}

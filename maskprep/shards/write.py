@@ -269,16 +269,21 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                  masking: MaskingConfig = MaskingConfig(), packing: PackingConfig = PackingConfig(),
                  shards: ShardConfig = ShardConfig(), units: str | Path | None = None,
                  corpus_options: Any = None, executor: Any = None, overwrite: bool = False,
-                 resume: bool = False) -> tuple[ShardManifest, dict[str, Any]]:
+                 resume: bool = False, words: Any = None) -> tuple[ShardManifest, dict[str, Any]]:
     """Write masked (or unit-annotated) shards of a corpus; returns (manifest, stats).
+
+    `words` (a `WordsConfig`, default the tokenizer's words) defines the words of
+    the word, span and pmi strategies; it is recorded in the manifest's options.
 
     >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json", output="shards")  # doctest: +SKIP
     """
     from ..encoded.source import open_source
     from ..execute import Executor
+    from ..tokenizer.words import words_option
 
     executor = executor or Executor()
     source = open_source(list(corpus), corpus_options)
+    words = source.check_words(words_option(words))
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="mask")
     mask_id = info.require_mask()
@@ -294,7 +299,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                                 "(made by maskprep units)")
         from ..units.files import read_units_for
 
-        vocab = read_units_for(units, info)
+        vocab = read_units_for(units, info, words)
         by_length, units_digest = vocab.by_length(), file_sha256(units)
         units_built_with = vocab.source.get("units_tokenizer_hash")
     elif units is not None:
@@ -309,7 +314,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                "dynamic": shards.dynamic, "units_sha256": units_digest, "tokenizer_hash": info.hash,
                "corpus_fingerprint": fingerprint, "doc_sep": corpus_options.doc_sep,
                "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
-               "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__}
+               "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__,
+               "words": words.describe()}
     if units_built_with is not None:  # units of another tokenizer with the same words (token ids re-derived)
         options["units_tokenizer_hash"] = units_built_with
     out = Path(output)
@@ -317,7 +323,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     try:
         job_args = {"tokenizer_json": info.json, "tokenizer_name": info.name, "tokenizer_hash": info.hash,
                     "masking": masking, "packing": packing, "shards": shards, "corpus_options": corpus_options,
-                    "units": by_length, "units_digest": units_digest, "run_digest": run.digest}
+                    "units": by_length, "units_digest": units_digest, "run_digest": run.digest,
+                    "words": None if words.is_tokenizer else words}
         return _write_claimed(out, run, job_args=job_args, info=info, tasks=tasks, files=files,
             options=options, mcfg=mcfg, executor=executor, ids=(mask_id, cls_id, sep_id, pad_id))
     finally:
@@ -344,10 +351,12 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
                 "mask_token_id": mask_id, "special_ids": special_ids, "cls_id": cls_id, "sep_id": sep_id,
                 "pad_id": pad_id, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
                 "units_sha256": units_digest}
+    if job_args.get("words") is not None:  # absent: the tokenizer's words (those files stay as they were)
+        metadata["words"] = job_args["words"].describe()
     # tasks get absolute paths: a Dask worker's working directory is not the driver's
     loop = LoopJob(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash, packing=packing,
                    corpus_options=job_args["corpus_options"], seed=shards.seed, units=job_args["units"],
-                   units_digest=units_digest)
+                   units_digest=units_digest, words=job_args.get("words"))
     job = _Job(out=os.path.abspath(out), loop=loop, masking=job_args["masking"], shards=shards,
                run_digest=job_args["run_digest"], metadata=metadata)
     done: dict[int, dict[str, Any]] = {}

@@ -18,8 +18,9 @@ tokens (see packing.py).
 
 from __future__ import annotations
 
-import os
+import dataclasses
 import hashlib
+import os
 import itertools
 import json
 from dataclasses import dataclass
@@ -31,6 +32,7 @@ import regex
 
 from ..errors import MaskprepError
 from ..execute import ENCODE_AHEAD_ENV, default_workers
+from .words import WordsConfig, word_ids_by_offsets
 
 # Word kinds.
 WORD, PUNCT, SPACE, SPECIAL = 0, 1, 2, 3
@@ -56,6 +58,7 @@ class EncodedBatch:
     word_keys    uint64 [W]    content key of each word (same text -> same key)
     word_kinds   int8   [W]    WORD, PUNCT, SPACE or SPECIAL
     word_chars   int32  [W]    characters in the word's canonical text
+    crossing_tokens  int       tokens that run past the end of their word (0 for tokenizer words)
     """
 
     ids: np.ndarray
@@ -64,6 +67,7 @@ class EncodedBatch:
     word_keys: np.ndarray
     word_kinds: np.ndarray
     word_chars: np.ndarray
+    crossing_tokens: int = 0
 
     @property
     def num_docs(self) -> int:
@@ -175,11 +179,23 @@ class TokenizerInfo:
         """The word forms decoded so far in this process (a bounded cache: it may miss some)."""
         return list(self._types.values())
 
-    def _new_types(self, rows: list[bytes], id_lists: list[list[int]]) -> list[WordType]:
+    def canonical_texts(self, id_lists: list[list[int]], *, joined: bool = False) -> list[str]:
+        """The canonical text of words given as token ids: decoded, whitespace stripped.
+
+        `joined` (words of a segmenter): all whitespace is removed, since such a
+        word never holds any, while decoders may put spaces between its tokens
+        (WordPiece writes a space between two CJK characters).
+        """
         texts = self.tokenizer.decode_batch(id_lists, skip_special_tokens=False)
+        if joined:
+            return ["".join(t.split()) for t in texts]
+        return [t.strip() for t in texts]
+
+    def _new_types(self, rows: list[bytes], id_lists: list[list[int]],
+                   joined: bool = False) -> list[WordType]:
+        texts = self.canonical_texts(id_lists, joined=joined)
         out = []
-        for row, ids, text in zip(rows, id_lists, texts):
-            canon = text.strip()
+        for row, ids, canon in zip(rows, id_lists, texts):
             if len(ids) == 1 and int(ids[0]) in self._special_set():
                 kind = SPECIAL
             elif not canon:
@@ -204,14 +220,16 @@ class TokenizerInfo:
         return s
 
 
-def encode_documents(info: TokenizerInfo, texts: list[str]) -> EncodedBatch:
+def encode_documents(info: TokenizerInfo, texts: list[str], words: WordsConfig | None = None) -> EncodedBatch:
     """Encode a batch of documents with the tokenizer's parallel batch API.
+
+    `words` chooses the word definition (default: the tokenizer's own words).
 
     >>> b = encode_documents(info, ["New words, old words."])  # doctest: +SKIP
     >>> b.num_words  # doctest: +SKIP
     5
     """
-    return _from_encodings(info, info.tokenizer.encode_batch(texts, add_special_tokens=False))
+    return _from_encodings(info, info.tokenizer.encode_batch(texts, add_special_tokens=False), texts, words)
 
 
 def set_encode_ahead(enabled: bool) -> None:
@@ -225,9 +243,11 @@ def set_encode_ahead(enabled: bool) -> None:
     os.environ[ENCODE_AHEAD_ENV] = "1" if enabled else "0"
 
 
-def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]], *,
-                  stats: Any = None) -> Iterator[EncodedBatch]:
+def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]],
+                  words: WordsConfig | None = None, *, stats: Any = None) -> Iterator[EncodedBatch]:
     """Encode batches of documents, encoding the next batch while this one is grouped.
+
+    `words` chooses the word definition (default: the tokenizer's own words).
 
     The tokenizer releases the GIL while it encodes, so one batch of look-ahead
     in a helper thread overlaps its work with the numpy grouping here (unless
@@ -240,7 +260,7 @@ def encode_stream(info: TokenizerInfo, batches: Iterable[list[str]], *,
     >>> sum(b.num_words for b in encode_stream(info, iter_batches(task)))  # doctest: +SKIP
     120345
     """
-    for batch in _encode_ahead(info, batches):
+    for batch in _encode_ahead(info, batches, words):
         if stats is not None:
             tally_literal_specials(info, batch, stats.literal_specials)
         yield batch
@@ -281,7 +301,8 @@ def warn_literal_specials(info: TokenizerInfo, counts: dict[str, int], corpus: s
     sys.stderr.flush()
 
 
-def _encode_ahead(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator[EncodedBatch]:
+def _encode_ahead(info: TokenizerInfo, batches: Iterable[list[str]],
+                  words: WordsConfig | None) -> Iterator[EncodedBatch]:
     from concurrent.futures import ThreadPoolExecutor
 
     def raw(texts: list[str]) -> list[Any]:
@@ -291,21 +312,22 @@ def _encode_ahead(info: TokenizerInfo, batches: Iterable[list[str]]) -> Iterator
     it = iter(batches)
     if os.environ.get(ENCODE_AHEAD_ENV) == "0" or default_workers() < 2:
         for texts in it:
-            yield _from_encodings(info, raw(texts))
+            yield _from_encodings(info, raw(texts), texts, words)
         return
     with ThreadPoolExecutor(max_workers=1) as pool:
         first = next(it, None)
         if first is None:
             return
-        pending = pool.submit(raw, first)
+        pending, pending_texts = pool.submit(raw, first), first
         for texts in it:
-            encs = pending.result()
-            pending = pool.submit(raw, texts)
-            yield _from_encodings(info, encs)
-        yield _from_encodings(info, pending.result())
+            encs, done_texts = pending.result(), pending_texts
+            pending, pending_texts = pool.submit(raw, texts), texts
+            yield _from_encodings(info, encs, done_texts, words)
+        yield _from_encodings(info, pending.result(), pending_texts, words)
 
 
-def _from_encodings(info: TokenizerInfo, encs: list[Any]) -> EncodedBatch:
+def _from_encodings(info: TokenizerInfo, encs: list[Any], texts: list[str] | None = None,
+                    words: WordsConfig | None = None) -> EncodedBatch:
     lens = np.fromiter((len(e.ids) for e in encs), dtype=np.int64, count=len(encs))
     total = int(lens.sum())
     ids = np.fromiter(itertools.chain.from_iterable(e.ids for e in encs), dtype=np.int32, count=total)
@@ -315,11 +337,19 @@ def _from_encodings(info: TokenizerInfo, encs: list[Any]) -> EncodedBatch:
         wid = np.array([-1 if w is None else w for e in encs for w in e.word_ids], dtype=np.int64)
     tok_doc = np.zeros(len(encs) + 1, dtype=np.int64)
     np.cumsum(lens, out=tok_doc[1:])
-    return group_words(info, ids, wid, tok_doc)
+    if words is None or words.is_tokenizer:
+        return group_words(info, ids, wid, tok_doc)
+    if texts is None:
+        raise ValueError("word definitions other than the tokenizer's need the documents' texts")
+    offsets = np.fromiter(itertools.chain.from_iterable(itertools.chain.from_iterable(e.offsets for e in encs)),
+                          dtype=np.int64, count=2 * total).reshape(total, 2)
+    wid, crossing = word_ids_by_offsets(texts, offsets, tok_doc, wid, words)
+    batch = group_words(info, ids, wid, tok_doc, joined=True)
+    return dataclasses.replace(batch, crossing_tokens=crossing)
 
 
 def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
-                token_doc_offsets: np.ndarray) -> EncodedBatch:
+                token_doc_offsets: np.ndarray, *, joined: bool = False) -> EncodedBatch:
     """Group tokens into words from per-document word ids; look up word types.
 
     Performance: everything here is numpy over the whole batch except one
@@ -327,6 +357,8 @@ def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
     and one decode per word never seen before in this process. Words are
     identified exactly by their token ids packed base (vocab+1) into as many
     uint64 columns as the longest word needs, so no hash can merge two words.
+    `joined`: words of a segmenter (their canonical text has no whitespace;
+    cached apart from the tokenizer's words).
     """
     T = len(ids)
     new_word = np.ones(T, dtype=bool)
@@ -370,8 +402,9 @@ def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
     cache = info._types
     missing_rows: list[bytes] = []
     missing_idx: list[int] = []
+    prefix = _JOINED if joined else b""
     for i in range(len(rows)):
-        rb = _strip_zero_columns(rows_bytes[i].tobytes())
+        rb = prefix + _strip_zero_columns(rows_bytes[i].tobytes())
         t = cache.get(rb)
         if t is None:
             missing_rows.append(rb)
@@ -382,7 +415,7 @@ def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
             type_chars[i] = len(t.text)
     if missing_idx:
         id_lists = [ids[word_offsets[first[i]]:word_offsets[first[i] + 1]].tolist() for i in missing_idx]
-        for i, t in zip(missing_idx, info._new_types(missing_rows, id_lists)):
+        for i, t in zip(missing_idx, info._new_types(missing_rows, id_lists, joined)):
             type_key[i] = t.key
             type_kind[i] = t.kind
             type_chars[i] = len(t.text)
@@ -414,6 +447,9 @@ def unique_rows(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     inverse[order] = group
     starts = np.flatnonzero(boundary)
     return srt[starts], order[starts], inverse
+
+
+_JOINED = b"J"  # cache-key prefix of segmenter words (their text is made differently)
 
 
 def _strip_zero_columns(b: bytes) -> bytes:

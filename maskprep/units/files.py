@@ -122,8 +122,11 @@ def read_units(path: Union[str, Path]) -> UnitVocabulary:
         source=meta.get("source", {}), word_splitting=meta.get("word_splitting") or {})
 
 
-def read_units_for(path: Union[str, Path], info: Any) -> UnitVocabulary:
-    """The units of `path` for tokenizer `info` (a ``TokenizerInfo``).
+def read_units_for(path: Union[str, Path], info: Any, words: Any = None) -> UnitVocabulary:
+    """The units of `path` for tokenizer `info` (a ``TokenizerInfo``) and word definition `words`.
+
+    Units counted with another word definition than `words` (a ``WordsConfig``;
+    None: the tokenizer's words) are refused: their word keys mean other words.
 
     Units built with this tokenizer come back as they are. Units built with
     another one come back with token ids re-derived when both tokenizers have
@@ -136,6 +139,13 @@ def read_units_for(path: Union[str, Path], info: Any) -> UnitVocabulary:
     from .retarget import retarget_units
 
     vocab = read_units(path)
+    want = words.describe() if words is not None else {"definition": "tokenizer"}
+    have = dict(vocab.source).get("words", {"definition": "tokenizer"})
+    if have != want:
+        raise MaskprepError(f"--units {path}: the units were counted with --words "
+                            f"{json.dumps(have, sort_keys=True)}, this run uses "
+                            f"{json.dumps(want, sort_keys=True)}; rebuild them with maskprep count "
+                            "--words ... and maskprep units, or pass the same --words")
     if vocab.tokenizer_hash == info.hash:
         return vocab
     return retarget_units(vocab, info, path=path)

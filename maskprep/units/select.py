@@ -363,6 +363,8 @@ def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = 
     source = {"N": N, "corpus_fingerprint": meta["corpus_fingerprint"], "counts_min_count": meta["min_count"],
               "counts_max_n": meta["max_n"], "counts_format_version": meta["format_version"],
               "edge_word_list": edge_list, "dropped_edge": dropped["edge"], "dropped_fragment": dropped["fragment"]}
+    if "words" in meta:
+        source["words"] = meta["words"]
     return UnitVocabulary(
         text=tuple(texts), n=n_arr,
         count=chosen.column("count").to_numpy().astype(np.int64),
