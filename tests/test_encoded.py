@@ -59,7 +59,7 @@ def all_files(d: Path) -> dict[str, bytes]:
 
 def test_the_format_stores_every_field_of_encoded_batch():
     names = {f.name for f in dataclasses.fields(EncodedBatch)}
-    assert names == set(fmt.STRUCTURE) | set(fmt.PER_WORD) | set(fmt.PER_DOC)
+    assert names == set(fmt.STRUCTURE) | set(fmt.PER_WORD) | set(fmt.PER_DOC) | set(fmt.PER_TASK)
 
 
 @pytest.mark.parametrize("family", ["wordpiece", "bpe"])

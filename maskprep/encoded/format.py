@@ -59,6 +59,8 @@ COMPRESSION = "zstd"
 PER_WORD: Mapping[str, str] = {"word_keys": "key", "word_kinds": "kind", "word_chars": "chars"}
 PER_DOC: Mapping[str, str] = {}
 STRUCTURE = ("ids", "word_offsets", "doc_offsets")
+# Batch fields kept per task in the manifest (a total; batches read back carry 0): boundary-crossing tokens.
+PER_TASK = ("crossing_tokens",)
 
 
 def docs_name(task: int) -> str:
