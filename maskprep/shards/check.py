@@ -284,11 +284,25 @@ def mark_random(pieces: list[str], tokenizer: Any, ids: list[int], random: list[
     """
     out = list(pieces)
     for i in [k for k, r in enumerate(random) if r]:
-        text = f"{RANDOM_OPEN}{tokenizer.id_to_token(ids[i]) or '?'}{RANDOM_CLOSE}"
+        text = f"{RANDOM_OPEN}{_vocab_text(tokenizer, int(ids[i]))}{RANDOM_CLOSE}"
         if color:
             text = f"{_RANDOM_COLOR}{text}\x1b[0m{_RUN_COLOR}"
         out[i] = " " + text
     return out
+
+
+def _vocab_text(tokenizer: Any, token_id: int) -> str:
+    """A vocabulary entry as text: WordPiece strings as they are (``##ric``); byte-level and
+    metaspace pieces decoded (a leading space shown as ``␣``, part of a character as ``…``)."""
+    from ..tokenizer.pieces import PARTIAL, SPACE_MARK
+
+    raw = tokenizer.id_to_token(token_id) or "?"
+    piece = tokenizer.decode([token_id], skip_special_tokens=False)
+    if piece == raw:
+        return raw
+    if "\ufffd" in piece:
+        return PARTIAL
+    return (SPACE_MARK if piece[:1].isspace() else "") + piece.strip() if piece.strip() else SPACE_MARK
 
 
 def _render(pieces: list[str], runs: list[tuple[int, int]], color: bool) -> str:
@@ -315,7 +329,7 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     tok_path = ss.metadata("tokenizer.json")
     if not tok_path.is_file():
         raise MaskprepError(f"{tok_path}: missing; the shards directory keeps a copy of its tokenizer")
-    tokenizer = load_tokenizer(tok_path)
+    tokenizer = load_tokenizer(tok_path).tokenizer
     mask_id = int(ss.manifest.tokenizer["mask_token_id"])
     o = ss.options
     words = o.get("words", {"definition": "tokenizer"})
