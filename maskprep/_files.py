@@ -29,8 +29,12 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
     ...     tmp.write_bytes(b"...")
     """
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    except OSError as exc:
+        exc.filename = str(path)  # name the output, not a temporary name
+        raise
     os.close(fd)
     tmp_path = Path(tmp)
     os.chmod(tmp_path, 0o666 & ~_umask())  # mkstemp makes 0600; outputs get the usual permissions
@@ -38,9 +42,11 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
         yield tmp_path
         fsync_file(tmp_path)
         os.replace(tmp_path, path)
-    except BaseException:
+    except BaseException as exc:
         with contextlib.suppress(OSError):
             tmp_path.unlink()
+        if isinstance(exc, OSError) and exc.filename in (None, str(tmp_path)):
+            exc.filename = str(path)  # e.g. a writer library's "no space left" names no file
         raise
 
 

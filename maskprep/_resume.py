@@ -201,8 +201,9 @@ def _mkdir(path: Path) -> bool:
     except NotADirectoryError:
         raise MaskprepError(f"{path}: a part of this path is a file, not a directory") from None
     except OSError as exc:
-        reason = exc.strerror or exc
-        raise MaskprepError(f"{path}: cannot create the directory ({reason})") from None
+        from .errors import os_error_text
+
+        raise MaskprepError(os_error_text(exc, doing="creating the output directory")) from None
     return True
 
 

@@ -52,18 +52,22 @@ def cli(ctx: click.Context, workers: int | None, dask_address: str | None, quiet
               help="Tokenizer family (bpe is byte-level).")
 @click.option("--vocab-size", type=int, default=30000, show_default=True, help="Vocabulary size to train.")
 @click.option("--lowercase/--no-lowercase", default=True, show_default=True, help="Lowercase the text first.")
+@click.option("--overwrite", is_flag=True, help="Replace the output file if it exists.")
 @corpus_options
 @click.pass_context
 @user_errors
 def train_tokenizer_cmd(ctx: click.Context, corpus: tuple[str, ...], output: str, model: str, vocab_size: int,
-                        lowercase: bool, **copts: Any) -> None:
+                        lowercase: bool, overwrite: bool, **copts: Any) -> None:
     """Train a tokenizer on CORPUS (files, directories or globs).
 
     The tokenizer gets five special tokens, recorded in the file: padding,
     unknown, sequence start, separator and mask.
     """
+    from ._paths import check_apart, refuse_existing_file
     from .audit.measure import train_on_corpus
 
+    check_apart(output, corpus)
+    refuse_existing_file(output, overwrite=overwrite)
     info = train_on_corpus(list(corpus), model=model, vocab_size=vocab_size, lowercase=lowercase,
                            corpus_options=make_corpus_options(**copts), output=Path(output),
                            quiet=is_quiet(ctx))
@@ -229,11 +233,13 @@ _MEASURE_HELP = ("Cohesion measure: pmi = min over segmentations of log p(g) - s
                    "('guido van' inside 'guido van rossum'); 0: keep fragments.")
 @click.option("--show", "show_n", type=int, default=10, show_default=True,
               help="Top units to print per length (0: none).")
+@click.option("--overwrite", is_flag=True,
+              help="Replace the output files if they exist and were not written by maskprep units.")
 @click.pass_context
 @user_errors
 def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, top: int, min_count: int | None,
               per_length: str | None, max_n: int | None, edge_words: int, fragment_share: float,
-              show_n: int) -> None:
+              show_n: int, overwrite: bool) -> None:
     """Rank the multi-word units of COUNTS_DIR (from maskprep count) by cohesion.
 
     Units are n-grams of 2+ words whose score shows attraction (score > 0;
@@ -243,9 +249,15 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
     pmi-naive scores are in nats. --edge-words 0 --fragment-share 0 gives the
     plain ranking of a measure.
     """
+    from ._paths import check_apart, maskprep_output, refuse_existing_file
     from .units.files import format_top_units, write_units
     from .units.select import build_units
 
+    check_apart(output, [], others=[counts_dir])
+    # units files written by maskprep before are replaced; anything else only with --overwrite
+    ours = maskprep_output(output)
+    for path in (Path(output), Path(output).with_suffix(".tsv")):
+        refuse_existing_file(path, overwrite=overwrite or ours)
     if top < 1:
         raise MaskprepError(f"--top: expected a positive whole number, got {top}")
     if show_n < 0:

@@ -22,15 +22,15 @@ _ADVICE = {
     "EACCES": "check the permissions, or choose another path",
     "EPERM": "check the permissions, or choose another path",
     "EROFS": "the filesystem is read-only; choose another path",
-    "ENOSPC": "no space left on the device; free space or write to a larger disk (finished tasks "
-              "are kept for --resume where offered)",
-    "EDQUOT": "the disk quota is used up; free space or write elsewhere",
+    "ENOSPC": "free space or write to a larger disk; finished tasks are kept for --resume where "
+              "offered",
+    "EDQUOT": "free space or write elsewhere",
     "EFBIG": "the file is larger than this system allows (file size limit)",
     "ENOTDIR": "a part of this path is a file, not a directory",
     "EISDIR": "this is a directory; give a file",
     "EEXIST": "a file is in the way",
-    "ENOENT": "no such file or directory",
-    "ELOOP": "a symbolic link loop (a link that points back to itself)",
+    "ENOENT": "",
+    "ELOOP": "a link that leads back to itself",
     "EMFILE": "too many open files; raise the limit (ulimit -n) or lower --workers",
     "ENAMETOOLONG": "the file name is too long",
 }
@@ -44,9 +44,12 @@ def os_error_text(exc: OSError, *, doing: str = "") -> str:
     'out/a.json: permission denied (check the permissions, or choose another path)'
     """
     import errno as _errno
+    import os
 
     name = _errno.errorcode.get(exc.errno or 0, "")
-    reason = (exc.strerror or str(exc) or type(exc).__name__).rstrip(".")
+    known = exc.errno is not None and name in _ADVICE
+    reason = (os.strerror(exc.errno or 0) if known else (exc.strerror or str(exc) or type(exc).__name__))
+    reason = reason.rstrip(".")
     reason = reason[:1].lower() + reason[1:]
     advice = _ADVICE.get(name)
     where = exc.filename if exc.filename is not None else ""

@@ -100,6 +100,10 @@ def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase
         raise MaskprepError(f"{', '.join(corpus)}: an encoded directory holds token ids, not text; train "
                             "tokenizers on the raw corpus files")
     files = resolve_inputs(corpus)
+    if output is not None:
+        from .._paths import check_apart
+
+        check_apart(output, [*corpus, *files])
     stats = ReadStats()
     info: TokenizerInfo | None = None
     with Progress(f"train {model}-{vocab_size}", unit="documents", quiet=quiet) as progress:
@@ -353,6 +357,9 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
     >>> run_audit(["sample_corpus"], AuditConfig(vocab_sizes=(2000, 8000)), output=Path("out"))  # doctest: +SKIP
     """
     source = open_source(corpus, corpus_options)  # fail early on bad paths, before any training
+    from .._paths import check_apart
+
+    check_apart(output, [*source.inputs, *source.files], others=config.tokenizers)
     infos: list[TokenizerInfo] = [source.tokenizer(p, stage="audit") for p in config.tokenizers]
     if source.encoded:
         if config.vocab_sizes:

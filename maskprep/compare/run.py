@@ -269,6 +269,10 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     executor = executor or Executor()
     source = open_source(list(corpus), corpus_options)
     words = source.check_words(words_option(words))
+    from .._paths import check_apart
+
+    check_apart(output, [*source.inputs, *source.files],
+                others=[str(x) for x in (tokenizer, units) if isinstance(x, (str, Path))])
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="compare")
     info.require_mask()

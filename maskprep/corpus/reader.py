@@ -19,24 +19,24 @@ and byte offset. Empty documents are skipped and counted.
 
 from __future__ import annotations
 
-import glob
+import codecs
 import gzip
 import hashlib
 import io
 import json
 import os
+import sys
+import threading
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, Any, Iterator, cast
 
 from ..errors import MaskprepError
+from .discover import detect_format, resolve_inputs
 
 TEXT_FORMATS = ("txt", "jsonl")
 TABLE_FORMATS = ("parquet", "arrow")
-_SUFFIX_FORMAT = {".txt": "txt", ".text": "txt", ".jsonl": "jsonl", ".ndjson": "jsonl",
-                  ".parquet": "parquet", ".arrow": "arrow", ".feather": "arrow"}
-_COMPRESSION = {".gz": "gzip", ".zst": "zstd"}
 
 
 @dataclass(frozen=True)
@@ -112,66 +112,6 @@ class ReadStats:
     def from_dict(cls, d: dict[str, Any]) -> "ReadStats":
         return cls(int(d["documents"]), int(d["empty_skipped"]), int(d["invalid_utf8_replaced"]),
                    int(d["bytes_read"]), {str(k): int(v) for k, v in d.get("literal_special_tokens", {}).items()})
-
-
-def detect_format(path: str | Path) -> tuple[str, str | None] | None:
-    """Return (format, compression) from a file name, or None if not a corpus file.
-
-    >>> detect_format("news.jsonl.zst")
-    ('jsonl', 'zstd')
-    """
-    name = Path(path).name.lower()
-    suffixes = Path(name).suffixes
-    compression = None
-    if suffixes and suffixes[-1] in _COMPRESSION:
-        compression = _COMPRESSION[suffixes[-1]]
-        suffixes = suffixes[:-1]
-    if not suffixes or suffixes[-1] not in _SUFFIX_FORMAT:
-        return None
-    return _SUFFIX_FORMAT[suffixes[-1]], compression
-
-
-def resolve_inputs(inputs: list[str] | tuple[str, ...]) -> list[Path]:
-    """Expand files, directories and globs into a sorted list of corpus files.
-
-    >>> resolve_inputs(["sample_corpus"])  # doctest: +SKIP
-    [PosixPath('sample_corpus/bulletins.jsonl.gz'), PosixPath('sample_corpus/logbooks.txt.gz')]
-    """
-    if not inputs:
-        raise MaskprepError("no corpus given: pass one or more files, directories or glob patterns")
-    files: list[Path] = []
-    for item in inputs:
-        p = Path(item)
-        if p.is_dir():
-            found = sorted(q for q in p.rglob("*") if q.is_file() and detect_format(q)
-                           and not any(part.startswith(".") for part in q.relative_to(p).parts))
-            if not found:
-                raise MaskprepError(
-                    f"{item}: directory holds no readable corpus files "
-                    "(expected .txt, .jsonl, .parquet or .arrow, optionally .gz or .zst)")
-            files.extend(found)
-        elif p.is_file():
-            if detect_format(p) is None:
-                raise MaskprepError(
-                    f"{item}: unknown corpus format; name it .txt, .jsonl, .parquet or .arrow "
-                    "(optionally with .gz or .zst)")
-            files.append(p)
-        elif any(ch in item for ch in "*?["):
-            matched = sorted(Path(m) for m in glob.glob(item, recursive=True)
-                             if Path(m).is_file() and detect_format(m))
-            if not matched:
-                raise MaskprepError(f"{item}: pattern matches no corpus files")
-            files.extend(matched)
-        else:
-            raise MaskprepError(f"{item}: file not found")
-    seen: set[Path] = set()
-    unique = []
-    for f in files:
-        r = f.resolve()
-        if r not in seen:
-            seen.add(r)
-            unique.append(f)
-    return unique
 
 
 MIN_TASK_BYTES = 1 << 20
@@ -410,30 +350,84 @@ def _line_number(task: CorpusTask, offset: int) -> int:
     return n
 
 
-def _decode(task: CorpusTask, offset: int, raw: bytes, options: CorpusOptions, stats: ReadStats) -> str:
+_BOMS = {b"\xff\xfe\x00\x00": "UTF-32", b"\x00\x00\xfe\xff": "UTF-32", b"\xff\xfe": "UTF-16",
+         b"\xfe\xff": "UTF-16"}
+_replaced = threading.local()
+
+
+def _count_replaced(exc: UnicodeError) -> tuple[str, int]:
+    """The 'replace' error handler (same output), counting the replaced bytes."""
+    assert isinstance(exc, UnicodeDecodeError)
+    _replaced.bytes = getattr(_replaced, "bytes", 0) + (exc.end - exc.start)
+    return "\ufffd", exc.end
+
+
+codecs.register_error("maskprep-count-replace", _count_replaced)
+
+
+@dataclass
+class _Replaced:
+    """Invalid bytes replaced in one task: how many, and where the first was."""
+
+    bytes: int = 0
+    lines: int = 0
+    first: int = -1  # byte offset in the file
+
+    def warn(self, task: CorpusTask) -> None:
+        if not self.bytes:
+            return
+        line = _line_number(task, self.first) if self.first >= 0 else 0
+        sys.stderr.write(f"warning: {task.describe()}: {self.bytes:,} invalid UTF-8 byte(s) replaced with "
+                         f"U+FFFD in {self.lines:,} line(s), the first at line {line:,} (byte {self.first:,}); "
+                         "pass --strict to stop on them instead\n")
+
+
+def _decode(task: CorpusTask, offset: int, raw: bytes, options: CorpusOptions, stats: ReadStats,
+            replaced: _Replaced | None = None) -> str:
     try:
         return raw.decode("utf-8")
     except UnicodeDecodeError as exc:
+        if offset == 0 and task.start == 0:
+            for bom, name in _BOMS.items():
+                if raw.startswith(bom):
+                    raise MaskprepError(f"{task.path}: the file is {name} (it starts with a byte-order mark); "
+                                        "convert it to UTF-8, e.g. iconv -f " + name + " -t UTF-8") from None
         if options.strict:
             line = _line_number(task, offset)
             raise MaskprepError(
                 f"{task.path}:{line}: invalid UTF-8 at byte offset {offset + exc.start} "
                 f"(byte 0x{raw[exc.start]:02x}); fix the file or drop --strict to replace invalid bytes") from None
         stats.invalid_utf8 += 1
-        return raw.decode("utf-8", errors="replace")
+        _replaced.bytes = 0
+        text = raw.decode("utf-8", errors="maskprep-count-replace")
+        if replaced is not None:
+            replaced.bytes += _replaced.bytes
+            replaced.lines += 1
+            if replaced.first < 0:
+                replaced.first = offset + exc.start
+        return text
 
 
 def _iter_text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+    replaced = _Replaced()
+    try:
+        yield from _text_documents(task, options, stats, replaced)
+    finally:
+        replaced.warn(task)
+
+
+def _text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats,
+                    replaced: _Replaced) -> Iterator[str]:
     lines = _raw_lines(task)
     if task.fmt == "txt" and options.doc_sep == "line":
         for offset, raw in lines:
             stats.bytes_read += len(raw) + 1
-            yield _decode(task, offset, raw, options, stats)
+            yield _decode(task, offset, raw, options, stats, replaced)
     elif task.fmt == "txt":
         para: list[str] = []
         for offset, raw in lines:
             stats.bytes_read += len(raw) + 1
-            text = _decode(task, offset, raw, options, stats)
+            text = _decode(task, offset, raw, options, stats, replaced)
             if text.strip():
                 para.append(text)
             elif para:
@@ -447,7 +441,7 @@ def _iter_text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadSt
             stats.bytes_read += len(raw) + 1
             if not raw.strip():
                 continue
-            text = _decode(task, offset, raw, options, stats)
+            text = _decode(task, offset, raw, options, stats, replaced)
             try:
                 obj = json.loads(text)
             except json.JSONDecodeError as exc:
@@ -546,6 +540,10 @@ def _iter_table_documents(task: CorpusTask, options: CorpusOptions, stats: ReadS
 def _column_texts(task: CorpusTask, col: object, stats: ReadStats) -> Iterator[str]:
     import pyarrow as pa
 
+    ctype = col.type  # type: ignore[attr-defined]
+    if pa.types.is_dictionary(ctype) and (pa.types.is_string(ctype.value_type)
+                                          or pa.types.is_large_string(ctype.value_type)):
+        col = col.cast(ctype.value_type)  # type: ignore[attr-defined]  # dictionary-encoded strings
     if not (pa.types.is_string(col.type) or pa.types.is_large_string(col.type)):  # type: ignore[attr-defined]
         raise MaskprepError(f"{task.path}: column is {col.type}, expected strings")  # type: ignore[attr-defined]
     for value in col.to_pylist():  # type: ignore[attr-defined]

@@ -43,10 +43,11 @@ import numpy as np
 from .._version import __version__
 from ..corpus.reader import CorpusOptions, corpus_fingerprint
 from ..encoded.source import open_source
+from .._paths import check_apart
 from ..errors import MaskprepError
 from ..wording import plural
 from ..execute import Executor, map_tasks, pool_running
-from .._files import fsynced_write_text
+from .._files import file_sha256, fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
 from ..tokenizer.encoding import TokenizerInfo, warn_literal_specials
@@ -59,6 +60,10 @@ __all__ = ["CountConfig", "CountSummary", "count_ngrams", "finish_counts", "task
 
 
 # ---------------------------------------------------------------- the driver
+
+def _path_of(tokenizer: object) -> str | None:
+    return str(tokenizer) if isinstance(tokenizer, (str, Path)) else None
+
 
 def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo | None,
                  output: str | Path,
@@ -78,6 +83,7 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     output = Path(output)
     source = open_source(list(corpus), corpus_options, task_bytes=TASK_BYTES)
     source.check_words(config.words)
+    check_apart(output, [*source.inputs, *source.files], others=[_path_of(tokenizer)])
     corpus_options = source.options
     files = [Path(f) for f in source.files]
     info = source.tokenizer(tokenizer, stage="count")
@@ -207,6 +213,8 @@ def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Pat
                     "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
                     "strict": corpus_options.strict},
         "maskprep_version": __version__,
+        # checked by the stages that read the files (a flipped byte must not pass as counts)
+        "sha256": {f"ngrams-{n}.parquet": file_sha256(spill / f"ngrams-{n}.parquet") for n in range(1, max_n + 1)},
     }
     try:
         fsynced_write_text(spill / "tokenizer.json", info.json)

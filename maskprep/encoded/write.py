@@ -385,11 +385,9 @@ def encode_corpus(corpus: Sequence[str], *, tokenizer: str | Path | TokenizerInf
 
 
 def _refuse_overlap(out: Path, source: Source) -> None:
-    target = out.resolve()
-    for f in source.files:
-        p = Path(f).resolve()
-        if p == target or target in p.parents:
-            raise MaskprepError(f"-o {out}: would write over or inside the corpus ({f}); choose another -o")
+    from .._paths import check_apart
+
+    check_apart(out, [*source.inputs, *source.files])
 
 
 def format_encode_summary(manifest: EncodedManifest) -> str:

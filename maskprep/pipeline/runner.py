@@ -206,16 +206,48 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
     >>> [s.status for s in result.stages]  # doctest: +SKIP
     ['ran', 'ran', 'ran', 'ran', 'ran', 'ran', 'ran', 'ran', 'ran']
     """
-    from ..corpus.reader import corpus_fingerprint, resolve_inputs
+    from ..corpus.reader import resolve_inputs
     from ..execute import Executor
-    from ..tokenizer.encoding import load_tokenizer
 
     cfg = config if isinstance(config, RunConfig) else load_run_config(config, output=output)
     out = Path(output) if output is not None else cfg.output
     if out is None:
         raise MaskprepError(f"{cfg.path}: no output directory: add output = \"DIR\" to the file or pass -o DIR")
     executor = executor or Executor()
+    from .._paths import check_apart
+
+    tokenizer_file = getattr(cfg, "tokenizer_path", None)
+    check_apart(out, [*cfg.corpus, *resolve_inputs(list(cfg.corpus))], others=[tokenizer_file],
+                option="-o" if output is not None else f"{cfg.path}: output =")
+    made, fresh = not out.exists(), not (out / RUN_FILE).is_file()
     _prepare_output(out, cfg)
+    try:
+        return _run_stages(cfg, out, force=force, executor=executor, quiet=quiet)
+    except BaseException:
+        if fresh:  # a first run that failed leaves nothing behind: no pipeline.json, no empty folders
+            _undo_first_run(out, made)
+        raise
+
+
+def _undo_first_run(out: Path, made: bool) -> None:
+    (out / RUN_FILE).unlink(missing_ok=True)
+    for d in sorted((p for p in out.rglob("*") if p.is_dir()), key=lambda p: -len(p.parts)):
+        try:
+            d.rmdir()  # only empty folders; whatever a stage left for --resume stays
+        except OSError:
+            pass
+    if made:
+        try:
+            out.rmdir()
+        except OSError:
+            pass
+
+
+def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet: bool) -> RunResult:
+    """The stages of `run_pipeline` in order, each skipped when up to date."""
+    from ..corpus.reader import corpus_fingerprint, resolve_inputs
+    from ..tokenizer.encoding import load_tokenizer
+
     runner = _Runner(out, force=force, quiet=quiet)
     corpus = list(cfg.corpus)
     copts = cfg.corpus_options
@@ -236,7 +268,7 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
         def run_tok(d: Path) -> list[str]:
             train_on_corpus(corpus, model=train.model, vocab_size=train.vocab_size, lowercase=train.lowercase,
                             corpus_options=copts, output=d / "tokenizer.json", quiet=quiet,
-                            name=f"{train.model}-{train.vocab_size}", option="[tokenizer] vocab_size")
+                            name=f"{train.model}-{train.vocab_size}", option=f"{cfg.path}: [tokenizer] vocab_size")
             return ["tokenizer.json"]
 
         runner.stage("tokenizer", "tokenizer", train, base_inputs, run_tok)

@@ -227,7 +227,29 @@ def verify_shards(directory: str | Path, *, max_faults: int = 50) -> VerifyRepor
             if stats.get(sk) != sums[k]:
                 faults.append(f"{stats_path.relative_to(ss.directory)}: {sk} is {stats.get(sk)}, "
                               f"the shards hold {sums[k]}")
+    _check_tokenizer_copy(ss, faults)
     return report
+
+
+def _check_tokenizer_copy(ss: ShardSet, faults: list[str]) -> None:
+    """The tokenizer copy must load and be the one the manifest names (its hash)."""
+    from ..errors import MaskprepError
+    from ..tokenizer.encoding import load_tokenizer
+
+    path = ss.metadata("tokenizer.json")
+    name = path.relative_to(ss.directory)
+    if not path.is_file():
+        faults.append(f"{name}: missing (the ids cannot be read back as text without it)")
+        return
+    try:
+        info = load_tokenizer(path)
+    except MaskprepError as exc:
+        faults.append(f"{name}: damaged ({exc})")
+        return
+    want = ss.manifest.tokenizer.get("hash")
+    if info.hash != want:
+        faults.append(f"{name}: not the tokenizer manifest.json names (hash {info.hash[:12]}, manifest "
+                      f"{str(want)[:12]})")
 
 
 def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -> Iterator[dict[str, np.ndarray]]:
@@ -252,11 +274,22 @@ def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -
 
 # ------------------------------------------------------------------ show
 
+# Control characters from the corpus are shown, never sent to the terminal: C0 ones and DEL as their
+# Unicode control pictures (ESC -> U+241B), C1 ones as \x escapes.
+_CONTROLS = {**{c: chr(0x2400 + c) for c in range(0x20)}, 0x7F: "\u2421",
+             **{c: f"\\x{c:02x}" for c in range(0x80, 0xA0)}}
+
+
+def safe_text(text: str) -> str:
+    """Text with every control character made visible: ``safe_text("a\x1b[31mb")`` -> 'a\u241b[31mb'."""
+    return text.translate(_CONTROLS)
+
+
 def _pieces(info: Any, ids: list[int]) -> list[str]:
     """Decoded text of each token in running text (byte and space markers decoded, see `tokenizer.pieces`)."""
     from ..tokenizer.pieces import running_text
 
-    return running_text(info, ids)
+    return [safe_text(p) for p in running_text(info, ids)]  # control characters made visible
 
 
 def _runs(flags: list[bool]) -> list[tuple[int, int]]:
@@ -284,7 +317,7 @@ def mark_random(pieces: list[str], tokenizer: Any, ids: list[int], random: list[
     """
     out = list(pieces)
     for i in [k for k, r in enumerate(random) if r]:
-        text = f"{RANDOM_OPEN}{_vocab_text(tokenizer, int(ids[i]))}{RANDOM_CLOSE}"
+        text = f"{RANDOM_OPEN}{safe_text(_vocab_text(tokenizer, int(ids[i])))}{RANDOM_CLOSE}"
         if color:
             text = f"{_RANDOM_COLOR}{text}\x1b[0m{_RUN_COLOR}"
         out[i] = " " + text

@@ -284,6 +284,10 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     executor = executor or Executor()
     source = open_source(list(corpus), corpus_options)
     words = source.check_words(words_option(words))
+    from .._paths import check_apart
+
+    check_apart(output, [*source.inputs, *source.files],
+                others=[str(x) for x in (tokenizer, units) if isinstance(x, (str, Path))])
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="mask")
     mask_id = info.require_mask()
@@ -376,6 +380,9 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
         read.merge(read_stats_of(rec["read"]))
         records.extend(ShardRecord(**s) for s in rec["shards"])
     warn_literal_specials(info, read.literal_specials, ", ".join(str(f) for f in files))
+    if stats.sequences == 0:
+        raise MaskprepError(f"{', '.join(map(str, files))}: no documents to mask (every document is empty or "
+                            "whitespace); no shards were written")
     totals = {"shards": len(records), "rows": stats.rows, "sequences": stats.sequences, "tokens": stats.tokens,
               "maskable": stats.maskable, "targets": stats.targets}
     manifest = ShardManifest(

@@ -146,6 +146,10 @@ def read_units_for(path: Union[str, Path], info: Any, words: Any = None) -> Unit
                             f"{json.dumps(have, sort_keys=True)}, this run uses "
                             f"{json.dumps(want, sort_keys=True)}; rebuild them with maskprep count "
                             "--words ... and maskprep units, or pass the same --words")
+    if len(vocab) == 0:
+        raise MaskprepError(f"--units {path}: holds no units, so --strategy pmi would mask single words only; "
+                            "rebuild it with maskprep units (a lower --min-count, or larger counts), or use "
+                            "--strategy word")
     if vocab.tokenizer_hash == info.hash:
         return vocab
     return retarget_units(vocab, info, path=path)

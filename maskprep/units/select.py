@@ -261,6 +261,21 @@ def _load_tokenizer(counts_dir: Path, expected_hash: str) -> Any:
     return info.tokenizer
 
 
+def _check_sha256(counts_dir: Path, meta: Mapping[str, Any]) -> None:
+    """Every n-gram file must still have the sha256 counts.json recorded (counts of older versions
+    recorded none)."""
+    from .._files import file_sha256
+
+    recorded = meta.get("sha256")
+    if not isinstance(recorded, dict):
+        return
+    for name, digest in sorted(recorded.items()):
+        path = counts_dir / str(name)
+        if path.is_file() and file_sha256(path) != digest:
+            raise MaskprepError(f"{path}: changed or damaged since it was counted (its sha256 differs from "
+                                "counts.json); re-run maskprep count")
+
+
 def _read_ngrams(counts_dir: Path, n: int, *, with_text: bool) -> tuple[np.ndarray, np.ndarray, Any]:
     import pyarrow as pa
     import pyarrow.parquet as pq
@@ -319,6 +334,7 @@ def build_units(counts_dir: Union[str, Path], *, measure: Union[Measure, str] = 
 
     counts_dir = Path(counts_dir)
     meta = _counts_meta(counts_dir)
+    _check_sha256(counts_dir, meta)
     options = _options(meta, measure=measure, top=top, min_count=min_count, per_length=per_length,
                        max_n=max_n, edge_words=edge_words, fragment_share=fragment_share)
     tok = _load_tokenizer(counts_dir, meta["tokenizer_hash"])
