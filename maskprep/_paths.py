@@ -113,11 +113,14 @@ def _table_metadata_says_maskprep(path: Path) -> bool:
     return b"maskprep" in meta
 
 
-def refuse_existing_file(path: str | Path, *, overwrite: bool, option: str = "-o") -> None:
-    """Refuse to replace an existing file without ``--overwrite``; a directory in the way is refused always."""
-    p = Path(path)
-    if p.is_dir():
-        raise MaskprepError(f"{option} {path}: is a directory; give a file name")
-    if p.exists() and not overwrite:
-        raise MaskprepError(f"{option} {path}: file exists; pass --overwrite to replace it, or choose "
-                            "another name")
+def refuse_existing_file(path: str | Path, *beside: str | Path, overwrite: bool, option: str = "-o",
+                         own_ok: bool = False) -> None:
+    """Refuse to replace an existing file (or the files written `beside` it) without ``--overwrite``;
+    with `own_ok`, a table maskprep wrote there before is replaced. A directory in the way is refused."""
+    overwrite = overwrite or (own_ok and maskprep_output(path))
+    for p in (Path(path), *map(Path, beside)):
+        if p.is_dir():
+            raise MaskprepError(f"{option} {path}: {p} is a directory; give a file name")
+        if p.exists() and not overwrite:
+            raise MaskprepError(f"{option} {path}: {p.name} exists; pass --overwrite to replace it, or "
+                                "choose another name")

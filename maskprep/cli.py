@@ -249,15 +249,12 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
     pmi-naive scores are in nats. --edge-words 0 --fragment-share 0 gives the
     plain ranking of a measure.
     """
-    from ._paths import check_apart, maskprep_output, refuse_existing_file
+    from ._paths import check_apart, refuse_existing_file
     from .units.files import format_top_units, write_units
     from .units.select import build_units
 
     check_apart(output, [], others=[counts_dir])
-    # units files written by maskprep before are replaced; anything else only with --overwrite
-    ours = maskprep_output(output)
-    for path in (Path(output), Path(output).with_suffix(".tsv")):
-        refuse_existing_file(path, overwrite=overwrite or ours)
+    refuse_existing_file(output, Path(output).with_suffix(".tsv"), overwrite=overwrite, own_ok=True)
     if top < 1:
         raise MaskprepError(f"--top: expected a positive whole number, got {top}")
     if show_n < 0:

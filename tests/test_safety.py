@@ -113,14 +113,14 @@ def test_existing_files_are_replaced_only_when_asked(tmp_path, corpus_dir, small
     mine = tmp_path / "notes.json"
     mine.write_text("{}", encoding="utf-8")
     r = run("train-tokenizer", victim, "-o", str(mine), "--vocab-size", "300")
-    one_clean_line(r, "file exists; pass --overwrite")
+    one_clean_line(r, "exists; pass --overwrite")
     assert mine.read_text(encoding="utf-8") == "{}"
     assert run("train-tokenizer", victim, "-o", str(mine), "--vocab-size", "300", "--overwrite").returncode == 0
     counts = tmp_path / "counts"
     assert run("count", victim, "-t", str(small_wordpiece), "-o", str(counts), "--max-n", "2").returncode == 0
     foreign = tmp_path / "u.parquet"
     foreign.write_bytes(b"not mine")
-    one_clean_line(run("units", str(counts), "-o", str(foreign)), "file exists; pass --overwrite")
+    one_clean_line(run("units", str(counts), "-o", str(foreign)), "exists; pass --overwrite")
     assert foreign.read_bytes() == b"not mine"
     assert run("units", str(counts), "-o", str(foreign), "--overwrite").returncode == 0
     assert run("units", str(counts), "-o", str(foreign)).returncode == 0  # its own file: replaced

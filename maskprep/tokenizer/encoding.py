@@ -484,7 +484,9 @@ def load_tokenizer(path: str | Path, *, name: str | None = None) -> TokenizerInf
     spec = json.loads(raw)
     if not isinstance(spec, dict) or not isinstance(spec.get("model"), dict):
         kind = type(spec).__name__ if not isinstance(spec, dict) else "an object without a 'model' key"
-        hint = _json_kind(spec)
+        from .checks import json_kind
+
+        hint = json_kind(spec)
         raise MaskprepError(f"{path}: valid JSON but not a tokenizer.json ({kind}{hint}); give the "
                             "tokenizer.json written by maskprep train-tokenizer or the tokenizers library")
     try:
@@ -492,48 +494,12 @@ def load_tokenizer(path: str | Path, *, name: str | None = None) -> TokenizerInf
     except Exception as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise MaskprepError(f"{path}: not a valid tokenizer.json ({msg})") from None
+    from .checks import check_unknown_token
+
     check_unknown_token(spec, path)
     if name is None:
         name = p.parent.name if p.name == "tokenizer.json" and p.parent.name else p.stem
     return TokenizerInfo(tok, name=name, path=str(p))
-
-
-def _json_kind(doc: Any) -> str:
-    """What a JSON file that is not a tokenizer seems to be, for the message."""
-    if not isinstance(doc, dict):
-        return ""
-    if doc.get("format") == "maskprep-shards":
-        return ": it is a shards manifest"
-    if "N" in doc and "max_n" in doc:
-        return ": it is a counts.json"
-    keys = ", ".join(sorted(map(str, doc))[:6])
-    return f"; its keys: {keys}" if keys else ""
-
-
-def check_unknown_token(spec: dict[str, Any], path: str | Path) -> None:
-    """Refuse a model whose unknown token is not in its vocabulary (it would fail on the first
-    character it cannot encode, deep inside a run).
-
-    >>> check_unknown_token({"model": {"type": "WordPiece", "unk_token": "[UNK]", "vocab": {"a": 0}}},
-    ...                     "t.json")
-    Traceback (most recent call last):
-    maskprep.errors.MaskprepError: t.json: the model's unknown token '[UNK]' is not in its vocabulary; add it to the vocabulary (and as a special token), or retrain with maskprep train-tokenizer
-    """
-    model = spec.get("model") or {}
-    vocab = model.get("vocab")
-    unk = model.get("unk_token")
-    if model.get("type") in ("WordPiece", "BPE", "WordLevel") and isinstance(unk, str):
-        names = set(vocab) if isinstance(vocab, dict) else set()  # the model's own vocabulary
-        if unk not in names:
-            raise MaskprepError(f"{path}: the model's unknown token {unk!r} is not in its vocabulary; add it "
-                                "to the vocabulary (and as a special token), or retrain with maskprep "
-                                "train-tokenizer")
-    if model.get("type") == "Unigram" and model.get("unk_id") is not None:
-        size = len(vocab) if isinstance(vocab, list) else 0
-        unk_id = model.get("unk_id")
-        if not isinstance(unk_id, int) or not 0 <= unk_id < size:
-            raise MaskprepError(f"{path}: the model's unknown token id {unk_id!r} is not in its vocabulary "
-                                f"of {size} pieces; fix unk_id or retrain with maskprep train-tokenizer")
 
 
 def tokenizer_from_json(text: str, *, name: str = "tokenizer") -> TokenizerInfo:
