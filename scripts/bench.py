@@ -14,6 +14,8 @@ figures and same-run ratios:
            and Dask LocalCluster overhead vs the local pool
   encoded  encode, and count / mask / compare on an encoded directory, vs one bare
            encode_batch_fast pass (<= 1.4x; <= 0.4x each; whole run <= 3x), peak memory
+  words    --words zh vs --words tokenizer for count and mask on real Chinese text (>= 0.5x),
+           and the segmenters alone in MB/s
   loader   ShardLoader (shuffle, world_size 2) vs pyarrow reading the same files (>= 0.8x),
            and its peak heap against the shuffle buffer it states
 
@@ -38,6 +40,7 @@ SECTIONS = {
     "mask": ("bench_mask.py", [], ["--quick"]),
     "workers": ("bench_workers.py", [], ["--quick"]),
     "loader": ("bench_loader.py", ["--rounds", "5"], ["--quick"]),
+    "words": ("bench_words.py", [], ["--quick"]),
     "encoded": ("bench_encoded.py", ["--flat", "10,200"], ["--quick"]),
 }
 

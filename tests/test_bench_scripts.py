@@ -120,6 +120,7 @@ QUICK = {
     "bench_counting.py": (["--lines", "2000", "--speed-mb", "1", "--sizes", "1,2", "--vocab-size", "4000"],
                           "same counts for every kept n-gram: True", True),
     "bench_encoded.py": ([], "peak memory on the encoded directory", True),
+    "bench_words.py": (["--lines", "800"], "bench_words: --words zh", False),
     "bench_workers.py": (["--copies", "1", "--lines", "1000", "--files", "2", "--vocab-size", "2000"],
                          "outputs identical across set-ups: yes", True),
 }
