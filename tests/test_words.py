@@ -352,3 +352,18 @@ def test_cohesion_words_through_the_cli(zh_corpus, zh_wordpiece, tmp_path):
     words = set(__import__("pyarrow.parquet", fromlist=["x"]).read_table(
         tmp_path / "c" / "ngrams-1.parquet").column("text").to_pylist())
     assert "文件" in words and "系统" in words
+
+
+def test_an_encoded_directory_keeps_the_word_definition(zh_corpus, zh_bpe, tmp_path):
+    small = tmp_path / "small.txt"
+    small.write_text("\n".join(fortunes_lines()[:400]) + "\n", encoding="utf-8")
+    invoke("encode", str(small), "-t", str(zh_bpe), "-o", str(tmp_path / "enc"), "--words", "zh")
+    manifest = json.loads((tmp_path / "enc" / "encoded.json").read_text())
+    assert manifest["words"]["definition"] == "zh"
+    for name, src in (("raw", str(small)), ("enc", str(tmp_path / "enc"))):
+        invoke("count", src, "-t", str(zh_bpe), "-o", str(tmp_path / f"c-{name}"), "--words", "zh",
+               "--max-n", "2", "--min-count", "2")
+    for f in ("ngrams-1.parquet", "ngrams-2.parquet"):
+        assert (tmp_path / "c-raw" / f).read_bytes() == (tmp_path / "c-enc" / f).read_bytes(), f
+    r = CliRunner().invoke(cli, ["--quiet", "count", str(tmp_path / "enc"), "-o", str(tmp_path / "c-tok")])
+    assert r.exit_code == 1 and "encoded with --words zh" in r.output

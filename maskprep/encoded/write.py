@@ -80,8 +80,9 @@ def _ids_type(vocab_size: int) -> Any:
 class _TypeIndex:
     """Word types of one task: exact identity by token ids and every per-word field, first seen first."""
 
-    def __init__(self, info: TokenizerInfo) -> None:
+    def __init__(self, info: TokenizerInfo, joined: bool = False) -> None:
         self.info = info
+        self.joined = joined  # segmenter words: texts made without whitespace (as the word keys were)
         self.base = info.vocab_size + 1
         per = 1
         while self.base ** (per + 1) < 2 ** 64:
@@ -147,8 +148,7 @@ class _TypeIndex:
             self.fields[name].append(np.asarray(getattr(batch, name))[words])
         split = np.cumsum(lengths)[:-1]
         lists = [a.tolist() for a in np.split(flat_ids, split)]
-        texts = self.info.tokenizer.decode_batch(lists, skip_special_tokens=False)
-        self.texts.extend(t.strip() for t in texts)
+        self.texts.extend(self.info.canonical_texts(lists, joined=self.joined))
 
     def table(self, ids_type: Any) -> Any:
         import pyarrow as pa
@@ -196,7 +196,7 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
     info = _tokenizer(job)
     out = Path(job.out)
     ipc = pa.ipc.IpcWriteOptions(compression=COMPRESSION)
-    types = _TypeIndex(info)
+    types = _TypeIndex(info, joined=job.words is not None)
     reader = TaskReader(task, info, job.options, batch_chars=BATCH_CHARS, words=job.words)
     schema = _docs_schema()
     crossing = 0
