@@ -74,13 +74,11 @@ def main() -> None:
     except ImportError:
         print("skipped: the zh extra is not installed (pip install 'maskprep[zh]')")
         return
-    from maskprep.count.driver import CountConfig, count_ngrams
+    from maskprep.count import CountConfig, count_ngrams
     from maskprep.execute import Executor
-    from maskprep.masking.sampler import MaskingConfig
-    from maskprep.shards.write import write_shards
-    from maskprep.tokenizer.encoding import save_tokenizer
-    from maskprep.tokenizer.train import TrainConfig, train_tokenizer
-    from maskprep.tokenizer.words import WordsConfig
+    from maskprep.masking import MaskingConfig
+    from maskprep.shards import write_shards
+    from maskprep.tokenizer import TrainConfig, WordsConfig, save_tokenizer, train_tokenizer
 
     lines = fortunes()[: args.lines]
     print("segmenters alone:")

@@ -16,6 +16,8 @@ from .encoding import (
     save_tokenizer,
 )
 from .train import TrainConfig, train_tokenizer
+from .words import WordsConfig
 
 __all__ = ["PUNCT", "SPACE", "SPECIAL", "WORD", "EncodedBatch", "TokenizerInfo", "TrainConfig",
-           "encode_documents", "encode_stream", "load_tokenizer", "save_tokenizer", "train_tokenizer"]
+           "encode_documents", "encode_stream", "load_tokenizer", "save_tokenizer", "train_tokenizer",
+           "WordsConfig"]
