@@ -14,7 +14,7 @@ import click
 from .errors import MaskprepError
 
 __all__ = ["CONTEXT", "executor_from", "is_quiet", "user_errors", "corpus_options", "masking_options",
-           "make_corpus_options", "words_option", "make_words"]
+           "make_corpus_options", "words_option", "make_words", "budget_option"]
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
@@ -56,6 +56,14 @@ def user_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
             sys.exit(130)
 
     return wrapper
+
+
+def budget_option(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """--memory of mask and compare (see `maskprep._budget`)."""
+    return click.option("--memory", default="2GiB", show_default=True, metavar="SIZE",
+                        help="Memory for all workers together (as for count); checked against what each "
+                             "worker holds: one encoded batch and, for mask, the rows of one shard file "
+                             "per copy.")(fn)
 
 
 def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:

@@ -17,9 +17,8 @@ import click
 from .errors import MaskprepError
 from .wording import plural
 
-from ._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, make_corpus_options, make_words, \
-    words_option, masking_options, \
-    user_errors
+from ._cli_options import CONTEXT, budget_option, corpus_options, executor_from, is_quiet, \
+    make_corpus_options, make_words, masking_options, user_errors, words_option
 
 
 @click.group(context_settings=CONTEXT)
@@ -302,6 +301,7 @@ def _pct(x: float | None) -> str:
               help="Write unmasked input_ids and unit_ids, to mask on the fly with maskprep.mask_batch.")
 @click.option("--overwrite", is_flag=True, help="Replace the shards in an existing output directory.")
 @click.option("--resume", is_flag=True, help="Finish an interrupted run with the same options.")
+@budget_option
 @words_option
 @corpus_options
 @click.pass_context
@@ -309,7 +309,7 @@ def _pct(x: float | None) -> str:
 def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, output: str, strategy: str,
              units_path: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
              seq_len: int, no_pack: bool, copies: int, seed: int, fmt: str, shard_rows: int, dynamic: bool,
-             overwrite: bool, resume: bool, **copts: Any) -> None:
+             overwrite: bool, resume: bool, memory: str, **copts: Any) -> None:
     """Pack CORPUS into sequences, mask them and write training-ready shards.
 
     Writes DIR/shard-*.arrow (or .parquet) and, in DIR/_maskprep/, manifest.json,
@@ -331,7 +331,8 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None,
     manifest, stats = write_shards(list(corpus), tokenizer=tokenizer, output=output, masking=masking,
                                    packing=packing, shards=shards, units=units_path,
                                    corpus_options=co, executor=executor_from(ctx),
-                                   overwrite=overwrite, resume=resume, words=words_cfg)
+                                   overwrite=overwrite, resume=resume, words=words_cfg,
+                                   memory=memory)
     _units_note(manifest.options.get("units_tokenizer_hash"))
     rate_ = stats["masking_rate"]
     mix_ = stats["mix"]
@@ -439,6 +440,7 @@ def _parse_sample(text: str) -> int | None:
 @click.option("--examples", type=int, default=3, show_default=True, help="Example sequences shown in compare.html.")
 @click.option("-o", "--output", required=True, type=click.Path(file_okay=False),
               help="Directory for compare.json and compare.html.")
+@budget_option
 @words_option
 @corpus_options
 @click.pass_context
@@ -446,7 +448,7 @@ def _parse_sample(text: str) -> int | None:
 def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, units_path: str | None,
                 strategies: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
                 seq_len: int, no_pack: bool, sample: str, seed: int, examples: int, output: str,
-                **copts: Any) -> None:
+                memory: str, **copts: Any) -> None:
     """Mask the same sequences of CORPUS with each strategy and compare what they hide.
 
     Per strategy: actual masking rate, unit lengths, multi-word share, within-word and
@@ -462,7 +464,7 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | No
                            sample=_parse_sample(sample), examples=examples)
     co, words_cfg = make_words(copts, corpus, ctx)
     doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,
-                             corpus_options=co, executor=executor_from(ctx), words=words_cfg)
+                             corpus_options=co, executor=executor_from(ctx), words=words_cfg, memory=memory)
     click.echo(format_compare_table(doc))
     _units_note((doc.get("units") or {}).get("built_with_tokenizer"))
     click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")

@@ -249,7 +249,8 @@ def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[St
 
 def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                        config: CompareConfig = CompareConfig(), units: str | Path | None = None,
-                       corpus_options: Any = None, executor: Any = None, words: Any = None) -> dict[str, Any]:
+                       corpus_options: Any = None, executor: Any = None, words: Any = None,
+                       memory: str | int = "2GiB") -> dict[str, Any]:
     """Mask the same sequences with each strategy; write compare.json and compare.html; return the JSON.
 
     `words` (a `WordsConfig`, default the tokenizer's words) defines the words of
@@ -273,6 +274,10 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
 
     check_apart(output, [*source.inputs, *source.files],
                 others=[str(x) for x in (tokenizer, units) if isinstance(x, (str, Path))])
+    from .._budget import check_budget
+    from ..count.types import parse_memory
+
+    check_budget(parse_memory(memory), option=f"--memory {memory}", executor=executor, tasks=len(source.tasks))
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="compare")
     info.require_mask()

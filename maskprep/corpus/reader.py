@@ -22,7 +22,6 @@ from __future__ import annotations
 import codecs
 import gzip
 import hashlib
-import io
 import json
 import os
 import sys
@@ -30,10 +29,12 @@ import threading
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import IO, Any, Iterator, cast
+from typing import Any, Iterator
 
 from ..errors import MaskprepError
+from .compressed import open_binary as _open_binary
 from .discover import detect_format, resolve_inputs
+from .pieces import PIECE_BYTES, Continued, line_pieces, text_pieces
 
 TEXT_FORMATS = ("txt", "jsonl")
 TABLE_FORMATS = ("parquet", "arrow")
@@ -193,16 +194,27 @@ def iter_documents(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
     ['first document', 'second document']
     """
     stats = stats if stats is not None else ReadStats()
-    if task.fmt in TEXT_FORMATS:
+    if task.fmt == "txt":  # text files come in pieces already
         source = _iter_text_documents(task, options, stats)
     else:
-        source = _iter_table_documents(task, options, stats)
+        whole = _iter_text_documents(task, options, stats) if task.fmt in TEXT_FORMATS else \
+            _iter_table_documents(task, options, stats)
+        source = (Continued(p) if i else p for doc in whole for i, p in enumerate(text_pieces(doc)))
+    cut = 0
     for doc in source:
-        if doc.strip():
+        if isinstance(doc, Continued):  # a later piece of a long document: not counted again
+            cut += 1
+            if doc.strip():
+                yield str(doc)
+        elif doc.strip():
             stats.documents += 1
             yield doc
         else:
             stats.empty_skipped += 1
+    if cut:
+        sys.stderr.write(f"note: {task.describe()}: documents longer than {PIECE_BYTES:,} bytes were cut into "
+                         f"{cut:,} more piece(s) of at most that size; each piece is treated as a document "
+                         "(n-grams do not span a cut, packing separates the pieces)\n")
 
 
 def iter_batches(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
@@ -249,60 +261,9 @@ def corpus_fingerprint(files: list[Path], options: CorpusOptions = CorpusOptions
 
 # ---------------------------------------------------------------- text files
 
-def _open_binary(path: str, compression: str | None) -> IO[bytes]:
-    if compression == "gzip":
-        return cast(IO[bytes], gzip.open(path, "rb"))
-    if compression == "zstd":
-        return io.BufferedReader(_ZstdReader(path), buffer_size=1 << 20)
-    return open(path, "rb")
-
-
-class _ZstdReader(io.RawIOBase):
-    """Streaming zstd reader that notices a truncated last frame (EOFError)."""
-
-    def __init__(self, path: str) -> None:
-        import zstandard
-
-        self._zstd = zstandard
-        self._fh = open(path, "rb")
-        self._dctx = zstandard.ZstdDecompressor()
-        self._dobj = self._dctx.decompressobj()
-        self._buf = b""
-        self._pending = False  # bytes fed to a frame that has not ended
-
-    def readable(self) -> bool:
-        return True
-
-    def readinto(self, b: "bytearray | memoryview") -> int:  # type: ignore[override]
-        while not self._buf:
-            chunk = self._fh.read(1 << 20)
-            if not chunk:
-                if self._pending:
-                    raise EOFError("zstd stream ended in the middle of a frame")
-                return 0
-            parts = []
-            while chunk:
-                parts.append(self._dobj.decompress(chunk))
-                self._pending = True
-                if self._dobj.eof:  # frame complete; the rest starts another frame
-                    chunk = self._dobj.unused_data
-                    self._dobj = self._dctx.decompressobj()
-                    self._pending = False
-                else:
-                    chunk = b""
-            self._buf = b"".join(parts)
-        n = min(len(b), len(self._buf))
-        b[:n] = self._buf[:n]
-        self._buf = self._buf[n:]
-        return n
-
-    def close(self) -> None:
-        self._fh.close()
-        super().close()
-
-
-def _raw_lines(task: CorpusTask) -> Iterator[tuple[int, bytes]]:
-    """Yield (byte offset of line start, line bytes without newline) for a task."""
+def _raw_lines(task: CorpusTask, piece: int | None = None) -> Iterator[tuple[int, bytes, bool]]:
+    """Yield (byte offset, line bytes without newline, last piece of its line?) for a task; with
+    `piece`, a line longer than that comes in pieces (`corpus.pieces`)."""
     try:
         with _open_binary(task.path, task.compression) as fh:
             pos = 0
@@ -310,16 +271,24 @@ def _raw_lines(task: CorpusTask) -> Iterator[tuple[int, bytes]]:
                 fh.seek(task.start - 1)
                 prev = fh.read(1)
                 pos = task.start
-                if prev != b"\n":
-                    skipped = fh.readline()
+                while prev != b"\n":  # the line begun before `start` belongs to the task before
+                    skipped = fh.readline(1 << 20)  # in steps: a line may be of any length
                     pos += len(skipped)
+                    prev = skipped[-1:] if skipped else b"\n"
             while task.end < 0 or pos < task.end:
-                line = fh.readline()
+                line = fh.readline() if piece is None else fh.readline(piece + 1)
                 if not line:
                     break
                 start = pos
+                if piece is not None and len(line) > piece and not line.endswith(b"\n"):
+                    consumed = 0
+                    for off, part, last, read in line_pieces(line, fh.readline, piece):
+                        consumed = read
+                        yield start + off, part, last
+                    pos += consumed
+                    continue
                 pos += len(line)
-                yield start, line.rstrip(b"\r\n") if line.endswith(b"\n") else line.rstrip(b"\r")
+                yield start, line.rstrip(b"\r\n") if line.endswith(b"\n") else line.rstrip(b"\r"), True
     except EOFError as exc:
         if task.compression == "zstd":
             raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
@@ -418,26 +387,18 @@ def _iter_text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadSt
 
 def _text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats,
                     replaced: _Replaced) -> Iterator[str]:
-    lines = _raw_lines(task)
     if task.fmt == "txt" and options.doc_sep == "line":
-        for offset, raw in lines:
-            stats.bytes_read += len(raw) + 1
-            yield _decode(task, offset, raw, options, stats, replaced)
-    elif task.fmt == "txt":
-        para: list[str] = []
-        for offset, raw in lines:
-            stats.bytes_read += len(raw) + 1
+        more = False  # the previous piece's line goes on
+        for offset, raw, last in _raw_lines(task, PIECE_BYTES):
+            stats.bytes_read += len(raw) + (1 if last else 0)
             text = _decode(task, offset, raw, options, stats, replaced)
-            if text.strip():
-                para.append(text)
-            elif para:
-                yield "\n".join(para)
-                para = []
-        if para:
-            yield "\n".join(para)
+            yield Continued(text) if more else text
+            more = not last
+    elif task.fmt == "txt":
+        yield from _paragraphs(task, options, stats, replaced)
     else:
         field_name = options.text_field
-        for offset, raw in lines:
+        for offset, raw, _ in _raw_lines(task):
             stats.bytes_read += len(raw) + 1
             if not raw.strip():
                 continue
@@ -461,6 +422,42 @@ def _text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats,
                 raise MaskprepError(
                     f"{task.path}:{line}: field {field_name!r} is {type(value).__name__}, expected a string")
             yield value
+
+
+def _paragraphs(task: CorpusTask, options: CorpusOptions, stats: ReadStats,
+                replaced: _Replaced) -> Iterator[str]:
+    """Blank-line separated documents; a long one in pieces (`corpus.pieces`), cut as it grows.
+
+    A line longer than a piece (read in pieces) is never a blank line."""
+    para: list[str] = []
+    size, started, cont = 0, False, False  # bytes held; a piece went out; the last line goes on
+    for offset, raw, last in _raw_lines(task, PIECE_BYTES):
+        stats.bytes_read += len(raw) + (1 if last else 0)
+        text = _decode(task, offset, raw, options, stats, replaced)
+        if cont:
+            para[-1] += text
+        elif text.strip() or not last:
+            para.append(text)
+        elif para:
+            yield from _pieces([text_pieces("\n".join(para))], started)
+            para, size, started = [], 0, False
+        cont = not last
+        size += len(raw) + 1
+        if size > 2 * PIECE_BYTES:  # hold at most a few pieces: cut off those that are certain
+            *done, rest = text_pieces("\n".join(para))
+            yield from _pieces([done], started)
+            started = started or bool(done)
+            para, size = [rest], len(rest.encode("utf-8", "surrogatepass"))
+    if para:
+        yield from _pieces([text_pieces("\n".join(para))], started)
+
+
+def _pieces(groups: list[list[str]], started: bool) -> Iterator[str]:
+    """The pieces of one document, all but its first marked `Continued`."""
+    for pieces in groups:
+        for p in pieces:
+            yield Continued(p) if started else p
+            started = True
 
 
 # ---------------------------------------------------------------- tables

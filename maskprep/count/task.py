@@ -193,7 +193,9 @@ class ChunkCounter:
 
 
 def _batch_chars(config: CountConfig, share: int) -> int:
-    return config.batch_chars or int(np.clip(share // 256, 16_384, 1 << 20))
+    # the tokenizer holds about 200 bytes per character of a batch while it encodes, two batches at
+    # once with the look-ahead: a batch of share / 1024 characters keeps that under a fifth of the share
+    return config.batch_chars or int(np.clip(share // 1024, 16_384, 1 << 20))
 
 
 def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill_dir: str,

@@ -269,11 +269,15 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                  masking: MaskingConfig = MaskingConfig(), packing: PackingConfig = PackingConfig(),
                  shards: ShardConfig = ShardConfig(), units: str | Path | None = None,
                  corpus_options: Any = None, executor: Any = None, overwrite: bool = False,
-                 resume: bool = False, words: Any = None) -> tuple[ShardManifest, dict[str, Any]]:
+                 resume: bool = False, words: Any = None,
+                 memory: str | int = "2GiB") -> tuple[ShardManifest, dict[str, Any]]:
     """Write masked (or unit-annotated) shards of a corpus; returns (manifest, stats).
 
     `words` (a `WordsConfig`, default the tokenizer's words) defines the words of
     the word, span and pmi strategies; it is recorded in the manifest's options.
+
+    `memory` is the budget of all workers together (see `maskprep._budget`); it is checked, not
+    part of the run: it may change between attempts of a resumed run.
 
     >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json", output="shards")  # doctest: +SKIP
     """
@@ -293,6 +297,11 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     mask_id = info.require_mask()
     cls_id, sep_id, pad_id = check_packing_tokenizer(info)
     packing.check(info)
+    from .._budget import check_budget
+    from ..count.types import parse_memory
+
+    check_budget(parse_memory(memory), option=f"--memory {memory}", executor=executor, tasks=len(source.tasks),
+                 copies=shards.copies, shard_rows=shards.shard_rows, seq_len=packing.seq_len)
     if shards.shard_rows * packing.seq_len >= 1 << 31:
         raise MaskprepError(f"--shard-rows {shards.shard_rows} x --seq-len {packing.seq_len} tokens is too many "
                             "for one shard; use fewer rows per shard")
