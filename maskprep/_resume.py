@@ -53,6 +53,7 @@ from __future__ import annotations
 import contextlib
 import errno
 import fcntl
+import functools
 import hashlib
 import json
 import os
@@ -66,10 +67,12 @@ from typing import Any, Callable, Iterable, Iterator, Mapping
 from ._files import atomic_write_text, file_sha256, fsync_file, read_json
 from .errors import MaskprepError
 
-__all__ = ["Stage", "RunDir", "DirLock", "claim", "lock_dir", "write_record", "read_record",
+__all__ = ["Stage", "RunDir", "DirLock", "claim", "lock_dir", "locked_output", "LOCK_STATE", "write_record",
+           "read_record",
            "file_entry", "entry_intact", "digest_of", "LOCK_NAME", "RUN_NAME"]
 
 LOCK_NAME = "lock"
+LOCK_STATE = ".maskprep-lock"  # the lock folder of outputs without resume state (audit, compare, run)
 Entry = Mapping[str, Any]  # {"file": name under a base folder, "bytes": size, "sha256": hex}
 RUN_NAME = "run.json"
 
@@ -211,7 +214,8 @@ def _mkdir(path: Path) -> bool:
 def lock_dir(output: Path, state: str, *, what: str | None = None) -> Iterator[DirLock]:
     """Lock an output directory that has no resume state: ``with lock_dir(out, ".maskprep-x"):``.
 
-    Creates OUT and OUT/STATE; on leaving, removes the lock and STATE if empty.
+    Creates OUT and OUT/STATE; on leaving, removes the lock, STATE if empty, and OUT if this
+    call made it and nothing was written in it.
     """
     made_out = _mkdir(output)
     folder = output / state
@@ -226,7 +230,22 @@ def lock_dir(output: Path, state: str, *, what: str | None = None) -> Iterator[D
         yield lock
     finally:
         lock.release()
-        _tidy(folder, True, output, False)
+        _tidy(folder, True, output, made_out)
+
+
+def locked_output(state: str) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
+    """Decorate a stage function taking ``output=DIR``: its directory is locked (`lock_dir`) for the call.
+
+    >>> @locked_output(".maskprep-lock")
+    ... def run_stage(*, output): ...
+    """
+    def wrap(fn: Callable[..., Any]) -> Callable[..., Any]:
+        @functools.wraps(fn)
+        def locked(*args: Any, **kwargs: Any) -> Any:
+            with lock_dir(Path(kwargs["output"]), state):
+                return fn(*args, **kwargs)
+        return locked
+    return wrap
 
 
 def _tidy(folder: Path, folder_ours: bool, output: Path, output_ours: bool) -> None:

@@ -131,3 +131,33 @@ def test_two_mask_runs_on_one_directory(tmp_path, shakespeare_corpus, small_word
     verify = CliRunner().invoke(cli, ["verify", str(out)])
     assert verify.exit_code == 0, verify.output
     assert json.loads((out / "_maskprep" / "manifest.json").read_text())["options"]["strategy"] == "word"
+
+
+def test_audit_compare_and_run_lock_their_output_directory(tmp_path, shakespeare_small, small_wordpiece):
+    from maskprep._resume import LOCK_STATE
+
+    for command in ("audit", "compare"):
+        out = tmp_path / command
+        proc = hold(out, LOCK_STATE)
+        try:
+            r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", command, str(shakespeare_small), "-t",
+                                         str(small_wordpiece), "-o", str(out)])
+        finally:
+            proc.send_signal(signal.SIGKILL)
+            proc.wait()
+        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, r.output
+    cfg = tmp_path / "run.toml"
+    cfg.write_text(f'[corpus]\npaths = ["{shakespeare_small}"]\n[tokenizer]\npath = "{small_wordpiece}"\n'
+                   '[mask]\nstrategies = ["word"]\n', encoding="utf-8")
+    out = tmp_path / "run"
+    proc = hold(out, LOCK_STATE)
+    try:
+        r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "run", str(cfg), "-o", str(out)])
+    finally:
+        proc.send_signal(signal.SIGKILL)
+        proc.wait()
+    assert r.exit_code == 1 and "is writing this directory now" in r.output, r.output
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "compare", str(shakespeare_small), "-t",
+                                 str(small_wordpiece), "-o", str(tmp_path / "compare")])
+    assert r.exit_code == 0, r.output  # the killed holder's lock is stale: no obstacle
+    assert not (tmp_path / "compare" / LOCK_STATE).exists()

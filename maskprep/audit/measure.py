@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 
+from .._resume import LOCK_STATE, locked_output
 from ..corpus.reader import CorpusOptions, ReadStats, iter_corpus, resolve_inputs
 from ..encoded.source import SourceTask, TaskReader, open_source, read_stats_of
 from ..errors import MaskprepError
@@ -346,6 +347,7 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
     return rows
 
 
+@locked_output(LOCK_STATE)
 def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
               corpus_options: CorpusOptions = CorpusOptions(), quiet: bool = False,
               size_option: str = "--vocab-sizes", executor: Any = None,

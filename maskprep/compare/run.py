@@ -31,6 +31,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from .._resume import LOCK_STATE, locked_output
 from ..errors import MaskprepError
 from ..wording import plural
 from ..encoded.source import SourceTask
@@ -247,6 +248,7 @@ def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[St
     return config.strategies, {}
 
 
+@locked_output(LOCK_STATE)
 def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                        config: CompareConfig = CompareConfig(), units: str | Path | None = None,
                        corpus_options: Any = None, executor: Any = None, words: Any = None,

@@ -189,7 +189,7 @@ def _files_in(d: Path) -> list[str]:
 def _prepare_output(out: Path, config: RunConfig) -> None:
     if out.exists() and not out.is_dir():
         raise MaskprepError(f"-o {out}: exists and is not a directory")
-    if out.is_dir() and any(out.iterdir()) and not (out / RUN_FILE).is_file():
+    if out.is_dir() and any(p.name != ".maskprep-lock" for p in out.iterdir()) and not (out / RUN_FILE).is_file():
         raise MaskprepError(f"-o {out}: directory is not empty and holds no {RUN_FILE}, so it is not the output "
                             "of maskprep run; choose a new or empty directory (stages replace their own "
                             "subdirectories)")
@@ -219,14 +219,17 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
     tokenizer_file = getattr(cfg, "tokenizer_path", None)
     check_apart(out, [*cfg.corpus, *resolve_inputs(list(cfg.corpus))], others=[tokenizer_file],
                 option="-o" if output is not None else f"{cfg.path}: output =")
+    from .._resume import LOCK_STATE, lock_dir
+
     made, fresh = not out.exists(), not (out / RUN_FILE).is_file()
-    _prepare_output(out, cfg)
-    try:
-        return _run_stages(cfg, out, force=force, executor=executor, quiet=quiet)
-    except BaseException:
-        if fresh:  # a first run that failed leaves nothing behind: no pipeline.json, no empty folders
-            _undo_first_run(out, made)
-        raise
+    with lock_dir(out, LOCK_STATE):  # one run at a time in OUT; each stage locks its own folder too
+        _prepare_output(out, cfg)
+        try:
+            return _run_stages(cfg, out, force=force, executor=executor, quiet=quiet)
+        except BaseException:
+            if fresh:  # a first run that failed leaves nothing behind: no pipeline.json, no empty folders
+                _undo_first_run(out, made)
+            raise
 
 
 def _undo_first_run(out: Path, made: bool) -> None:
