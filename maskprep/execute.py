@@ -54,6 +54,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterator, Sequence
 
+from ._checks import is_whole
 from .errors import MaskprepError, os_error_text
 from .wording import plural
 from .progress import Progress
@@ -75,7 +76,7 @@ class Executor:
     quiet: bool = False
 
     def __post_init__(self) -> None:
-        if isinstance(self.workers, bool) or not isinstance(self.workers, int) or self.workers < 1:
+        if not is_whole(self.workers, 1):
             raise MaskprepError(f"--workers: expected a positive whole number, got {self.workers!r}")
         if self.workers > 1024:
             raise MaskprepError(f"--workers: {self.workers} is absurd; use at most 1024")

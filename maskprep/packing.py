@@ -42,6 +42,7 @@ from typing import Iterable, Iterator
 
 import numpy as np
 
+from ._checks import is_whole
 from .errors import MaskprepError
 from .tokenizer.encoding import WORD, EncodedBatch, TokenizerInfo
 
@@ -65,8 +66,7 @@ class PackingConfig:
     pack: bool = True
 
     def __post_init__(self) -> None:
-        if isinstance(self.seq_len, bool) or not isinstance(self.seq_len, (int, np.integer)) \
-                or int(self.seq_len) < MIN_SEQ_LEN:
+        if not is_whole(self.seq_len, MIN_SEQ_LEN):
             raise MaskprepError(f"--seq-len must be a whole number >= {MIN_SEQ_LEN}, got {self.seq_len!r}; "
                                 "pass e.g. --seq-len 128")
         if int(self.seq_len) > 1 << 20:

@@ -11,6 +11,7 @@ import textwrap
 from collections.abc import Sequence
 from typing import Any
 
+from .._tables import format_table
 from ..report import charts
 from ..report import html as report
 from .words import JOIN, PARTIAL, SPACE_MARK, fragmented_words
@@ -159,14 +160,7 @@ def format_audit_table(doc: dict[str, Any]) -> str:
 
 
 def _format_rows(rows: Sequence[tuple[str, ...]]) -> str:
-    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
-    lines = []
-    for j, r in enumerate(rows):
-        cells = [c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))]
-        lines.append("  ".join(cells))
-        if j == 0:
-            lines.append("  ".join("-" * w for w in widths))
-    return "\n".join(lines)
+    return format_table(rows)
 
 
 def _words_table(r: dict[str, Any], frequent: int | None) -> str:

@@ -31,11 +31,13 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from .._checks import is_whole
 from .._resume import LOCK_STATE, locked_output
+from .._tables import format_table
 from ..errors import MaskprepError
 from ..wording import plural
 from ..encoded.source import SourceTask
-from ..masking.sampler import MaskingConfig, MixPer, Strategy
+from ..masking.sampler import UNITS_REMEDY, MaskingConfig, MixPer, Strategy, needs_units
 from ..packing import PackedBatch, PackingConfig
 from ..shards.taskloop import LoopJob, TaskLoop
 from ..masking.strategies import check_seed
@@ -113,12 +115,11 @@ class CompareConfig:
         set_(self, "seq_len", packing.seq_len)
         set_(self, "pack", packing.pack)
         set_(self, "seed", int(self.seed))
-        if self.sample is not None and (isinstance(self.sample, bool) or not isinstance(self.sample, int)
-                                        or self.sample < 1):
+        if self.sample is not None and not is_whole(self.sample, 1):
             raise MaskprepError(f"--sample must be a whole number of sequences >= 1 or 'all', got {self.sample!r}")
         for name, value, low, high in (("--examples", self.examples, 0, MAX_EXAMPLES),
                                        ("--top-words", self.top_words, 1, 1_000_000)):
-            if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
+            if not is_whole(value, low, high):
                 raise MaskprepError(f"{name} must be a whole number from {low} to {high}, got {value!r}")
 
     def masking(self, strategy: Strategy) -> MaskingConfig:
@@ -235,16 +236,15 @@ def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[St
     """The strategies to run and the skipped ones with the reason.
 
     >>> resolve_strategies(CompareConfig(), False)[1]["pmi"][:30]
-    'needs a unit vocabulary (--uni'
+    'needs a unit vocabulary: pass '
     """
     if config.strategies is None:
         if has_units:
             return ALL_STRATEGIES, {}
-        return ALL_STRATEGIES[:3], {"pmi": "needs a unit vocabulary (--units units.parquet from maskprep units); "
-                                           "skipped, and within-unit leakage is not measured"}
+        return ALL_STRATEGIES[:3], {"pmi": needs_units("", UNITS_REMEDY + "; skipped, and within-unit "
+                                                       "leakage is not measured").lstrip()}
     if Strategy.PMI in config.strategies and not has_units:
-        raise MaskprepError("--strategies lists pmi, which needs a unit vocabulary: pass --units units.parquet "
-                            "(made by maskprep units) or leave pmi out")
+        raise MaskprepError(needs_units("--strategies lists pmi, which", UNITS_REMEDY + " or leave pmi out"))
     return config.strategies, {}
 
 
@@ -389,12 +389,7 @@ def format_compare_table(doc: dict[str, Any]) -> str:
                      num(f["unit_lengths"]["mean_words"]), pct(f["multiword_share"]), pct(f["within_word_leakage"]),
                      pct(f["within_unit_leakage"]), pct(f["easy_target_share"]),
                      num(f["targets_per_sequence"]["mean"], ".1f")))
-    widths = [max(len(r[i]) for r in rows) for i in range(len(head))]
-    lines = []
-    for j, r in enumerate(rows):
-        lines.append("  ".join(c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))))
-        if j == 0:
-            lines.append("  ".join("-" * w for w in widths))
+    lines = [format_table(rows)]
     s = doc["sample"]
     lines.append(f"\n{plural(s['sequences'], 'sequence')} of {doc['options']['seq_len']} tokens, seed {doc['options']['seed']}"
                  f", asked rate {doc['options']['rate']:g} of maskable tokens")

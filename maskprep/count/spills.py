@@ -24,6 +24,7 @@ from typing import BinaryIO
 
 import numpy as np
 
+from .._checks import sum_by_key
 from ..errors import MaskprepError
 from .kernels import FINE_BUCKETS, reduce_table
 
@@ -210,8 +211,8 @@ def merge_partition(job: MergeJob) -> PartitionResult:
 def merge_hist(values: list[np.ndarray], rows: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     if not values:
         return np.zeros(0, np.uint64), np.zeros(0, np.int64)
-    v, inv = np.unique(np.concatenate(values), return_inverse=True)
-    return v, np.bincount(inv.ravel(), weights=np.concatenate(rows), minlength=len(v)).astype(np.int64)
+    v, counts = sum_by_key(np.concatenate(values), np.concatenate(rows))
+    return v, counts
 
 
 def plan_merges(runs: list[RunInfo], n: int, parts: int, min_count: int, group_rows: int,

@@ -10,6 +10,7 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from .._checks import is_whole
 from ..errors import MaskprepError
 from ..tokenizer.words import WordsConfig, words_option
 from .spills import RunInfo
@@ -34,8 +35,8 @@ def parse_memory(text: str | int, *, option: str = "--memory") -> int:
     >>> parse_memory("512MiB"), parse_memory("2G"), parse_memory("10MB")
     (536870912, 2147483648, 10000000)
     """
-    if isinstance(text, int) and not isinstance(text, bool):
-        value = text
+    if is_whole(text):
+        value = int(text)
     else:
         m = re.fullmatch(r"\s*(\d+(?:\.\d*)?|\.\d+)\s*([a-zA-Z]*)\s*", str(text))
         unit = m.group(2).lower() if m else None

@@ -35,6 +35,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from maskprep._checks import is_real, is_whole
 from maskprep.errors import MaskprepError
 from maskprep.masking.strategies import (
     TAG_MIX, TAG_MIX_UNIT, TAG_PRIORITY, TAG_RANDOM, UnitTable, absorb, check_seed, check_span,
@@ -43,13 +44,23 @@ from maskprep.masking.strategies import (
 )
 
 __all__ = [
-    "Strategy", "MixPer", "MaskingConfig", "parse_mix", "strategy_units", "select_targets", "mask_batch",
+    "Strategy", "MixPer", "MaskingConfig", "parse_mix", "needs_units", "strategy_units", "select_targets", "mask_batch",
     "token_units", "word_units", "span_units", "pmi_units", "span_word_starts",
     "pmi_word_starts", "units_from_word_starts", "word_starts_from_units", "span_lengths",
     "UnitTable", "IGNORE_LABEL",
 ]
 
 IGNORE_LABEL = -100  # label of non-target tokens (common practice)
+UNITS_REMEDY = "pass --units units.parquet (made by `maskprep units`)"
+
+
+def needs_units(subject: str = "--strategy pmi", remedy: str = UNITS_REMEDY) -> str:
+    """The one message for a pmi strategy without a unit vocabulary.
+
+    >>> needs_units()
+    '--strategy pmi needs a unit vocabulary: pass --units units.parquet (made by `maskprep units`)'
+    """
+    return f"{subject} needs a unit vocabulary: {remedy}"
 _MASK64 = (1 << 64) - 1
 _UNIT_MASK = (1 << 24) - 1
 _MAX_UNITS = _UNIT_MASK
@@ -119,8 +130,7 @@ class MaskingConfig:
 
     def __post_init__(self) -> None:
         rate = self.rate
-        if isinstance(rate, bool) or not isinstance(rate, (int, float, np.number)) \
-                or not 0.0 < float(rate) < 1.0:
+        if not is_real(rate) or not 0.0 < float(rate) < 1.0:
             raise MaskprepError(f"--rate must be a number strictly between 0 and 1, got {rate!r}; "
                                 "pass e.g. --rate 0.15")
         span_p, span_max = check_span(self.span_p, self.span_max)
@@ -152,8 +162,7 @@ def strategy_units(special: np.ndarray, word_ids: np.ndarray, *, config: Masking
         return span_units(special, word_ids, sequence_ids=sequence_ids, seed=seed, copy=copy,
                           span_p=config.span_p, span_max=config.span_max)
     if units is None or word_keys is None or word_kinds is None:
-        raise MaskprepError("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
-                            "(made by `maskprep units`)")
+        raise MaskprepError(needs_units())
     return pmi_units(special, word_ids, word_keys, word_kinds, units=units)
 
 
@@ -247,8 +256,7 @@ def mask_batch(input_ids: np.ndarray, unit_ids: np.ndarray, *, sequence_ids: np.
         raise ValueError(f"input_ids {input_ids.shape} and unit_ids {unit_ids.shape} differ in shape")
     if not isinstance(config, MaskingConfig):
         raise MaskprepError("config must be a maskprep.masking.sampler.MaskingConfig, e.g. MaskingConfig(rate=0.15)")
-    if isinstance(mask_token_id, bool) or not isinstance(mask_token_id, (int, np.integer)) \
-            or mask_token_id < 0:
+    if not is_whole(mask_token_id, 0):
         raise MaskprepError(f"mask_token_id must be the tokenizer's mask token id (an int >= 0), "
                             f"got {mask_token_id!r}")
     random_ids = np.asarray(random_token_ids, dtype=np.int32).ravel()

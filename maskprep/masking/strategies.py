@@ -34,6 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from maskprep._checks import is_real, is_whole
 from maskprep.errors import MaskprepError
 
 GOLDEN = 0x9E3779B97F4A7C15
@@ -84,8 +85,7 @@ def check_seed(seed: object, copy: object) -> tuple[int, int]:
     (0, 1)
     """
     for name, value in (("--seed", seed), ("copy (index of the masked copy)", copy)):
-        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) \
-                or not 0 <= int(value) <= _MASK64:
+        if not is_whole(value, 0, _MASK64):
             raise MaskprepError(f"{name} must be a whole number from 0 to 2**64-1, "
                                 f"got {value!r}; pass e.g. 0")
     return int(seed), int(copy)  # type: ignore[call-overload]
@@ -224,12 +224,10 @@ def check_span(span_p: object, span_max: object) -> tuple[float, int]:
     >>> check_span(0.2, 10)
     (0.2, 10)
     """
-    if isinstance(span_p, bool) or not isinstance(span_p, (int, float, np.number)) \
-            or not 0.0 < float(span_p) <= 1.0:
+    if not is_real(span_p) or not 0.0 < float(span_p) <= 1.0:
         raise MaskprepError(f"--span-p must be a probability in (0, 1], got {span_p!r}; "
                             "pass e.g. --span-p 0.2")
-    if isinstance(span_max, bool) or not isinstance(span_max, (int, np.integer)) \
-            or int(span_max) < 1:
+    if not is_whole(span_max, 1):
         raise MaskprepError(f"--span-max must be a whole number of words >= 1, got {span_max!r}; "
                             "pass e.g. --span-max 10")
     return float(span_p), int(span_max)

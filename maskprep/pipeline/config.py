@@ -34,6 +34,7 @@ from pathlib import Path
 from typing import Any, Callable, Mapping
 
 from ..errors import MaskprepError
+from ..masking.sampler import needs_units
 
 __all__ = ["RunConfig", "load_run_config", "find_key_line", "key_error", "SECTIONS"]
 
@@ -350,7 +351,7 @@ def _mask(c: _Checker, has_units: bool) -> dict[str, Any] | None:
     strategies = c.check("mask", "strategies", t.get("strategies", "token"),
                          lambda v: parse_strategies(v, option="strategies"))
     if any(s.value == "pmi" for s in strategies) and not has_units:
-        raise c.fail("mask", "strategies", "pmi needs a unit vocabulary: add [count] and [units] tables")
+        raise c.fail("mask", "strategies", needs_units("pmi", "add [count] and [units] tables"))
     _each(c, "mask", ",".join(_MASKING), t, MaskingConfig)
     _each(c, "mask", ",".join(_PACKING), t, PackingConfig)
     _each(c, "mask", ",".join(_SHARDS), t, ShardConfig)
@@ -380,5 +381,5 @@ def _compare(c: _Checker, mask: Mapping[str, Any] | None, has_units: bool) -> An
                 "seq_len": p.seq_len, "pack": p.pack, "seed": mask["shards"].seed}
     config = CompareConfig(**{**base, **t})
     if config.strategies and any(s.value == "pmi" for s in config.strategies) and not has_units:
-        raise c.fail("compare", "strategies", "pmi needs a unit vocabulary: add [count] and [units] tables")
+        raise c.fail("compare", "strategies", needs_units("pmi", "add [count] and [units] tables"))
     return config

@@ -42,6 +42,7 @@ from pathlib import Path
 from typing import Any, Callable, Sequence
 
 from ..errors import MaskprepError
+from .._tables import format_table
 from .._files import atomic_write_json as write_json
 from .._files import read_json
 from .config import RunConfig, load_run_config
@@ -435,10 +436,4 @@ def format_run_summary(result: RunResult) -> str:
         main = _MAIN_FILES.get(s.name.split(".")[0])
         where = s.output / main if main and (s.output / main).exists() else s.output
         rows.append((s.name, s.status, f"{s.seconds:.1f}" if s.status == "ran" else "-", str(where)))
-    widths = [max(len(r[i]) for r in rows) for i in range(4)]
-    lines = []
-    for j, r in enumerate(rows):
-        lines.append("  ".join(c.ljust(w) if i != 2 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))))
-        if j == 0:
-            lines.append("  ".join("-" * w for w in widths))
-    return "\n".join(lines)
+    return format_table(rows, left=(0, 1, 3))

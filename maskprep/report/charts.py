@@ -15,10 +15,10 @@ highlighted sequences or pages, or write files (that is `report.py`).
 from __future__ import annotations
 
 import math
-import numbers
 import unicodedata
 from collections.abc import Mapping, Sequence
 
+from maskprep._checks import is_real
 from maskprep.report.html import esc
 
 #: Series colours, one per series up to twelve: the Okabe-Ito set (safe for the
@@ -71,7 +71,7 @@ def _columns(series: Mapping[str, Sequence[object]], count: int, what: str) -> l
     for name, values in series.items():
         if len(values) != count:
             raise ValueError(f"series {name!r} has {len(values)} values for {count} {what}")
-        if any(v is not None and (isinstance(v, bool) or not isinstance(v, numbers.Real)) for v in values):
+        if any(v is not None and not is_real(v) for v in values):
             raise ValueError(f"series {name!r}: values must be numbers or None")
         rows.append([None if v is None or not math.isfinite(v) else float(v) for v in values])  # type: ignore[arg-type]
     return rows

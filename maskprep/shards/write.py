@@ -57,9 +57,10 @@ import numpy as np
 from .._files import atomic_path, atomic_write_text, file_sha256
 from .._resume import RunDir, Stage, claim, write_record
 from .._version import __version__
+from .._checks import is_whole
 from ..errors import MaskprepError
 from ..encoded.source import SourceTask
-from ..masking.sampler import MaskingConfig, Strategy
+from ..masking.sampler import MaskingConfig, Strategy, needs_units
 from ..packing import PackingConfig, check_packing_tokenizer
 from ..stats.masks import MaskStats
 from .taskloop import LoopJob, TaskLoop
@@ -93,7 +94,7 @@ class ShardConfig:
             raise MaskprepError(f"--format must be arrow or parquet, got {self.format!r}")
         for name, value, low, high in (("--shard-rows", self.shard_rows, 1, 1 << 24),
                                        ("--copies", self.copies, 1, 1000), ("--seed", self.seed, 0, (1 << 64) - 1)):
-            if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or not low <= value <= high:
+            if not is_whole(value, low, high):
                 raise MaskprepError(f"{name} must be a whole number from {low} to {high}, got {value!r}")
         object.__setattr__(self, "dynamic", bool(self.dynamic))
 
@@ -308,8 +309,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     by_length, units_digest, units_built_with = None, None, None
     if masking.strategy is Strategy.PMI:
         if units is None:
-            raise MaskprepError("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
-                                "(made by maskprep units)")
+            raise MaskprepError(needs_units())
         from ..units.files import read_units_for
 
         vocab = read_units_for(units, info, words)

@@ -33,6 +33,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..masking.sampler import IGNORE_LABEL
+from .._checks import sum_by_key
 from .masks import MaskStats
 
 __all__ = ["TargetStats", "targets_per_sequence", "BANDS", "TOP_WORDS"]
@@ -45,13 +46,6 @@ PUNCT_BAND = "punctuation"
 _FLUSH_ROWS = 1 << 21
 _COUNTERS = ("targets", "group_rows", "unit_targets", "unit_leaked", "punct_words", "punct_tokens",
              "punct_targets")
-
-
-def _per_key(keys: np.ndarray, *columns: np.ndarray) -> tuple[np.ndarray, ...]:
-    """Distinct keys (sorted) and the per-key sums of each column."""
-    uniq, inv = np.unique(keys, return_inverse=True)
-    sums = tuple(np.bincount(inv, weights=c, minlength=len(uniq)).astype(np.int64) for c in columns)
-    return (uniq,) + sums
 
 
 @dataclass
@@ -116,7 +110,7 @@ class TargetStats:
         w_col = np.concatenate([ones_w, np.zeros(len(k_tok), np.int64)])
         t_col = np.concatenate([np.zeros(n_w, np.int64), np.ones(len(k_tok), np.int64)])
         h_col = np.concatenate([np.zeros(n_w, np.int64), tok_target[tok_word].astype(np.int64)])
-        part = _per_key(all_keys, w_col, t_col, h_col)
+        part = sum_by_key(all_keys, w_col, t_col, h_col)
         self._pending.append(part)
         self._pending_rows += len(part[0])
         if self._pending_rows > _FLUSH_ROWS:
@@ -127,7 +121,7 @@ class TargetStats:
             return
         parts = [(self.keys, self.words, self.tokens, self.hits), *self._pending]
         cols = [np.concatenate([p[i] for p in parts]) for i in range(4)]
-        self.keys, self.words, self.tokens, self.hits = _per_key(cols[0], *cols[1:])
+        self.keys, self.words, self.tokens, self.hits = sum_by_key(cols[0], *cols[1:])
         self._pending, self._pending_rows = [], 0
 
     def merge(self, other: "TargetStats") -> None:

@@ -49,6 +49,7 @@ import numpy as np
 from .cohesion import MAX_N, Measure, NgramIndex, score_ngrams, score_with_split_pmi
 from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, fragment_shares, frequent_words
 from .retarget import unit_token_ids, word_splitting
+from .._checks import is_whole
 from ..errors import MaskprepError
 from .._files import read_json
 from ..progress import Progress
@@ -422,7 +423,7 @@ def _options(meta: Mapping[str, Any], *, measure: Union[Measure, str], top: int,
 
 
 def _is_whole(value: Any, low: int) -> bool:
-    return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and bool(value >= low)
+    return is_whole(value, low)
 
 
 @dataclass(frozen=True, eq=False)
