@@ -9,7 +9,6 @@ write the counts directory (files.py, driver.py).
 
 from __future__ import annotations
 
-import itertools
 from pathlib import Path
 
 import numpy as np
@@ -153,12 +152,11 @@ class ChunkCounter:
 
     def _collect_words(self, batch: EncodedBatch) -> None:
         """Texts of the words first seen in this batch; two texts with one key raise."""
-        types = self.info._types
-        size = len(types)
+        size = self.info.word_type_count
         if size < self._seen_types:  # the tokenizer's type cache was cleared during this batch
             self._seen_types = 0
             self._decode_missing(batch)
-        new = itertools.islice(reversed(types.values()), size - self._seen_types)
+        new = self.info.newest_word_types(size - self._seen_types)
         vocab = self.vocab
         for wt in new:  # one step per distinct word type, not per occurrence
             if wt.kind == WORD:

@@ -179,6 +179,15 @@ class TokenizerInfo:
         """The word forms decoded so far in this process (a bounded cache: it may miss some)."""
         return list(self._types.values())
 
+    @property
+    def word_type_count(self) -> int:
+        """How many word forms the cache holds; it only grows, until the cache is cleared."""
+        return len(self._types)
+
+    def newest_word_types(self, count: int) -> Iterator[WordType]:
+        """The `count` word forms added to the cache last, newest first (one step per form)."""
+        return itertools.islice(reversed(self._types.values()), count)
+
     def canonical_texts(self, id_lists: list[list[int]], *, joined: bool = False) -> list[str]:
         """The canonical text of words given as token ids: decoded, whitespace stripped.
 
