@@ -102,3 +102,12 @@ def test_public_api_is_explicit() -> None:
     assert "__getattr__" not in source and "import_module" not in source
     for name in maskprep.__all__:
         assert name in dir(maskprep), name
+
+
+def test_developers_guide_lists_every_module() -> None:
+    guide = (PACKAGE.parent / "DEVELOPERS.md").read_text(encoding="utf-8")
+    for path in sorted(PACKAGE.rglob("*.py")):
+        rel = path.relative_to(PACKAGE).as_posix()
+        if rel != "__init__.py":
+            assert f"| `{rel}` |" in guide, f"DEVELOPERS.md's module table lacks {rel}: " \
+                                           "run python scripts/module_table.py"

@@ -41,7 +41,7 @@ from ..tokenizer.words import WordsConfig, code_points, script_classes
 from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
 
-BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
+AUDIT_BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
 
 
 @dataclass(frozen=True)
@@ -285,7 +285,7 @@ def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total:
     widx = np.flatnonzero(is_word)
     order = widx[np.lexsort((word_keys[widx], -occ_t[widx]))]
     bands = []
-    for lo, hi, label in BANDS:
+    for lo, hi, label in AUDIT_BANDS:
         sel = order[lo - 1:hi] if hi is not None else order[lo - 1:]
         occ = int(occ_t[sel].sum())
         bands.append({
@@ -383,7 +383,7 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
                                frequent_types=config.frequent_types, quiet=quiet, executor=executor,
                                words=words) for info in infos]
     w = words or WordsConfig()
-    doc = {"corpus": list(source.files), "bands": [b[2] for b in BANDS],
+    doc = {"corpus": list(source.files), "bands": [b[2] for b in AUDIT_BANDS],
            "words": w.describe(), "words_label": w.label(),
            "notes": [words_note(w, results), "Punctuation-only words are left out "
                      "of tokens_per_word and split_share but kept in tokens_per_word_all.",

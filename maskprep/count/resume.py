@@ -50,7 +50,7 @@ from .._files import file_sha256, read_json
 from .._resume import RunDir, Stage, claim, file_entry, write_record
 from .._version import __version__
 from ..errors import MaskprepError
-from .spills import RunInfo
+from .spills import SpillFile
 from .task import count_task
 from .types import CountSummary, TaskCounts
 
@@ -191,7 +191,7 @@ def count_recorded(task: Any, tokenizer_json: str, config: Any, state_dir: str, 
 def _result_of(root: Path, rec: Mapping[str, Any]) -> Any:
     """The TaskCounts of a done-record (files already checked), else None."""
     try:
-        runs = [RunInfo(str(root / r["file"]), int(r["n"]), int(r["rows"]), np.asarray(r["offsets"], np.int64))
+        runs = [SpillFile(str(root / r["file"]), int(r["n"]), int(r["rows"]), np.asarray(r["offsets"], np.int64))
                 for r in rec["runs"]]
         return TaskCounts(task_index=int(rec["task"]), runs=runs, totals=[int(x) for x in rec["totals"]],
                            words_path=str(root / rec["words_file"]["file"]), words=int(rec["words"]),

@@ -2,7 +2,7 @@
 
 Spill runs are plain `.npy` files (readable with ``np.load``) of uint64 rows
 (n word keys, then the count; see `maskprep.count.kernels`), written block
-by block by `RunWriter`; every run is sorted canonically, so the rows of one
+by block by `SpillWriter`; every run is sorted canonically, so the rows of one
 fine bucket (top `FINE_BITS` bits of the fingerprint) are one contiguous slice.
 
 `merge_partition` (a task function) sums the runs of one key range of one n,
@@ -45,10 +45,10 @@ def _npy_header(rows: int, cols: int) -> bytes:
     return b"\x93NUMPY\x01\x00" + struct.pack("<H", len(body)) + body.encode("latin1")
 
 
-class RunWriter:
+class SpillWriter:
     """Stream a (rows, cols) uint64 `.npy` file block by block.
 
-    >>> with RunWriter(Path("run.npy"), 3) as w: w.write(np.zeros((2, 3), np.uint64))  # doctest: +SKIP
+    >>> with SpillWriter(Path("run.npy"), 3) as w: w.write(np.zeros((2, 3), np.uint64))  # doctest: +SKIP
     """
 
     def __init__(self, path: Path, cols: int) -> None:
@@ -84,7 +84,7 @@ class RunWriter:
         except OSError:
             pass
 
-    def __enter__(self) -> "RunWriter":
+    def __enter__(self) -> "SpillWriter":
         return self
 
     def __exit__(self, exc_type: object, *rest: object) -> None:
@@ -115,7 +115,7 @@ def read_rows(path: str | Path, cols: int, start: int, stop: int) -> np.ndarray:
 # ---------------------------------------------------------------- runs and their merge
 
 @dataclass(frozen=True)
-class RunInfo:
+class SpillFile:
     """One sorted spill run of one n: its file, rows and fine-bucket offsets [FINE_BUCKETS + 1]."""
 
     path: str
@@ -182,7 +182,7 @@ def merge_partition(job: MergeJob) -> PartitionResult:
     hist_v: list[np.ndarray] = []
     hist_r: list[np.ndarray] = []
     try:
-        with RunWriter(Path(job.out_path), n + 1) as writer:
+        with SpillWriter(Path(job.out_path), n + 1) as writer:
             for s0, s1 in groups:
                 parts = [read_rows(path, n + 1, int(off[s0]), int(off[s1])) for path, off in job.sources
                          if off[s1] > off[s0]]
@@ -215,7 +215,7 @@ def merge_hist(values: list[np.ndarray], rows: list[np.ndarray]) -> tuple[np.nda
     return v, counts
 
 
-def plan_merges(runs: list[RunInfo], n: int, parts: int, min_count: int, group_rows: int,
+def plan_merges(runs: list[SpillFile], n: int, parts: int, min_count: int, group_rows: int,
                  spill_dir: Path) -> list[MergeJob]:
     """Split the fine buckets of one n into `parts` ranges of about equal rows."""
     if not runs:

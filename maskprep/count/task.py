@@ -19,7 +19,7 @@ from ..encoded.source import SourceTask, TaskReader
 from ..tokenizer.encoding import SPACE, WORD, EncodedBatch, TokenizerInfo, tokenizer_from_json
 from .files import collision_error
 from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, reduce_rows
-from .spills import RunInfo, RunWriter, disk_error
+from .spills import SpillFile, SpillWriter, disk_error
 from .types import CountConfig, TaskCounts
 
 __all__ = ["ChunkCounter", "count_task"]
@@ -72,7 +72,7 @@ class ChunkCounter:
         self.buffers: list[list[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
         self.buffer_bytes = 0
         self.totals = [0] * max_n
-        self.runs: list[RunInfo] = []
+        self.runs: list[SpillFile] = []
         self.flushes = 0
         self.vocab: dict[int, str] = {}
         self._seen_types = 0
@@ -108,7 +108,7 @@ class ChunkCounter:
             for n in range(1, self.max_n + 1):
                 path = self.spill_dir / f"{self.tag}-r{self.flushes:04d}-n{n}.npy"
                 bucket_rows = np.zeros(FINE_BUCKETS, np.int64)
-                with RunWriter(path, n + 1) as writer:
+                with SpillWriter(path, n + 1) as writer:
                     buf = self.buffers[n - 1]
                     for c in range(COARSE_BUCKETS):
                         pieces, buf[c] = buf[c], []
@@ -124,7 +124,7 @@ class ChunkCounter:
                         bucket_rows += np.bincount(fine_bucket(fp), minlength=FINE_BUCKETS)
                 offsets = np.concatenate(([0], np.cumsum(bucket_rows)))
                 if writer.rows:
-                    self.runs.append(RunInfo(str(path), n, writer.rows, offsets))
+                    self.runs.append(SpillFile(str(path), n, writer.rows, offsets))
                 else:
                     path.unlink()
         except OSError as exc:

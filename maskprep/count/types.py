@@ -13,7 +13,7 @@ from pathlib import Path
 from .._checks import is_whole
 from ..errors import MaskprepError
 from ..tokenizer.words import WordsConfig, words_option
-from .spills import RunInfo
+from .spills import SpillFile
 
 __all__ = ["CountConfig", "TaskCounts", "CountSummary", "parse_memory", "FORMAT_VERSION", "MAX_N",
            "MIN_TASK_MEMORY", "TASK_BYTES", "POOL_ROWS"]
@@ -85,7 +85,7 @@ class TaskCounts:
     """What one counting task left behind (runs and its word list) and its totals per n."""
 
     task_index: int
-    runs: list[RunInfo]
+    runs: list[SpillFile]
     totals: list[int]
     words_path: str
     words: int

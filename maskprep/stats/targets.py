@@ -36,11 +36,11 @@ from ..masking.sampler import IGNORE_LABEL
 from .._checks import sum_by_key
 from .masks import MaskStats
 
-__all__ = ["TargetStats", "targets_per_sequence", "BANDS", "TOP_WORDS"]
+__all__ = ["TargetStats", "targets_per_sequence", "TARGET_BANDS", "TOP_WORDS"]
 
 TOP_WORDS = 100
 #: Frequency bands of word types, by rank in the counted rows (1-based, inclusive).
-BANDS: tuple[tuple[int, int | None, str], ...] = (
+TARGET_BANDS: tuple[tuple[int, int | None, str], ...] = (
     (1, 100, "top 100"), (101, 1000, "101-1k"), (1001, 10000, "1k-10k"), (10001, None, "rarer"))
 PUNCT_BAND = "punctuation"
 _FLUSH_ROWS = 1 << 21
@@ -164,7 +164,7 @@ class TargetStats:
         all_tokens = int(self.tokens.sum()) + self.punct_tokens
         easy = int(self.hits[order[:top_words]].sum()) + self.punct_targets
         bands = []
-        for lo, hi, label in BANDS:
+        for lo, hi, label in TARGET_BANDS:
             sel = order[lo - 1:hi] if hi is not None else order[lo - 1:]
             bands.append(self._band(label, lo, hi, len(sel), int(self.words[sel].sum()),
                                     int(self.tokens[sel].sum()), int(self.hits[sel].sum()), all_tokens))
