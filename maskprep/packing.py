@@ -1,4 +1,4 @@
-"""Pack encoded documents into fixed-length sequences with special tokens.
+"""Stage 8, packing: encoded documents into fixed-length sequences with special tokens.
 
 Layout (every row has exactly ``seq_len`` tokens):
 

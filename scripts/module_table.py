@@ -1,7 +1,7 @@
 """Print the module table of DEVELOPERS.md from the package itself, in data-flow order.
 
 Each row is a module and the first sentence of its docstring, so the table says what
-the code says. ``python scripts/module_table.py`` prints it; the test suite checks that
+the code says. ``python scripts/module_table.py`` prints it, ``--write`` puts it in DEVELOPERS.md; the test suite checks that
 DEVELOPERS.md lists every module this prints.
 """
 
@@ -12,9 +12,11 @@ from pathlib import Path
 
 PACKAGE = Path(__file__).resolve().parent.parent / "maskprep"
 # The stages in the order data moves through them; shared helpers first, the CLI last.
-ORDER = ["_version", "errors", "progress", "_files", "_checks", "_tables", "_resume", "execute",
-         "corpus", "tokenizer", "audit", "count", "units", "masking", "packing", "shards", "stats",
-         "compare", "report", "pipeline", "cli", "__main__"]
+ORDER = ["_version", "errors", "wording", "progress", "_files", "_paths", "_checks", "_tables", "_resume",
+         "_interrupt", "_budget", "execute", "corpus", "tokenizer", "encoded", "audit", "count", "units",
+         "masking", "packing", "shards", "stats", "compare", "report", "pipeline", "_cli_options",
+         "_cli_start", "cli", "__main__"]
+GUIDE = PACKAGE.parent / "DEVELOPERS.md"
 
 
 def _summary(path: Path) -> str:
@@ -42,5 +44,24 @@ def table() -> str:
     return "\n".join(rows)
 
 
+def write_guide() -> bool:
+    """Replace the module table in DEVELOPERS.md; True if it changed."""
+    lines = GUIDE.read_text(encoding="utf-8").split("\n")
+    start = lines.index("| module | what it does |")
+    end = start
+    while end < len(lines) and lines[end].startswith("|"):
+        end += 1
+    new = lines[:start] + table().split("\n") + lines[end:]
+    if new == lines:
+        return False
+    GUIDE.write_text("\n".join(new), encoding="utf-8")
+    return True
+
+
 if __name__ == "__main__":
-    print(table())
+    import sys
+
+    if sys.argv[1:] == ["--write"]:
+        print("DEVELOPERS.md updated" if write_guide() else "DEVELOPERS.md already up to date")
+    else:
+        print(table())

@@ -1,4 +1,4 @@
-"""Stage 3, the audit: how a vocabulary fragments a corpus's words, as a table, JSON and a page.
+"""Stage 4, the audit: how a vocabulary fragments a corpus's words, as a table, JSON and a page.
 
 It measures tokenizers (given or trained at several sizes); it does not change them.
 """

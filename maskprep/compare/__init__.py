@@ -1,4 +1,4 @@
-"""Stage 9, compare: every strategy masks the same sequences; compare.json and compare.html."""
+"""Stage 10, compare: every strategy masks the same sequences; compare.json and compare.html."""
 
 from .run import CompareConfig, compare_strategies
 

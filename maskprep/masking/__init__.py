@@ -1,4 +1,4 @@
-"""Stage 6, masking: strategies as segmentations into units, and the one budgeted sampler.
+"""Stage 7, masking: strategies as segmentations into units, and the one budgeted sampler.
 
 It works on packed numpy batches; it does not read corpora or write files.
 """

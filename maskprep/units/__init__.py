@@ -1,4 +1,4 @@
-"""Stage 5, units: cohesion scores of n-grams and the unit vocabulary chosen from them.
+"""Stage 6, units: cohesion scores of n-grams and the unit vocabulary chosen from them.
 
 It reads a counts directory and writes units.parquet; it does not mask.
 """
