@@ -21,7 +21,7 @@ from .errors import MaskprepError
 __all__ = ["BATCH_RESERVE", "ROW_BYTES_PER_TOKEN", "check_budget"]
 
 BATCH_RESERVE = 192 << 20      # one encoded batch of about 1 MiB of text, and the one encoded ahead
-ROW_BYTES_PER_TOKEN = 18       # int32 ids + int32 labels + int8 mask, twice while a shard is cut off
+ROW_BYTES_PER_TOKEN = 18  # int32 ids + int32 labels + int8 mask, twice while a shard is cut off
 
 
 def check_budget(memory: int, *, option: str, executor: Any, tasks: int, copies: int = 0,
@@ -38,11 +38,16 @@ def check_budget(memory: int, *, option: str, executor: Any, tasks: int, copies:
     rows = copies * shard_rows * seq_len * ROW_BYTES_PER_TOKEN
     need = BATCH_RESERVE + rows
     if need > share:
-        what = (f"{copies} cop{'y' if copies == 1 else 'ies'} x --shard-rows {shard_rows} x --seq-len "
-                f"{seq_len} tokens ({rows >> 20} MiB) plus one encoded batch ({BATCH_RESERVE >> 20} MiB)"
-                if rows else f"one encoded batch ({BATCH_RESERVE >> 20} MiB)")
+        what = (
+            f"{copies} cop{'y' if copies == 1 else 'ies'} x --shard-rows {shard_rows} x --seq-len "
+            f"{seq_len} tokens ({rows >> 20} MiB) plus one encoded batch ({BATCH_RESERVE >> 20} MiB)"
+            if rows
+            else f"one encoded batch ({BATCH_RESERVE >> 20} MiB)"
+        )
         fix = "raise --memory, or lower --shard-rows, --copies or --workers" if rows else \
             "raise --memory or lower --workers"
-        raise MaskprepError(f"{option}: {slots} worker(s) get {share >> 20} MiB each, but each needs about "
-                            f"{need >> 20} MiB for {what}; {fix}")
+        raise MaskprepError(
+            f"{option}: {slots} worker(s) get {share >> 20} MiB each, but each needs about "
+            f"{need >> 20} MiB for {what}; {fix}"
+        )
     return share

@@ -14,7 +14,9 @@ import numpy as np
 __all__ = ["is_whole", "is_real", "sum_by_key"]
 
 
-def is_whole(value: object, low: int | None = None, high: int | None = None) -> TypeGuard[int | np.integer[Any]]:
+def is_whole(
+    value: object, low: int | None = None, high: int | None = None
+) -> TypeGuard[int | np.integer[Any]]:
     """A Python or numpy integer (not a bool) within [low, high] where given.
 
     >>> is_whole(3, 1), is_whole(True), is_whole(2.0), is_whole(np.int64(5), 1, 4)
@@ -44,6 +46,10 @@ def sum_by_key(keys: np.ndarray, *columns: np.ndarray) -> tuple[np.ndarray, ...]
     """
     uniq, inv = np.unique(keys, return_inverse=True)
     inv = inv.ravel()
-    sums = tuple(np.bincount(inv, weights=np.asarray(c, dtype=np.float64), minlength=len(uniq)).astype(np.int64)
-                 for c in columns)
+    sums = tuple(
+        np.bincount(inv, weights=np.asarray(c, dtype=np.float64), minlength=len(uniq)).astype(
+            np.int64
+        )
+        for c in columns
+    )
     return (uniq, *sums)

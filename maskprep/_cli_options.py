@@ -13,8 +13,18 @@ import click
 
 from .errors import MaskprepError
 
-__all__ = ["CONTEXT", "executor_from", "is_quiet", "user_errors", "corpus_options", "masking_options",
-           "make_corpus_options", "words_option", "make_words", "budget_option"]
+__all__ = [
+    "CONTEXT",
+    "executor_from",
+    "is_quiet",
+    "user_errors",
+    "corpus_options",
+    "masking_options",
+    "make_corpus_options",
+    "words_option",
+    "make_words",
+    "budget_option",
+]
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
@@ -27,7 +37,9 @@ def executor_from(ctx: click.Context) -> Any:
     workers = obj.get("workers")
     if workers is not None and workers < 1:
         raise MaskprepError(f"--workers: expected a positive whole number, got {workers}")
-    return Executor(workers=workers or default_workers(), dask=obj.get("dask"), quiet=bool(obj.get("quiet")))
+    return Executor(
+        workers=workers or default_workers(), dask=obj.get("dask"), quiet=bool(obj.get("quiet"))
+    )
 
 
 def is_quiet(ctx: click.Context) -> bool:
@@ -60,42 +72,91 @@ def user_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
 
 def budget_option(fn: Callable[..., Any]) -> Callable[..., Any]:
     """--memory of mask and compare (see `maskprep._budget`)."""
-    return click.option("--memory", default="2GiB", show_default=True, metavar="SIZE",
-                        help="Memory for all workers together (as for count); checked against what each "
-                             "worker holds: one encoded batch and, for mask, the rows of one shard file "
-                             "per copy.")(fn)
+    return click.option(
+        "--memory",
+        default="2GiB",
+        show_default=True,
+        metavar="SIZE",
+        help="Memory for all workers together (as for count); checked against what each "
+        "worker holds: one encoded batch and, for mask, the rows of one shard file "
+        "per copy.",
+    )(fn)
 
 
 def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     """The options every command that reads a corpus shares."""
-    fn = click.option("--doc-sep", type=click.Choice(["line", "blank"]), default="line", show_default=True,
-                      help="Text files: one document per line, or documents separated by blank lines.")(fn)
+    fn = click.option(
+        "--doc-sep",
+        type=click.Choice(["line", "blank"]),
+        default="line",
+        show_default=True,
+        help="Text files: one document per line, or documents separated by blank lines.",
+    )(fn)
     fn = click.option("--text-field", default="text", show_default=True,
                       help="JSONL: the field holding the text.")(fn)
     fn = click.option("--text-column", default="text", show_default=True,
                       help="Parquet/Arrow: the column holding the text.")(fn)
-    fn = click.option("--strict", is_flag=True,
-                      help="Invalid UTF-8 is an error (naming file, line and byte) instead of being replaced.")(fn)
+    fn = click.option(
+        "--strict",
+        is_flag=True,
+        help="Invalid UTF-8 is an error (naming file, line and byte) instead of being replaced.",
+    )(fn)
     return fn
 
 
 def masking_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     """The masking and packing options shared by mask and compare."""
-    for opt in reversed([
-        click.option("--rate", type=float, default=0.15, show_default=True,
-                     help="Share of maskable (non-special) tokens made targets, per sequence."),
-        click.option("--mix", default="0.8,0.1,0.1", show_default=True, metavar="MASK,RANDOM,KEEP",
-                     help="How targets are shown: mask token, random token, unchanged."),
-        click.option("--mix-per", type=click.Choice(["token", "unit"]), default="token", show_default=True,
-                     help="Draw the mix per target token or once per masked unit."),
-        click.option("--span-p", type=float, default=0.2, show_default=True,
-                     help="span: geometric parameter of span lengths."),
-        click.option("--span-max", type=int, default=10, show_default=True, help="span: longest span, in words."),
-        click.option("--seq-len", type=int, default=128, show_default=True,
-                     help="Tokens per sequence, special tokens included."),
-        click.option("--no-pack", is_flag=True,
-                     help="One document per sequence (split when too long) instead of packing."),
-    ]):
+    for opt in reversed(
+        [
+            click.option(
+                "--rate",
+                type=float,
+                default=0.15,
+                show_default=True,
+                help="Share of maskable (non-special) tokens made targets, per sequence.",
+            ),
+            click.option(
+                "--mix",
+                default="0.8,0.1,0.1",
+                show_default=True,
+                metavar="MASK,RANDOM,KEEP",
+                help="How targets are shown: mask token, random token, unchanged.",
+            ),
+            click.option(
+                "--mix-per",
+                type=click.Choice(["token", "unit"]),
+                default="token",
+                show_default=True,
+                help="Draw the mix per target token or once per masked unit.",
+            ),
+            click.option(
+                "--span-p",
+                type=float,
+                default=0.2,
+                show_default=True,
+                help="span: geometric parameter of span lengths.",
+            ),
+            click.option(
+                "--span-max",
+                type=int,
+                default=10,
+                show_default=True,
+                help="span: longest span, in words.",
+            ),
+            click.option(
+                "--seq-len",
+                type=int,
+                default=128,
+                show_default=True,
+                help="Tokens per sequence, special tokens included.",
+            ),
+            click.option(
+                "--no-pack",
+                is_flag=True,
+                help="One document per sequence (split when too long) instead of packing.",
+            ),
+        ]
+    ):
         fn = opt(fn)
     return fn
 
@@ -103,19 +164,29 @@ def masking_options(fn: Callable[..., Any]) -> Callable[..., Any]:
 def make_corpus_options(doc_sep: str, text_field: str, text_column: str, strict: bool) -> Any:
     from .corpus.reader import CorpusOptions
 
-    return CorpusOptions(doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict)
+    return CorpusOptions(
+        doc_sep=doc_sep, text_field=text_field, text_column=text_column, strict=strict
+    )
 
 
-_WORDS_HELP = ("What a word is: tokenizer = the tokenizer's own pre-tokenization (scripts with spaces); "
-               "zh, ja, th = runs of Chinese, Japanese or Thai cut by a segmentation library (pip install "
-               "'maskprep[zh]' etc.), other text keeps the tokenizer's words; auto = the segmenter of each "
-               "run's script; cohesion = words learnt from this corpus's character n-gram cohesion.")
+_WORDS_HELP = (
+    "What a word is: tokenizer = the tokenizer's own pre-tokenization (scripts with spaces); "
+    "zh, ja, th = runs of Chinese, Japanese or Thai cut by a segmentation library (pip install "
+    "'maskprep[zh]' etc.), other text keeps the tokenizer's words; auto = the segmenter of each "
+    "run's script; cohesion = words learnt from this corpus's character n-gram cohesion."
+)
 
 
 def words_option(fn: Callable[..., Any]) -> Callable[..., Any]:
     """The --words option of every command that groups tokens into words (read with `make_words`)."""
-    return click.option("--words", "words", type=click.Choice(["tokenizer", "zh", "ja", "th", "auto", "cohesion"]),
-                        default="tokenizer", show_default=True, help=_WORDS_HELP)(fn)
+    return click.option(
+        "--words",
+        "words",
+        type=click.Choice(["tokenizer", "zh", "ja", "th", "auto", "cohesion"]),
+        default="tokenizer",
+        show_default=True,
+        help=_WORDS_HELP,
+    )(fn)
 
 
 def make_words(copts: dict[str, Any], corpus: Any, ctx: click.Context) -> tuple[Any, Any]:

@@ -95,7 +95,9 @@ def install() -> None:
     _state["sockets"] = (reader, writer)
     signal.set_wakeup_fd(writer.fileno(), warn_on_full_buffer=False)
     signal.signal(signal.SIGINT, _on_sigint)
-    watchdog = threading.Thread(target=_watchdog, args=(reader,), name="maskprep-interrupt", daemon=True)
+    watchdog = threading.Thread(
+        target=_watchdog, args=(reader,), name="maskprep-interrupt", daemon=True
+    )
     watchdog.start()
 
 

@@ -24,7 +24,14 @@ from .errors import MaskprepError
 __all__ = ["check_apart", "maskprep_output", "refuse_existing_file", "MARKER_FILES"]
 
 # JSON files maskprep writes at the top of an output directory (each says "maskprep" inside)
-MARKER_FILES = ("manifest.json", "counts.json", "pipeline.json", "audit.json", "compare.json", "encoded.json")
+MARKER_FILES = (
+    "manifest.json",
+    "counts.json",
+    "pipeline.json",
+    "audit.json",
+    "compare.json",
+    "encoded.json",
+)
 
 
 def _real(path: str | Path) -> Path:
@@ -59,8 +66,10 @@ def check_apart(output: str | Path, inputs: Iterable[str | Path | None], *, opti
                 else f"contains {name}"
         else:
             continue
-        raise MaskprepError(f"{option} {output}: {why}; write the output outside the inputs (it would be "
-                            "read back, or overwrite them)")
+        raise MaskprepError(
+            f"{option} {output}: {why}; write the output outside the inputs (it would be "
+            "read back, or overwrite them)"
+        )
 
 
 def _says_maskprep(path: Path) -> bool:
@@ -88,7 +97,9 @@ def maskprep_output(path: str | Path) -> bool:
             names = {q.name for q in p.iterdir()}
         except OSError:
             return False
-        if any(n.startswith((".maskprep", "_maskprep")) for n in names):  # state or metadata folders
+        if any(
+            n.startswith((".maskprep", "_maskprep")) for n in names
+        ):  # state or metadata folders
             return True
         return any(_says_maskprep(p / n) for n in MARKER_FILES if n in names)
     if p.suffix in (".parquet", ".arrow"):
@@ -122,5 +133,7 @@ def refuse_existing_file(path: str | Path, *beside: str | Path, overwrite: bool,
         if p.is_dir():
             raise MaskprepError(f"{option} {path}: {p} is a directory; give a file name")
         if p.exists() and not overwrite:
-            raise MaskprepError(f"{option} {path}: {p.name} exists; pass --overwrite to replace it, or "
-                                "choose another name")
+            raise MaskprepError(
+                f"{option} {path}: {p.name} exists; pass --overwrite to replace it, or "
+                "choose another name"
+            )

@@ -67,12 +67,27 @@ from typing import Any, Callable, Iterable, Iterator, Mapping
 from ._files import atomic_write_text, file_sha256, fsync_file, read_json
 from .errors import MaskprepError
 
-__all__ = ["Stage", "RunDir", "DirLock", "claim", "lock_dir", "locked_output", "LOCK_STATE", "write_record",
-           "read_record",
-           "file_entry", "entry_intact", "digest_of", "LOCK_NAME", "RUN_NAME"]
+__all__ = [
+    "Stage",
+    "RunDir",
+    "DirLock",
+    "claim",
+    "lock_dir",
+    "locked_output",
+    "LOCK_STATE",
+    "write_record",
+    "read_record",
+    "file_entry",
+    "entry_intact",
+    "digest_of",
+    "LOCK_NAME",
+    "RUN_NAME",
+]
 
 LOCK_NAME = "lock"
-LOCK_STATE = ".maskprep-lock"  # the lock folder of outputs without resume state (audit, compare, run)
+LOCK_STATE = (
+    ".maskprep-lock"  # the lock folder of outputs without resume state (audit, compare, run)
+)
 Entry = Mapping[str, Any]  # {"file": name under a base folder, "bytes": size, "sha256": hex}
 RUN_NAME = "run.json"
 

@@ -173,18 +173,38 @@ def encode_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str, outp
 @click.option("--max-n", type=int, default=5, show_default=True, help="Longest n-gram to count (1 to 8).")
 @click.option("--min-count", type=int, default=10, show_default=True,
               help="Keep n-grams seen at least this often (applied exactly, after all counts are summed).")
-@click.option("--memory", default="1GiB", show_default=True, metavar="SIZE",
-              help="Memory for counting, shared by the workers; beyond it sorted runs spill to COUNTS_DIR. "
-                   "K/M/G/T and KiB..TiB are powers of 1024, KB/MB/GB/TB of 1000, a plain number is bytes.")
-@click.option("--overwrite", is_flag=True, help="Replace the counts in an existing, non-empty COUNTS_DIR.")
-@click.option("--resume", is_flag=True,
-              help="Finish an interrupted count with the same options and inputs; finished tasks are not redone.")
+@click.option(
+    "--memory",
+    default="1GiB",
+    show_default=True,
+    metavar="SIZE",
+    help="Memory for counting, shared by the workers; beyond it sorted runs spill to COUNTS_DIR. "
+    "K/M/G/T and KiB..TiB are powers of 1024, KB/MB/GB/TB of 1000, a plain number is bytes.",
+)
+@click.option(
+    "--overwrite", is_flag=True, help="Replace the counts in an existing, non-empty COUNTS_DIR."
+)
+@click.option(
+    "--resume",
+    is_flag=True,
+    help="Finish an interrupted count with the same options and inputs; finished tasks are not redone.",
+)
 @words_option
 @corpus_options
 @click.pass_context
 @user_errors
-def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, output: str, max_n: int, min_count: int,
-              memory: str, overwrite: bool, resume: bool, **copts: Any) -> None:
+def count_cmd(
+    ctx: click.Context,
+    corpus: tuple[str, ...],
+    tokenizer: str | None,
+    output: str,
+    max_n: int,
+    min_count: int,
+    memory: str,
+    overwrite: bool,
+    resume: bool,
+    **copts: Any,
+) -> None:
     """Count word n-grams of CORPUS exactly, in bounded memory.
 
     Words are the tokenizer's pre-tokenization pieces. N-grams never contain or
@@ -205,40 +225,86 @@ def count_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None
 
 # ---------------------------------------------------------------- units (units engineer)
 
-_MEASURE_HELP = ("Cohesion measure: pmi = min over segmentations of log p(g) - sum log p(parts), nats, "
-                 "(-inf, -log p(g)]; pmi-naive = log p(g) - sum log p(word), nats; npmi = pmi / -log p(g), "
-                 "[-1, 1]; llr = Dunning's log-likelihood ratio, >= 0 (weakest binary split for n > 2); "
-                 "t = t score (weakest binary split for n > 2). Default llr: with the edge-word and fragment "
-                 "filters it ranked the most WordNet terms first on real text (see the README).")
+_MEASURE_HELP = (
+    "Cohesion measure: pmi = min over segmentations of log p(g) - sum log p(parts), nats, "
+    "(-inf, -log p(g)]; pmi-naive = log p(g) - sum log p(word), nats; npmi = pmi / -log p(g), "
+    "[-1, 1]; llr = Dunning's log-likelihood ratio, >= 0 (weakest binary split for n > 2); "
+    "t = t score (weakest binary split for n > 2). Default llr: with the edge-word and fragment "
+    "filters it ranked the most WordNet terms first on real text (see the README)."
+)
 
 
 @cli.command("units", context_settings=CONTEXT)
 @click.argument("counts_dir", type=click.Path())
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="Where to write units.parquet (a readable units.tsv is written beside it).")
-@click.option("--measure", type=click.Choice(["llr", "pmi", "pmi-naive", "npmi", "t"]), default="llr",
-              show_default=True, help=_MEASURE_HELP)
-@click.option("--top", type=int, default=50_000, show_default=True, help="Keep at most this many units, best first.")
-@click.option("--min-count", type=int, default=None,
-              help="Keep only n-grams counted at least this often (default and minimum: count's --min-count).")
-@click.option("--per-length", default=None, metavar="N:SHARE,...",
-              help="Shares of --top per unit length, e.g. 2:0.5,3:0.3,4:0.1,5:0.1 (must add up to 1).")
-@click.option("--max-n", type=int, default=None, help="Longest unit in words (default: every counted length).")
-@click.option("--edge-words", type=int, default=30, show_default=True, metavar="K",
-              help="No unit begins or ends with one of the corpus's K most frequent words (they may stand "
-                   "inside a unit: 'point of view'); 0: no such filter.")
-@click.option("--fragment-share", type=float, default=0.75, show_default=True, metavar="SHARE",
-              help="Drop an n-gram when one n-gram a word longer holds at least this share of its occurrences "
-                   "('guido van' inside 'guido van rossum'); 0: keep fragments.")
+@click.option(
+    "--measure",
+    type=click.Choice(["llr", "pmi", "pmi-naive", "npmi", "t"]),
+    default="llr",
+    show_default=True,
+    help=_MEASURE_HELP,
+)
+@click.option(
+    "--top",
+    type=int,
+    default=50_000,
+    show_default=True,
+    help="Keep at most this many units, best first.",
+)
+@click.option(
+    "--min-count",
+    type=int,
+    default=None,
+    help="Keep only n-grams counted at least this often (default and minimum: count's --min-count).",
+)
+@click.option(
+    "--per-length",
+    default=None,
+    metavar="N:SHARE,...",
+    help="Shares of --top per unit length, e.g. 2:0.5,3:0.3,4:0.1,5:0.1 (must add up to 1).",
+)
+@click.option(
+    "--max-n", type=int, default=None, help="Longest unit in words (default: every counted length)."
+)
+@click.option(
+    "--edge-words",
+    type=int,
+    default=30,
+    show_default=True,
+    metavar="K",
+    help="No unit begins or ends with one of the corpus's K most frequent words (they may stand "
+    "inside a unit: 'point of view'); 0: no such filter.",
+)
+@click.option(
+    "--fragment-share",
+    type=float,
+    default=0.75,
+    show_default=True,
+    metavar="SHARE",
+    help="Drop an n-gram when one n-gram a word longer holds at least this share of its occurrences "
+    "('guido van' inside 'guido van rossum'); 0: keep fragments.",
+)
 @click.option("--show", "show_n", type=int, default=10, show_default=True,
               help="Top units to print per length (0: none).")
 @click.option("--overwrite", is_flag=True,
               help="Replace the output files if they exist and were not written by maskprep units.")
 @click.pass_context
 @user_errors
-def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, top: int, min_count: int | None,
-              per_length: str | None, max_n: int | None, edge_words: int, fragment_share: float,
-              show_n: int, overwrite: bool) -> None:
+def units_cmd(
+    ctx: click.Context,
+    counts_dir: str,
+    output: str,
+    measure: str,
+    top: int,
+    min_count: int | None,
+    per_length: str | None,
+    max_n: int | None,
+    edge_words: int,
+    fragment_share: float,
+    show_n: int,
+    overwrite: bool,
+) -> None:
     """Rank the multi-word units of COUNTS_DIR (from maskprep count) by cohesion.
 
     Units are n-grams of 2+ words whose score shows attraction (score > 0;
@@ -258,8 +324,17 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
         raise MaskprepError(f"--top: expected a positive whole number, got {top}")
     if show_n < 0:
         raise MaskprepError(f"--show: expected 0 or more, got {show_n}")
-    vocab = build_units(counts_dir, measure=measure, top=top, min_count=min_count, per_length=per_length,
-                        max_n=max_n, edge_words=edge_words, fragment_share=fragment_share, quiet=is_quiet(ctx))
+    vocab = build_units(
+        counts_dir,
+        measure=measure,
+        top=top,
+        min_count=min_count,
+        per_length=per_length,
+        max_n=max_n,
+        edge_words=edge_words,
+        fragment_share=fragment_share,
+        quiet=is_quiet(ctx),
+    )
     parquet, tsv = write_units(vocab, output)
     if show_n:
         click.echo(format_top_units(vocab, per_length=show_n))
@@ -268,10 +343,13 @@ def units_cmd(ctx: click.Context, counts_dir: str, output: str, measure: str, to
 
 # ---------------------------------------------------------------- mask / show / verify (shards engineer)
 
+
 def _units_note(built_with: str | None) -> None:
     if built_with:
-        click.echo(f"units: built with another tokenizer ({built_with[:12]}) that splits text into the same "
-                   "words; token ids re-derived for this one")
+        click.echo(
+            f"units: built with another tokenizer ({built_with[:12]}) that splits text into the same "
+            "words; token ids re-derived for this one"
+        )
 
 
 PADDING_WARN = 0.25  # mask warns above this padding share
@@ -283,33 +361,82 @@ def _pct(x: float | None) -> str:
 
 @cli.command("mask", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option("-t", "--tokenizer", default=None, type=click.Path(),
-              help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).")
-@click.option("-o", "--output", required=True, type=click.Path(file_okay=False), help="Shards directory to write.")
-@click.option("--strategy", type=click.Choice(["token", "word", "span", "pmi"]), default="token", show_default=True,
-              help="How tokens are grouped into the units the sampler masks.")
+@click.option(
+    "-t",
+    "--tokenizer",
+    default=None,
+    type=click.Path(),
+    help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).",
+)
+@click.option(
+    "-o",
+    "--output",
+    required=True,
+    type=click.Path(file_okay=False),
+    help="Shards directory to write.",
+)
+@click.option(
+    "--strategy",
+    type=click.Choice(["token", "word", "span", "pmi"]),
+    default="token",
+    show_default=True,
+    help="How tokens are grouped into the units the sampler masks.",
+)
 @click.option("--units", "units_path", type=click.Path(), default=None,
               help="Unit vocabulary (units.parquet from maskprep units); needed by --strategy pmi.")
 @masking_options
 @click.option("--copies", type=int, default=1, show_default=True,
               help="Differently masked copies of every sequence (one set of shard files each).")
 @click.option("--seed", type=int, default=0, show_default=True, help="Seed of all random draws.")
-@click.option("--format", "fmt", type=click.Choice(["arrow", "parquet"]), default="arrow", show_default=True,
-              help="Arrow IPC files or Parquet (zstd).")
-@click.option("--shard-rows", type=int, default=16384, show_default=True, help="Rows per shard file, at most.")
-@click.option("--dynamic", is_flag=True,
-              help="Write unmasked input_ids and unit_ids, to mask on the fly with maskprep.mask_batch.")
-@click.option("--overwrite", is_flag=True, help="Replace the shards in an existing output directory.")
+@click.option(
+    "--format",
+    "fmt",
+    type=click.Choice(["arrow", "parquet"]),
+    default="arrow",
+    show_default=True,
+    help="Arrow IPC files or Parquet (zstd).",
+)
+@click.option(
+    "--shard-rows", type=int, default=16384, show_default=True, help="Rows per shard file, at most."
+)
+@click.option(
+    "--dynamic",
+    is_flag=True,
+    help="Write unmasked input_ids and unit_ids, to mask on the fly with maskprep.mask_batch.",
+)
+@click.option(
+    "--overwrite", is_flag=True, help="Replace the shards in an existing output directory."
+)
 @click.option("--resume", is_flag=True, help="Finish an interrupted run with the same options.")
 @budget_option
 @words_option
 @corpus_options
 @click.pass_context
 @user_errors
-def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, output: str, strategy: str,
-             units_path: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
-             seq_len: int, no_pack: bool, copies: int, seed: int, fmt: str, shard_rows: int, dynamic: bool,
-             overwrite: bool, resume: bool, memory: str, **copts: Any) -> None:
+def mask_cmd(
+    ctx: click.Context,
+    corpus: tuple[str, ...],
+    tokenizer: str | None,
+    output: str,
+    strategy: str,
+    units_path: str | None,
+    rate: float,
+    mix: str,
+    mix_per: str,
+    span_p: float,
+    span_max: int,
+    seq_len: int,
+    no_pack: bool,
+    copies: int,
+    seed: int,
+    fmt: str,
+    shard_rows: int,
+    dynamic: bool,
+    overwrite: bool,
+    resume: bool,
+    memory: str,
+    **copts: Any,
+) -> None:
     """Pack CORPUS into sequences, mask them and write training-ready shards.
 
     Writes DIR/shard-*.arrow (or .parquet) and, in DIR/_maskprep/, manifest.json,
@@ -326,44 +453,76 @@ def mask_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None,
     masking = MaskingConfig(strategy=Strategy(strategy), rate=rate, mix=parse_mix(mix),
                             mix_per=MixPer(mix_per), span_p=span_p, span_max=span_max)
     packing = PackingConfig(seq_len=seq_len, pack=not no_pack)
-    shards = ShardConfig(format=fmt, shard_rows=shard_rows, copies=copies, seed=seed, dynamic=dynamic)
+    shards = ShardConfig(
+        format=fmt, shard_rows=shard_rows, copies=copies, seed=seed, dynamic=dynamic
+    )
     co, words_cfg = make_words(copts, corpus, ctx)
-    manifest, stats = write_shards(list(corpus), tokenizer=tokenizer, output=output, masking=masking,
-                                   packing=packing, shards=shards, units=units_path,
-                                   corpus_options=co, executor=executor_from(ctx),
-                                   overwrite=overwrite, resume=resume, words=words_cfg,
-                                   memory=memory)
+    manifest, stats = write_shards(
+        list(corpus),
+        tokenizer=tokenizer,
+        output=output,
+        masking=masking,
+        packing=packing,
+        shards=shards,
+        units=units_path,
+        corpus_options=co,
+        executor=executor_from(ctx),
+        overwrite=overwrite,
+        resume=resume,
+        words=words_cfg,
+        memory=memory,
+    )
     _units_note(manifest.options.get("units_tokenizer_hash"))
     rate_ = stats["masking_rate"]
     mix_ = stats["mix"]
     units_ = stats["unit_lengths"]
     kind = "dynamic (unmasked, with unit_ids)" if dynamic else "masked"
-    click.echo(f"wrote {plural(stats['rows'], kind + ' row')} ({plural(stats['sequences'], 'sequence')} x "
-               f"{plural(copies, 'copy', 'copies')}) in {plural(manifest.totals['shards'], fmt + ' shard')} "
-               f"to {output}")
-    click.echo(f"tokens {stats['tokens']:,} (maskable {stats['maskable_tokens']:,}); targets {stats['targets']:,} = "
-               f"{_pct(rate_['corpus'])} of maskable tokens (asked {rate:g}; per sequence "
-               f"{_pct(rate_['per_sequence_min'])} to {_pct(rate_['per_sequence_max'])}, median "
-               f"{_pct(rate_['per_sequence_median'])})")
-    click.echo(f"shown as: mask {_pct(mix_['mask'])}, random {_pct(mix_['random'])}, keep {_pct(mix_['keep'])} "
-               f"(asked {'/'.join(f'{x:g}' for x in masking.mix)})")
+    click.echo(
+        f"wrote {plural(stats['rows'], kind + ' row')} ({plural(stats['sequences'], 'sequence')} x "
+        f"{plural(copies, 'copy', 'copies')}) in {plural(manifest.totals['shards'], fmt + ' shard')} "
+        f"to {output}"
+    )
+    click.echo(
+        f"tokens {stats['tokens']:,} (maskable {stats['maskable_tokens']:,}); targets {stats['targets']:,} = "
+        f"{_pct(rate_['corpus'])} of maskable tokens (asked {rate:g}; per sequence "
+        f"{_pct(rate_['per_sequence_min'])} to {_pct(rate_['per_sequence_max'])}, median "
+        f"{_pct(rate_['per_sequence_median'])})"
+    )
+    click.echo(
+        f"shown as: mask {_pct(mix_['mask'])}, random {_pct(mix_['random'])}, keep {_pct(mix_['keep'])} "
+        f"(asked {'/'.join(f'{x:g}' for x in masking.mix)})"
+    )
     mean_t, mean_w = units_["mean_tokens"], units_["mean_words"]
-    click.echo(f"masked units: {'n/a' if mean_t is None else f'{mean_t:.2f}'} tokens, "
-               f"{'n/a' if mean_w is None else f'{mean_w:.2f}'} words on average; multi-word share "
-               f"{_pct(stats['multiword_share'])}; within-word leakage {_pct(stats['within_word_leakage'])}")
+    click.echo(
+        f"masked units: {'n/a' if mean_t is None else f'{mean_t:.2f}'} tokens, "
+        f"{'n/a' if mean_w is None else f'{mean_w:.2f}'} words on average; multi-word share "
+        f"{_pct(stats['multiword_share'])}; within-word leakage {_pct(stats['within_word_leakage'])}"
+    )
     pad = stats["padding"]
-    click.echo(f"padding: {_pct(pad['share'])} of the {pad['positions']:,} token positions "
-               f"({pad['padded']:,} pad tokens; --seq-len {seq_len}, "
-               f"{'documents packed across rows' if not no_pack else 'one document per row (--no-pack)'})")
+    click.echo(
+        f"padding: {_pct(pad['share'])} of the {pad['positions']:,} token positions "
+        f"({pad['padded']:,} pad tokens; --seq-len {seq_len}, "
+        f"{'documents packed across rows' if not no_pack else 'one document per row (--no-pack)'})"
+    )
     if pad["share"] is not None and pad["share"] > PADDING_WARN:
-        hint = "drop --no-pack to pack documents across rows, or use a shorter --seq-len" if no_pack \
+        hint = (
+            "drop --no-pack to pack documents across rows, or use a shorter --seq-len"
+            if no_pack
             else "use a shorter --seq-len"
-        click.echo(f"warning: {_pct(pad['share'])} of every row is padding on average (over "
-                   f"{PADDING_WARN:.0%}): that share of the compute goes to pad tokens; {hint}", err=True)
+        )
+        click.echo(
+            f"warning: {_pct(pad['share'])} of every row is padding on average (over "
+            f"{PADDING_WARN:.0%}): that share of the compute goes to pad tokens; {hint}",
+            err=True,
+        )
     if dynamic:
-        click.echo("(dynamic shards: figures are those of maskprep.mask_batch with each shard's copy)")
-    click.echo("note: the rate is over maskable tokens (special tokens are never masked), and each sequence's "
-               "budget is round(rate x its maskable tokens), so short sequences deviate from the rate")
+        click.echo(
+            "(dynamic shards: figures are those of maskprep.mask_batch with each shard's copy)"
+        )
+    click.echo(
+        "note: the rate is over maskable tokens (special tokens are never masked), and each sequence's "
+        "budget is round(rate x its maskable tokens), so short sequences deviate from the rate"
+    )
     meta = Path(output) / META_DIR
     click.echo(f"see {meta / 'stats.json'} and {meta / 'manifest.json'}")
 
@@ -411,7 +570,9 @@ def verify_cmd(directory: str) -> None:
         click.echo(fault, err=True)
     if faults:
         raise MaskprepError(f"{directory}: {plural(len(faults), 'fault')}; first: {faults[0]}")
-    click.echo(f"ok: {ok} in {directory} match {'encoded' if is_encoded_dir(directory) else 'manifest'}.json")
+    click.echo(
+        f"ok: {ok} in {directory} match {'encoded' if is_encoded_dir(directory) else 'manifest'}.json"
+    )
 
 
 # ---------------------------------------------------------------- compare / run / demo (lead)
@@ -421,23 +582,56 @@ def _parse_sample(text: str) -> int | None:
         return None
     t = text.strip().replace("_", "").replace(",", "")
     if not t.isdigit() or int(t) < 1:
-        raise MaskprepError(f"--sample: expected a whole number of sequences >= 1 or 'all', got {text!r}")
+        raise MaskprepError(
+            f"--sample: expected a whole number of sequences >= 1 or 'all', got {text!r}"
+        )
     return int(t)
 
 
 @cli.command("compare", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option("-t", "--tokenizer", default=None, type=click.Path(),
-              help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).")
-@click.option("--units", "units_path", type=click.Path(), default=None,
-              help="Unit vocabulary (units.parquet from maskprep units): enables pmi and within-unit leakage.")
-@click.option("--strategies", default=None, metavar="S,S,...",
-              help="Strategies to compare, from token,word,span,pmi (default: all; pmi only with --units).")
+@click.option(
+    "-t",
+    "--tokenizer",
+    default=None,
+    type=click.Path(),
+    help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).",
+)
+@click.option(
+    "--units",
+    "units_path",
+    type=click.Path(),
+    default=None,
+    help="Unit vocabulary (units.parquet from maskprep units): enables pmi and within-unit leakage.",
+)
+@click.option(
+    "--strategies",
+    default=None,
+    metavar="S,S,...",
+    help="Strategies to compare, from token,word,span,pmi (default: all; pmi only with --units).",
+)
 @masking_options
-@click.option("--sample", default="10000", show_default=True, metavar="N|all",
-              help="Most sequences compared, spread over the corpus by size; 'all' for every sequence.")
-@click.option("--seed", type=int, default=0, show_default=True, help="Seed of all random draws (as for maskprep mask).")
-@click.option("--examples", type=int, default=3, show_default=True, help="Example sequences shown in compare.html.")
+@click.option(
+    "--sample",
+    default="10000",
+    show_default=True,
+    metavar="N|all",
+    help="Most sequences compared, spread over the corpus by size; 'all' for every sequence.",
+)
+@click.option(
+    "--seed",
+    type=int,
+    default=0,
+    show_default=True,
+    help="Seed of all random draws (as for maskprep mask).",
+)
+@click.option(
+    "--examples",
+    type=int,
+    default=3,
+    show_default=True,
+    help="Example sequences shown in compare.html.",
+)
 @click.option("-o", "--output", required=True, type=click.Path(file_okay=False),
               help="Directory for compare.json and compare.html.")
 @budget_option
@@ -445,17 +639,38 @@ def _parse_sample(text: str) -> int | None:
 @corpus_options
 @click.pass_context
 @user_errors
-def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | None, units_path: str | None,
-                strategies: str | None, rate: float, mix: str, mix_per: str, span_p: float, span_max: int,
-                seq_len: int, no_pack: bool, sample: str, seed: int, examples: int, output: str,
-                memory: str, **copts: Any) -> None:
+def compare_cmd(
+    ctx: click.Context,
+    corpus: tuple[str, ...],
+    tokenizer: str | None,
+    units_path: str | None,
+    strategies: str | None,
+    rate: float,
+    mix: str,
+    mix_per: str,
+    span_p: float,
+    span_max: int,
+    seq_len: int,
+    no_pack: bool,
+    sample: str,
+    seed: int,
+    examples: int,
+    output: str,
+    memory: str,
+    **copts: Any,
+) -> None:
     """Mask the same sequences of CORPUS with each strategy and compare what they hide.
 
     Per strategy: actual masking rate, unit lengths, multi-word share, within-word and
     within-unit leakage, easy-target share, targets by word-frequency band and per
     sequence. Writes DIR/compare.json and DIR/compare.html and prints a table.
     """
-    from .compare.run import CompareConfig, compare_strategies, format_compare_table, parse_strategies
+    from .compare.run import (
+        CompareConfig,
+        compare_strategies,
+        format_compare_table,
+        parse_strategies,
+    )
     from .masking.sampler import MixPer, parse_mix
 
     config = CompareConfig(strategies=parse_strategies(strategies), rate=rate, mix=parse_mix(mix),
@@ -463,8 +678,17 @@ def compare_cmd(ctx: click.Context, corpus: tuple[str, ...], tokenizer: str | No
                            span_max=span_max, seq_len=seq_len, pack=not no_pack, seed=seed,
                            sample=_parse_sample(sample), examples=examples)
     co, words_cfg = make_words(copts, corpus, ctx)
-    doc = compare_strategies(list(corpus), tokenizer=tokenizer, output=output, config=config, units=units_path,
-                             corpus_options=co, executor=executor_from(ctx), words=words_cfg, memory=memory)
+    doc = compare_strategies(
+        list(corpus),
+        tokenizer=tokenizer,
+        output=output,
+        config=config,
+        units=units_path,
+        corpus_options=co,
+        executor=executor_from(ctx),
+        words=words_cfg,
+        memory=memory,
+    )
     click.echo(format_compare_table(doc))
     _units_note((doc.get("units") or {}).get("built_with_tokenizer"))
     click.echo(f"\nwrote {Path(output) / 'compare.json'} and {Path(output) / 'compare.html'}")
@@ -479,8 +703,10 @@ def _print_run(result: Any) -> None:
         click.echo("")
         click.echo(format_compare_table(result.compare))
     ran = sum(s.status == "ran" for s in result.stages)
-    click.echo(f"\n{plural(ran, 'stage')} ran, {len(result.stages) - ran} up to date; outputs in {result.output}"
-               f" (summary: {result.output / 'pipeline.json'})")
+    click.echo(
+        f"\n{plural(ran, 'stage')} ran, {len(result.stages) - ran} up to date; outputs in {result.output}"
+        f" (summary: {result.output / 'pipeline.json'})"
+    )
 
 
 @cli.command("run", context_settings=CONTEXT)
@@ -505,13 +731,21 @@ def run_cmd(ctx: click.Context, config: str, output: str | None, force: bool) ->
     """
     from .pipeline.runner import run_pipeline
 
-    result = run_pipeline(config, output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
+    result = run_pipeline(
+        config, output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx)
+    )
     _print_run(result)
 
 
 @cli.command("demo", context_settings=CONTEXT)
-@click.option("-o", "--output", type=click.Path(file_okay=False), default="maskprep-demo", show_default=True,
-              help="Output directory.")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(file_okay=False),
+    default="maskprep-demo",
+    show_default=True,
+    help="Output directory.",
+)
 @click.option("--force", is_flag=True, help="Rerun every stage, even those that are up to date.")
 @click.option("--where", is_flag=True,
               help="Print the folder of the bundled sample corpus and its TOML files, and exit.")
@@ -532,8 +766,10 @@ def demo_cmd(ctx: click.Context, output: str, force: bool, where: bool) -> None:
         return
     result = run_demo(output=output, force=force, executor=executor_from(ctx), quiet=is_quiet(ctx))
     _print_run(result)
-    click.echo("note: the sample corpus is synthetic (templated text with planted terms); do not read its "
-               "figures as properties of real text")
+    click.echo(
+        "note: the sample corpus is synthetic (templated text with planted terms); do not read its "
+        "figures as properties of real text"
+    )
 
 
 def main() -> None:

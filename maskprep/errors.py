@@ -48,7 +48,9 @@ def os_error_text(exc: OSError, *, doing: str = "") -> str:
 
     name = _errno.errorcode.get(exc.errno or 0, "")
     known = exc.errno is not None and name in _ADVICE
-    reason = (os.strerror(exc.errno or 0) if known else (exc.strerror or str(exc) or type(exc).__name__))
+    reason = (
+        os.strerror(exc.errno or 0) if known else (exc.strerror or str(exc) or type(exc).__name__)
+    )
     reason = reason.rstrip(".")
     reason = reason[:1].lower() + reason[1:]
     advice = _ADVICE.get(name)

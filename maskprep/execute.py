@@ -77,7 +77,9 @@ class Executor:
 
     def __post_init__(self) -> None:
         if not is_whole(self.workers, 1):
-            raise MaskprepError(f"--workers: expected a positive whole number, got {self.workers!r}")
+            raise MaskprepError(
+                f"--workers: expected a positive whole number, got {self.workers!r}"
+            )
         if self.workers > 1024:
             raise MaskprepError(f"--workers: {self.workers} is absurd; use at most 1024")
         if self.dask is not None and not str(self.dask).strip():
@@ -153,10 +155,17 @@ def _worker_init(parent: int) -> None:
 
 # ---------------------------------------------------------------- the driver side
 
-def map_tasks(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], *, executor: Executor = Executor(),
-              label: str = "tasks", describe: Callable[[int], str] | None = None,
-              weights: Sequence[float] | None = None, unit: str = "tasks",
-              shared: str | Path | None = None) -> Iterator[Any]:
+def map_tasks(
+    fn: Callable[..., Any],
+    args_list: Sequence[tuple[Any, ...]],
+    *,
+    executor: Executor = Executor(),
+    label: str = "tasks",
+    describe: Callable[[int], str] | None = None,
+    weights: Sequence[float] | None = None,
+    unit: str = "tasks",
+    shared: str | Path | None = None,
+) -> Iterator[Any]:
     """Run `fn(*args)` for each args tuple; yield results in task order.
 
     `describe(i)` names task i in error messages; `weights` drive the progress
@@ -172,7 +181,9 @@ def map_tasks(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], *, e
     describe = describe or (lambda i: f"task {i}")
     with Progress(label, total=float(sum(weights)), unit=unit, quiet=executor.quiet) as progress:
         if executor.dask:
-            yield from _map_dask(fn, args_list, executor, describe, weights, progress, shared, label)
+            yield from _map_dask(
+                fn, args_list, executor, describe, weights, progress, shared, label
+            )
             return
         if executor.workers == 1 or n <= 1:
             for i, args in enumerate(args_list):
@@ -199,8 +210,12 @@ def _pool(workers: int) -> ProcessPoolExecutor:
     then merge, say) share its warm workers instead of paying the start-up of fresh ones."""
     pool = _POOLS.get(workers)
     if pool is None or getattr(pool, "_broken", False) or getattr(pool, "_shutdown_thread", False):
-        pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn"),
-                                   initializer=_worker_init, initargs=(os.getpid(),))
+        pool = ProcessPoolExecutor(
+            max_workers=workers,
+            mp_context=multiprocessing.get_context("spawn"),
+            initializer=_worker_init,
+            initargs=(os.getpid(),),
+        )
         _POOLS[workers] = pool
     return pool
 
@@ -208,7 +223,11 @@ def _pool(workers: int) -> ProcessPoolExecutor:
 def pool_running(workers: int) -> bool:
     """Is a kept pool of `workers` processes already started (so more tasks on it cost no start-up)?"""
     pool = _POOLS.get(workers)
-    return pool is not None and not getattr(pool, "_broken", False) and not getattr(pool, "_shutdown_thread", False)
+    return (
+        pool is not None
+        and not getattr(pool, "_broken", False)
+        and not getattr(pool, "_shutdown_thread", False)
+    )
 
 
 def _drop_pool(workers: int, *, terminate: bool) -> None:
@@ -267,9 +286,15 @@ def shutdown_pools() -> None:
         _drop_pool(workers, terminate=False)
 
 
-def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]],
-             workers: int, describe: Callable[[int], str], weights: list[float],
-             progress: Progress) -> Iterator[Any]:
+def _ordered(
+    pool: ProcessPoolExecutor,
+    fn: Callable[..., Any],
+    args_list: Sequence[tuple[Any, ...]],
+    workers: int,
+    describe: Callable[[int], str],
+    weights: list[float],
+    progress: Progress,
+) -> Iterator[Any]:
     """Keep a bounded window of tasks in flight; yield results in order."""
     n = len(args_list)
     window = max(2 * workers, 2)
@@ -280,9 +305,11 @@ def _ordered(pool: ProcessPoolExecutor, fn: Callable[..., Any], args_list: Seque
     cwd = os.getcwd()
 
     def died(i: int) -> MaskprepError:
-        return MaskprepError(f"{describe(i)}: a worker process died while running this task (killed, or out of "
-                             "memory?); finished tasks are kept for --resume; fewer --workers or a smaller "
-                             "--memory may help")
+        return MaskprepError(
+            f"{describe(i)}: a worker process died while running this task (killed, or out of "
+            "memory?); finished tasks are kept for --resume; fewer --workers or a smaller "
+            "--memory may help"
+        )
 
     try:
         while emit < n:
@@ -323,8 +350,10 @@ def _distributed() -> Any:
     try:
         import distributed
     except ImportError:
-        raise MaskprepError(f"--dask needs the dask extra, which is not installed here: {DASK_INSTALL_HINT}; "
-                            "or drop --dask to run on local processes") from None
+        raise MaskprepError(
+            f"--dask needs the dask extra, which is not installed here: {DASK_INSTALL_HINT}; "
+            "or drop --dask to run on local processes"
+        ) from None
     return distributed
 
 
@@ -341,8 +370,10 @@ def _check_shared(client: Any, address: str, directory: str | Path) -> None:
     where = Path(directory).resolve()
     workers = client.scheduler_info().get("workers", {})
     if not workers:
-        sys.stderr.write(f"note: no Dask worker is connected to {address} yet; tasks wait until one joins "
-                         f"(each must see {where} at that path)\n")
+        sys.stderr.write(
+            f"note: no Dask worker is connected to {address} yet; tasks wait until one joins "
+            f"(each must see {where} at that path)\n"
+        )
         return
     where.mkdir(parents=True, exist_ok=True)
     token = uuid.uuid4().hex
@@ -354,9 +385,11 @@ def _check_shared(client: Any, address: str, directory: str | Path) -> None:
         probe.unlink(missing_ok=True)
     blind = sorted(w for w, ok in seen.items() if not ok)
     if blind:
-        raise MaskprepError(f"--dask {address}: {len(blind)} of {plural(len(seen), 'worker')} cannot see {where} "
-                            f"(first: {blind[0]}); the corpus and the output directory must be on a filesystem "
-                            "shared by this machine and every worker, at the same path")
+        raise MaskprepError(
+            f"--dask {address}: {len(blind)} of {plural(len(seen), 'worker')} cannot see {where} "
+            f"(first: {blind[0]}); the corpus and the output directory must be on a filesystem "
+            "shared by this machine and every worker, at the same path"
+        )
 
 
 def _shared_args(args_list: Sequence[tuple[Any, ...]]) -> list[int]:
@@ -376,13 +409,17 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
     address = str(executor.dask)
     target = {"scheduler_file": address} if address.endswith(".json") else {"address": address}
     if "scheduler_file" in target and not Path(address).is_file():
-        raise MaskprepError(f"--dask {address}: no such scheduler file (written by dask scheduler "
-                            "--scheduler-file FILE); or give the scheduler's address, e.g. tcp://10.0.0.5:8786")
+        raise MaskprepError(
+            f"--dask {address}: no such scheduler file (written by dask scheduler "
+            "--scheduler-file FILE); or give the scheduler's address, e.g. tcp://10.0.0.5:8786"
+        )
     try:
         client = distributed.Client(**target, timeout="10s", set_as_default=False)
     except Exception as exc:
-        raise MaskprepError(f"--dask {address}: cannot reach the scheduler ({type(exc).__name__}: {exc}); "
-                            f"start one with: dask scheduler, and workers with: dask worker {address}") from None
+        raise MaskprepError(
+            f"--dask {address}: cannot reach the scheduler ({type(exc).__name__}: {exc}); "
+            f"start one with: dask scheduler, and workers with: dask worker {address}"
+        ) from None
     futures: list[Any] = []
     try:
         if shared is not None:
@@ -390,15 +427,28 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
         run = uuid.uuid4().hex[:12]
         positions = _shared_args(args_list)
         try:
-            sent = client.scatter([args_list[0][j] for j in positions], hash=False) if positions else []
+            sent = (
+                client.scatter([args_list[0][j] for j in positions], hash=False)
+                if positions
+                else []
+            )
             once = dict(zip(positions, sent))
-            futures = [client.submit(_call_remote, fn, *[once.get(j, a) for j, a in enumerate(args)], pure=False,
-                                     key=f"maskprep-{fn.__name__}-{run}-{i:06d}")
-                       for i, args in enumerate(args_list)]
+            futures = [
+                client.submit(
+                    _call_remote,
+                    fn,
+                    *[once.get(j, a) for j, a in enumerate(args)],
+                    pure=False,
+                    key=f"maskprep-{fn.__name__}-{run}-{i:06d}",
+                )
+                for i, args in enumerate(args_list)
+            ]
         except Exception as exc:  # e.g. a worker that cannot unpickle maskprep's objects
-            raise MaskprepError(f"--dask {address}: sending the {label} tasks to the cluster failed "
-                                f"({type(exc).__name__}: {str(exc)[:300]}); every worker must have the same "
-                                "maskprep and library versions as this machine") from None
+            raise MaskprepError(
+                f"--dask {address}: sending the {label} tasks to the cluster failed "
+                f"({type(exc).__name__}: {str(exc)[:300]}); every worker must have the same "
+                "maskprep and library versions as this machine"
+            ) from None
         index = {f.key: i for i, f in enumerate(futures)}
         done: dict[int, Any] = {}
         emit = 0
@@ -407,8 +457,10 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
             try:
                 ok, value = fut.result()
             except Exception as exc:  # lost worker (KilledWorker), cancelled, unpicklable result...
-                raise MaskprepError(f"{describe(i)}: the cluster lost this task ({type(exc).__name__}: {exc}); "
-                                    "finished tasks are kept for --resume") from None
+                raise MaskprepError(
+                    f"{describe(i)}: the cluster lost this task ({type(exc).__name__}: {exc}); "
+                    "finished tasks are kept for --resume"
+                ) from None
             if not ok:
                 raise MaskprepError(f"{describe(i)}: {value}")
             progress.advance(weights[i])

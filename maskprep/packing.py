@@ -67,8 +67,10 @@ class PackingConfig:
 
     def __post_init__(self) -> None:
         if not is_whole(self.seq_len, MIN_SEQ_LEN):
-            raise MaskprepError(f"--seq-len must be a whole number >= {MIN_SEQ_LEN}, got {self.seq_len!r}; "
-                                "pass e.g. --seq-len 128")
+            raise MaskprepError(
+                f"--seq-len must be a whole number >= {MIN_SEQ_LEN}, got {self.seq_len!r}; "
+                "pass e.g. --seq-len 128"
+            )
         if int(self.seq_len) > 1 << 20:
             raise MaskprepError(f"--seq-len {self.seq_len} is absurdly long; use at most {1 << 20}")
         object.__setattr__(self, "seq_len", int(self.seq_len))
@@ -77,8 +79,10 @@ class PackingConfig:
     def check(self, info: TokenizerInfo) -> None:
         """Check the length against the tokenizer's limit: ``config.check(info)``."""
         if info.max_length is not None and self.seq_len > info.max_length:
-            raise MaskprepError(f"--seq-len {self.seq_len} is above the limit of tokenizer {info.name} "
-                                f"({info.max_length} tokens); pass --seq-len {info.max_length} or less")
+            raise MaskprepError(
+                f"--seq-len {self.seq_len} is above the limit of tokenizer {info.name} "
+                f"({info.max_length} tokens); pass --seq-len {info.max_length} or less"
+            )
 
 
 @dataclass(frozen=True)
@@ -118,7 +122,8 @@ def check_packing_tokenizer(info: TokenizerInfo) -> tuple[int, int, int]:
         raise MaskprepError(
             f"{info.name}: tokenizer has no {' / '.join(missing)} token; add it as a special token "
             "(e.g. tok.add_special_tokens(['[CLS]', '[SEP]', '[PAD]']) with the tokenizers library, then "
-            "save) or train one with maskprep train-tokenizer")
+            "save) or train one with maskprep train-tokenizer"
+        )
     return int(info.cls_id), int(info.sep_id), int(info.pad_id)  # type: ignore[arg-type]
 
 
@@ -199,7 +204,9 @@ class TaskPacker:
         S = len(ids)
         rows_per_seg = -(-seg_lengths // piece)
         B = int(rows_per_seg.sum())
-        if len(seg_lengths) == 1:  # one segment (packed mode): rows are consecutive pieces of the stream
+        if (
+            len(seg_lengths) == 1
+        ):  # one segment (packed mode): rows are consecutive pieces of the stream
             row = np.arange(S, dtype=np.int64) // piece
             flat = None
         else:
@@ -223,7 +230,9 @@ class TaskPacker:
 
         # sequence-local word numbers: stream word numbers minus the first word of the row
         row_start = np.flatnonzero(np.r_[True, row[1:] != row[:-1]]) if S else np.zeros(0, np.int64)
-        first = np.minimum.reduceat(np.where(word >= 0, word, _NO_WORD), row_start) if S else row_start
+        first = (
+            np.minimum.reduceat(np.where(word >= 0, word, _NO_WORD), row_start) if S else row_start
+        )
         local = np.where(word >= 0, word - first[row], -1).astype(np.int32)
         input_ids = place(ids, self.pad_id, self.cls_id, np.int32)
         attention = place(np.ones(S, dtype=np.int8), 0, 1, np.int8)
@@ -241,12 +250,24 @@ class TaskPacker:
         seq = (np.uint64(self.task_index) << np.uint64(32)) \
             | (np.uint64(self.sequences) + np.arange(B, dtype=np.uint64))
         self.sequences += B
-        return PackedBatch(input_ids=input_ids, special=word_ids < 0, word_ids=word_ids, word_keys=word_keys,
-                           word_kinds=word_kinds, attention_mask=attention, sequence_ids=seq)
+        return PackedBatch(
+            input_ids=input_ids,
+            special=word_ids < 0,
+            word_ids=word_ids,
+            word_keys=word_keys,
+            word_kinds=word_kinds,
+            attention_mask=attention,
+            sequence_ids=seq,
+        )
 
 
-def pack_batches(info: TokenizerInfo, batches: Iterable[EncodedBatch], *, config: PackingConfig = PackingConfig(),
-                 task_index: int = 0) -> Iterator[PackedBatch]:
+def pack_batches(
+    info: TokenizerInfo,
+    batches: Iterable[EncodedBatch],
+    *,
+    config: PackingConfig = PackingConfig(),
+    task_index: int = 0,
+) -> Iterator[PackedBatch]:
     """Pack all encoded batches of one task, last sequence padded.
 
     >>> sum(len(p) for p in pack_batches(info, [info.encode(["To be, or not to be."])], config=PackingConfig(seq_len=8)))  # doctest: +SKIP

@@ -46,8 +46,12 @@ def bare_pass(info, path: Path) -> float:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=4, help="copies of the plays (4.5 MB each)")
-    ap.add_argument("--quick", action="store_true", help="one copy of the plays (same as --repeat 1)")
-    ap.add_argument("--lines", type=int, default=None, help="only the first N speeches (a smoke run)")
+    ap.add_argument(
+        "--quick", action="store_true", help="one copy of the plays (same as --repeat 1)"
+    )
+    ap.add_argument(
+        "--lines", type=int, default=None, help="only the first N speeches (a smoke run)"
+    )
     args = ap.parse_args()
     repeat = 1 if args.quick else args.repeat
     with tempfile.TemporaryDirectory() as tmp:
@@ -60,7 +64,9 @@ def main() -> None:
         bare_pass(info, path)  # warm up the page cache and the tokenizer
         bare = bare_pass(info, path)
         t = time.perf_counter()
-        run_audit([str(path)], AuditConfig(tokenizers=(str(tok),)), output=Path(tmp) / "audit", quiet=True)
+        run_audit(
+            [str(path)], AuditConfig(tokenizers=(str(tok),)), output=Path(tmp) / "audit", quiet=True
+        )
         audit = time.perf_counter() - t
         print(f"audit benchmark on {mb:.1f} MB of real English text (wordpiece-8000)")
         print(f"  bare encode_batch : {mb / bare:7.2f} MB/s  ({bare:.2f} s)")

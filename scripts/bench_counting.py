@@ -98,7 +98,9 @@ def _varied(text: str, copy: int) -> str:
     return re.sub(r"[A-Za-z]+", sub, text)
 
 
-def build_corpus(work: Path, megabytes: int, text: str = "repeated", lines: int | None = None) -> Path:
+def build_corpus(
+    work: Path, megabytes: int, text: str = "repeated", lines: int | None = None
+) -> Path:
     """The plays, one speech per line, repeated (or varied copies) until `megabytes` MB (10**6 bytes).
 
     `lines`: only the first that many speeches (a smoke run).
@@ -126,7 +128,9 @@ def tokenizer(work: Path, lines: int | None = None, vocab_size: int = 8000) -> P
     path = work / "tokenizer.json"
     if not path.exists():
         text = speech_lines(lines=lines)
-        save_tokenizer(train_tokenizer(iter(text), TrainConfig(model="wordpiece", vocab_size=vocab_size)), path)
+        save_tokenizer(
+            train_tokenizer(iter(text), TrainConfig(model="wordpiece", vocab_size=vocab_size)), path
+        )
     return path
 
 
@@ -178,7 +182,9 @@ def count_encoded(path: str, tokenizer_path: str, max_n: int, spill_dir: str, sh
     with open(path, "rb") as fh:
         index, batches, words = pickle.load(fh)
     info = load_tokenizer(tokenizer_path)
-    counter = ChunkCounter(info, max_n=max_n, spill_dir=Path(spill_dir), share=share, tag=f"t{index:06d}")
+    counter = ChunkCounter(
+        info, max_n=max_n, spill_dir=Path(spill_dir), share=share, tag=f"t{index:06d}"
+    )
     # The words come as (key, kind, text) tuples decoded before the clock (the worker's fresh tokenizer
     # has not seen them); the counter's word list is filled with the same check it makes when it reads
     # them from the tokenizer's word-type cache.
@@ -200,7 +206,9 @@ def warm(_: int) -> int:
     return os.getpid()
 
 
-def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, workers: int) -> tuple[float, dict]:
+def engine(
+    encoded: list[Path], files: list[Path], tok: Path, work: Path, workers: int
+) -> tuple[float, dict]:
     """maskprep's path from EncodedBatch to COUNTS_DIR (count tasks, merges, Parquet writes); (seconds, counts).
 
     With workers > 1 the process pool is started before the clock starts: in `count` the same pool
@@ -212,7 +220,10 @@ def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, worker
     config = CountConfig(max_n=MAX_N, min_count=MIN_COUNT, memory="1GiB")
     executor = Executor(workers=workers, quiet=True)
     if workers > 1:
-        while len(set(map_tasks(warm, [(i,) for i in range(2 * workers)], executor=executor))) < workers:
+        while (
+            len(set(map_tasks(warm, [(i,) for i in range(2 * workers)], executor=executor)))
+            < workers
+        ):
             pass
     # The baseline's dictionaries (millions of objects) stay in this process; freezing them keeps the
     # garbage collector from walking them again whenever the engine allocates (`count` has no such heap).
@@ -226,8 +237,13 @@ def engine(encoded: list[Path], files: list[Path], tok: Path, work: Path, worker
     spill.mkdir()
     start = time.perf_counter()
     share = task_share(config, executor, len(encoded))
-    results = list(map_tasks(count_encoded, [(str(p), str(tok), MAX_N, str(spill), share) for p in encoded],
-                             executor=executor))
+    results = list(
+        map_tasks(
+            count_encoded,
+            [(str(p), str(tok), MAX_N, str(spill), share) for p in encoded],
+            executor=executor,
+        )
+    )
     finish_counts(results, info=info, output=out, spill=spill, config=config, files=files,
                   corpus_options=CorpusOptions(), executor=executor, started=time.monotonic())
     seconds = time.perf_counter() - start
@@ -305,28 +321,77 @@ def peak_rss(cmd: list[str]) -> tuple[float, int, float]:
 
 
 def count_cmd(corpus: Path, tok: Path, out: Path, memory: str, workers: int) -> list[str]:
-    return [sys.executable, "-m", "maskprep", "--workers", str(workers), "--quiet", "count", str(corpus),
-            "-t", str(tok), "-o", str(out), "--max-n", str(MAX_N), "--min-count", str(MIN_COUNT),
-            "--memory", memory, "--overwrite"]
+    return [
+        sys.executable,
+        "-m",
+        "maskprep",
+        "--workers",
+        str(workers),
+        "--quiet",
+        "count",
+        str(corpus),
+        "-t",
+        str(tok),
+        "-o",
+        str(out),
+        "--max-n",
+        str(MAX_N),
+        "--min-count",
+        str(MIN_COUNT),
+        "--memory",
+        memory,
+        "--overwrite",
+    ]
 
 
 def main() -> None:
-    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    ap.add_argument("--speed-mb", type=int, default=None, help="corpus size (MB) of the speed run (50; --quick: 10)")
+    ap = argparse.ArgumentParser(
+        description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+    ap.add_argument(
+        "--speed-mb",
+        type=int,
+        default=None,
+        help="corpus size (MB) of the speed run (50; --quick: 10)",
+    )
     ap.add_argument("--sizes", default=None,
                     help="corpus sizes (MB) for the scaling run (10,50,200; --quick: 5,10,20)")
-    ap.add_argument("--memory", default="8MiB", help="--memory of the RSS run (the repeated text has few distinct n-grams)")
-    ap.add_argument("--text", choices=("repeated", "varied"), default="repeated",
-                    help="corpus: the plays repeated, or copies with renamed word types (see above)")
-    ap.add_argument("--repeat", type=int, default=None,
-                    help="rounds (3; --quick: 1) of the speed section (Counter, 1 worker, 2 workers in turn); "
-                    "the figures are the best round of each and the ratios within a round")
-    ap.add_argument("--skip", default="", help="comma list of sections to skip: speed,memory,scaling")
-    ap.add_argument("--quick", action="store_true", help="10 MB speed run, one round, scaling over 5/10/20 MB "
-                    "(fixed costs weigh more; figures are noisier)")
-    ap.add_argument("--lines", type=int, default=None,
-                    help="only the first N speeches of the plays, repeated to the sizes asked (a smoke run)")
-    ap.add_argument("--vocab-size", type=int, default=8000, help="size of the WordPiece tokenizer trained")
+    ap.add_argument(
+        "--memory",
+        default="8MiB",
+        help="--memory of the RSS run (the repeated text has few distinct n-grams)",
+    )
+    ap.add_argument(
+        "--text",
+        choices=("repeated", "varied"),
+        default="repeated",
+        help="corpus: the plays repeated, or copies with renamed word types (see above)",
+    )
+    ap.add_argument(
+        "--repeat",
+        type=int,
+        default=None,
+        help="rounds (3; --quick: 1) of the speed section (Counter, 1 worker, 2 workers in turn); "
+        "the figures are the best round of each and the ratios within a round",
+    )
+    ap.add_argument(
+        "--skip", default="", help="comma list of sections to skip: speed,memory,scaling"
+    )
+    ap.add_argument(
+        "--quick",
+        action="store_true",
+        help="10 MB speed run, one round, scaling over 5/10/20 MB "
+        "(fixed costs weigh more; figures are noisier)",
+    )
+    ap.add_argument(
+        "--lines",
+        type=int,
+        default=None,
+        help="only the first N speeches of the plays, repeated to the sizes asked (a smoke run)",
+    )
+    ap.add_argument(
+        "--vocab-size", type=int, default=8000, help="size of the WordPiece tokenizer trained"
+    )
     args = ap.parse_args()
     quick = {"speed_mb": 10, "sizes": "5,10,20", "repeat": 1}
     full = {"speed_mb": 50, "sizes": "10,50,200", "repeat": 3}
@@ -343,9 +408,11 @@ def main() -> None:
             encoded, files, t_encode = encode_tasks(corpus, tok, work)
             runs = word_runs(encoded)
             words = sum(map(len, runs))
-            print(f"speed, {mb:.1f} MB of {args.text} text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
-                  f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, {t_encode:.0f}s, "
-                  f"is excluded for both); {args.repeat} round(s), each runs all three in turn")
+            print(
+                f"speed, {mb:.1f} MB of {args.text} text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
+                f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, {t_encode:.0f}s, "
+                f"is excluded for both); {args.repeat} round(s), each runs all three in turn"
+            )
             times: dict[str, list[float]] = {"counter": [], "1": [], "2": []}
             for rnd in range(args.repeat):
                 t_base, ref = baseline(runs)
@@ -368,21 +435,27 @@ def main() -> None:
                 print(line, flush=True)
             del runs
             best = {k: min(v) for k, v in times.items()}
-            print(f"  Python Counter, 1 process      {best['counter']:8.2f}s   ({best['counter'] / words * 1e9:6.0f} ns/word)"
-                  "   best of the rounds")
+            print(
+                f"  Python Counter, 1 process      {best['counter']:8.2f}s   ({best['counter'] / words * 1e9:6.0f} ns/word)"
+                "   best of the rounds"
+            )
             for workers in (1, 2):
                 t = best[str(workers)]
                 paired = [c / e for c, e in zip(times["counter"], times[str(workers)])]
-                print(f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t:8.2f}s   "
-                      f"({t / words * 1e9:6.0f} ns/word)   best vs best {best['counter'] / t:5.1f}x faster;   "
-                      f"same round: median {float(np.median(paired)):.1f}x, lowest {min(paired):.1f}x")
+                print(
+                    f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t:8.2f}s   "
+                    f"({t / words * 1e9:6.0f} ns/word)   best vs best {best['counter'] / t:5.1f}x faster;   "
+                    f"same round: median {float(np.median(paired)):.1f}x, lowest {min(paired):.1f}x"
+                )
             start = time.perf_counter()
             for p in encoded:
                 with open(p, "rb") as fh:
                     pickle.load(fh)
             t_load = time.perf_counter() - start
-            print(f"  (of the engine's time, loading the pickled batches, which `count` itself never does, takes "
-                  f"{t_load:.2f}s in one process)")
+            print(
+                f"  (of the engine's time, loading the pickled batches, which `count` itself never does, takes "
+                f"{t_load:.2f}s in one process)"
+            )
             for p in encoded:
                 p.unlink()
         if "memory" not in skip:
@@ -391,13 +464,19 @@ def main() -> None:
             meta = json.loads((out / "counts.json").read_text())
             need = sum(meta["distinct"][str(n)] * 8 * (n + 1) for n in range(1, MAX_N + 1))
             budget = parse_memory(args.memory)
-            print(f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need {need / 2**20:.0f} MiB as "
-                  f"uint64 rows ({need / budget:.1f}x the budget)")
-            print(f"  peak RSS of the process tree {peak / 2**20:7.0f} MiB   limit (--memory + 400 MiB) "
-                  f"{(budget + (400 << 20)) / 2**20:.0f} MiB   ok: {peak < budget + (400 << 20)}   ({secs:.1f}s)")
+            print(
+                f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need {need / 2**20:.0f} MiB as "
+                f"uint64 rows ({need / budget:.1f}x the budget)"
+            )
+            print(
+                f"  peak RSS of the process tree {peak / 2**20:7.0f} MiB   limit (--memory + 400 MiB) "
+                f"{(budget + (400 << 20)) / 2**20:.0f} MiB   ok: {peak < budget + (400 << 20)}   ({secs:.1f}s)"
+            )
         if "scaling" not in skip:
-            print("scaling: full `maskprep --workers 1 count` (tokenization included), --memory 1GiB; wall time "
-                  "depends on the machine's other load, CPU time (user + system, whole process tree) much less")
+            print(
+                "scaling: full `maskprep --workers 1 count` (tokenization included), --memory 1GiB; wall time "
+                "depends on the machine's other load, CPU time (user + system, whole process tree) much less"
+            )
             walls, cpus = [], []
             for size in [int(s) for s in args.sizes.split(",")]:
                 c = build_corpus(work, size, args.text, args.lines)
@@ -405,14 +484,18 @@ def main() -> None:
                 size_mb = c.stat().st_size / 1e6
                 walls.append(secs / size_mb)
                 cpus.append(cpu / size_mb)
-                print(f"  {size_mb:7.1f} MB  wall {secs:7.1f}s = {secs / size_mb:6.3f} s/MB   CPU {cpu:7.1f}s = "
-                      f"{cpu / size_mb:6.3f} s/MB   peak RSS {peak / 2**20:6.0f} MiB")
+                print(
+                    f"  {size_mb:7.1f} MB  wall {secs:7.1f}s = {secs / size_mb:6.3f} s/MB   CPU {cpu:7.1f}s = "
+                    f"{cpu / size_mb:6.3f} s/MB   peak RSS {peak / 2**20:6.0f} MiB"
+                )
                 c.unlink()
                 shutil.rmtree(work / f"counts-{size}")
             for name, rates in (("wall", walls), ("CPU", cpus)):
                 mid = float(np.median(rates))
-                print(f"  {name} time per MB within {max(abs(r / mid - 1) for r in rates):.0%} of the median "
-                      "(target: 25%)")
+                print(
+                    f"  {name} time per MB within {max(abs(r / mid - 1) for r in rates):.0%} of the median "
+                    "(target: 25%)"
+                )
     finally:
         shutil.rmtree(work, ignore_errors=True)
 

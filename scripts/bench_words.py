@@ -28,8 +28,12 @@ FORTUNES = Path("/usr/share/games/fortunes/chinese")
 
 
 def fortunes() -> list[str]:
-    raw = re.sub(r"\x1b\[[0-9;]*[A-Za-z]", "", FORTUNES.read_text(encoding="utf-8", errors="replace"))
-    entries = [" ".join(ln.strip() for ln in e.splitlines() if ln.strip()) for e in raw.split("\n%\n")]
+    raw = re.sub(
+        r"\x1b\[[0-9;]*[A-Za-z]", "", FORTUNES.read_text(encoding="utf-8", errors="replace")
+    )
+    entries = [
+        " ".join(ln.strip() for ln in e.splitlines() if ln.strip()) for e in raw.split("\n%\n")
+    ]
     return [e for e in entries if e]
 
 
@@ -88,7 +92,9 @@ def main() -> None:
         corpus = work / "zh.txt"
         corpus.write_text("\n".join(lines * args.repeat) + "\n", encoding="utf-8")
         mb = corpus.stat().st_size / 1e6
-        info = train_tokenizer(iter(lines), TrainConfig(model="wordpiece", vocab_size=8000, lowercase=True))
+        info = train_tokenizer(
+            iter(lines), TrainConfig(model="wordpiece", vocab_size=8000, lowercase=True)
+        )
         tok = work / "tokenizer.json"
         save_tokenizer(info, tok)
         ex = Executor(workers=1, quiet=True)
@@ -97,8 +103,14 @@ def main() -> None:
             for words in ("tokenizer", "zh"):
                 w = WordsConfig(words)
                 t = time.perf_counter()
-                count_ngrams([str(corpus)], tokenizer=str(tok), output=work / f"c-{words}-{r}",
-                             config=CountConfig(max_n=3, min_count=2, words=w), executor=ex, quiet=True)
+                count_ngrams(
+                    [str(corpus)],
+                    tokenizer=str(tok),
+                    output=work / f"c-{words}-{r}",
+                    config=CountConfig(max_n=3, min_count=2, words=w),
+                    executor=ex,
+                    quiet=True,
+                )
                 times.setdefault(("count", words), []).append(time.perf_counter() - t)
                 t = time.perf_counter()
                 write_shards([str(corpus)], tokenizer=str(tok), output=work / f"m-{words}-{r}",
@@ -107,9 +119,14 @@ def main() -> None:
         print(f"\ncommands on {mb:.1f} MB of Chinese text (WordPiece 8,000, one worker, median of "
               f"{args.rounds} round{'s' if args.rounds > 1 else ''}):")
         for cmd in ("count", "mask"):
-            tt, tz = statistics.median(times[(cmd, "tokenizer")]), statistics.median(times[(cmd, "zh")])
-            print(f"  {cmd:5s}  --words tokenizer {mb / tt:6.2f} MB/s   --words zh {mb / tz:6.2f} MB/s   "
-                  f"ratio {tt / tz:.2f}x (target >= 0.5x)")
+            tt, tz = (
+                statistics.median(times[(cmd, "tokenizer")]),
+                statistics.median(times[(cmd, "zh")]),
+            )
+            print(
+                f"  {cmd:5s}  --words tokenizer {mb / tt:6.2f} MB/s   --words zh {mb / tz:6.2f} MB/s   "
+                f"ratio {tt / tz:.2f}x (target >= 0.5x)"
+            )
     finally:
         shutil.rmtree(work, ignore_errors=True)
 

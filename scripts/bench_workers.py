@@ -89,8 +89,12 @@ def train(corpus: list[str], out: Path, vocab_size: int) -> Path:
     from maskprep import TrainConfig, iter_corpus, train_tokenizer
     from maskprep.tokenizer import save_tokenizer
 
-    save_tokenizer(train_tokenizer(iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=vocab_size)),
-                   out)
+    save_tokenizer(
+        train_tokenizer(
+            iter_corpus(corpus[:1]), TrainConfig(model="wordpiece", vocab_size=vocab_size)
+        ),
+        out,
+    )
     return out
 
 
@@ -112,8 +116,14 @@ def timed(where: list[str], command: list[str], out: Path, env: dict[str, str],
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
     pin = (lambda: os.sched_setaffinity(0, cores)) if cores else None
     t0 = time.perf_counter()
-    done = subprocess.run([sys.executable, "-m", "maskprep", "--quiet", *where, *command, "-o", str(out)],
-                          cwd=ROOT, env=env, capture_output=True, text=True, preexec_fn=pin)
+    done = subprocess.run(
+        [sys.executable, "-m", "maskprep", "--quiet", *where, *command, "-o", str(out)],
+        cwd=ROOT,
+        env=env,
+        capture_output=True,
+        text=True,
+        preexec_fn=pin,
+    )
     seconds = time.perf_counter() - t0
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     if done.returncode != 0:
@@ -130,13 +140,36 @@ def halves_at_once(command: list[str], corpus: list[str], out: Path, env: dict[s
     head, tail = rest[:1], rest[1:]
     procs = []
     t0 = time.perf_counter()
-    for i, (half, cpu) in enumerate(zip((corpus[: len(corpus) // 2], corpus[len(corpus) // 2:]), cpus)):
+    for i, (half, cpu) in enumerate(
+        zip((corpus[: len(corpus) // 2], corpus[len(corpus) // 2 :]), cpus)
+    ):
         target = out.with_name(f"{out.name}-half{i}")
         shutil.rmtree(target, ignore_errors=True)
-        procs.append((target, subprocess.Popen(
-            [sys.executable, "-m", "maskprep", "--quiet", "--workers", "1", *head, *half, *tail, "-o", str(target)],
-            cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-            preexec_fn=lambda c=cpu: os.sched_setaffinity(0, {c}))))
+        procs.append(
+            (
+                target,
+                subprocess.Popen(
+                    [
+                        sys.executable,
+                        "-m",
+                        "maskprep",
+                        "--quiet",
+                        "--workers",
+                        "1",
+                        *head,
+                        *half,
+                        *tail,
+                        "-o",
+                        str(target),
+                    ],
+                    cwd=ROOT,
+                    env=env,
+                    stdout=subprocess.DEVNULL,
+                    stderr=subprocess.PIPE,
+                    preexec_fn=lambda c=cpu: os.sched_setaffinity(0, {c}),
+                ),
+            )
+        )
     for _, proc in procs:
         _, err = proc.communicate()
         if proc.returncode != 0:
@@ -149,13 +182,22 @@ def halves_at_once(command: list[str], corpus: list[str], out: Path, env: dict[s
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--copies", type=int, default=None, help="copies of the plays (default 10; --quick: 2)")
+    ap.add_argument(
+        "--copies", type=int, default=None, help="copies of the plays (default 10; --quick: 2)"
+    )
     ap.add_argument("--files", type=int, default=8, help="files the corpus is dealt into (= tasks)")
     ap.add_argument("--repeat", type=int, default=1, help="best of this many runs")
     ap.add_argument("--no-dask", action="store_true", help="skip the Dask LocalCluster runs")
     ap.add_argument("--quick", action="store_true", help="smaller corpus (fixed costs weigh more)")
-    ap.add_argument("--lines", type=int, default=None, help="only the first N speeches of the plays (a smoke run)")
-    ap.add_argument("--vocab-size", type=int, default=8000, help="size of the WordPiece tokenizer trained")
+    ap.add_argument(
+        "--lines",
+        type=int,
+        default=None,
+        help="only the first N speeches of the plays (a smoke run)",
+    )
+    ap.add_argument(
+        "--vocab-size", type=int, default=8000, help="size of the WordPiece tokenizer trained"
+    )
     args = ap.parse_args()
     copies = args.copies or (2 if args.quick else 10)
     repeat = max(1, args.repeat)
@@ -167,7 +209,18 @@ def main() -> None:
         tok = train(corpus, work / "tokenizer.json", args.vocab_size)
         size = sum(os.path.getsize(f) for f in corpus) / 1e6
         commands = {
-            "count": ["count", *corpus, "-t", str(tok), "--max-n", "5", "--min-count", "5", "--memory", "1GiB"],
+            "count": [
+                "count",
+                *corpus,
+                "-t",
+                str(tok),
+                "--max-n",
+                "5",
+                "--min-count",
+                "5",
+                "--memory",
+                "1GiB",
+            ],
             "mask": ["mask", *corpus, "-t", str(tok), "--strategy", "word", "--copies", "1"],
         }
         base_env = {k: v for k, v in os.environ.items() if k not in ONE_THREAD}
@@ -179,11 +232,23 @@ def main() -> None:
         if not args.no_dask:
             from distributed import LocalCluster
 
-            cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                   dashboard_address=None)
-            setups["dask (LocalCluster, 2 x 1 thread)"] = (["--dask", cluster.scheduler_address], base_env, None)
-        print(f"corpus: {copies} cop{'y' if copies == 1 else 'ies'} of the plays, {size:.1f} MB in {args.files} "
-              f"files; {os.cpu_count()} cores; best of {repeat} run(s), interleaved", flush=True)
+            cluster = LocalCluster(
+                n_workers=2,
+                threads_per_worker=1,
+                processes=True,
+                host="127.0.0.1",
+                dashboard_address=None,
+            )
+            setups["dask (LocalCluster, 2 x 1 thread)"] = (
+                ["--dask", cluster.scheduler_address],
+                base_env,
+                None,
+            )
+        print(
+            f"corpus: {copies} cop{'y' if copies == 1 else 'ies'} of the plays, {size:.1f} MB in {args.files} "
+            f"files; {os.cpu_count()} cores; best of {repeat} run(s), interleaved",
+            flush=True,
+        )
         best: dict[tuple[str, str], float] = {}
         cpu: dict[tuple[str, str], float] = {}
         digests: dict[str, set[str]] = {name: set() for name in commands}
@@ -196,38 +261,72 @@ def main() -> None:
                         best[name, label], cpu[name, label] = seconds, used
                     digests[name].add(d)
                 if len(os.sched_getaffinity(0)) >= 2:
-                    seconds = halves_at_once(command, corpus, work / f"out-{name}", {**base_env, **ONE_THREAD})
+                    seconds = halves_at_once(
+                        command, corpus, work / f"out-{name}", {**base_env, **ONE_THREAD}
+                    )
                     best[name, "halves"] = min(best.get((name, "halves"), float("inf")), seconds)
         load.append(os.getloadavg()[0])
-        tiny = [work / "tiny-1.txt", work / "tiny-2.txt"]  # two tasks, so --workers 2 starts its pool
+        tiny = [
+            work / "tiny-1.txt",
+            work / "tiny-2.txt",
+        ]  # two tasks, so --workers 2 starts its pool
         for p in tiny:
             p.write_text("To be, or not to be, that is the question.\n", encoding="utf-8")
-        fixed = {w: timed(["--workers", w], ["mask", *map(str, tiny), "-t", str(tok)], work / "out-tiny",
-                          base_env)[0] for w in ("1", "2")}
+        fixed = {
+            w: timed(
+                ["--workers", w],
+                ["mask", *map(str, tiny), "-t", str(tok)],
+                work / "out-tiny",
+                base_env,
+            )[0]
+            for w in ("1", "2")
+        }
         for name, command in commands.items():
-            print(f"\nmaskprep [--workers N | --dask ADDRESS] {command[0]} CORPUS -t tokenizer.json "
-                  + " ".join(command[1 + len(corpus) + 2:]))
+            print(
+                f"\nmaskprep [--workers N | --dask ADDRESS] {command[0]} CORPUS -t tokenizer.json "
+                + " ".join(command[1 + len(corpus) + 2 :])
+            )
             for label in setups:
                 share = "" if label.startswith("dask") else f"  (CPU {cpu[name, label]:6.1f} s)"
-                print(f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} MB/s{share}")
-            w1, w1t, w2 = best[name, "workers 1"], best[name, "workers 1, one thread"], best[name, "workers 2"]
+                print(
+                    f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} MB/s{share}"
+                )
+            w1, w1t, w2 = (
+                best[name, "workers 1"],
+                best[name, "workers 1, one thread"],
+                best[name, "workers 2"],
+            )
             w1c = best[name, "workers 1, one core"]
             if (name, "halves") in best:
                 hv = best[name, "halves"]
-                print(f"  {'two halves at once, one core each':36s} {hv:7.2f} s  {size / hv:6.2f} MB/s")
-                print(f"  ceiling of these two cores (one core / two halves at once): {w1c / hv:.2f}x; "
-                      f"the pool reaches {hv / w2:.0%} of it")
-            print(f"  speed-up --workers 2 vs --workers 1, one core:   {w1c / w2:.2f}x (target >= 1.6x)")
+                print(
+                    f"  {'two halves at once, one core each':36s} {hv:7.2f} s  {size / hv:6.2f} MB/s"
+                )
+                print(
+                    f"  ceiling of these two cores (one core / two halves at once): {w1c / hv:.2f}x; "
+                    f"the pool reaches {hv / w2:.0%} of it"
+                )
+            print(
+                f"  speed-up --workers 2 vs --workers 1, one core:   {w1c / w2:.2f}x (target >= 1.6x)"
+            )
             print(f"  speed-up --workers 2 vs --workers 1, one thread: {w1t / w2:.2f}x")
             print(f"  speed-up --workers 2 vs --workers 1 (plain):     {w1 / w2:.2f}x")
             dask_label = next((lb for lb in setups if lb.startswith("dask")), None)
             if dask_label:
-                print(f"  Dask / local pool (same 2 processes):          {best[name, dask_label] / w2:.2f}x the time")
-            print(f"  outputs identical across set-ups: {'yes' if len(digests[name]) == 1 else 'NO'}")
-        print(f"\nfixed cost of a run (mask on two one-line files): --workers 1 {fixed['1']:.2f} s, "
-              f"--workers 2 {fixed['2']:.2f} s (worker processes start and import the libraries)")
-        print(f"load average (1 min) before / after: {load[0]:.1f} / {load[1]:.1f} on {os.cpu_count()} cores; "
-              "other processes competing for the cores make the ratios smaller")
+                print(
+                    f"  Dask / local pool (same 2 processes):          {best[name, dask_label] / w2:.2f}x the time"
+                )
+            print(
+                f"  outputs identical across set-ups: {'yes' if len(digests[name]) == 1 else 'NO'}"
+            )
+        print(
+            f"\nfixed cost of a run (mask on two one-line files): --workers 1 {fixed['1']:.2f} s, "
+            f"--workers 2 {fixed['2']:.2f} s (worker processes start and import the libraries)"
+        )
+        print(
+            f"load average (1 min) before / after: {load[0]:.1f} / {load[1]:.1f} on {os.cpu_count()} cores; "
+            "other processes competing for the cores make the ratios smaller"
+        )
         if any(len(d) != 1 for d in digests.values()):
             sys.exit("outputs differ between set-ups")
     finally:

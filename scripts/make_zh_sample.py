@@ -47,9 +47,18 @@ TEMPLATES = [
 def line(rng: random.Random) -> str:
     t = rng.choice(TEMPLATES)
     w = rng.choice(WEATHER)
-    return t.format(p=rng.choice(PEOPLE), pl=rng.choice(PLACES), tea=rng.choice(TEAS), w=w,
-                    w2=rng.choice([x for x in WEATHER if x != w]), t=rng.choice(TASKS),
-                    v=rng.choice(VISITORS), i=rng.choice(ITEMS), n=rng.randint(3, 120), c=rng.randint(2, 30))
+    return t.format(
+        p=rng.choice(PEOPLE),
+        pl=rng.choice(PLACES),
+        tea=rng.choice(TEAS),
+        w=w,
+        w2=rng.choice([x for x in WEATHER if x != w]),
+        t=rng.choice(TASKS),
+        v=rng.choice(VISITORS),
+        i=rng.choice(ITEMS),
+        n=rng.randint(3, 120),
+        c=rng.randint(2, 30),
+    )
 
 
 def main() -> None:

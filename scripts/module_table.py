@@ -12,10 +12,37 @@ from pathlib import Path
 
 PACKAGE = Path(__file__).resolve().parent.parent / "maskprep"
 # The stages in the order data moves through them; shared helpers first, the CLI last.
-ORDER = ["_version", "errors", "wording", "progress", "_files", "_paths", "_checks", "_tables", "_resume",
-         "_interrupt", "_budget", "execute", "corpus", "tokenizer", "encoded", "audit", "count", "units",
-         "masking", "packing", "shards", "stats", "compare", "report", "pipeline", "_cli_options",
-         "_cli_start", "cli", "__main__"]
+ORDER = [
+    "_version",
+    "errors",
+    "wording",
+    "progress",
+    "_files",
+    "_paths",
+    "_checks",
+    "_tables",
+    "_resume",
+    "_interrupt",
+    "_budget",
+    "execute",
+    "corpus",
+    "tokenizer",
+    "encoded",
+    "audit",
+    "count",
+    "units",
+    "masking",
+    "packing",
+    "shards",
+    "stats",
+    "compare",
+    "report",
+    "pipeline",
+    "_cli_options",
+    "_cli_start",
+    "cli",
+    "__main__",
+]
 GUIDE = PACKAGE.parent / "DEVELOPERS.md"
 
 
@@ -33,8 +60,10 @@ def modules() -> list[tuple[str, str]]:
         stage = ORDER.index(top) if top in ORDER else len(ORDER)
         return stage, 0 if rel.name == "__init__.py" else 1, str(rel)
 
-    paths = sorted((p for p in PACKAGE.rglob("*.py") if p.name != "__init__.py" or p.parent != PACKAGE),
-                   key=rank)
+    paths = sorted(
+        (p for p in PACKAGE.rglob("*.py") if p.name != "__init__.py" or p.parent != PACKAGE),
+        key=rank,
+    )
     return [(str(p.relative_to(PACKAGE)), _summary(p)) for p in paths]
 
 

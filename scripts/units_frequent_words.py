@@ -26,8 +26,20 @@ from pathlib import Path
 import numpy as np
 from _benchlib import speech_lines
 
-from maskprep import (CountConfig, MaskingConfig, PackingConfig, TrainConfig, build_units, count_ngrams,
-                      iter_corpus, load_tokenizer, read_units, strategy_units, train_tokenizer, write_units)
+from maskprep import (
+    CountConfig,
+    MaskingConfig,
+    PackingConfig,
+    TrainConfig,
+    build_units,
+    count_ngrams,
+    iter_corpus,
+    load_tokenizer,
+    read_units,
+    strategy_units,
+    train_tokenizer,
+    write_units,
+)
 from maskprep.corpus import iter_batches, plan_tasks, resolve_inputs
 from maskprep.execute import Executor
 from maskprep.masking import UnitTable
@@ -54,19 +66,31 @@ def multiword(units: np.ndarray, word_ids: np.ndarray) -> np.ndarray:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="one play, the pmi lists only")
-    ap.add_argument("--lines", type=int, default=None, help="only the first N speeches (a smoke run)")
-    ap.add_argument("--vocab-size", type=int, default=4000, help="size of the WordPiece tokenizer trained")
+    ap.add_argument(
+        "--lines", type=int, default=None, help="only the first N speeches (a smoke run)"
+    )
+    ap.add_argument(
+        "--vocab-size", type=int, default=4000, help="size of the WordPiece tokenizer trained"
+    )
     args = ap.parse_args()
     speeches = speech_lines(plays=1 if args.quick else 4, lines=args.lines)
     work = Path(tempfile.mkdtemp(prefix="units-frequent-"))
     try:
         text = work / "four_plays.txt"
         text.write_text("".join(s + "\n" for s in speeches), encoding="utf-8")
-        info = train_tokenizer(iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=args.vocab_size))
+        info = train_tokenizer(
+            iter_corpus([str(text)]), TrainConfig(model="wordpiece", vocab_size=args.vocab_size)
+        )
         save_tokenizer(info, work / "tokenizer.json")
         info = load_tokenizer(work / "tokenizer.json")
-        count_ngrams([str(text)], tokenizer=work / "tokenizer.json", output=work / "counts",
-                     config=CountConfig(max_n=3, min_count=3), executor=Executor(workers=1, quiet=True), quiet=True)
+        count_ngrams(
+            [str(text)],
+            tokenizer=work / "tokenizer.json",
+            output=work / "counts",
+            config=CountConfig(max_n=3, min_count=3),
+            executor=Executor(workers=1, quiet=True),
+            quiet=True,
+        )
         task = plan_tasks(resolve_inputs([str(text)]))[0]
         print("measure   filters  units   tokens in multi-word units   easy share inside them   "
               "easy share of all tokens")
@@ -84,20 +108,31 @@ def main() -> None:
             packer = TaskPacker(info, PackingConfig(), task_index=0)
             batches = [pb for e in encode_stream(info, iter_batches(task)) for pb in packer.add(e)]
             for pb in batches + list(packer.finish()):
-                units = strategy_units(pb.special, pb.word_ids, config=MaskingConfig(strategy="pmi"),
-                                       sequence_ids=pb.sequence_ids, seed=0, word_keys=pb.word_keys,
-                                       word_kinds=pb.word_kinds, units=table)
+                units = strategy_units(
+                    pb.special,
+                    pb.word_ids,
+                    config=MaskingConfig(strategy="pmi"),
+                    sequence_ids=pb.sequence_ids,
+                    seed=0,
+                    word_keys=pb.word_keys,
+                    word_kinds=pb.word_kinds,
+                    units=table,
+                )
                 mw = multiword(units, pb.word_ids)
                 common = dict(masked_ids=pb.input_ids, unit_ids=units, word_ids=pb.word_ids,
                               word_keys=pb.word_keys, word_kinds=pb.word_kinds,
                               attention_mask=pb.attention_mask, mask_token_id=info.require_mask(),
                               group_ids=units)
                 inside.add(labels=np.where(mw, pb.input_ids, -100).astype(np.int32), **common)
-                every.add(labels=np.where(units >= 0, pb.input_ids, -100).astype(np.int32), **common)
+                every.add(
+                    labels=np.where(units >= 0, pb.input_ids, -100).astype(np.int32), **common
+                )
                 in_units += int(mw.sum())
                 maskable += int((units >= 0).sum())
-            print(f"{measure:7s}   {label:7s} {len(vocab):5d}   {in_units / maskable:26.1%}   "
-                  f"{inside.to_dict()['easy_target_share']:22.1%}   {every.to_dict()['easy_target_share']:24.1%}")
+            print(
+                f"{measure:7s}   {label:7s} {len(vocab):5d}   {in_units / maskable:26.1%}   "
+                f"{inside.to_dict()['easy_target_share']:22.1%}   {every.to_dict()['easy_target_share']:24.1%}"
+            )
     finally:
         shutil.rmtree(work, ignore_errors=True)
 

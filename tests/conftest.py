@@ -58,7 +58,9 @@ def trained_tokenizer(corpus: Path, directory: Path, *, model: str, vocab_size: 
     from maskprep.tokenizer.encoding import save_tokenizer
     from maskprep.tokenizer.train import TrainConfig, train_tokenizer
 
-    info = train_tokenizer(iter_corpus([str(corpus)]), TrainConfig(model=model, vocab_size=vocab_size))
+    info = train_tokenizer(
+        iter_corpus([str(corpus)]), TrainConfig(model=model, vocab_size=vocab_size)
+    )
     out = directory / "tokenizer.json"
     save_tokenizer(info, out)
     return out
@@ -73,7 +75,9 @@ def shakespeare_text_files() -> list[Path]:
 
 
 @pytest.fixture(scope="session")
-def shakespeare_corpus(tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]) -> Path:
+def shakespeare_corpus(
+    tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]
+) -> Path:
     """All plays as one .txt corpus, one speech per line (about 0.9M words)."""
     out = tmp_path_factory.mktemp("shakespeare") / "plays.txt"
     with open(out, "w", encoding="utf-8") as fh:
@@ -84,7 +88,9 @@ def shakespeare_corpus(tmp_path_factory: pytest.TempPathFactory, shakespeare_tex
 
 
 @pytest.fixture(scope="session")
-def shakespeare_small(tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]) -> Path:
+def shakespeare_small(
+    tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]
+) -> Path:
     """Four plays as one .txt corpus (about 100k words), for faster tests."""
     out = tmp_path_factory.mktemp("shakespeare_small") / "four_plays.txt"
     with open(out, "w", encoding="utf-8") as fh:
@@ -97,4 +103,6 @@ def shakespeare_small(tmp_path_factory: pytest.TempPathFactory, shakespeare_text
 @pytest.fixture(scope="session")
 def small_wordpiece(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
     """A 4,000-token WordPiece tokenizer trained on `shakespeare_small`, saved as tokenizer.json."""
-    return trained_tokenizer(shakespeare_small, tmp_path_factory.mktemp("tok"), model="wordpiece", vocab_size=4000)
+    return trained_tokenizer(
+        shakespeare_small, tmp_path_factory.mktemp("tok"), model="wordpiece", vocab_size=4000
+    )

@@ -27,8 +27,14 @@ from conftest import speeches
 
 REPO = Path(__file__).resolve().parent.parent
 SCRIPTS = REPO / "scripts"
-BENCH = sorted([*SCRIPTS.glob("bench*.py"), SCRIPTS / "units_frequent_words.py", SCRIPTS / "tokenizer_quality.py",
-                SCRIPTS / "_benchlib.py"])
+BENCH = sorted(
+    [
+        *SCRIPTS.glob("bench*.py"),
+        SCRIPTS / "units_frequent_words.py",
+        SCRIPTS / "tokenizer_quality.py",
+        SCRIPTS / "_benchlib.py",
+    ]
+)
 
 
 def _api_faults(path: Path) -> list[str]:
@@ -55,7 +61,9 @@ def _api_faults(path: Path) -> list[str]:
             for alias in node.names:
                 if alias.name.split(".")[0] in ("conftest", "tests"):
                     faults.append(f"{where}: imports the test suite ({alias.name})")
-                if alias.name.startswith("maskprep") and any(p.startswith("_") for p in alias.name.split(".")):
+                if alias.name.startswith("maskprep") and any(
+                    p.startswith("_") for p in alias.name.split(".")
+                ):
                     faults.append(f"{where}: imports a private module ({alias.name})")
         elif isinstance(node, ast.Attribute):
             if node.attr.startswith("_") and not node.attr.endswith("__"):
@@ -67,8 +75,19 @@ def _api_faults(path: Path) -> list[str]:
 
 def test_bench_scripts_are_found() -> None:
     names = {p.name for p in BENCH}
-    assert {"bench.py", "bench_audit.py", "bench_counting.py", "bench_mask.py", "bench_masking.py",
-            "bench_workers.py", "bench_loader.py", "units_frequent_words.py", "tokenizer_quality.py", "_benchlib.py", "bench_encoded.py"} <= names
+    assert {
+        "bench.py",
+        "bench_audit.py",
+        "bench_counting.py",
+        "bench_mask.py",
+        "bench_masking.py",
+        "bench_workers.py",
+        "bench_loader.py",
+        "units_frequent_words.py",
+        "tokenizer_quality.py",
+        "_benchlib.py",
+        "bench_encoded.py",
+    } <= names
 
 
 @pytest.mark.parametrize("path", BENCH, ids=lambda p: p.name)
@@ -78,11 +97,20 @@ def test_bench_script_uses_only_the_public_api(path: Path) -> None:
 
 def test_api_check_catches_what_it_should(tmp_path: Path) -> None:
     bad = tmp_path / "bad.py"
-    bad.write_text("import sys\nsys.path.insert(0, 'tests')\nfrom conftest import speeches\n"
-                   "from maskprep.compare.run import _load_units\nfrom maskprep.audit.measure import audit_tokenizer\n"
-                   "from maskprep import load_tokenizer\nload_tokenizer('t')._types\n", encoding="utf-8")
+    bad.write_text(
+        "import sys\nsys.path.insert(0, 'tests')\nfrom conftest import speeches\n"
+        "from maskprep.compare.run import _load_units\nfrom maskprep.audit.measure import audit_tokenizer\n"
+        "from maskprep import load_tokenizer\nload_tokenizer('t')._types\n",
+        encoding="utf-8",
+    )
     faults = "\n".join(_api_faults(bad))
-    for expected in ("sys.path", "test suite", "_load_units is not in", "measure has no __all__", "._types"):
+    for expected in (
+        "sys.path",
+        "test suite",
+        "_load_units is not in",
+        "measure has no __all__",
+        "._types",
+    ):
         assert expected in faults, expected
     assert "load_tokenizer is not" not in faults
 
@@ -100,7 +128,9 @@ def test_benchlib_reads_the_plays_like_the_tests(shakespeare_text_files: list[Pa
 
 
 @pytest.fixture(scope="module")
-def tiny_plays(tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]) -> Path:
+def tiny_plays(
+    tmp_path_factory: pytest.TempPathFactory, shakespeare_text_files: list[Path]
+) -> Path:
     """The first 1,000 speeches of the plays, one per line."""
     out = tmp_path_factory.mktemp("tiny") / "plays.txt"
     lines = [s for f in shakespeare_text_files[:2] for s in speeches(f)][:1000]
@@ -115,14 +145,24 @@ QUICK = {
     "bench_masking.py": (["--tokens", "20000", "--units", "2000"], "pmi", False),
     "bench_mask.py": (["--vocab-size", "2000", "{tiny}"], "mask --strategy span", False),
     "bench_loader.py": (["--vocab-size", "2000"], "median ratio", False),
-    "units_frequent_words.py": (["--lines", "1500", "--vocab-size", "2000"], "pmi       default", False),
+    "units_frequent_words.py": (
+        ["--lines", "1500", "--vocab-size", "2000"],
+        "pmi       default",
+        False,
+    ),
     "tokenizer_quality.py": (["--lines", "1500"], "unigram-2000", False),
-    "bench_counting.py": (["--lines", "2000", "--speed-mb", "1", "--sizes", "1,2", "--vocab-size", "4000"],
-                          "same counts for every kept n-gram: True", True),
+    "bench_counting.py": (
+        ["--lines", "2000", "--speed-mb", "1", "--sizes", "1,2", "--vocab-size", "4000"],
+        "same counts for every kept n-gram: True",
+        True,
+    ),
     "bench_encoded.py": ([], "peak memory on the encoded directory", True),
     "bench_words.py": (["--lines", "800"], "bench_words: --words zh", False),
-    "bench_workers.py": (["--copies", "1", "--lines", "1000", "--files", "2", "--vocab-size", "2000"],
-                         "outputs identical across set-ups: yes", True),
+    "bench_workers.py": (
+        ["--copies", "1", "--lines", "1000", "--files", "2", "--vocab-size", "2000"],
+        "outputs identical across set-ups: yes",
+        True,
+    ),
 }
 
 

@@ -28,7 +28,18 @@ def test_every_command_and_option_has_help() -> None:
 
 def test_contract_commands_exist() -> None:
     # The command set fixed by the design contract.
-    expected = {"train-tokenizer", "audit", "count", "units", "mask", "show", "verify", "compare", "run", "demo"}
+    expected = {
+        "train-tokenizer",
+        "audit",
+        "count",
+        "units",
+        "mask",
+        "show",
+        "verify",
+        "compare",
+        "run",
+        "demo",
+    }
     assert expected <= set(_commands())
 
 
@@ -37,7 +48,9 @@ def test_help_is_instant_no_heavy_imports() -> None:
     # dataclasses' defaults use) loads with it; the heavy libraries stay lazy.
     code = ("import sys, maskprep.cli; "
             "print(sorted(m for m in ('pyarrow', 'tokenizers', 'dask') if m in sys.modules))")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True
+    ).stdout
     assert out.strip() == "[]"
 
 
@@ -54,7 +67,9 @@ def test_unknown_option_is_a_usage_error() -> None:
 def test_workers_must_be_positive(tmp_path) -> None:
     corpus = tmp_path / "c.txt"
     corpus.write_text("a b c\n")
-    r = CliRunner().invoke(cli, ["--workers", "0", "count", str(corpus), "-t", "x.json", "-o", str(tmp_path / "o")])
+    r = CliRunner().invoke(
+        cli, ["--workers", "0", "count", str(corpus), "-t", "x.json", "-o", str(tmp_path / "o")]
+    )
     assert r.exit_code == 1
     assert "--workers: expected a positive whole number, got 0" in r.output
 

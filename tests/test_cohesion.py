@@ -17,8 +17,14 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from maskprep.units.cohesion import (CountTable, Measure, NgramIndex, binary_split_pmi, score_ngrams,
-                               score_with_split_pmi)
+from maskprep.units.cohesion import (
+    CountTable,
+    Measure,
+    NgramIndex,
+    binary_split_pmi,
+    score_ngrams,
+    score_with_split_pmi,
+)
 from maskprep.errors import MaskprepError
 
 LN2 = math.log(2.0)
@@ -64,8 +70,12 @@ def tables_from(counters: dict[int, Counter]) -> dict[int, CountTable]:
 def as_arrays(grams: list[tuple[str, ...]], counter: Counter, n: int | None = None
               ) -> tuple[np.ndarray, np.ndarray]:
     n = len(grams[0]) if n is None else n
-    flat = np.fromiter((word_key(w) for g in grams for w in g), dtype=np.uint64, count=len(grams) * n)
-    return flat.reshape(len(grams), n), np.fromiter((counter[g] for g in grams), np.int64, count=len(grams))
+    flat = np.fromiter(
+        (word_key(w) for g in grams for w in g), dtype=np.uint64, count=len(grams) * n
+    )
+    return flat.reshape(len(grams), n), np.fromiter(
+        (counter[g] for g in grams), np.int64, count=len(grams)
+    )
 
 
 @pytest.fixture(scope="module")
@@ -116,7 +126,9 @@ def test_trigram_llr_and_t_are_weakest_binary_split_of_nltk_bigram_measure(shake
 
     for measure, fn in ((Measure.LLR, B.likelihood_ratio), (Measure.T, B.student_t)):
         ours = score_ngrams(measure, n=3, keys=keys, counts=counts, tables=tables, N=N)
-        ref = np.array([min(fn(c[3][g], (part(g[:s]), part(g[s:])), N) for s in (1, 2)) for g in grams])
+        ref = np.array(
+            [min(fn(c[3][g], (part(g[:s]), part(g[s:])), N) for s in (1, 2)) for g in grams]
+        )
         np.testing.assert_allclose(ours, ref, rtol=1e-9, atol=1e-12)
 
 
@@ -176,7 +188,9 @@ def test_pmi_is_min_over_all_segmentations(docs):
             full = lp(g)
             ref = min(full - sum(lp(g[i:j]) for i, j in seg) for seg in compositions(n))
             assert o == pytest.approx(ref, rel=1e-9, abs=1e-9)
-            assert nv == pytest.approx(full - sum(lp(g[i:i + 1]) for i in range(n)), rel=1e-9, abs=1e-9)
+            assert nv == pytest.approx(
+                full - sum(lp(g[i : i + 1]) for i in range(n)), rel=1e-9, abs=1e-9
+            )
             ref_split = min(full - lp(g[:s]) - lp(g[s:]) for s in range(1, n))
             assert sp == pytest.approx(ref_split, rel=1e-9, abs=1e-9)
             assert o <= sp + 1e-12
@@ -232,8 +246,14 @@ def test_npmi_bigram_is_bouma_formula():
 # ------------------------------------------------------------------ lookup and errors
 
 @settings(max_examples=50, deadline=None)
-@given(st.sets(st.tuples(st.integers(0, 2**64 - 1), st.integers(0, 5), st.integers(0, 2)), max_size=60),
-       st.lists(st.tuples(st.integers(0, 2**64 - 1), st.integers(0, 5), st.integers(0, 2)), max_size=30))
+@given(
+    st.sets(
+        st.tuples(st.integers(0, 2**64 - 1), st.integers(0, 5), st.integers(0, 2)), max_size=60
+    ),
+    st.lists(
+        st.tuples(st.integers(0, 2**64 - 1), st.integers(0, 5), st.integers(0, 2)), max_size=30
+    ),
+)
 def test_count_table_lookup_is_exact(rows, extra):
     # Source: common practice (exact lookup compared with a Python dict).
     rows = sorted(rows)
@@ -284,14 +304,32 @@ def test_duplicate_rows_and_missing_parts_raise():
                              2: (np.array([[1, 1]], np.uint64), np.array([5]))}, N=10)
     t1 = CountTable.build(np.array([[1]], np.uint64), np.array([5]))
     with pytest.raises(MaskprepError, match="missing from the 1-gram counts"):
-        score_ngrams("pmi", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([3]), tables={1: t1}, N=10)
+        score_ngrams(
+            "pmi",
+            n=2,
+            keys=np.array([[1, 2]], np.uint64),
+            counts=np.array([3]),
+            tables={1: t1},
+            N=10,
+        )
     t1 = CountTable.build(np.array([[1], [2]], np.uint64), np.array([5, 2]))
     with pytest.raises(MaskprepError, match="counted less often"):
-        score_ngrams("t", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([3]), tables={1: t1}, N=10)
+        score_ngrams(
+            "t", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([3]), tables={1: t1}, N=10
+        )
     with pytest.raises(MaskprepError, match="unknown measure 'dice'"):
-        score_ngrams("dice", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([1]), tables={1: t1}, N=10)
+        score_ngrams(
+            "dice",
+            n=2,
+            keys=np.array([[1, 2]], np.uint64),
+            counts=np.array([1]),
+            tables={1: t1},
+            N=10,
+        )
     with pytest.raises(MaskprepError, match="lengths 2..8"):
-        score_ngrams("pmi", n=1, keys=np.array([[1]], np.uint64), counts=np.array([1]), tables={}, N=10)
+        score_ngrams(
+            "pmi", n=1, keys=np.array([[1]], np.uint64), counts=np.array([1]), tables={}, N=10
+        )
 
 
 def test_tuple_tables_and_chunking_agree(shakespeare_counts, monkeypatch):

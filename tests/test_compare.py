@@ -23,8 +23,20 @@ from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
 from maskprep.stats.targets import TargetStats
 
-FIGURES = ("sequences", "rows", "tokens", "maskable_tokens", "targets", "masking_rate", "mix", "mix_counts",
-           "unit_lengths", "multiword_share", "within_word_leakage", "tokens_per_word")
+FIGURES = (
+    "sequences",
+    "rows",
+    "tokens",
+    "maskable_tokens",
+    "targets",
+    "masking_rate",
+    "mix",
+    "mix_counts",
+    "unit_lengths",
+    "multiword_share",
+    "within_word_leakage",
+    "tokens_per_word",
+)
 ONE = Executor(workers=1, quiet=True)
 
 
@@ -39,16 +51,26 @@ def units_path(tmp_path_factory, shakespeare_small: Path, small_wordpiece: Path)
     d = tmp_path_factory.mktemp("units")
     count_ngrams([str(shakespeare_small)], tokenizer=small_wordpiece, output=d / "counts",
                  config=CountConfig(max_n=3, min_count=3), executor=ONE, quiet=True)
-    vocab = build_units(d / "counts", measure="pmi", top=5000, edge_words=0, fragment_share=0.0, quiet=True)
+    vocab = build_units(
+        d / "counts", measure="pmi", top=5000, edge_words=0, fragment_share=0.0, quiet=True
+    )
     assert len(vocab) > 1000
     return write_units(vocab, d / "units.parquet")[0]
 
 
 @pytest.fixture(scope="module")
-def comparison(tmp_path_factory, shakespeare_small, small_wordpiece, units_path) -> tuple[Path, dict]:
+def comparison(
+    tmp_path_factory, shakespeare_small, small_wordpiece, units_path
+) -> tuple[Path, dict]:
     out = tmp_path_factory.mktemp("cmp")
-    doc = compare_strategies([str(shakespeare_small)], tokenizer=small_wordpiece, output=out, units=units_path,
-                             config=CompareConfig(sample=None, seed=3), executor=ONE)
+    doc = compare_strategies(
+        [str(shakespeare_small)],
+        tokenizer=small_wordpiece,
+        output=out,
+        units=units_path,
+        config=CompareConfig(sample=None, seed=3),
+        executor=ONE,
+    )
     return out, doc
 
 
@@ -110,15 +132,29 @@ def test_frequent_words_of_the_sample_are_english_function_words(comparison, sma
     assert top["words"] == pytest.approx(sum(counts[w] for w in top100), rel=0.01)
 
 
-def test_compare_figures_equal_stats_json_of_mask_for_each_strategy(comparison, shakespeare_small, small_wordpiece,
-                                                                  units_path, tmp_path):
+def test_compare_figures_equal_stats_json_of_mask_for_each_strategy(
+    comparison, shakespeare_small, small_wordpiece, units_path, tmp_path
+):
     # One code path: `maskprep mask` with the same seed writes the same figures into stats.json.
     doc = comparison[1]
     assert doc["options"]["seed"] == 3 and doc["sample"]["asked"] is None
     for name in ("token", "word", "span", "pmi"):
         d = tmp_path / name
-        args = ["--quiet", "--workers", "1", "mask", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(d),
-                "--strategy", name, "--seed", "3"] + (["--units", str(units_path)] if name == "pmi" else [])
+        args = [
+            "--quiet",
+            "--workers",
+            "1",
+            "mask",
+            str(shakespeare_small),
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(d),
+            "--strategy",
+            name,
+            "--seed",
+            "3",
+        ] + (["--units", str(units_path)] if name == "pmi" else [])
         r = CliRunner().invoke(cli, args)
         assert r.exit_code == 0, r.output
         stats = json.loads((d / "_maskprep" / "stats.json").read_text())
@@ -136,13 +172,18 @@ def test_targets_per_sequence_add_up(comparison):
         assert sum(b["tokens"] for b in f["targets_by_band"]) == f["maskable_tokens"]
 
 
-def test_a_sample_is_the_same_sequences_for_every_strategy(tmp_path, shakespeare_small, small_wordpiece, comparison):
+def test_a_sample_is_the_same_sequences_for_every_strategy(
+    tmp_path, shakespeare_small, small_wordpiece, comparison
+):
     doc = compare_strategies([str(shakespeare_small)], tokenizer=small_wordpiece, output=tmp_path,
                              config=CompareConfig(sample=100, seed=3), executor=ONE)
     assert doc["sample"]["sequences"] == 100 and doc["order"] == ["token", "word", "span"]
     assert "pmi" in doc["skipped"] and doc["strategies"]["token"]["within_unit_leakage"] is None
     for f in doc["strategies"].values():
-        assert f["sequences"] == 100 and f["maskable_tokens"] == doc["strategies"]["token"]["maskable_tokens"]
+        assert (
+            f["sequences"] == 100
+            and f["maskable_tokens"] == doc["strategies"]["token"]["maskable_tokens"]
+        )
     # The first 100 sequences of the whole-corpus comparison hold at least as many tokens.
     assert doc["strategies"]["token"]["tokens"] < comparison[1]["strategies"]["token"]["tokens"]
 
@@ -164,8 +205,17 @@ def test_target_stats_match_a_plain_recount():
     kinds = np.array([[0, 0, 0, 1]], np.int8)
     groups = np.array([[-1, 0, 0, 0, 1, 2]])  # one vocabulary unit over words 0 and 1
     ts = TargetStats()
-    ts.add(masked_ids=masked, labels=labels, unit_ids=unit_ids, word_ids=word_ids, word_keys=keys, word_kinds=kinds,
-           attention_mask=np.ones_like(masked), mask_token_id=9, group_ids=groups)
+    ts.add(
+        masked_ids=masked,
+        labels=labels,
+        unit_ids=unit_ids,
+        word_ids=word_ids,
+        word_keys=keys,
+        word_kinds=kinds,
+        attention_mask=np.ones_like(masked),
+        mask_token_id=9,
+        group_ids=groups,
+    )
     d = TargetStats.from_state(ts.to_state()).to_dict(top_words=1)
     # Key 10 occurs twice (most frequent); its tokens: positions 1 and 4 -> both targets.
     assert d["easy_target_share"] == pytest.approx(2 / 3)
@@ -174,7 +224,12 @@ def test_target_stats_match_a_plain_recount():
     # Bands: both word types rank in the top 100; the comma is the punctuation band.
     top, punct = d["targets_by_band"][0], d["targets_by_band"][-1]
     assert (top["types"], top["words"], top["tokens"], top["targets"]) == (2, 3, 4, 3)
-    assert (punct["band"], punct["words"], punct["tokens"], punct["targets"]) == ("punctuation", 1, 1, 0)
+    assert (punct["band"], punct["words"], punct["tokens"], punct["targets"]) == (
+        "punctuation",
+        1,
+        1,
+        0,
+    )
 
 
 def test_markup_in_the_corpus_is_escaped_in_the_page(tmp_path, shakespeare_small):
@@ -184,9 +239,14 @@ def test_markup_in_the_corpus_is_escaped_in_the_page(tmp_path, shakespeare_small
 
     corpus = tmp_path / "<b>markup & co<i>.txt"
     plays = shakespeare_small.read_text(encoding="utf-8").splitlines()[:200]
-    corpus.write_text("".join(f"<script>alert(1)</script> & <b>{line}</b>\n" for line in plays), encoding="utf-8")
+    corpus.write_text(
+        "".join(f"<script>alert(1)</script> & <b>{line}</b>\n" for line in plays), encoding="utf-8"
+    )
     tok = tmp_path / "tok.json"  # trained on the markup corpus, so < > / ( ) are tokens, not [UNK]
-    save_tokenizer(train_tokenizer(iter_corpus([str(corpus)]), TrainConfig(vocab_size=600), check_size=False), tok)
+    save_tokenizer(
+        train_tokenizer(iter_corpus([str(corpus)]), TrainConfig(vocab_size=600), check_size=False),
+        tok,
+    )
     compare_strategies([str(corpus)], tokenizer=tok, output=tmp_path / "out",
                        config=CompareConfig(sample=None, examples=2), executor=ONE)
     page = (tmp_path / "out" / "compare.html").read_text(encoding="utf-8")
@@ -238,8 +298,22 @@ def test_a_strategy_keeps_its_colour_on_every_chart_and_empty_bands_are_left_out
 
 
 def test_cli_prints_the_table_and_names_skipped_pmi(tmp_path, shakespeare_small, small_wordpiece):
-    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "compare", str(shakespeare_small), "-t",
-                                 str(small_wordpiece), "--sample", "50", "-o", str(tmp_path)])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "--workers",
+            "1",
+            "compare",
+            str(shakespeare_small),
+            "-t",
+            str(small_wordpiece),
+            "--sample",
+            "50",
+            "-o",
+            str(tmp_path),
+        ],
+    )
     assert r.exit_code == 0, r.output
     assert "within" not in r.output.splitlines()[0]
     assert r.output.splitlines()[0].split()[:3] == ["strategy", "rate", "tok/unit"]
@@ -255,8 +329,19 @@ def test_cli_prints_the_table_and_names_skipped_pmi(tmp_path, shakespeare_small,
     (["--examples", "99"], "--examples must be a whole number from 0 to 20"),
 ])
 def test_cli_errors_name_the_option(tmp_path, shakespeare_small, small_wordpiece, args, message):
-    r = CliRunner().invoke(cli, ["--quiet", "compare", str(shakespeare_small), "-t", str(small_wordpiece),
-                                 "-o", str(tmp_path), *args])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "compare",
+            str(shakespeare_small),
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(tmp_path),
+            *args,
+        ],
+    )
     assert r.exit_code == 1 and message in r.output, r.output
 
 
@@ -270,15 +355,25 @@ def test_units_of_another_tokenizer(tmp_path, shakespeare_small, units_path):
     from maskprep.units.files import read_units
 
     other = tmp_path / "other.json"
-    save_tokenizer(train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(vocab_size=1000)), other)
-    doc = compare_strategies([str(shakespeare_small)], tokenizer=other, output=tmp_path / "o", units=units_path,
-                             config=CompareConfig(sample=200, seed=3), executor=ONE)
+    save_tokenizer(
+        train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(vocab_size=1000)), other
+    )
+    doc = compare_strategies(
+        [str(shakespeare_small)],
+        tokenizer=other,
+        output=tmp_path / "o",
+        units=units_path,
+        config=CompareConfig(sample=200, seed=3),
+        executor=ONE,
+    )
     assert doc["units"]["built_with_tokenizer"] == read_units(units_path).tokenizer_hash
     cased = tmp_path / "cased.json"
     save_tokenizer(train_tokenizer(iter_corpus([str(shakespeare_small)]),
                                    TrainConfig(vocab_size=1000, lowercase=False)), cased)
     with pytest.raises(MaskprepError, match="splits text into words differently from this one"):
-        compare_strategies([str(shakespeare_small)], tokenizer=cased, output=tmp_path / "c", units=units_path)
+        compare_strategies(
+            [str(shakespeare_small)], tokenizer=cased, output=tmp_path / "c", units=units_path
+        )
 
 
 def test_parse_strategies():

@@ -11,7 +11,14 @@ import pyarrow.parquet as pq
 import pytest
 import zstandard
 
-from maskprep.corpus.reader import CorpusOptions, ReadStats, iter_corpus, iter_documents, plan_tasks, resolve_inputs
+from maskprep.corpus.reader import (
+    CorpusOptions,
+    ReadStats,
+    iter_corpus,
+    iter_documents,
+    plan_tasks,
+    resolve_inputs,
+)
 from maskprep.errors import MaskprepError
 
 from conftest import speeches
@@ -79,9 +86,16 @@ def test_parquet_row_group_tasks(tmp_path: Path, real_docs: list[str]) -> None:
 def test_blank_line_documents_and_empty_counts(tmp_path: Path) -> None:
     p = tmp_path / "b.txt"
     p.write_text("first line\nsame doc\n\n\nsecond doc\n\n", encoding="utf-8")
-    assert list(iter_corpus([str(p)], CorpusOptions(doc_sep="blank"))) == ["first line\nsame doc", "second doc"]
+    assert list(iter_corpus([str(p)], CorpusOptions(doc_sep="blank"))) == [
+        "first line\nsame doc",
+        "second doc",
+    ]
     stats = ReadStats()
-    assert list(iter_corpus([str(p)], CorpusOptions(), stats)) == ["first line", "same doc", "second doc"]
+    assert list(iter_corpus([str(p)], CorpusOptions(), stats)) == [
+        "first line",
+        "same doc",
+        "second doc",
+    ]
     assert stats.empty_skipped == 3 and stats.documents == 3
 
 
@@ -100,15 +114,23 @@ def test_invalid_utf8_replaced_and_counted_or_strict_error(tmp_path: Path) -> No
     stats = ReadStats()
     docs = list(iter_corpus([str(p)], CorpusOptions(), stats))
     assert docs == ["good line", "bad \ufffd byte", "fine"] and stats.invalid_utf8 == 1
-    with pytest.raises(MaskprepError, match=r"bad\.txt:2: invalid UTF-8 at byte offset 14 \(byte 0xff\)"):
+    with pytest.raises(
+        MaskprepError, match=r"bad\.txt:2: invalid UTF-8 at byte offset 14 \(byte 0xff\)"
+    ):
         list(iter_corpus([str(p)], CorpusOptions(strict=True)))
 
 
-@pytest.mark.parametrize("content, message", [
-    (b'{"text": "ok"}\nnot json\n', r"c\.jsonl:2: not valid JSON"),
-    (b'{"text": "ok"}\n{"body": "x"}\n', r"c\.jsonl:2: no field 'text' \(has: body\); choose the field with --text-field"),
-    (b'{"text": 5}\n', r"c\.jsonl:1: field 'text' is int, expected a string"),
-])
+@pytest.mark.parametrize(
+    "content, message",
+    [
+        (b'{"text": "ok"}\nnot json\n', r"c\.jsonl:2: not valid JSON"),
+        (
+            b'{"text": "ok"}\n{"body": "x"}\n',
+            r"c\.jsonl:2: no field 'text' \(has: body\); choose the field with --text-field",
+        ),
+        (b'{"text": 5}\n', r"c\.jsonl:1: field 'text' is int, expected a string"),
+    ],
+)
 def test_jsonl_errors_name_file_and_line(tmp_path: Path, content: bytes, message: str) -> None:
     p = tmp_path / "c.jsonl"
     p.write_bytes(content)
@@ -119,7 +141,10 @@ def test_jsonl_errors_name_file_and_line(tmp_path: Path, content: bytes, message
 def test_parquet_without_column_names_columns(tmp_path: Path) -> None:
     p = tmp_path / "t.parquet"
     pq.write_table(pa.table({"body": ["x"], "id": [1]}), p)
-    with pytest.raises(MaskprepError, match=r"t\.parquet: no column 'text' \(columns: body, id\); choose one with --text-column"):
+    with pytest.raises(
+        MaskprepError,
+        match=r"t\.parquet: no column 'text' \(columns: body, id\); choose one with --text-column",
+    ):
         list(iter_corpus([str(p)]))
 
 
@@ -146,8 +171,9 @@ def test_missing_and_empty_inputs(tmp_path: Path) -> None:
         resolve_inputs([str(tmp_path / "empty_dir" / "readme.md")])
 
 
-def test_compressed_tables_and_arrow_streams_read_like_plain_files(tmp_path: Path, real_docs: list[str],
-                                                                    monkeypatch: pytest.MonkeyPatch) -> None:
+def test_compressed_tables_and_arrow_streams_read_like_plain_files(
+    tmp_path: Path, real_docs: list[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
     # Parquet and Arrow need random access: a .gz or .zst one is decompressed to a temporary file first
     import tempfile
 
@@ -159,7 +185,10 @@ def test_compressed_tables_and_arrow_streams_read_like_plain_files(tmp_path: Pat
     (tmp_path / "c.parquet.zst").write_bytes(zc.compress(paths["parquet"].read_bytes()))
     (tmp_path / "c.arrow.gz").write_bytes(gzip.compress(paths["arrow"].read_bytes(), mtime=0))
     table = pa.table({"text": real_docs[:300]})
-    with pa.OSFile(str(tmp_path / "s.arrow"), "wb") as sink, pa.ipc.new_stream(sink, table.schema) as w:
+    with (
+        pa.OSFile(str(tmp_path / "s.arrow"), "wb") as sink,
+        pa.ipc.new_stream(sink, table.schema) as w,
+    ):
         w.write_table(table, max_chunksize=64)  # the Arrow IPC stream format, not the file format
     for name in ("c.parquet.zst", "c.arrow.gz", "s.arrow"):
         assert list(iter_corpus([str(tmp_path / name)])) == real_docs[:300], name
@@ -171,7 +200,9 @@ def test_compressed_tables_and_arrow_streams_read_like_plain_files(tmp_path: Pat
     ("bad.arrow", b"ARROW1 nor arrow", r"bad\.arrow: not a readable Arrow IPC file"),
     ("empty.parquet", b"", r"empty\.parquet: not a readable Parquet file"),
 ])
-def test_corrupt_table_files_name_the_file(tmp_path: Path, name: str, content: bytes, message: str) -> None:
+def test_corrupt_table_files_name_the_file(
+    tmp_path: Path, name: str, content: bytes, message: str
+) -> None:
     (tmp_path / name).write_bytes(content)
     with pytest.raises(MaskprepError, match=message):
         list(iter_corpus([str(tmp_path / name)]))

@@ -43,9 +43,12 @@ MODULE_TIME_LIMIT = 600  # seconds: a hung scheduler fails the run instead of st
 @pytest.fixture(scope="module")
 def cluster_address():
     faulthandler.dump_traceback_later(MODULE_TIME_LIMIT, exit=True)
-    warnings.filterwarnings("ignore", message="Port 8787 is already in use")  # the scheduler's loopback HTTP port
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                       dashboard_address=None)
+    warnings.filterwarnings(
+        "ignore", message="Port 8787 is already in use"
+    )  # the scheduler's loopback HTTP port
+    cluster = distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+    )
     try:
         address = cluster.scheduler_address
         assert address.startswith("tcp://127.0.0.1:")
@@ -84,24 +87,74 @@ def all_files(d: Path) -> dict[str, bytes]:
     return {str(p.relative_to(d)): p.read_bytes() for p in sorted(d.rglob("*")) if p.is_file()}
 
 
-def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(tmp_path, cluster_address, three_files,
-                                                                         small_wordpiece):
+def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(
+    tmp_path, cluster_address, three_files, small_wordpiece
+):
     outputs = {}
-    modes = {"workers-1": ["--workers", "1"], "workers-2": ["--workers", "2"], "dask": ["--dask", cluster_address]}
+    modes = {
+        "workers-1": ["--workers", "1"],
+        "workers-2": ["--workers", "2"],
+        "dask": ["--dask", cluster_address],
+    }
     for name, where in modes.items():
         base = tmp_path / name
         # --memory 8MiB: runs spill, and the spill pattern differs per executor (memory is shared by the workers)
-        summary = invoke(*where, "count", *three_files, "-t", str(small_wordpiece), "-o", str(base / "counts"),
-                         "--max-n", "3", "--min-count", "2", "--memory", "8MiB")
+        summary = invoke(
+            *where,
+            "count",
+            *three_files,
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(base / "counts"),
+            "--max-n",
+            "3",
+            "--min-count",
+            "2",
+            "--memory",
+            "8MiB",
+        )
         assert "3 tasks" in summary
-        invoke("units", str(base / "counts"), "-o", str(base / "units.parquet"), "--top", "400", "--show", "0")
-        invoke(*where, "mask", *three_files, "-t", str(small_wordpiece), "-o", str(base / "shards"),
-               "--strategy", "pmi", "--units", str(base / "units.parquet"), "--copies", "2", "--shard-rows", "300")
+        invoke(
+            "units",
+            str(base / "counts"),
+            "-o",
+            str(base / "units.parquet"),
+            "--top",
+            "400",
+            "--show",
+            "0",
+        )
+        invoke(
+            *where,
+            "mask",
+            *three_files,
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(base / "shards"),
+            "--strategy",
+            "pmi",
+            "--units",
+            str(base / "units.parquet"),
+            "--copies",
+            "2",
+            "--shard-rows",
+            "300",
+        )
         outputs[name] = all_files(base)
     reference = outputs["workers-1"]
-    assert {"counts/counts.json", "counts/ngrams-3.parquet", "units.parquet", "shards/_maskprep/manifest.json",
-            "shards/_maskprep/stats.json", "shards/.maskprep/task-00002.json"} <= set(reference)
-    assert len([f for f in reference if f.startswith("shards/shard-")]) > 6  # several tasks x copies x parts
+    assert {
+        "counts/counts.json",
+        "counts/ngrams-3.parquet",
+        "units.parquet",
+        "shards/_maskprep/manifest.json",
+        "shards/_maskprep/stats.json",
+        "shards/.maskprep/task-00002.json",
+    } <= set(reference)
+    assert (
+        len([f for f in reference if f.startswith("shards/shard-")]) > 6
+    )  # several tasks x copies x parts
     assert json.loads(reference["counts/counts.json"])["N"] > 50_000
     for name in ("workers-2", "dask"):
         assert sorted(outputs[name]) == sorted(reference), name
@@ -109,8 +162,9 @@ def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(tmp_pat
         assert differ == [], f"{name}: {differ}"
 
 
-def test_encode_and_the_stages_on_an_encoded_directory_are_byte_identical_on_dask(tmp_path, cluster_address,
-                                                                                  three_files, small_wordpiece):
+def test_encode_and_the_stages_on_an_encoded_directory_are_byte_identical_on_dask(
+    tmp_path, cluster_address, three_files, small_wordpiece
+):
     # Reference: the same stages on the raw corpus with one local process.
     tok = str(small_wordpiece)
     units = tmp_path / "units.parquet"
@@ -122,12 +176,48 @@ def test_encode_and_the_stages_on_an_encoded_directory_are_byte_identical_on_das
         else:
             invoke(*where, "encode", *three_files, "-t", tok, "-o", str(tmp_path / "encoded"))
             corpus, t = [str(tmp_path / "encoded")], []
-        invoke(*where, "count", *corpus, *t, "-o", str(base / "counts"), "--max-n", "3", "--min-count", "2")
+        invoke(
+            *where,
+            "count",
+            *corpus,
+            *t,
+            "-o",
+            str(base / "counts"),
+            "--max-n",
+            "3",
+            "--min-count",
+            "2",
+        )
         if name == "raw":
             invoke("units", str(base / "counts"), "-o", str(units), "--top", "400", "--show", "0")
-        invoke(*where, "mask", *corpus, *t, "-o", str(base / "shards"), "--strategy", "pmi", "--units", str(units),
-               "--copies", "2", "--shard-rows", "300")
-        invoke(*where, "compare", *corpus, *t, "-o", str(base / "compare"), "--units", str(units), "--sample", "900")
+        invoke(
+            *where,
+            "mask",
+            *corpus,
+            *t,
+            "-o",
+            str(base / "shards"),
+            "--strategy",
+            "pmi",
+            "--units",
+            str(units),
+            "--copies",
+            "2",
+            "--shard-rows",
+            "300",
+        )
+        invoke(
+            *where,
+            "compare",
+            *corpus,
+            *t,
+            "-o",
+            str(base / "compare"),
+            "--units",
+            str(units),
+            "--sample",
+            "900",
+        )
         outputs[name] = all_files(base)
     assert sorted(outputs["raw"]) == sorted(outputs["dask"])
     assert [f for f in outputs["raw"] if outputs["raw"][f] != outputs["dask"][f]] == []
@@ -136,8 +226,9 @@ def test_encode_and_the_stages_on_an_encoded_directory_are_byte_identical_on_das
     assert all_files(local) == all_files(tmp_path / "encoded")
 
 
-def test_relative_paths_resolve_against_the_driver_not_the_worker(tmp_path, cluster_address, tiny_files,
-                                                                  small_wordpiece, monkeypatch):
+def test_relative_paths_resolve_against_the_driver_not_the_worker(
+    tmp_path, cluster_address, tiny_files, small_wordpiece, monkeypatch
+):
     # the workers' working directory is this process's; the driver works from another one
     monkeypatch.chdir(tmp_path)
     Path("in").mkdir()
@@ -157,17 +248,39 @@ def test_dask_is_imported_only_when_asked_for(tmp_path, tiny_files, small_wordpi
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip().splitlines()[-1] == "[]"
-    assert (tmp_path / "counts" / "counts.json").is_file() and (tmp_path / "shards" / "_maskprep" / "manifest.json").is_file()
+    assert (tmp_path / "counts" / "counts.json").is_file() and (
+        tmp_path / "shards" / "_maskprep" / "manifest.json"
+    ).is_file()
 
 
 @pytest.mark.parametrize("command", ["mask", "count"])
-def test_missing_dask_extra_says_how_to_install_it(tmp_path, monkeypatch, tiny_files, small_wordpiece, command):
+def test_missing_dask_extra_says_how_to_install_it(
+    tmp_path, monkeypatch, tiny_files, small_wordpiece, command
+):
     monkeypatch.setitem(sys.modules, "distributed", None)  # makes `import distributed` fail
-    result = CliRunner().invoke(cli, ["--quiet", "--dask", "tcp://127.0.0.1:9", command, *tiny_files, "-t",
-                                      str(small_wordpiece), "-o", str(tmp_path / "out")])
+    result = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "--dask",
+            "tcp://127.0.0.1:9",
+            command,
+            *tiny_files,
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(tmp_path / "out"),
+        ],
+    )
     assert result.exit_code == 1
-    assert "--dask needs the dask extra" in result.output and "pip install 'maskprep[dask]'" in result.output
-    assert not (tmp_path / "out" / "_maskprep" / "manifest.json").exists() and not (tmp_path / "out" / "counts.json").exists()
+    assert (
+        "--dask needs the dask extra" in result.output
+        and "pip install 'maskprep[dask]'" in result.output
+    )
+    assert (
+        not (tmp_path / "out" / "_maskprep" / "manifest.json").exists()
+        and not (tmp_path / "out" / "counts.json").exists()
+    )
 
 
 def test_results_come_back_in_task_order_on_dask(cluster_address):
@@ -179,9 +292,15 @@ def test_results_come_back_in_task_order_on_dask(cluster_address):
 def test_a_scheduler_file_is_accepted_in_place_of_an_address(tmp_path, cluster_address):
     path = tmp_path / "scheduler.json"  # the shape `dask scheduler --scheduler-file` writes
     path.write_text(json.dumps({"type": "Scheduler", "address": cluster_address}))
-    assert list(map_tasks(pow, [(2, 5), (3, 3)], executor=Executor(dask=str(path), quiet=True))) == [32, 27]
+    assert list(
+        map_tasks(pow, [(2, 5), (3, 3)], executor=Executor(dask=str(path), quiet=True))
+    ) == [32, 27]
     with pytest.raises(MaskprepError, match="no such scheduler file"):
-        list(map_tasks(pow, [(2, 5)], executor=Executor(dask=str(tmp_path / "missing.json"), quiet=True)))
+        list(
+            map_tasks(
+                pow, [(2, 5)], executor=Executor(dask=str(tmp_path / "missing.json"), quiet=True)
+            )
+        )
 
 
 # ---------------------------------------------------------------- a failing task
@@ -202,40 +321,74 @@ def _bad_corpus(directory: Path, files: list[str]) -> tuple[list[str], str]:
     return copies, copies[0]
 
 
-def _stage(command: str, files: list[str], tokenizer: Path, out: Path, options: CorpusOptions, executor: Executor,
-           resume: bool = False) -> None:
+def _stage(
+    command: str,
+    files: list[str],
+    tokenizer: Path,
+    out: Path,
+    options: CorpusOptions,
+    executor: Executor,
+    resume: bool = False,
+) -> None:
     if command == "mask":
-        write_shards(files, tokenizer=str(tokenizer), output=out, masking=MaskingConfig(strategy="word"),
-                     packing=PackingConfig(seq_len=64), shards=ShardConfig(shard_rows=200),
-                     corpus_options=options, executor=executor, resume=resume)
+        write_shards(
+            files,
+            tokenizer=str(tokenizer),
+            output=out,
+            masking=MaskingConfig(strategy="word"),
+            packing=PackingConfig(seq_len=64),
+            shards=ShardConfig(shard_rows=200),
+            corpus_options=options,
+            executor=executor,
+            resume=resume,
+        )
     else:
-        count_ngrams(files, tokenizer=str(tokenizer), output=out, config=CountConfig(max_n=3, min_count=1),
-                     corpus_options=options, executor=executor, resume=resume, quiet=True)
+        count_ngrams(
+            files,
+            tokenizer=str(tokenizer),
+            output=out,
+            config=CountConfig(max_n=3, min_count=1),
+            corpus_options=options,
+            executor=executor,
+            resume=resume,
+            quiet=True,
+        )
 
 
-RECORD_OF_TASK_0 = {"mask": ".maskprep/task-00000.json", "count": ".maskprep-count/task-000000.json"}
+RECORD_OF_TASK_0 = {
+    "mask": ".maskprep/task-00000.json",
+    "count": ".maskprep-count/task-000000.json",
+}
 FINISHED = {"mask": "_maskprep/manifest.json", "count": "counts.json"}
 
 
 @pytest.mark.parametrize("where", ["workers-1", "workers-2", "dask"])
 @pytest.mark.parametrize("command", ["mask", "count"])
-def test_a_failing_chunk_is_named_and_the_run_resumes(tmp_path, cluster_address, tiny_files, small_wordpiece,
-                                                      command, where):
+def test_a_failing_chunk_is_named_and_the_run_resumes(
+    tmp_path, cluster_address, tiny_files, small_wordpiece, command, where
+):
     files, bad = _bad_corpus(tmp_path / "corpus", tiny_files)
     strict = CorpusOptions(strict=True, chunk_bytes=4096)
     tasks = plan_tasks([Path(f) for f in files], strict)
     second = next(t for t in tasks if t.path == bad and t.start == 4096)
-    executor = {"workers-1": Executor(workers=1, quiet=True), "workers-2": Executor(workers=2, quiet=True),
-                "dask": Executor(dask=cluster_address, quiet=True)}[where]
+    executor = {
+        "workers-1": Executor(workers=1, quiet=True),
+        "workers-2": Executor(workers=2, quiet=True),
+        "dask": Executor(dask=cluster_address, quiet=True),
+    }[where]
     out = tmp_path / "out"
     with pytest.raises(MaskprepError) as failure:
         _stage(command, files, small_wordpiece, out, strict, executor)
     message = str(failure.value)
-    assert message.startswith(f"{bad} (bytes {second.start}-{second.end}): ")  # CorpusTask.describe()
+    assert message.startswith(
+        f"{bad} (bytes {second.start}-{second.end}): "
+    )  # CorpusTask.describe()
     assert "invalid UTF-8 at byte offset" in message
     assert not (out / FINISHED[command]).exists()
     first = out / RECORD_OF_TASK_0[command]
-    deadline = time.monotonic() + 30  # on Dask a task already running when another fails still finishes
+    deadline = (
+        time.monotonic() + 30
+    )  # on Dask a task already running when another fails still finishes
     while not first.is_file() and time.monotonic() < deadline:
         time.sleep(0.05)
     if where != "dask":
@@ -252,7 +405,9 @@ def test_a_failing_chunk_is_named_and_the_run_resumes(tmp_path, cluster_address,
     # without --strict the bad byte is replaced; resuming finishes the run
     lenient = CorpusOptions(chunk_bytes=4096)
     _stage(command, files, small_wordpiece, out, lenient, executor, resume=True)
-    _stage(command, files, small_wordpiece, tmp_path / "ref", lenient, Executor(workers=1, quiet=True))
+    _stage(
+        command, files, small_wordpiece, tmp_path / "ref", lenient, Executor(workers=1, quiet=True)
+    )
     assert all_files(out) == all_files(tmp_path / "ref")
 
 
@@ -262,11 +417,35 @@ def test_the_cli_exits_1_naming_the_file_of_the_failing_task(tmp_path, cluster_a
     for where, command in ((["--workers", "2"], "mask"), (["--dask", cluster_address], "mask"),
                            (["--workers", "2"], "count"), (["--dask", cluster_address], "count")):
         out = tmp_path / f"{where[0].strip('-')}-{command}"
-        result = CliRunner().invoke(cli, ["--quiet", *where, command, "--strict", *files, "-t", str(small_wordpiece),
-                                          "-o", str(out)])
+        result = CliRunner().invoke(
+            cli,
+            [
+                "--quiet",
+                *where,
+                command,
+                "--strict",
+                *files,
+                "-t",
+                str(small_wordpiece),
+                "-o",
+                str(out),
+            ],
+        )
         assert result.exit_code == 1, result.output
         assert result.output.startswith(f"Error: {bad} (bytes 0-")
         assert not (out / FINISHED[command]).exists()
-        again = CliRunner().invoke(cli, ["--quiet", *where, command, *files, "-t", str(small_wordpiece), "-o", str(out),
-                                         "--resume"])
+        again = CliRunner().invoke(
+            cli,
+            [
+                "--quiet",
+                *where,
+                command,
+                *files,
+                "-t",
+                str(small_wordpiece),
+                "-o",
+                str(out),
+                "--resume",
+            ],
+        )
         assert again.exit_code == 0, again.output

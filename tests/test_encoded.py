@@ -44,7 +44,9 @@ def three_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
 
 @pytest.fixture(scope="module")
 def small_bpe(tmp_path_factory, shakespeare_small: Path) -> Path:
-    return trained_tokenizer(shakespeare_small, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=3000)
+    return trained_tokenizer(
+        shakespeare_small, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=3000
+    )
 
 
 def invoke(*args: str, code: int = 0) -> str:
@@ -63,7 +65,9 @@ def test_the_format_stores_every_field_of_encoded_batch():
 
 
 @pytest.mark.parametrize("family", ["wordpiece", "bpe"])
-def test_batches_read_back_equal_the_tokenizers_batches(tmp_path, three_files, small_wordpiece, small_bpe, family):
+def test_batches_read_back_equal_the_tokenizers_batches(
+    tmp_path, three_files, small_wordpiece, small_bpe, family
+):
     tok = small_wordpiece if family == "wordpiece" else small_bpe
     info = load_tokenizer(tok)
     encode_corpus(three_files, tokenizer=info, output=tmp_path / "enc", corpus_options=SMALL_TASKS,
@@ -76,7 +80,9 @@ def test_batches_read_back_equal_the_tokenizers_batches(tmp_path, three_files, s
         ra, rb = TaskReader(a, info, SMALL_TASKS), TaskReader(b, info, SMALL_TASKS)
         for x, y in zip(list(ra), list(rb), strict=True):
             for f in dataclasses.fields(EncodedBatch):
-                if f.name in fmt.PER_TASK:  # a per-task total in the manifest, 0 for tokenizer words
+                if (
+                    f.name in fmt.PER_TASK
+                ):  # a per-task total in the manifest, 0 for tokenizer words
                     assert getattr(x, f.name) == getattr(y, f.name) == 0
                     continue
                 u, v = getattr(x, f.name), getattr(y, f.name)
@@ -88,34 +94,98 @@ def test_batches_read_back_equal_the_tokenizers_batches(tmp_path, three_files, s
     # 16-bit ids for these small vocabularies (Arrow list<uint16>)
     import pyarrow as pa
 
-    assert fmt.open_ipc(enc.tasks[0].encoded.words, "words").schema.field("ids").type == pa.list_(pa.uint16())
+    assert fmt.open_ipc(enc.tasks[0].encoded.words, "words").schema.field("ids").type == pa.list_(
+        pa.uint16()
+    )
     assert len(words) == enc.tasks[0].encoded.types
 
 
-def test_count_mask_compare_audit_on_an_encoded_directory_equal_the_raw_corpus(tmp_path, three_files,
-                                                                                small_wordpiece):
+def test_count_mask_compare_audit_on_an_encoded_directory_equal_the_raw_corpus(
+    tmp_path, three_files, small_wordpiece
+):
     tok = str(small_wordpiece)
     for workers in ("1", "2"):
         base = tmp_path / f"w{workers}"
         invoke("--workers", workers, "encode", *three_files, "-t", tok, "-o", str(base / "encoded"))
         assert "ok: 3 tasks" in invoke("verify", str(base / "encoded"))
-        for name, corpus, t in (("raw", three_files, ["-t", tok]), ("enc", [str(base / "encoded")], [])):
+        for name, corpus, t in (
+            ("raw", three_files, ["-t", tok]),
+            ("enc", [str(base / "encoded")], []),
+        ):
             out = base / name
-            invoke("--workers", workers, "count", *corpus, *t, "-o", str(out / "counts"), "--max-n", "3",
-                   "--min-count", "2", "--memory", "8MiB")
+            invoke(
+                "--workers",
+                workers,
+                "count",
+                *corpus,
+                *t,
+                "-o",
+                str(out / "counts"),
+                "--max-n",
+                "3",
+                "--min-count",
+                "2",
+                "--memory",
+                "8MiB",
+            )
             units = base / "units.parquet"  # one file: compare.json names its path
             if name == "raw":
-                invoke("units", str(out / "counts"), "-o", str(units), "--top", "400", "--show", "0")
-            invoke("--workers", workers, "mask", *corpus, *t, "-o", str(out / "shards"), "--strategy", "pmi",
-                   "--units", str(units), "--copies", "2", "--shard-rows", "300")
-            invoke("--workers", workers, "mask", *corpus, *t, "-o", str(out / "span"), "--strategy", "span",
-                   "--copies", "2", "--dynamic")
-            invoke("--workers", workers, "compare", *corpus, *t, "-o", str(out / "compare"), "--units",
-                   str(units), "--sample", "700")
+                invoke(
+                    "units", str(out / "counts"), "-o", str(units), "--top", "400", "--show", "0"
+                )
+            invoke(
+                "--workers",
+                workers,
+                "mask",
+                *corpus,
+                *t,
+                "-o",
+                str(out / "shards"),
+                "--strategy",
+                "pmi",
+                "--units",
+                str(units),
+                "--copies",
+                "2",
+                "--shard-rows",
+                "300",
+            )
+            invoke(
+                "--workers",
+                workers,
+                "mask",
+                *corpus,
+                *t,
+                "-o",
+                str(out / "span"),
+                "--strategy",
+                "span",
+                "--copies",
+                "2",
+                "--dynamic",
+            )
+            invoke(
+                "--workers",
+                workers,
+                "compare",
+                *corpus,
+                *t,
+                "-o",
+                str(out / "compare"),
+                "--units",
+                str(units),
+                "--sample",
+                "700",
+            )
             invoke("--workers", workers, "audit", *corpus, "-t", tok, "-o", str(out / "audit"))
         raw, enc = all_files(base / "raw"), all_files(base / "enc")
-        assert {"counts/counts.json", "shards/_maskprep/manifest.json", "span/_maskprep/stats.json", "compare/compare.json",
-                "audit/audit.json"} <= set(raw)
+        assert {
+            "counts/counts.json",
+            "shards/_maskprep/manifest.json",
+            "span/_maskprep/stats.json",
+            "compare/compare.json",
+            "audit/audit.json",
+        } <= set(raw)
         assert sorted(raw) == sorted(enc)
         assert [f for f in raw if raw[f] != enc[f]] == []
     one, two = all_files(tmp_path / "w1"), all_files(tmp_path / "w2")
@@ -123,7 +193,9 @@ def test_count_mask_compare_audit_on_an_encoded_directory_equal_the_raw_corpus(t
     assert [f for f in one if one[f].replace(b"/w1/", b"/w2/") != two[f]] == []
 
 
-def test_tokenizer_must_match_and_options_must_agree(tmp_path, three_files, small_wordpiece, small_bpe):
+def test_tokenizer_must_match_and_options_must_agree(
+    tmp_path, three_files, small_wordpiece, small_bpe
+):
     enc = tmp_path / "enc"
     invoke("--workers", "1", "encode", *three_files, "-t", str(small_wordpiece), "-o", str(enc))
     out = invoke("count", str(enc), "-t", str(small_bpe), "-o", str(tmp_path / "c"), code=1)
@@ -134,25 +206,52 @@ def test_tokenizer_must_match_and_options_must_agree(tmp_path, three_files, smal
     assert "must be the only CORPUS argument" in out
     out = invoke("count", three_files[0], "-o", str(tmp_path / "c"), code=1)
     assert "-t TOKENIZER.json" in out
-    out = invoke("encode", str(enc), "-t", str(small_wordpiece), "-o", str(tmp_path / "again"), code=1)
+    out = invoke(
+        "encode", str(enc), "-t", str(small_wordpiece), "-o", str(tmp_path / "again"), code=1
+    )
     assert "already an encoded directory" in out
-    out = invoke("encode", three_files[0], "-t", str(small_wordpiece), "-o", str(Path(three_files[0]).parent),
-                 code=1)
+    out = invoke(
+        "encode",
+        three_files[0],
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(Path(three_files[0]).parent),
+        code=1,
+    )
     assert "inside the corpus" in out
-    assert not (tmp_path / "c" / "counts.json").exists() and not (tmp_path / "m" / "manifest.json").exists()
+    assert (
+        not (tmp_path / "c" / "counts.json").exists()
+        and not (tmp_path / "m" / "manifest.json").exists()
+    )
 
 
 def test_verify_names_each_fault(tmp_path, three_files, small_wordpiece):
     enc = tmp_path / "enc"
     invoke("--workers", "1", "encode", *three_files, "-t", str(small_wordpiece), "-o", str(enc))
     damages = (
-        (lambda d: (d / "docs-00001.arrow").unlink(), "docs-00001.arrow: listed in encoded.json but missing"),
-        (lambda d: (d / "words-00002.arrow").write_bytes((d / "words-00002.arrow").read_bytes()[:-9]),
-         "words-00002.arrow:"),
-        (lambda d: shutil.copy(d / "docs-00000.arrow", d / "docs-00007.arrow"), "docs-00007.arrow: not listed"),
-        (lambda d: _edit(d, lambda m: m["tasks"][0].update(documents=m["tasks"][0]["documents"] + 1)),
-         "docs-00000.arrow: 1,"),
-        (lambda d: _edit(d, lambda m: m["totals"].update(tokens=5)), "totals.tokens is 5"))
+        (
+            lambda d: (d / "docs-00001.arrow").unlink(),
+            "docs-00001.arrow: listed in encoded.json but missing",
+        ),
+        (
+            lambda d: (d / "words-00002.arrow").write_bytes(
+                (d / "words-00002.arrow").read_bytes()[:-9]
+            ),
+            "words-00002.arrow:",
+        ),
+        (
+            lambda d: shutil.copy(d / "docs-00000.arrow", d / "docs-00007.arrow"),
+            "docs-00007.arrow: not listed",
+        ),
+        (
+            lambda d: _edit(
+                d, lambda m: m["tasks"][0].update(documents=m["tasks"][0]["documents"] + 1)
+            ),
+            "docs-00000.arrow: 1,",
+        ),
+        (lambda d: _edit(d, lambda m: m["totals"].update(tokens=5)), "totals.tokens is 5"),
+    )
     for damage, expected in damages:
         copy = tmp_path / "copy"
         shutil.copytree(enc, copy)
@@ -168,10 +267,21 @@ def _edit(d: Path, change) -> None:
     (d / "encoded.json").write_text(json.dumps(m))
 
 
-def test_an_interrupted_encode_resumes_to_the_same_files(tmp_path, three_files, small_wordpiece, monkeypatch):
+def test_an_interrupted_encode_resumes_to_the_same_files(
+    tmp_path, three_files, small_wordpiece, monkeypatch
+):
     import maskprep.encoded.write as write_mod
 
-    invoke("--workers", "1", "encode", *three_files, "-t", str(small_wordpiece), "-o", str(tmp_path / "ref"))
+    invoke(
+        "--workers",
+        "1",
+        "encode",
+        *three_files,
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(tmp_path / "ref"),
+    )
     real = write_mod._record_batch
 
     def failing(batch, types, schema):
@@ -184,33 +294,55 @@ def test_an_interrupted_encode_resumes_to_the_same_files(tmp_path, three_files, 
     monkeypatch.setattr(write_mod, "_record_batch", failing)
     out = tmp_path / "out"
     with pytest.raises(MaskprepError, match="simulated"):
-        encode_corpus(three_files, tokenizer=str(small_wordpiece), output=out,
-                      corpus_options=CorpusOptions(chunk_bytes=100_000), executor=Executor(workers=1, quiet=True))
+        encode_corpus(
+            three_files,
+            tokenizer=str(small_wordpiece),
+            output=out,
+            corpus_options=CorpusOptions(chunk_bytes=100_000),
+            executor=Executor(workers=1, quiet=True),
+        )
     monkeypatch.setattr(write_mod, "_record_batch", real)
     assert not (out / "encoded.json").exists() and not list(out.glob(".*.tmp"))
-    assert "unfinished encoded directory" in invoke("count", str(out), "-o", str(tmp_path / "c"), code=1)
+    assert "unfinished encoded directory" in invoke(
+        "count", str(out), "-o", str(tmp_path / "c"), code=1
+    )
     before = (out / "docs-00000.arrow").stat().st_mtime_ns
     opts = ("--workers", "1", "encode", *three_files, "-t", str(small_wordpiece), "-o", str(out))
-    assert "options differ" in invoke(*opts, "--resume", code=1)  # another task size than the failed run
-    encode_corpus(three_files, tokenizer=str(small_wordpiece), output=out,
-                  corpus_options=CorpusOptions(chunk_bytes=100_000), executor=Executor(workers=1, quiet=True),
-                  resume=True)
+    assert "options differ" in invoke(
+        *opts, "--resume", code=1
+    )  # another task size than the failed run
+    encode_corpus(
+        three_files,
+        tokenizer=str(small_wordpiece),
+        output=out,
+        corpus_options=CorpusOptions(chunk_bytes=100_000),
+        executor=Executor(workers=1, quiet=True),
+        resume=True,
+    )
     assert (out / "docs-00000.arrow").stat().st_mtime_ns == before  # finished task kept
     ref = tmp_path / "ref2"
-    encode_corpus(three_files, tokenizer=str(small_wordpiece), output=ref,
-                  corpus_options=CorpusOptions(chunk_bytes=100_000), executor=Executor(workers=1, quiet=True))
+    encode_corpus(
+        three_files,
+        tokenizer=str(small_wordpiece),
+        output=ref,
+        corpus_options=CorpusOptions(chunk_bytes=100_000),
+        executor=Executor(workers=1, quiet=True),
+    )
     assert all_files(out) == all_files(ref)
     assert "not empty" in invoke(*opts, code=1)
 
 
-def test_encode_refuses_to_start_without_the_disk_space_it_needs(tmp_path, three_files, small_wordpiece,
-                                                                 monkeypatch):
+def test_encode_refuses_to_start_without_the_disk_space_it_needs(
+    tmp_path, three_files, small_wordpiece, monkeypatch
+):
     import collections
 
     import maskprep.encoded.write as write_mod
 
     usage = collections.namedtuple("usage", "total used free")
-    monkeypatch.setattr(write_mod.shutil, "disk_usage", lambda p: usage(10 ** 9, 10 ** 9 - 1000, 1000))
-    out = invoke("encode", *three_files, "-t", str(small_wordpiece), "-o", str(tmp_path / "enc"), code=1)
+    monkeypatch.setattr(write_mod.shutil, "disk_usage", lambda p: usage(10**9, 10**9 - 1000, 1000))
+    out = invoke(
+        "encode", *three_files, "-t", str(small_wordpiece), "-o", str(tmp_path / "enc"), code=1
+    )
     assert "not enough free disk space" in out and "MB needed" in out
     assert not list((tmp_path / "enc").glob("*.arrow"))

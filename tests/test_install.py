@@ -50,10 +50,26 @@ def installed(tmp_path_factory: pytest.TempPathFactory) -> Path:
         else:
             shutil.copy2(REPO / name, src / name)
     target = root / "target"
-    run = subprocess.run([sys.executable, "-m", "pip", "install", "--no-deps", "--no-build-isolation",
-                          "--no-index", "--no-input", "--disable-pip-version-check", "--quiet",
-                          "--target", str(target), str(src)],
-                         capture_output=True, text=True, cwd=root)
+    run = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "pip",
+            "install",
+            "--no-deps",
+            "--no-build-isolation",
+            "--no-index",
+            "--no-input",
+            "--disable-pip-version-check",
+            "--quiet",
+            "--target",
+            str(target),
+            str(src),
+        ],
+        capture_output=True,
+        text=True,
+        cwd=root,
+    )
     assert run.returncode == 0, run.stdout + run.stderr
     return target
 

@@ -43,8 +43,13 @@ def all_files(d: Path) -> dict[str, bytes]:
 
 def interrupt_at(args: list[str], delay: float) -> tuple[int, float, str]:
     """Run, SIGINT the process group after `delay` s; (status, seconds to exit, stderr)."""
-    proc = subprocess.Popen(command(*args), cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-                            start_new_session=True)
+    proc = subprocess.Popen(
+        command(*args),
+        cwd=ROOT,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.PIPE,
+        start_new_session=True,
+    )
     time.sleep(delay)
     try:
         family = [psutil.Process(proc.pid), *psutil.Process(proc.pid).children(recursive=True)]
@@ -68,21 +73,30 @@ def interrupt_at(args: list[str], delay: float) -> tuple[int, float, str]:
     return proc.returncode, took, err.decode(errors="replace")
 
 
-def check_interrupts(args: list[str], out: Path, ref: Path, delays: list[float], finished: str) -> None:
+def check_interrupts(
+    args: list[str], out: Path, ref: Path, delays: list[float], finished: str
+) -> None:
     statuses = []
     for delay in delays:
         code, took, err = interrupt_at([*args, "-o", str(out), "--resume"], delay)
         statuses.append(code)
         assert code in (0, 130), f"Ctrl-C at {delay} s: status {code}: {err[-2000:]}"
         assert took < 2.0, f"Ctrl-C at {delay} s: exit took {took:.2f} s"
-        assert "Traceback" not in err and "Exception ignored" not in err, f"Ctrl-C at {delay} s:\n{err}"
+        assert "Traceback" not in err and "Exception ignored" not in err, (
+            f"Ctrl-C at {delay} s:\n{err}"
+        )
         if code == 130:
             assert "interrupted" in err
             if (out / finished).exists():  # interrupted after the last rename: it is finished
                 assert all_files(out) == all_files(ref)
     assert 130 in statuses
-    done = subprocess.run(command(*args, "-o", str(out), "--resume"), cwd=ROOT, capture_output=True, text=True,
-                          timeout=300)
+    done = subprocess.run(
+        command(*args, "-o", str(out), "--resume"),
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert done.returncode == 0, done.stderr
     assert all_files(out) == all_files(ref)
 
@@ -96,7 +110,9 @@ def test_mask_interrupted_anywhere_exits_130_quickly_and_resumes(tmp_path, plays
                           timeout=300).returncode == 0
     whole = time.monotonic() - started
     # from interpreter start-up through pool start-up to past the end of the run
-    delays = [0.05, 0.2, 0.4, 0.55, 0.7, 0.85, 1.0, 1.2] + [whole * f for f in (0.5, 0.75, 0.9, 0.97, 1.1)]
+    delays = [0.05, 0.2, 0.4, 0.55, 0.7, 0.85, 1.0, 1.2] + [
+        whole * f for f in (0.5, 0.75, 0.9, 0.97, 1.1)
+    ]
     check_interrupts(args, tmp_path / "out", ref, delays, "manifest.json")
 
 

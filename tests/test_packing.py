@@ -75,7 +75,11 @@ def reference_rows(info, docs, seq_len, pack):
 
 def packed(info, docs, seq_len, pack, batch_docs=10_000, task_index=0):
     batches = [info.encode(docs[i:i + batch_docs]) for i in range(0, len(docs), batch_docs)]
-    out = list(pack_batches(info, batches, config=PackingConfig(seq_len=seq_len, pack=pack), task_index=task_index))
+    out = list(
+        pack_batches(
+            info, batches, config=PackingConfig(seq_len=seq_len, pack=pack), task_index=task_index
+        )
+    )
     return {k: np.concatenate([getattr(p, k) for p in out]) for k in
             ("input_ids", "special", "word_ids", "attention_mask", "sequence_ids")}, out
 

@@ -63,7 +63,9 @@ sample = 150
 
 
 def run(config: Path, out: Path, *extra: str):
-    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "run", str(config), "-o", str(out), *extra])
+    r = CliRunner().invoke(
+        cli, ["--quiet", "--workers", "1", "run", str(config), "-o", str(out), *extra]
+    )
     return r
 
 
@@ -92,11 +94,28 @@ def copy_of_run(first_run, tmp_path) -> tuple[Path, Path]:
 def test_first_run_runs_every_stage_and_writes_their_outputs(first_run):
     _, out, output = first_run
     assert statuses(out) == {name: "ran" for name in ALL}
-    for rel in ("tokenizer/tokenizer.json", "audit/audit.json", "audit/audit.html", "counts/counts.json",
-                "units/units.parquet", "mask/token/_maskprep/manifest.json", "mask/pmi/_maskprep/stats.json", "compare/compare.json",
-                "compare/compare.html"):
+    for rel in (
+        "tokenizer/tokenizer.json",
+        "audit/audit.json",
+        "audit/audit.html",
+        "counts/counts.json",
+        "units/units.parquet",
+        "mask/token/_maskprep/manifest.json",
+        "mask/pmi/_maskprep/stats.json",
+        "compare/compare.json",
+        "compare/compare.html",
+    ):
         assert (out / rel).is_file(), rel
-    for d in ("tokenizer", "encoded", "audit", "counts", "units", "mask/token", "mask/pmi", "compare"):
+    for d in (
+        "tokenizer",
+        "encoded",
+        "audit",
+        "counts",
+        "units",
+        "mask/token",
+        "mask/pmi",
+        "compare",
+    ):
         rec = json.loads((out / d / STAGE_FILE).read_text())
         assert len(rec["fingerprint"]) == 64 and rec["files"]
     assert "8 stages ran, 0 up to date" in output
@@ -126,8 +145,9 @@ def test_second_run_skips_every_stage(copy_of_run):
     ("vocab_sizes", "vocab_sizes = [400]", {"audit"}),
     ("vocab_size", "vocab_size = 900", set(ALL)),
 ])
-def test_a_changed_option_reruns_that_stage_and_the_later_ones_only(copy_of_run, shakespeare_small, key, line,
-                                                                    rerun):
+def test_a_changed_option_reruns_that_stage_and_the_later_ones_only(
+    copy_of_run, shakespeare_small, key, line, rerun
+):
     config, out = copy_of_run
     write_config(config, shakespeare_small, **{key: line})
     r = run(config, out)
@@ -146,19 +166,35 @@ def test_force_reruns_everything_and_a_missing_output_reruns_its_stage(copy_of_r
     assert r.exit_code == 0 and set(statuses(out).values()) == {"ran"}
 
 
-def test_forced_rerun_with_a_given_tokenizer_gives_identical_outputs(tmp_path, shakespeare_small, small_wordpiece):
+def test_forced_rerun_with_a_given_tokenizer_gives_identical_outputs(
+    tmp_path, shakespeare_small, small_wordpiece
+):
     # With the tokenizer loaded from a file (training is the one stage whose token ids may be numbered
     # differently from run to run), every output of a forced rerun is byte-identical.
-    config = write_config(tmp_path / "given.toml", shakespeare_small, model=f'path = "{small_wordpiece}"',
-                          vocab_size="", vocab_sizes="include_tokenizer = true", sample="sample = 60")
+    config = write_config(
+        tmp_path / "given.toml",
+        shakespeare_small,
+        model=f'path = "{small_wordpiece}"',
+        vocab_size="",
+        vocab_sizes="include_tokenizer = true",
+        sample="sample = 60",
+    )
     a, b = tmp_path / "a", tmp_path / "b"
     assert run(config, a).exit_code == 0
     assert run(config, b, "--force").exit_code == 0
     assert "tokenizer" not in statuses(a)
-    for rel in ("mask/pmi/_maskprep/manifest.json", "mask/token/_maskprep/stats.json", "units/units.tsv",
-                "mask/pmi/shard-00000-00-0000.arrow", "counts/ngrams-3.parquet", "audit/audit.json"):
+    for rel in (
+        "mask/pmi/_maskprep/manifest.json",
+        "mask/token/_maskprep/stats.json",
+        "units/units.tsv",
+        "mask/pmi/shard-00000-00-0000.arrow",
+        "counts/ngrams-3.parquet",
+        "audit/audit.json",
+    ):
         assert (a / rel).read_bytes() == (b / rel).read_bytes(), rel
-    figures = [json.loads((d / "compare" / "compare.json").read_text())["strategies"] for d in (a, b)]
+    figures = [
+        json.loads((d / "compare" / "compare.json").read_text())["strategies"] for d in (a, b)
+    ]
     assert figures[0] == figures[1]
 
 
@@ -171,22 +207,43 @@ def test_a_directory_that_is_not_a_run_is_refused(tmp_path, first_run):
     assert (out / "notes.txt").read_text() == "keep me"
 
 
-@pytest.mark.parametrize("changes,message", [
-    ({"rate": "rate = 1.5"}, "line 22: [mask] rate: 1.5: must be a number strictly between 0 and 1"),
-    ({"rate": "rat = 0.15"}, "line 22: [mask] rat: unknown key; [mask] takes strategies, rate"),
-    ({"top": "top = \"many\""}, "line 18: [units] top: must be a whole number, got 'many'"),
-    ({"top": "top = 2000\nedge_words = -1"}, "line 19: [units] edge_words: -1: must be 0 (no filter) or more"),
-    ({"top": "top = 2000\nfragment_share = 1.5"},
-     "line 19: [units] fragment_share: 1.5: must be in [0, 1] (0: keep fragments)"),
-    ({"max_n": "max_n = 99"}, "line 13: [count] max_n: 99: expected 1 to 8"),
-    ({"strategies": "strategies = [\"token\", \"bert\"]"},
-     "line 21: [mask] strategies: ['token', 'bert']: 'bert' is not a strategy"),
-    ({"sample": "sample = -3"}, "line 27: [compare] sample: -3: must be a whole number of sequences >= 1"),
-    ({"vocab_size": "vocab_size = 10"}, "line 7: [tokenizer] vocab_size: 10: 10 is too small"),
-    ({"vocab_sizes": "vocab_sizes = 500"}, "line 10: [audit] vocab_sizes: must be a list, got 500"),
-    ({"seed": "seed = true"}, "line 24: [mask] seed: must be a whole number, got true"),
-])
-def test_bad_keys_and_values_name_the_key_and_its_line(tmp_path, shakespeare_small, changes, message):
+@pytest.mark.parametrize(
+    "changes,message",
+    [
+        (
+            {"rate": "rate = 1.5"},
+            "line 22: [mask] rate: 1.5: must be a number strictly between 0 and 1",
+        ),
+        ({"rate": "rat = 0.15"}, "line 22: [mask] rat: unknown key; [mask] takes strategies, rate"),
+        ({"top": 'top = "many"'}, "line 18: [units] top: must be a whole number, got 'many'"),
+        (
+            {"top": "top = 2000\nedge_words = -1"},
+            "line 19: [units] edge_words: -1: must be 0 (no filter) or more",
+        ),
+        (
+            {"top": "top = 2000\nfragment_share = 1.5"},
+            "line 19: [units] fragment_share: 1.5: must be in [0, 1] (0: keep fragments)",
+        ),
+        ({"max_n": "max_n = 99"}, "line 13: [count] max_n: 99: expected 1 to 8"),
+        (
+            {"strategies": 'strategies = ["token", "bert"]'},
+            "line 21: [mask] strategies: ['token', 'bert']: 'bert' is not a strategy",
+        ),
+        (
+            {"sample": "sample = -3"},
+            "line 27: [compare] sample: -3: must be a whole number of sequences >= 1",
+        ),
+        ({"vocab_size": "vocab_size = 10"}, "line 7: [tokenizer] vocab_size: 10: 10 is too small"),
+        (
+            {"vocab_sizes": "vocab_sizes = 500"},
+            "line 10: [audit] vocab_sizes: must be a list, got 500",
+        ),
+        ({"seed": "seed = true"}, "line 24: [mask] seed: must be a whole number, got true"),
+    ],
+)
+def test_bad_keys_and_values_name_the_key_and_its_line(
+    tmp_path, shakespeare_small, changes, message
+):
     config = write_config(tmp_path / "bad.toml", shakespeare_small, **changes)
     r = run(config, tmp_path / "out")
     assert r.exit_code == 1, r.output
@@ -203,12 +260,16 @@ def test_structural_errors(tmp_path, shakespeare_small):
     with pytest.raises(MaskprepError, match=r"a.toml, line 4: masks: unknown key or table"):
         load_run_config(bad)
     bad.write_text(f'[corpus]\npaths = ["{shakespeare_small}"]\n[mask]\nstrategies = ["pmi"]\n')
-    with pytest.raises(MaskprepError, match=r"line 4: \[mask\] strategies: pmi needs a unit vocabulary"):
+    with pytest.raises(
+        MaskprepError, match=r"line 4: \[mask\] strategies: pmi needs a unit vocabulary"
+    ):
         load_run_config(bad)
     bad.write_text('[corpus]\npaths = ["missing.txt"]\n')
     with pytest.raises(MaskprepError, match=r"line 2: \[corpus\] paths: .*missing.txt"):
         load_run_config(bad)
-    bad.write_text(f'[corpus]\npaths = ["{shakespeare_small}"]\n[tokenizer]\npath = "t.json"\nmodel = "bpe"\n')
+    bad.write_text(
+        f'[corpus]\npaths = ["{shakespeare_small}"]\n[tokenizer]\npath = "t.json"\nmodel = "bpe"\n'
+    )
     with pytest.raises(MaskprepError, match=r"line 5: \[tokenizer\] model: give either path"):
         load_run_config(bad)
     bad.write_text(f'[corpus]\npaths = ["{shakespeare_small}"]\n')

@@ -12,10 +12,28 @@ import pytest
 from maskprep.progress import Progress
 
 
-def _count(corpus: Path, tokenizer: Path, out: Path, *global_options: str) -> subprocess.CompletedProcess[str]:
+def _count(
+    corpus: Path, tokenizer: Path, out: Path, *global_options: str
+) -> subprocess.CompletedProcess[str]:
     # A real process, so stdout and stderr are the streams a shell pipe or a log file would get.
-    cmd = [sys.executable, "-m", "maskprep", *global_options, "--workers", "1", "count", str(corpus),
-           "-t", str(tokenizer), "-o", str(out), "--max-n", "2", "--min-count", "2"]
+    cmd = [
+        sys.executable,
+        "-m",
+        "maskprep",
+        *global_options,
+        "--workers",
+        "1",
+        "count",
+        str(corpus),
+        "-t",
+        str(tokenizer),
+        "-o",
+        str(out),
+        "--max-n",
+        "2",
+        "--min-count",
+        "2",
+    ]
     return subprocess.run(cmd, capture_output=True, text=True, timeout=300, check=False)
 
 
@@ -35,7 +53,10 @@ def test_count_reports_progress_on_stderr_and_quiet_silences_it(
     assert quiet.returncode == 0, quiet.stderr
     assert quiet.stderr == ""
     def same(text: str) -> str:  # the summary shows the elapsed seconds and the output path
-        return re.sub(r"[0-9.]+s\)", "s)", text).replace(str(tmp_path / "loud"), str(tmp_path / "quiet"))
+        return re.sub(r"[0-9.]+s\)", "s)", text).replace(
+            str(tmp_path / "loud"), str(tmp_path / "quiet")
+        )
+
     assert same(quiet.stdout) == same(loud.stdout)
 
 

@@ -142,8 +142,12 @@ def test_small_charts_wrap_titles_and_named_bars_drop_the_legend() -> None:
 
 
 def test_line_chart_none_is_a_gap_not_zero() -> None:
-    svg = charts.line_chart(title="t", x_labels=["a", "b", "c", "d", "e"], y_label="y",
-                            series={"s": [2.0, 3.0, None, 4.0, 5.0], "nan": [2.0, float("nan"), 3.0, 3.0, 3.0]})
+    svg = charts.line_chart(
+        title="t",
+        x_labels=["a", "b", "c", "d", "e"],
+        y_label="y",
+        series={"s": [2.0, 3.0, None, 4.0, 5.0], "nan": [2.0, float("nan"), 3.0, 3.0, 3.0]},
+    )
     root = parse(svg)
     first, second = series_groups(root)
     verts = path_vertices(next(p for p in first.iter("path")).get("d", ""))
@@ -154,13 +158,18 @@ def test_line_chart_none_is_a_gap_not_zero() -> None:
     ticks = [float(t.text) for t in root.iter("text") if t.get("text-anchor") == "end" and t.text
              and re.fullmatch(r"[\d.]+", t.text)]
     assert min(ticks) == 2.0
-    bottom = max(float(line.get("y1", 0)) for line in root.iter("line") if line.get("stroke-opacity") == "0.5")
+    bottom = max(
+        float(line.get("y1", 0))
+        for line in root.iter("line")
+        if line.get("stroke-opacity") == "0.5"
+    )
     assert all(y <= bottom + 0.05 for _, _, y in verts)
     assert len([g for g in first.iter("g") if g.get("class") == "point"]) == 4
     tips = [t.text for g in first.iter("g") if g.get("class") == "point" for t in g.iter("title")]
     assert not any(": 0" in (t or "") for t in tips)
-    assert [cmd for cmd, _, _ in path_vertices(next(p for p in second.iter("path")).get("d", ""))] == \
-        ["M", "M", "L", "L"]  # NaN is a gap too; a lone point has no segment
+    assert [
+        cmd for cmd, _, _ in path_vertices(next(p for p in second.iter("path")).get("d", ""))
+    ] == ["M", "M", "L", "L"]  # NaN is a gap too; a lone point has no segment
 
 
 def test_line_chart_y_min_sets_axis_bottom() -> None:
@@ -186,9 +195,16 @@ def test_bar_chart_has_one_group_per_series_with_labelled_bars() -> None:
 
 
 def test_one_measure_chart_names_each_bar_under_it() -> None:
-    root = parse(charts.bar_chart(title="Within-word leakage", categories=["Within-word leakage"],
-                                  series={"token": [0.16], "word": [0.0], "span": [0.0]}, y_label="share",
-                                  percent=True, name_bars=True))
+    root = parse(
+        charts.bar_chart(
+            title="Within-word leakage",
+            categories=["Within-word leakage"],
+            series={"token": [0.16], "word": [0.0], "span": [0.0]},
+            y_label="share",
+            percent=True,
+            name_bars=True,
+        )
+    )
     bars = [r for r in root.iter("rect") if r.get("class") == "bar"]
     centres = [float(r.get("x", 0)) + float(r.get("width", 0)) / 2 for r in bars]
     bottom = max(float(r.get("y", 0)) + float(r.get("height", 0)) for r in bars)
@@ -197,11 +213,15 @@ def test_one_measure_chart_names_each_bar_under_it() -> None:
     assert list(under) == ["token", "word", "span"]
     assert [under[n] for n in under] == pytest.approx(centres, abs=0.2)
     # the category label is not repeated under the bars
-    assert not any(t.text == "Within-word leakage" and float(t.get("y", 0)) > bottom for t in root.iter("text"))
+    assert not any(
+        t.text == "Within-word leakage" and float(t.get("y", 0)) > bottom for t in root.iter("text")
+    )
 
 
 def test_bar_heights_are_proportional_and_start_at_zero() -> None:
-    root = parse(charts.bar_chart(title="t", categories=["a", "b"], series={"s": [10.0, 40.0]}, y_label="n"))
+    root = parse(
+        charts.bar_chart(title="t", categories=["a", "b"], series={"s": [10.0, 40.0]}, y_label="n")
+    )
     a, b = [r for r in root.iter("rect") if r.get("class") == "bar"]
     assert float(b.get("height", 0)) == pytest.approx(4 * float(a.get("height", 0)), rel=0.01)
     bottom_a = float(a.get("y", 0)) + float(a.get("height", 0))
@@ -210,22 +230,35 @@ def test_bar_heights_are_proportional_and_start_at_zero() -> None:
 
 
 def test_negative_bars_hang_below_zero() -> None:
-    root = parse(charts.bar_chart(title="t", categories=["a", "b"], series={"s": [-5.0, 5.0]}, y_label="n"))
+    root = parse(
+        charts.bar_chart(title="t", categories=["a", "b"], series={"s": [-5.0, 5.0]}, y_label="n")
+    )
     neg, pos = [r for r in root.iter("rect") if r.get("class") == "bar"]
-    assert float(neg.get("y", 0)) == pytest.approx(float(pos.get("y", 0)) + float(pos.get("height", 0)), abs=0.11)
+    assert float(neg.get("y", 0)) == pytest.approx(
+        float(pos.get("y", 0)) + float(pos.get("height", 0)), abs=0.11
+    )
 
 
 def test_histogram_groups_and_normalisation() -> None:
     root = parse(sample_histogram())
     assert len(series_groups(root)) == 2
     assert all(len(list(g.iter("rect"))) == 4 for g in series_groups(root))
-    shares = parse(charts.histogram_chart(title="t", bins=["1", "2"], series={"a": [3, 1], "b": [10, 30]},
-                                          y_label="share", normalize=True))
+    shares = parse(
+        charts.histogram_chart(
+            title="t",
+            bins=["1", "2"],
+            series={"a": [3, 1], "b": [10, 30]},
+            y_label="share",
+            normalize=True,
+        )
+    )
     tips = [t.text for t in shares.iter("title") if t.text and " \u2014 " in t.text]
     assert tips == ["a \u2014 1: 0.75 (75.00%)", "a \u2014 2: 0.25 (25.00%)",
                     "b \u2014 1: 0.25 (25.00%)", "b \u2014 2: 0.75 (75.00%)"]
     with pytest.raises(ValueError, match="negative"):
-        charts.histogram_chart(title="t", bins=["1"], series={"a": [-1]}, y_label="n", normalize=True)
+        charts.histogram_chart(
+            title="t", bins=["1"], series={"a": [-1]}, y_label="n", normalize=True
+        )
 
 
 def test_tick_labels_are_round_readable_numbers() -> None:
@@ -253,14 +286,18 @@ def test_mismatched_lengths_and_non_numbers_raise() -> None:
 
 
 def test_empty_data_still_renders_valid_svg() -> None:
-    root = parse(charts.line_chart(title="nothing", x_labels=["a"], series={"s": [None]}, y_label="y"))
+    root = parse(
+        charts.line_chart(title="nothing", x_labels=["a"], series={"s": [None]}, y_label="y")
+    )
     assert "no data" in all_text(root)[0]
     parse(charts.bar_chart(title="nothing", categories=[], series={}, y_label="y"))
 
 
 def test_long_labels_are_clipped_with_full_text_in_tooltip() -> None:
     long = "a very long category label " * 6
-    root = parse(charts.bar_chart(title="t", categories=[long, "b"], series={"s": [1.0, 2.0]}, y_label="y"))
+    root = parse(
+        charts.bar_chart(title="t", categories=[long, "b"], series={"s": [1.0, 2.0]}, y_label="y")
+    )
     label = next(t for t in root.iter("text") if any(x.text == long for x in t.iter("title")))
     assert "".join(label.itertext()).endswith("\u2026")
 
@@ -271,10 +308,15 @@ def every_output() -> dict[str, str]:
     seq = report.highlighted_sequence([EVIL, "[MASK]", "b"], masked=[False, True, False],
                                       unit_ids=[0, 1, 2], originals=[EVIL, EVIL, "b"])
     outputs = {
-        "line": charts.line_chart(title=EVIL, x_labels=[EVIL, "b"], series={EVIL: [1.0, 2.0]},
-                                  y_label=EVIL, x_label=EVIL),
-        "bar": charts.bar_chart(title=EVIL, categories=[EVIL], series={EVIL: [1.0]}, y_label=EVIL, x_label=EVIL),
-        "histogram": charts.histogram_chart(title=EVIL, bins=[EVIL], series={EVIL: [3.0]}, y_label=EVIL),
+        "line": charts.line_chart(
+            title=EVIL, x_labels=[EVIL, "b"], series={EVIL: [1.0, 2.0]}, y_label=EVIL, x_label=EVIL
+        ),
+        "bar": charts.bar_chart(
+            title=EVIL, categories=[EVIL], series={EVIL: [1.0]}, y_label=EVIL, x_label=EVIL
+        ),
+        "histogram": charts.histogram_chart(
+            title=EVIL, bins=[EVIL], series={EVIL: [3.0]}, y_label=EVIL
+        ),
         "table": report.table(headers=[EVIL, "n"], rows=[[EVIL, 1.5]], caption=EVIL),
         "sequence": seq,
         "paragraph": report.paragraph(EVIL),
@@ -284,13 +326,17 @@ def every_output() -> dict[str, str]:
     return outputs
 
 
-@pytest.mark.parametrize("name", ["line", "bar", "histogram", "table", "sequence", "paragraph", "page"])
+@pytest.mark.parametrize(
+    "name", ["line", "bar", "histogram", "table", "sequence", "paragraph", "page"]
+)
 def test_markup_in_inputs_is_escaped(name: str) -> None:
     out = every_output()[name]
     assert "<script" not in out
     assert "alert(1)</script>" not in out
     assert '"quoted"' not in out
-    assert "&lt;script&gt;alert(1)&lt;/script&gt; &amp; &quot;quoted&quot; &#x27;single&#x27;" in out
+    assert (
+        "&lt;script&gt;alert(1)&lt;/script&gt; &amp; &quot;quoted&quot; &#x27;single&#x27;" in out
+    )
 
 
 @pytest.mark.parametrize("name", ["line", "bar", "histogram", "table", "sequence", "paragraph"])
@@ -323,7 +369,17 @@ class _Collector(HTMLParser):
 def test_page_is_self_contained() -> None:
     html = every_output()["page"]
     assert html.startswith("<!DOCTYPE html>")
-    for needle in ("http://", "https://", "//", "<script", "url(", "@import", "<link", "<img", "<iframe"):
+    for needle in (
+        "http://",
+        "https://",
+        "//",
+        "<script",
+        "url(",
+        "@import",
+        "<link",
+        "<img",
+        "<iframe",
+    ):
         assert needle not in html, needle
     collector = _Collector()
     collector.feed(html)
@@ -348,13 +404,26 @@ def test_page_headings_notes_and_contents() -> None:
 # --- table ---------------------------------------------------------------------------------
 
 def test_table_formats_numbers_as_asked() -> None:
-    out = report.table(headers=["name", "count", "rate", "score", "flag", "missing"],
-                       rows=[["a", 1234567, 0.1534, 3.14159, True, None], ["b", 12, 0.5, 2.0, False, None]],
-                       numeric_format=".2f", column_formats={"rate": ".1%"})
+    out = report.table(
+        headers=["name", "count", "rate", "score", "flag", "missing"],
+        rows=[["a", 1234567, 0.1534, 3.14159, True, None], ["b", 12, 0.5, 2.0, False, None]],
+        numeric_format=".2f",
+        column_formats={"rate": ".1%"},
+    )
     root = ET.fromstring(out)
-    cells = [["".join(td.itertext()) for td in tr.iter("td")] for tr in root.iter("tr") if list(tr.iter("td"))]
-    assert cells == [["a", "1,234,567", "15.3%", "3.14", "yes", ""], ["b", "12", "50.0%", "2.00", "no", ""]]
-    numeric = [td.get("class") for td in next(tr for tr in root.iter("tr") if list(tr.iter("td"))).iter("td")]
+    cells = [
+        ["".join(td.itertext()) for td in tr.iter("td")]
+        for tr in root.iter("tr")
+        if list(tr.iter("td"))
+    ]
+    assert cells == [
+        ["a", "1,234,567", "15.3%", "3.14", "yes", ""],
+        ["b", "12", "50.0%", "2.00", "no", ""],
+    ]
+    numeric = [
+        td.get("class")
+        for td in next(tr for tr in root.iter("tr") if list(tr.iter("td"))).iter("td")
+    ]
     assert numeric == ["name", "num", "num", "num", None, None]  # the row's name never wraps
     heads = [th.get("class") for th in root.iter("th")]
     assert heads == [None, "num", "num", "num", None, None]
@@ -376,7 +445,9 @@ def test_definitions_and_grid_are_escaped_markup() -> None:
 
 def test_table_formats_numpy_numbers() -> None:
     np = pytest.importorskip("numpy")
-    out = report.table(headers=["n", "x"], rows=[[np.int64(5000), np.float32(0.25)]], numeric_format=".3f")
+    out = report.table(
+        headers=["n", "x"], rows=[[np.int64(5000), np.float32(0.25)]], numeric_format=".3f"
+    )
     assert ">5,000<" in out and ">0.250<" in out
 
 
@@ -444,15 +515,20 @@ def test_crowded_x_labels_turn_stay_inside_and_thin_out() -> None:
     import math
 
     labels = [f"category number {i} with a long label" for i in range(12)]
-    root = parse(charts.bar_chart(title="t", categories=labels, series={"s": [1.0] * 12}, y_label="y"))
+    root = parse(
+        charts.bar_chart(title="t", categories=labels, series={"s": [1.0] * 12}, y_label="y")
+    )
     turned = [t for t in root.iter("text") if "rotate(-40" in t.get("transform", "")]
     assert len(turned) == 12
     for t in turned:
         shown = "".join(x for x in t.itertext() if x not in labels)  # drop tooltip text
         assert float(t.get("x", 0)) - charts._text_w(shown, 11) * math.cos(math.radians(40)) >= 0
     many = [f"label {i}" for i in range(120)]
-    root = parse(charts.line_chart(title="t", x_labels=many, series={"s": [float(i) for i in range(120)]},
-                                   y_label="y"))
+    root = parse(
+        charts.line_chart(
+            title="t", x_labels=many, series={"s": [float(i) for i in range(120)]}, y_label="y"
+        )
+    )
     drawn = [t.text for t in root.iter("text") if t.text in set(many)]
     assert 10 <= len(drawn) < 120 and drawn[0] == "label 0"
     height = float(root.get("height", 0))

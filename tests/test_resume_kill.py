@@ -59,13 +59,17 @@ def _safely(ready: Callable[[], bool]) -> bool:
 
 def kill_when(args: list[str], ready: Callable[[], bool], *, what: str) -> None:
     """Start the command, SIGKILL it as soon as `ready()`; the kill must land before the run ends."""
-    proc = subprocess.Popen(command(*args), cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    proc = subprocess.Popen(
+        command(*args), cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE
+    )
     try:
         deadline = time.monotonic() + TIMEOUT
         while not _safely(ready):
             if proc.poll() is not None:
-                pytest.fail(f"the run ended (status {proc.returncode}) before the kill point: {what}; "
-                            f"stderr: {proc.stderr.read().decode()[-2000:]}")
+                pytest.fail(
+                    f"the run ended (status {proc.returncode}) before the kill point: {what}; "
+                    f"stderr: {proc.stderr.read().decode()[-2000:]}"
+                )
             if time.monotonic() > deadline:
                 pytest.fail(f"kill point never reached: {what}")
             time.sleep(0.005)
@@ -87,7 +91,11 @@ def all_files(d: Path) -> dict[str, bytes]:
 
 
 def temp_files(d: Path) -> list[str]:
-    return sorted(str(p.relative_to(d)) for p in d.rglob("*") if p.name.endswith(".tmp") or p.name.startswith(".spill-"))
+    return sorted(
+        str(p.relative_to(d))
+        for p in d.rglob("*")
+        if p.name.endswith(".tmp") or p.name.startswith(".spill-")
+    )
 
 
 def done_records(out: Path) -> int:
@@ -120,8 +128,13 @@ def test_mask_killed_three_times_then_resumed_equals_an_uninterrupted_run(tmp_pa
               what=f"{tasks - 2} tasks done and a shard being written")
     assert not any((out / f).exists() for f in finished)
     # resuming with other options is refused and says what differs
-    refused = subprocess.run(command("mask", *args, "-o", str(out), "--resume", "--seed", "1"), cwd=ROOT,
-                             capture_output=True, text=True, timeout=TIMEOUT)
+    refused = subprocess.run(
+        command("mask", *args, "-o", str(out), "--resume", "--seed", "1"),
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=TIMEOUT,
+    )
     assert refused.returncode == 1 and "seed: 0 before, 1 now" in refused.stderr
     # the last resume finishes the run
     run_to_end(["mask", *args, "-o", str(out), "--resume"])
@@ -136,7 +149,17 @@ def count_records(out: Path) -> dict[str, int]:
 @pytest.mark.slow
 def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_uninterrupted_run(
         tmp_path, plays_in_files, small_wordpiece):
-    args = [*plays_in_files, "-t", str(small_wordpiece), "--max-n", "5", "--min-count", "1", "--memory", "64MiB"]
+    args = [
+        *plays_in_files,
+        "-t",
+        str(small_wordpiece),
+        "--max-n",
+        "5",
+        "--min-count",
+        "1",
+        "--memory",
+        "64MiB",
+    ]
     ref, out = tmp_path / "ref", tmp_path / "out"
     run_to_end(["count", *args, "-o", str(ref)])
     state = out / ".maskprep-count"
@@ -146,25 +169,42 @@ def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_
         return not any((out / f).exists() for f in finished)
 
     # 1: while counting, with two tasks recorded
-    kill_when(["count", *args, "-o", str(out)], lambda: len(count_records(out)) >= 2, what="2 tasks counted")
+    kill_when(
+        ["count", *args, "-o", str(out)],
+        lambda: len(count_records(out)) >= 2,
+        what="2 tasks counted",
+    )
     assert nothing_finished()
     early = count_records(out)
     assert 2 <= len(early) < len(plays_in_files)
     # 2: while merging the runs (merged key ranges being written)
-    kill_when(["count", *args, "-o", str(out), "--resume"], lambda: any(state.glob("merge-*/kept-*")),
-              what="merge phase")
+    kill_when(
+        ["count", *args, "-o", str(out), "--resume"],
+        lambda: any(state.glob("merge-*/kept-*")),
+        what="merge phase",
+    )
     assert nothing_finished()
     records = count_records(out)
     assert len(records) == len(plays_in_files)
-    assert all(records[name] == mtime for name, mtime in early.items())  # recorded tasks were not counted again
+    assert all(
+        records[name] == mtime for name, mtime in early.items()
+    )  # recorded tasks were not counted again
     # 3: while writing the Parquet files
-    kill_when(["count", *args, "-o", str(out), "--resume"], lambda: any(state.glob("merge-*/ngrams-*.parquet")),
-              what="write phase")
+    kill_when(
+        ["count", *args, "-o", str(out), "--resume"],
+        lambda: any(state.glob("merge-*/ngrams-*.parquet")),
+        what="write phase",
+    )
     assert nothing_finished()
     assert count_records(out) == records
     # other options are refused, naming the difference
-    refused = subprocess.run(command("count", *args, "-o", str(out), "--resume", "--max-n", "4"), cwd=ROOT,
-                             capture_output=True, text=True, timeout=TIMEOUT)
+    refused = subprocess.run(
+        command("count", *args, "-o", str(out), "--resume", "--max-n", "4"),
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=TIMEOUT,
+    )
     assert refused.returncode == 1 and "--max-n: 5 before, 4 now" in refused.stderr
     run_to_end(["count", *args, "-o", str(out), "--resume"])
     assert not state.exists() and temp_files(out) == []
@@ -175,6 +215,7 @@ def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_
 
 
 # ---------------------------------------------------------------- quick: what count --resume accepts and refuses
+
 
 @pytest.fixture(scope="module")
 def small_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
@@ -188,7 +229,9 @@ def small_files(tmp_path_factory, shakespeare_small: Path) -> list[str]:
     return paths
 
 
-def interrupted_count(out: Path, files: list[str], tokenizer: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+def interrupted_count(
+    out: Path, files: list[str], tokenizer: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
     """A count whose second task fails (in this process): task 0 recorded, nothing finished."""
     import maskprep.count.resume as count_state
     from maskprep.errors import MaskprepError
@@ -204,10 +247,18 @@ def interrupted_count(out: Path, files: list[str], tokenizer: Path, monkeypatch:
 
     monkeypatch.setattr(count_state, "count_recorded", second_fails)
     with pytest.raises(MaskprepError, match="simulated failure"):
-        count_ngrams(files, tokenizer=str(tokenizer), output=out, config=CountConfig(max_n=3, min_count=2),
-                     executor=Executor(workers=1, quiet=True))
+        count_ngrams(
+            files,
+            tokenizer=str(tokenizer),
+            output=out,
+            config=CountConfig(max_n=3, min_count=2),
+            executor=Executor(workers=1, quiet=True),
+        )
     monkeypatch.setattr(count_state, "count_recorded", real)
-    assert not (out / "counts.json").exists() and (out / ".maskprep-count" / "task-000000.json").is_file()
+    assert (
+        not (out / "counts.json").exists()
+        and (out / ".maskprep-count" / "task-000000.json").is_file()
+    )
 
 
 def count_cli(*args: str) -> tuple[int, str]:
@@ -219,13 +270,26 @@ def count_cli(*args: str) -> tuple[int, str]:
     return r.exit_code, r.output
 
 
-def test_count_resume_refuses_other_options_and_inputs_and_names_them(tmp_path, small_files, small_wordpiece,
-                                                                      monkeypatch):
+def test_count_resume_refuses_other_options_and_inputs_and_names_them(
+    tmp_path, small_files, small_wordpiece, monkeypatch
+):
     out = tmp_path / "out"
     interrupted_count(out, small_files, small_wordpiece, monkeypatch)
-    base = [*small_files, "-t", str(small_wordpiece), "-o", str(out), "--max-n", "3", "--min-count", "2"]
+    base = [
+        *small_files,
+        "-t",
+        str(small_wordpiece),
+        "-o",
+        str(out),
+        "--max-n",
+        "3",
+        "--min-count",
+        "2",
+    ]
     code, text = count_cli(*base, "--resume", "--max-n", "4", "--min-count", "5")
-    assert code == 1 and "--max-n: 3 before, 4 now" in text and "--min-count: 2 before, 5 now" in text
+    assert (
+        code == 1 and "--max-n: 3 before, 4 now" in text and "--min-count: 2 before, 5 now" in text
+    )
     code, text = count_cli(*base, "--resume", "--doc-sep", "blank")
     assert code == 1 and "--doc-sep: \"line\" before, \"blank\" now" in text
     code, text = count_cli(*base)
@@ -238,7 +302,9 @@ def test_count_resume_refuses_other_options_and_inputs_and_names_them(tmp_path, 
         (changed / Path(f).name).write_bytes(Path(f).read_bytes())
     with open(changed / "part2.txt", "a", encoding="utf-8") as fh:
         fh.write("One more line the first run never saw.\n")
-    code, text = count_cli(*[str(changed / Path(f).name) for f in small_files], *base[len(small_files):], "--resume")
+    code, text = count_cli(
+        *[str(changed / Path(f).name) for f in small_files], *base[len(small_files) :], "--resume"
+    )
     assert code == 1 and "corpus (file names, sizes and contents) changed" in text
     # --memory and --workers may change between attempts
     code, text = count_cli(*base, "--resume", "--memory", "32MiB")
@@ -254,7 +320,9 @@ def test_count_resume_refuses_other_options_and_inputs_and_names_them(tmp_path, 
     assert code == 1 and "--min-count: 2 before, 3 now" in text
 
 
-def test_count_resume_redoes_a_task_whose_runs_were_damaged(tmp_path, small_files, small_wordpiece, monkeypatch):
+def test_count_resume_redoes_a_task_whose_runs_were_damaged(
+    tmp_path, small_files, small_wordpiece, monkeypatch
+):
     out = tmp_path / "out"
     interrupted_count(out, small_files, small_wordpiece, monkeypatch)
     record = out / ".maskprep-count" / "task-000000.json"
@@ -269,7 +337,9 @@ def test_count_resume_redoes_a_task_whose_runs_were_damaged(tmp_path, small_file
     import maskprep.count.resume as count_state
 
     real = count_state.count_recorded
-    monkeypatch.setattr(count_state, "count_recorded", lambda task, *a: seen.append(task.index) or real(task, *a))
+    monkeypatch.setattr(
+        count_state, "count_recorded", lambda task, *a: seen.append(task.index) or real(task, *a)
+    )
     code, text = count_cli(*small_files, "-t", str(small_wordpiece), "-o", str(out), "--max-n", "3",
                            "--min-count", "2", "--resume")
     assert code == 0, text
@@ -284,7 +354,9 @@ def test_count_resume_on_a_new_or_foreign_directory(tmp_path, small_files, small
     args = [*small_files, "-t", str(small_wordpiece), "--max-n", "2", "--min-count", "2"]
     code, text = count_cli(*args, "-o", str(tmp_path / "new"), "--resume")
     assert code == 0, text  # nothing to resume: the count simply starts
-    assert (tmp_path / "new" / "counts.json").is_file() and not (tmp_path / "new" / ".maskprep-count").exists()
+    assert (tmp_path / "new" / "counts.json").is_file() and not (
+        tmp_path / "new" / ".maskprep-count"
+    ).exists()
     foreign = tmp_path / "foreign"
     foreign.mkdir()
     (foreign / "notes.txt").write_text("mine")

@@ -112,7 +112,9 @@ def test_bad_document_count_is_refused(tmp_path: Path) -> None:
 
 # --- committed files ----------------------------------------------------------
 
-def test_committed_jsonl_parses_with_text_id_and_date(committed: tuple[list[dict], list[str]]) -> None:
+def test_committed_jsonl_parses_with_text_id_and_date(
+    committed: tuple[list[dict], list[str]],
+) -> None:
     records, _ = committed
     assert records
     ids = set()
@@ -124,7 +126,9 @@ def test_committed_jsonl_parses_with_text_id_and_date(committed: tuple[list[dict
     assert len(ids) == len(records), "ids must be unique"
 
 
-def test_committed_logbooks_have_one_document_per_line(committed: tuple[list[dict], list[str]]) -> None:
+def test_committed_logbooks_have_one_document_per_line(
+    committed: tuple[list[dict], list[str]],
+) -> None:
     _, lines = committed
     assert lines
     assert all(line.strip() and "\r" not in line for line in lines)
@@ -184,7 +188,9 @@ def test_planted_terms_table_matches_a_recount(joined: tuple[str, list[int]]) ->
         term = row["term"]
         assert int(row["words"]) == len(term.split())
         lengths[int(row["words"])] += 1
-        assert (int(row["documents_with_term"]), int(row["occurrences"])) == _recount(joined, term), term
+        assert (int(row["documents_with_term"]), int(row["occurrences"])) == _recount(
+            joined, term
+        ), term
     assert min(lengths) == 2 and max(lengths) == 5
 
 

@@ -49,28 +49,56 @@ def units_file(tmp_path_factory, info, three_files) -> Path:
     from maskprep.units.files import write_units
     from maskprep.units.select import UnitVocabulary
 
-    batch = info.encode([ln for f in three_files for ln in Path(f).read_text(encoding="utf-8").splitlines()])
+    batch = info.encode(
+        [ln for f in three_files for ln in Path(f).read_text(encoding="utf-8").splitlines()]
+    )
     keys, kinds = batch.word_keys, batch.word_kinds
     ok = (kinds[:-1] == WORD) & (kinds[1:] == WORD)
     pairs = np.stack([keys[:-1][ok], keys[1:][ok]], axis=1)
     uniq, counts = np.unique(pairs, axis=0, return_counts=True)
     top = np.argsort(-counts, kind="stable")[:300]
     vocab = UnitVocabulary(
-        text=tuple(f"pair{i}" for i in range(len(top))), n=np.full(len(top), 2, np.int64),
-        count=counts[top].astype(np.int64), score=np.log(counts[top]).astype(np.float64) + 1.0,
-        token_ids=tuple(np.zeros(1, np.int32) for _ in top), word_keys=tuple(uniq[i].astype(np.uint64) for i in top),
-        measure=Measure.PMI, tokenizer_hash=info.hash)
+        text=tuple(f"pair{i}" for i in range(len(top))),
+        n=np.full(len(top), 2, np.int64),
+        count=counts[top].astype(np.int64),
+        score=np.log(counts[top]).astype(np.float64) + 1.0,
+        token_ids=tuple(np.zeros(1, np.int32) for _ in top),
+        word_keys=tuple(uniq[i].astype(np.uint64) for i in top),
+        measure=Measure.PMI,
+        tokenizer_hash=info.hash,
+    )
     path = tmp_path_factory.mktemp("units") / "units.parquet"
     write_units(vocab, path)
     return path
 
 
-def run(out, files, info, *, strategy="token", copies=1, dynamic=False, fmt="arrow", shard_rows=16384, units=None,
-        seed=0, **kw):
-    return write_shards(files, tokenizer=info, output=out, masking=MaskingConfig(strategy=strategy),
-                        packing=PackingConfig(seq_len=64),
-                        shards=ShardConfig(format=fmt, shard_rows=shard_rows, copies=copies, seed=seed,
-                                           dynamic=dynamic), units=units, executor=QUIET, **kw)
+def run(
+    out,
+    files,
+    info,
+    *,
+    strategy="token",
+    copies=1,
+    dynamic=False,
+    fmt="arrow",
+    shard_rows=16384,
+    units=None,
+    seed=0,
+    **kw,
+):
+    return write_shards(
+        files,
+        tokenizer=info,
+        output=out,
+        masking=MaskingConfig(strategy=strategy),
+        packing=PackingConfig(seq_len=64),
+        shards=ShardConfig(
+            format=fmt, shard_rows=shard_rows, copies=copies, seed=seed, dynamic=dynamic
+        ),
+        units=units,
+        executor=QUIET,
+        **kw,
+    )
 
 
 def all_rows(directory):
@@ -81,8 +109,11 @@ def all_rows(directory):
 
 def files_of(directory: Path) -> dict[str, bytes]:
     """Every file but the resume state (.maskprep/), by path relative to `directory`."""
-    return {p.relative_to(directory).as_posix(): p.read_bytes() for p in sorted(directory.rglob("*"))
-            if p.is_file() and not p.relative_to(directory).as_posix().startswith(".maskprep/")}
+    return {
+        p.relative_to(directory).as_posix(): p.read_bytes()
+        for p in sorted(directory.rglob("*"))
+        if p.is_file() and not p.relative_to(directory).as_posix().startswith(".maskprep/")
+    }
 
 
 def test_rows_equal_packer_and_sampler_run_directly(tmp_path, info, three_files):
@@ -92,11 +123,28 @@ def test_rows_equal_packer_and_sampler_run_directly(tmp_path, info, three_files)
     config = MaskingConfig()
     for task in plan_tasks(resolve_inputs(three_files)):
         batches = [info.encode(b) for b in iter_batches(task)]
-        for p in pack_batches(info, batches, config=PackingConfig(seq_len=64), task_index=task.index):
+        for p in pack_batches(
+            info, batches, config=PackingConfig(seq_len=64), task_index=task.index
+        ):
             for c in range(2):
-                units = strategy_units(p.special, p.word_ids, config=config, sequence_ids=p.sequence_ids, seed=0, copy=c)
-                ids, labels = mask_batch(p.input_ids, units, sequence_ids=p.sequence_ids, seed=0, copy=c, config=config,
-                                         mask_token_id=info.mask_id, random_token_ids=info.normal_ids())
+                units = strategy_units(
+                    p.special,
+                    p.word_ids,
+                    config=config,
+                    sequence_ids=p.sequence_ids,
+                    seed=0,
+                    copy=c,
+                )
+                ids, labels = mask_batch(
+                    p.input_ids,
+                    units,
+                    sequence_ids=p.sequence_ids,
+                    seed=0,
+                    copy=c,
+                    config=config,
+                    mask_token_id=info.mask_id,
+                    random_token_ids=info.normal_ids(),
+                )
                 expected[c].append((task.index, ids, labels, p.attention_mask, p.sequence_ids))
     # manifest order: task, copy, part
     order = [(t, c) for t in range(3) for c in range(2)]
@@ -113,11 +161,23 @@ def test_rows_equal_packer_and_sampler_run_directly(tmp_path, info, three_files)
 
 
 @pytest.mark.parametrize("strategy", ["token", "word", "span", "pmi"])
-def test_static_and_dynamic_agree_for_the_same_seed(tmp_path, info, three_files, units_file, strategy):
+def test_static_and_dynamic_agree_for_the_same_seed(
+    tmp_path, info, three_files, units_file, strategy
+):
     units = units_file if strategy == "pmi" else None
-    _, s_stats = run(tmp_path / "static", three_files, info, strategy=strategy, copies=2, seed=11, units=units)
-    _, d_stats = run(tmp_path / "dynamic", three_files, info, strategy=strategy, copies=2, seed=11, units=units,
-                     dynamic=True)
+    _, s_stats = run(
+        tmp_path / "static", three_files, info, strategy=strategy, copies=2, seed=11, units=units
+    )
+    _, d_stats = run(
+        tmp_path / "dynamic",
+        three_files,
+        info,
+        strategy=strategy,
+        copies=2,
+        seed=11,
+        units=units,
+        dynamic=True,
+    )
     static = open_shards(tmp_path / "static")
     dynamic = open_shards(tmp_path / "dynamic")
     assert [s.file for s in static.manifest.shards] == [s.file for s in dynamic.manifest.shards]
@@ -153,8 +213,16 @@ def test_files_manifest_and_schema(tmp_path, info, three_files):
         assert schema.field("labels").type == pa.list_(pa.int32())
         assert schema.field("attention_mask").type == pa.list_(pa.int8())
         meta = json.loads(schema.metadata[b"maskprep"])
-        assert meta["mask_token_id"] == info.mask_id and meta["strategy"] == "token" and meta["rate"] == 0.15
-        assert meta["seed"] == 0 and meta["copies"] == 1 and meta["special_ids"] == info.special_ids.tolist()
+        assert (
+            meta["mask_token_id"] == info.mask_id
+            and meta["strategy"] == "token"
+            and meta["rate"] == 0.15
+        )
+        assert (
+            meta["seed"] == 0
+            and meta["copies"] == 1
+            and meta["special_ids"] == info.special_ids.tolist()
+        )
         assert (path.stat().st_mode & 0o044) == 0o044  # readable by the training job, not private
     assert sum(s.targets for s in manifest.shards) == stats["targets"]
     assert open_shards(tmp_path / "s").dataset().count_rows() == stats["rows"]
@@ -173,7 +241,9 @@ def test_parquet_is_zstd_and_deterministic(tmp_path, info, three_files):
     assert rows["input_ids"].shape[1] == 64
 
 
-def test_resume_after_a_failed_task_equals_an_uninterrupted_run(tmp_path, info, three_files, monkeypatch):
+def test_resume_after_a_failed_task_equals_an_uninterrupted_run(
+    tmp_path, info, three_files, monkeypatch
+):
     run(tmp_path / "ref", three_files, info, strategy="word", copies=2)
     real = loop_mod.mask_batch  # the task loop that mask and compare share
 
@@ -194,7 +264,9 @@ def test_resume_after_a_failed_task_equals_an_uninterrupted_run(tmp_path, info, 
     assert all(n.startswith("shard-00000-") for n in names if n.startswith("shard-"))
     done_before = (out / "shard-00000-00-0000.arrow").stat().st_mtime_ns
     run(out, three_files, info, strategy="word", copies=2, resume=True)
-    assert (out / "shard-00000-00-0000.arrow").stat().st_mtime_ns == done_before  # task 0 was skipped
+    assert (
+        out / "shard-00000-00-0000.arrow"
+    ).stat().st_mtime_ns == done_before  # task 0 was skipped
     assert files_of(out) == files_of(tmp_path / "ref")
     # a damaged shard is redone on resume
     (out / "shard-00002-01-0000.arrow").write_bytes(b"damaged")
@@ -205,7 +277,9 @@ def test_resume_after_a_failed_task_equals_an_uninterrupted_run(tmp_path, info, 
 def test_resume_refuses_other_options_and_output_dir_rules(tmp_path, info, three_files):
     out = tmp_path / "out"
     run(out, three_files, info)
-    with pytest.raises(MaskprepError, match=r"--resume: the options differ .*seed: 0 before, 5 now"):
+    with pytest.raises(
+        MaskprepError, match=r"--resume: the options differ .*seed: 0 before, 5 now"
+    ):
         run(out, three_files, info, seed=5, resume=True)
     with pytest.raises(MaskprepError, match="directory is not empty; pass --overwrite"):
         run(out, three_files, info)
@@ -229,7 +303,11 @@ def test_no_pack_rows_hold_one_document(tmp_path, info, three_files):
     manifest, stats = write_shards(three_files[:1], tokenizer=info, output=tmp_path / "s",
                                    packing=PackingConfig(seq_len=128, pack=False), executor=QUIET)
     rows, _ = all_rows(tmp_path / "s")
-    lines = [ln for ln in Path(three_files[0]).read_text(encoding="utf-8").splitlines() if ln.strip()]
+    lines = [
+        ln for ln in Path(three_files[0]).read_text(encoding="utf-8").splitlines() if ln.strip()
+    ]
     lengths = [len(info.tokenizer.encode(ln, add_special_tokens=False).ids) for ln in lines]
     assert stats["sequences"] == sum(-(-(n + (n % 127 != 0)) // 127) for n in lengths)
-    assert (rows["attention_mask"].sum(axis=1) < 128).mean() > 0.5  # most speeches are short and padded
+    assert (
+        rows["attention_mask"].sum(axis=1) < 128
+    ).mean() > 0.5  # most speeches are short and padded

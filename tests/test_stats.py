@@ -27,7 +27,9 @@ def info(small_wordpiece: Path):
 
 @pytest.fixture(scope="module")
 def packed(info, shakespeare_small: Path):
-    docs = [ln for ln in shakespeare_small.read_text(encoding="utf-8").splitlines() if ln.strip()][:1500]
+    docs = [ln for ln in shakespeare_small.read_text(encoding="utf-8").splitlines() if ln.strip()][
+        :1500
+    ]
     return list(pack_batches(info, [info.encode(docs[i:i + 300]) for i in range(0, len(docs), 300)],
                              config=PackingConfig(seq_len=64)))
 
@@ -36,10 +38,26 @@ def masked_rows(info, packed, strategy, copy=0):
     out = []
     config = MaskingConfig(strategy=strategy)
     for p in packed:
-        units = strategy_units(p.special, p.word_ids, config=config, sequence_ids=p.sequence_ids, seed=7, copy=copy,
-                               word_keys=p.word_keys, word_kinds=p.word_kinds)
-        ids, labels = mask_batch(p.input_ids, units, sequence_ids=p.sequence_ids, seed=7, copy=copy, config=config,
-                                 mask_token_id=info.mask_id, random_token_ids=info.normal_ids())
+        units = strategy_units(
+            p.special,
+            p.word_ids,
+            config=config,
+            sequence_ids=p.sequence_ids,
+            seed=7,
+            copy=copy,
+            word_keys=p.word_keys,
+            word_kinds=p.word_kinds,
+        )
+        ids, labels = mask_batch(
+            p.input_ids,
+            units,
+            sequence_ids=p.sequence_ids,
+            seed=7,
+            copy=copy,
+            config=config,
+            mask_token_id=info.mask_id,
+            random_token_ids=info.normal_ids(),
+        )
         out.append(dict(masked_ids=ids, labels=labels, unit_ids=units, word_ids=p.word_ids,
                         attention_mask=p.attention_mask))
     return out
@@ -81,8 +99,18 @@ def reference(rows, mask_id):
                     w = wid[pos]
                     if any(wid[q] == w and lab[q] == -100 and uni[q] >= 0 for q in range(len(wid))):
                         leaked += 1
-    return dict(tokens=tokens, maskable=maskable, targets=targets, words=words, mix=mix, unit_tok=unit_tok,
-                unit_words=unit_words, multi=multi, leaked=leaked, rates=rates)
+    return dict(
+        tokens=tokens,
+        maskable=maskable,
+        targets=targets,
+        words=words,
+        mix=mix,
+        unit_tok=unit_tok,
+        unit_words=unit_words,
+        multi=multi,
+        leaked=leaked,
+        rates=rates,
+    )
 
 
 @pytest.mark.parametrize("strategy", ["token", "word", "span"])
@@ -98,7 +126,9 @@ def test_stats_equal_plain_reference(info, packed, strategy):
     assert got["targets"] == ref["targets"]
     assert got["masking_rate"]["corpus"] == pytest.approx(ref["targets"] / ref["maskable"])
     assert got["masking_rate"]["per_sequence_min"] == pytest.approx(min(ref["rates"]))
-    assert got["masking_rate"]["per_sequence_median"] == pytest.approx(statistics.median(ref["rates"]))
+    assert got["masking_rate"]["per_sequence_median"] == pytest.approx(
+        statistics.median(ref["rates"])
+    )
     assert got["masking_rate"]["per_sequence_max"] == pytest.approx(max(ref["rates"]))
     for k in ("mask", "random", "keep"):
         assert got["mix"][k] == pytest.approx(ref["mix"][k] / ref["targets"])
@@ -148,6 +178,12 @@ def test_copies_count_rows_not_new_sequences(info, packed):
 
 
 def test_batch_stats_of_no_targets():
-    d = batch_stats(masked_ids=np.array([[2, 5, 3]]), labels=np.full((1, 3), -100), unit_ids=np.array([[-1, 0, -1]]),
-                    word_ids=np.array([[-1, 0, -1]]), attention_mask=np.ones((1, 3), np.int8), mask_token_id=4)
+    d = batch_stats(
+        masked_ids=np.array([[2, 5, 3]]),
+        labels=np.full((1, 3), -100),
+        unit_ids=np.array([[-1, 0, -1]]),
+        word_ids=np.array([[-1, 0, -1]]),
+        attention_mask=np.ones((1, 3), np.int8),
+        mask_token_id=4,
+    )
     assert d["targets"] == 0 and d["masking_rate"]["corpus"] == 0.0 and d["mix"]["mask"] is None

@@ -11,7 +11,15 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from maskprep.errors import MaskprepError
-from maskprep.tokenizer.encoding import PUNCT, SPACE, SPECIAL, WORD, encode_documents, load_tokenizer, save_tokenizer
+from maskprep.tokenizer.encoding import (
+    PUNCT,
+    SPACE,
+    SPECIAL,
+    WORD,
+    encode_documents,
+    load_tokenizer,
+    save_tokenizer,
+)
 from maskprep.tokenizer.train import SPECIALS, TrainConfig, train_tokenizer
 
 from conftest import speeches
@@ -25,7 +33,10 @@ def trained(shakespeare_text_files: list[Path]) -> dict[str, object]:
     # family has those characters in its alphabet.
     docs = [d for f in shakespeare_text_files[:2] for d in speeches(f)]
     docs += ["café naïve e\u0301te\u0301 😀🚀 東京 日本語 résumé — “quoted” ‹x› 🙂"] * 20
-    return {m: train_tokenizer(docs, TrainConfig(model=m, vocab_size=1500, lowercase=False)) for m in FAMILIES}
+    return {
+        m: train_tokenizer(docs, TrainConfig(model=m, vocab_size=1500, lowercase=False))
+        for m in FAMILIES
+    }
 
 
 def _pretokenized_words(info: object, text: str) -> list[str]:
@@ -57,11 +68,20 @@ _SPECIAL_STRINGS = sorted({s for roles in SPECIALS.values() for s in roles.value
 
 
 @pytest.mark.parametrize("family", FAMILIES)
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(text=st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")), min_size=1, max_size=60)
-       .filter(lambda t: not any(s in t for s in _SPECIAL_STRINGS))
-       | st.sampled_from(["naïve café", "e\u0301te\u0301 😀 東京", "don't stop—now", "a  b\tc", "##x Ġy ▁z"]))
-def test_words_decode_to_their_pretokenized_pieces(trained: dict[str, object], family: str, text: str) -> None:
+@settings(
+    max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    text=st.text(
+        alphabet=st.characters(blacklist_categories=("Cs", "Cc")), min_size=1, max_size=60
+    ).filter(lambda t: not any(s in t for s in _SPECIAL_STRINGS))
+    | st.sampled_from(
+        ["naïve café", "e\u0301te\u0301 😀 東京", "don't stop—now", "a  b\tc", "##x Ġy ▁z"]
+    )
+)
+def test_words_decode_to_their_pretokenized_pieces(
+    trained: dict[str, object], family: str, text: str
+) -> None:
     # Reference: the tokenizers library's own pre_tokenize_str of the normalised text.
     info = trained[family]
     batch = encode_documents(info, [text])  # type: ignore[arg-type]
@@ -105,7 +125,10 @@ def test_word_keys_are_content_based(trained: dict[str, object], family: str) ->
     kinds = dict(zip([t for v in texts.values() for t in v], [0] * 99))
     assert "," in kinds and "!" in kinds
     assert set(b.word_kinds.tolist()) <= {WORD, PUNCT, SPACE}
-    assert b.word_kinds[list(b.word_keys).index(next(k for k, v in texts.items() if "," in v))] == PUNCT
+    assert (
+        b.word_kinds[list(b.word_keys).index(next(k for k, v in texts.items() if "," in v))]
+        == PUNCT
+    )
     # documents: first document has 5 words
     assert b.doc_offsets.tolist()[:2] == [0, 5]
 
@@ -135,7 +158,9 @@ def test_load_errors(tmp_path: Path) -> None:
         load_tokenizer(tmp_path / "nope.json")
     bad = tmp_path / "bad.json"
     bad.write_text("{not json")
-    with pytest.raises(MaskprepError, match=r"bad\.json: not a valid tokenizer.json \(bad JSON at line 1"):
+    with pytest.raises(
+        MaskprepError, match=r"bad\.json: not a valid tokenizer.json \(bad JSON at line 1"
+    ):
         load_tokenizer(bad)
     wrong = tmp_path / "wrong.json"
     wrong.write_text(json.dumps({"model": {"type": "Nothing"}}))
@@ -148,8 +173,11 @@ def test_load_errors(tmp_path: Path) -> None:
 
 
 def test_vocab_size_beyond_corpus_says_what_it_reached() -> None:
-    with pytest.raises(MaskprepError, match=r"--vocab-size: 5,000 is larger than this corpus supports for "
-                                            r"wordpiece: training reached \d+ tokens"):
+    with pytest.raises(
+        MaskprepError,
+        match=r"--vocab-size: 5,000 is larger than this corpus supports for "
+        r"wordpiece: training reached \d+ tokens",
+    ):
         train_tokenizer(["a tiny corpus of few words"] * 3, TrainConfig(vocab_size=5000))
     with pytest.raises(MaskprepError, match=r"--model: expected one of wordpiece, bpe, unigram"):
         TrainConfig(model="char")
@@ -159,8 +187,12 @@ def test_bpe_training_is_reproducible(shakespeare_small: Path) -> None:
     # Same corpus and options give a byte-identical byte-level BPE tokenizer (checked five times by hand).
     from maskprep.corpus.reader import iter_corpus
 
-    a = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=3000))
-    b = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=3000))
+    a = train_tokenizer(
+        iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=3000)
+    )
+    b = train_tokenizer(
+        iter_corpus([str(shakespeare_small)]), TrainConfig(model="bpe", vocab_size=3000)
+    )
     assert a.json == b.json and a.hash == b.hash
 
 
@@ -170,7 +202,9 @@ def test_wordpiece_ids_are_a_function_of_the_token_set(shakespeare_small: Path) 
     # (Reproducible tie-breaking is tested in test_train_determinism.py.)
     from maskprep.corpus.reader import iter_corpus
 
-    info = train_tokenizer(iter_corpus([str(shakespeare_small)]), TrainConfig(model="wordpiece", vocab_size=3000))
+    info = train_tokenizer(
+        iter_corpus([str(shakespeare_small)]), TrainConfig(model="wordpiece", vocab_size=3000)
+    )
     vocab = json.loads(info.json)["model"]["vocab"]
     by_id = [t for t, _ in sorted(vocab.items(), key=lambda kv: kv[1])]
     assert by_id[:5] == ["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]"]

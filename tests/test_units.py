@@ -26,10 +26,18 @@ from maskprep.errors import MaskprepError
 from maskprep.units.files import FORMAT_VERSION, format_top_units, read_units, write_units
 from maskprep.units.select import _quotas, build_units, parse_per_length
 
-PLANTED = ["machine learning", "ice cream", "new york city", "prime minister", "red blood cell count"]
-FILLER = ("the a of and to in is it that was he for on are with as his they be at one have this from "
-          "or had by word but what some we can out other were all there when up use your how said an "
-          "each she which do their time if will way about many then them write would like so these").split()
+PLANTED = [
+    "machine learning",
+    "ice cream",
+    "new york city",
+    "prime minister",
+    "red blood cell count",
+]
+FILLER = (
+    "the a of and to in is it that was he for on are with as his they be at one have this from "
+    "or had by word but what some we can out other were all there when up use your how said an "
+    "each she which do their time if will way about many then them write would like so these"
+).split()
 MAX_N = 4
 MIN_COUNT = 2
 PLAIN_PMI = {"measure": "pmi", "edge_words": 0, "fragment_share": 0.0}
@@ -58,9 +66,11 @@ def _train_tokenizer(lines: list[str]):
     tok.normalizer = normalizers.BertNormalizer(lowercase=True)
     tok.pre_tokenizer = pre_tokenizers.BertPreTokenizer()
     tok.decoder = decoders.WordPiece()
-    trainer = trainers.WordPieceTrainer(vocab_size=300,
-                                        special_tokens=["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]"],
-                                        show_progress=False)
+    trainer = trainers.WordPieceTrainer(
+        vocab_size=300,
+        special_tokens=["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]"],
+        show_progress=False,
+    )
     tok.train_from_iterator(lines, trainer)
     return tok
 
@@ -101,12 +111,18 @@ def make_counts_dir(path: Path, *, lines: list[str] | None = None, max_n: int = 
             cols[f"w{j}"] = pa.array([word_key(g[j]) for g in grams], pa.uint64())
         pq.write_table(pa.table(cols), path / f"ngrams-{n}.parquet")
     tok.save(str(path / "tokenizer.json"))
-    meta = {"format_version": 1, "N": N, "max_n": max_n, "min_count": min_count,
-            "totals": {str(n): sum(c.values()) for n, c in counters.items()},
-            "distinct": {str(n): len(c) for n, c in counters.items()},
-            "tokenizer_hash": load_tokenizer(path / "tokenizer.json").hash,
-            "corpus_fingerprint": "test-fixture", "options": {"max_n": max_n, "min_count": min_count},
-            "maskprep_version": "test"}
+    meta = {
+        "format_version": 1,
+        "N": N,
+        "max_n": max_n,
+        "min_count": min_count,
+        "totals": {str(n): sum(c.values()) for n, c in counters.items()},
+        "distinct": {str(n): len(c) for n, c in counters.items()},
+        "tokenizer_hash": load_tokenizer(path / "tokenizer.json").hash,
+        "corpus_fingerprint": "test-fixture",
+        "options": {"max_n": max_n, "min_count": min_count},
+        "maskprep_version": "test",
+    }
     (path / "counts.json").write_text(json.dumps(meta), encoding="utf-8")
     return path
 
@@ -145,7 +161,10 @@ def test_round_trip_and_token_ids(counts_dir, tmp_path):
     assert back.text == vocab.text and back.measure is Measure.PMI
     assert np.array_equal(back.n, vocab.n) and np.array_equal(back.count, vocab.count)
     assert np.array_equal(back.score, vocab.score)
-    assert all(np.array_equal(a, b) and a.dtype == np.int32 for a, b in zip(back.token_ids, vocab.token_ids))
+    assert all(
+        np.array_equal(a, b) and a.dtype == np.int32
+        for a, b in zip(back.token_ids, vocab.token_ids)
+    )
     assert all(np.array_equal(a, b) for a, b in zip(back.word_keys, vocab.word_keys))
     assert back.tokenizer_hash == vocab.tokenizer_hash and back.options == vocab.options
     assert back.options["min_count"] == MIN_COUNT and back.options["top"] == 40
@@ -174,12 +193,21 @@ def test_by_length_matches_units(counts_dir):
 
 @pytest.mark.parametrize("measure", list(Measure))
 def test_ranking_order_filters_and_scores(counts_dir, measure):
-    vocab = build_units(counts_dir, measure=measure, top=10_000, min_count=3, quiet=True, edge_words=0,
-                        fragment_share=0.0)
+    vocab = build_units(
+        counts_dir,
+        measure=measure,
+        top=10_000,
+        min_count=3,
+        quiet=True,
+        edge_words=0,
+        fragment_share=0.0,
+    )
     assert len(vocab) > 0 and vocab.measure is measure
     assert (vocab.n >= 2).all() and (vocab.count >= 3).all()
     # best first: score desc, count desc, text asc
-    order = sorted(range(len(vocab)), key=lambda i: (-vocab.score[i], -vocab.count[i], vocab.text[i].encode()))
+    order = sorted(
+        range(len(vocab)), key=lambda i: (-vocab.score[i], -vocab.count[i], vocab.text[i].encode())
+    )
     assert order == list(range(len(vocab)))
     tables = _tables(counts_dir, MAX_N - 1)
     N = json.loads((counts_dir / "counts.json").read_text())["N"]
@@ -237,7 +265,11 @@ def test_per_length_quotas_and_flow(counts_dir):
 def test_quota_arithmetic():
     assert _quotas(10, {2: 0.5, 3: 0.3, 4: 0.2}, {2: 100, 3: 100, 4: 100}) == {2: 5, 3: 3, 4: 2}
     assert _quotas(10, {2: 0.5, 3: 0.5}, {2: 2, 3: 100}) == {2: 2, 3: 8}
-    assert _quotas(7, {2: 1 / 3, 3: 1 / 3, 4: 1 / 3}, {2: 100, 3: 100, 4: 100}) == {2: 3, 3: 2, 4: 2}
+    assert _quotas(7, {2: 1 / 3, 3: 1 / 3, 4: 1 / 3}, {2: 100, 3: 100, 4: 100}) == {
+        2: 3,
+        3: 2,
+        4: 2,
+    }
     assert _quotas(10, {2: 0.5, 3: 0.5}, {2: 1, 3: 2}) == {2: 1, 3: 2}
 
 
@@ -277,12 +309,23 @@ def test_format_top_units(counts_dir):
 # ------------------------------------------------------------------ errors
 
 def test_parse_per_length():
-    assert parse_per_length("2:0.5, 3:0.3,4:0.1,5:0.1", max_n=5) == ((2, 0.5), (3, 0.3), (4, 0.1), (5, 0.1))
+    assert parse_per_length("2:0.5, 3:0.3,4:0.1,5:0.1", max_n=5) == (
+        (2, 0.5),
+        (3, 0.3),
+        (4, 0.1),
+        (5, 0.1),
+    )
     assert parse_per_length({3: 1.0}) == ((3, 1.0),)
-    for spec, msg in [("2-0.5", "not LENGTH:SHARE"), ("x:1", "not a whole number"),
-                      ("2:half", "not a number"), ("1:1", r"outside 2\.\.5"), ("6:1", r"outside 2\.\.5"),
-                      ("2:0", r"must be in \(0, 1\]"), ("2:0.5,2:0.5", "given twice"),
-                      ("2:0.5,3:0.4", "add up to 0.9")]:
+    for spec, msg in [
+        ("2-0.5", "not LENGTH:SHARE"),
+        ("x:1", "not a whole number"),
+        ("2:half", "not a number"),
+        ("1:1", r"outside 2\.\.5"),
+        ("6:1", r"outside 2\.\.5"),
+        ("2:0", r"must be in \(0, 1\]"),
+        ("2:0.5,2:0.5", "given twice"),
+        ("2:0.5,3:0.4", "add up to 0.9"),
+    ]:
         with pytest.raises(MaskprepError, match=msg):
             parse_per_length(spec, max_n=5)
 
@@ -319,11 +362,17 @@ def test_counts_dir_errors(writable_counts, tmp_path):
         build_units(d, quiet=True)
     with_meta()
     (d / "ngrams-3.parquet").unlink()
-    with pytest.raises(MaskprepError, match=r"ngrams-3\.parquet: missing; the counts directory is incomplete"):
+    with pytest.raises(
+        MaskprepError, match=r"ngrams-3\.parquet: missing; the counts directory is incomplete"
+    ):
         build_units(d, quiet=True)
-    with pytest.raises(MaskprepError, match=r"ngrams-3\.parquet: missing"):  # fragments of pairs need it
+    with pytest.raises(
+        MaskprepError, match=r"ngrams-3\.parquet: missing"
+    ):  # fragments of pairs need it
         build_units(d, max_n=2, quiet=True)
-    assert len(build_units(d, max_n=2, fragment_share=0.0, quiet=True)) > 0  # without the fragment filter
+    assert (
+        len(build_units(d, max_n=2, fragment_share=0.0, quiet=True)) > 0
+    )  # without the fragment filter
     (d / "tokenizer.json").unlink()
     with pytest.raises(MaskprepError, match="has no tokenizer.json"):
         build_units(d, quiet=True)
@@ -373,12 +422,16 @@ def test_units_file_errors(counts_dir, tmp_path):
         read_units(tmp_path / "other.parquet")
     good, _ = write_units(vocab, tmp_path / "units.parquet")
     t = pq.read_table(good)
-    pq.write_table(t.drop(["token_ids"]).replace_schema_metadata(t.schema.metadata), tmp_path / "cut.parquet")
+    pq.write_table(
+        t.drop(["token_ids"]).replace_schema_metadata(t.schema.metadata), tmp_path / "cut.parquet"
+    )
     with pytest.raises(MaskprepError, match=r"missing column\(s\) token_ids"):
         read_units(tmp_path / "cut.parquet")
     meta = json.loads(t.schema.metadata[b"maskprep"])
     meta["format_version"] = 42
-    pq.write_table(t.replace_schema_metadata({b"maskprep": json.dumps(meta)}), tmp_path / "v42.parquet")
+    pq.write_table(
+        t.replace_schema_metadata({b"maskprep": json.dumps(meta)}), tmp_path / "v42.parquet"
+    )
     with pytest.raises(MaskprepError, match="format_version 42"):
         read_units(tmp_path / "v42.parquet")
 
@@ -434,19 +487,51 @@ def test_units_cli_reports_the_filters(counts_dir, tmp_path):
     from maskprep.cli import cli
 
     out = tmp_path / "u.parquet"
-    r = CliRunner().invoke(cli, ["--quiet", "units", str(counts_dir), "-o", str(out), "--edge-words", "4",
-                                 "--fragment-share", "0.6", "--measure", "pmi", "--show", "2"])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "units",
+            str(counts_dir),
+            "-o",
+            str(out),
+            "--edge-words",
+            "4",
+            "--fragment-share",
+            "0.6",
+            "--measure",
+            "pmi",
+            "--show",
+            "2",
+        ],
+    )
     assert r.exit_code == 0, r.output
     assert "began or ended with one of the 4 most frequent words" in r.output
     assert "were fragments (one n-gram a word longer holds >= 0.6 of their occurrences)" in r.output
     meta = json.loads(pq.read_schema(out).metadata[b"maskprep"])
     assert meta["options"]["edge_words"] == 4 and meta["options"]["fragment_share"] == 0.6
     assert len(meta["source"]["edge_word_list"]) == 4 and meta["word_splitting"]["normalizer"]
-    r = CliRunner().invoke(cli, ["--quiet", "units", str(counts_dir), "-o", str(out), "--edge-words", "0",
-                                 "--fragment-share", "0"])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "units",
+            str(counts_dir),
+            "-o",
+            str(out),
+            "--edge-words",
+            "0",
+            "--fragment-share",
+            "0",
+        ],
+    )
     assert r.exit_code == 0 and "filters: none (--edge-words 0 --fragment-share 0)" in r.output
-    for bad, message in ((["--edge-words", "-2"], "--edge-words: must be a whole number >= 0"),
-                         (["--fragment-share", "2"], "--fragment-share: must be a number in [0, 1]")):
-        r = CliRunner().invoke(cli, ["--quiet", "units", str(counts_dir), "-o", str(tmp_path / "x.parquet"), *bad])
+    for bad, message in (
+        (["--edge-words", "-2"], "--edge-words: must be a whole number >= 0"),
+        (["--fragment-share", "2"], "--fragment-share: must be a number in [0, 1]"),
+    ):
+        r = CliRunner().invoke(
+            cli, ["--quiet", "units", str(counts_dir), "-o", str(tmp_path / "x.parquet"), *bad]
+        )
         assert r.exit_code == 1 and message in r.output and "Traceback" not in r.output, r.output
         assert not (tmp_path / "x.parquet").exists()

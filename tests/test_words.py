@@ -26,16 +26,22 @@ from maskprep.tokenizer.words import WordsConfig, words_option
 from conftest import deal_lines, trained_tokenizer
 
 FORTUNES = Path("/usr/share/games/fortunes/chinese")
-rjieba = pytest.importorskip("rjieba", reason="the zh extra (pip install 'maskprep[zh]') is not installed")
+rjieba = pytest.importorskip(
+    "rjieba", reason="the zh extra (pip install 'maskprep[zh]') is not installed"
+)
 HAN_RUN = re.compile(r"[\u4e00-\u9fff\u3400-\u4dbf]+")
 
 
 def fortunes_lines() -> list[str]:
     if not FORTUNES.is_file():
-        pytest.skip(f"{FORTUNES} missing: apt-get install fortunes-zh (real Chinese text for these tests)")
+        pytest.skip(
+            f"{FORTUNES} missing: apt-get install fortunes-zh (real Chinese text for these tests)"
+        )
     raw = FORTUNES.read_text(encoding="utf-8", errors="replace")
     raw = re.sub(r"\x1b\[[0-9;]*[A-Za-z]", "", raw)
-    entries = [" ".join(ln.strip() for ln in e.splitlines() if ln.strip()) for e in raw.split("\n%\n")]
+    entries = [
+        " ".join(ln.strip() for ln in e.splitlines() if ln.strip()) for e in raw.split("\n%\n")
+    ]
     return [e for e in entries if e]
 
 
@@ -48,12 +54,16 @@ def zh_corpus(tmp_path_factory) -> Path:
 
 @pytest.fixture(scope="module")
 def zh_wordpiece(zh_corpus: Path, tmp_path_factory) -> Path:
-    return trained_tokenizer(zh_corpus, tmp_path_factory.mktemp("zh-wp"), model="wordpiece", vocab_size=8000)
+    return trained_tokenizer(
+        zh_corpus, tmp_path_factory.mktemp("zh-wp"), model="wordpiece", vocab_size=8000
+    )
 
 
 @pytest.fixture(scope="module")
 def zh_bpe(zh_corpus: Path, tmp_path_factory) -> Path:
-    return trained_tokenizer(zh_corpus, tmp_path_factory.mktemp("zh-bpe"), model="bpe", vocab_size=8000)
+    return trained_tokenizer(
+        zh_corpus, tmp_path_factory.mktemp("zh-bpe"), model="bpe", vocab_size=8000
+    )
 
 
 def invoke(*args: str) -> str:
@@ -184,7 +194,16 @@ def test_tokens_per_word_under_wordpiece_rises_well_above_one(zh_corpus, zh_word
     # into about as many tokens as they have characters (1.5 to 2 on average); with the
     # tokenizer's words every CJK character is a "word" and tokens/word is close to 1.
     # Measured here: 1.69 with --words zh, 1.06 with --words tokenizer.
-    out = invoke("audit", str(zh_corpus), "-t", str(zh_wordpiece), "-o", str(tmp_path / "zh"), "--words", "zh")
+    out = invoke(
+        "audit",
+        str(zh_corpus),
+        "-t",
+        str(zh_wordpiece),
+        "-o",
+        str(tmp_path / "zh"),
+        "--words",
+        "zh",
+    )
     plain = invoke("audit", str(zh_corpus), "-t", str(zh_wordpiece), "-o", str(tmp_path / "tok"))
     zh_doc = json.loads((tmp_path / "zh" / "audit.json").read_text())
     tok_doc = json.loads((tmp_path / "tok" / "audit.json").read_text())
@@ -203,7 +222,9 @@ def test_readable_pieces_in_the_audit_list_for_byte_level_bpe(zh_corpus, zh_bpe,
     # Reference: the word's own text; every piece shown must be a piece of it (no byte symbols).
     from maskprep.tokenizer.pieces import JOIN, PARTIAL, SPACE_MARK
 
-    out = invoke("audit", str(zh_corpus), "-t", str(zh_bpe), "-o", str(tmp_path / "a"), "--words", "zh")
+    out = invoke(
+        "audit", str(zh_corpus), "-t", str(zh_bpe), "-o", str(tmp_path / "a"), "--words", "zh"
+    )
     doc = json.loads((tmp_path / "a" / "audit.json").read_text())
     rows = [w for w in doc["tokenizers"][0]["worst_words"] if w["word"]]
     assert rows
@@ -214,40 +235,95 @@ def test_readable_pieces_in_the_audit_list_for_byte_level_bpe(zh_corpus, zh_bpe,
     assert JOIN in out
 
 
-def test_whole_word_leakage_is_zero_for_word_span_pmi_under_segmenter_words(zh_corpus, zh_bpe, tmp_path):
+def test_whole_word_leakage_is_zero_for_word_span_pmi_under_segmenter_words(
+    zh_corpus, zh_bpe, tmp_path
+):
     # Source: whole-word masking hides every token of a chosen word (published method; the
     # leakage figure counts targets whose word has a visible token).
     invoke("count", str(zh_corpus), "-t", str(zh_bpe), "-o", str(tmp_path / "c"), "--words", "zh",
            "--max-n", "3", "--min-count", "3")
-    invoke("units", str(tmp_path / "c"), "-o", str(tmp_path / "u.parquet"), "--top", "2000", "--show", "0")
+    invoke(
+        "units",
+        str(tmp_path / "c"),
+        "-o",
+        str(tmp_path / "u.parquet"),
+        "--top",
+        "2000",
+        "--show",
+        "0",
+    )
     for strategy in ("word", "span", "pmi"):
         extra = ["--units", str(tmp_path / "u.parquet")] if strategy == "pmi" else []
-        invoke("mask", str(zh_corpus), "-t", str(zh_bpe), "-o", str(tmp_path / strategy), "--words", "zh",
-               "--strategy", strategy, *extra)
+        invoke(
+            "mask",
+            str(zh_corpus),
+            "-t",
+            str(zh_bpe),
+            "-o",
+            str(tmp_path / strategy),
+            "--words",
+            "zh",
+            "--strategy",
+            strategy,
+            *extra,
+        )
         stats = json.loads((tmp_path / strategy / "_maskprep" / "stats.json").read_text())
         assert stats["within_word_leakage"] == 0.0, strategy
         manifest = json.loads((tmp_path / strategy / "_maskprep" / "manifest.json").read_text())
         assert manifest["options"]["words"]["definition"] == "zh"
     # pmi units of segmenter words are multi-word terms written with jieba's words
     units = (tmp_path / "u.tsv").read_text(encoding="utf-8").splitlines()[1:50]
-    assert units and all(len(line.split("\t")[-1].split(" ")) == int(line.split("\t")[1]) >= 2 for line in units)
+    assert units and all(
+        len(line.split("\t")[-1].split(" ")) == int(line.split("\t")[1]) >= 2 for line in units
+    )
     invoke("verify", str(tmp_path / "pmi"))
 
 
-def test_units_of_other_words_resume_and_verify_refuse_a_mismatch(zh_corpus, zh_wordpiece, tmp_path):
+def test_units_of_other_words_resume_and_verify_refuse_a_mismatch(
+    zh_corpus, zh_wordpiece, tmp_path
+):
     small = tmp_path / "small.txt"
     small.write_text("\n".join(fortunes_lines()[:300]) + "\n", encoding="utf-8")
     invoke("count", str(small), "-t", str(zh_wordpiece), "-o", str(tmp_path / "c"), "--max-n", "2",
            "--min-count", "2")
     invoke("units", str(tmp_path / "c"), "-o", str(tmp_path / "u.parquet"), "--show", "0")
-    r = CliRunner().invoke(cli, ["--quiet", "mask", str(small), "-t", str(zh_wordpiece), "-o", str(tmp_path / "m"),
-                                 "--strategy", "pmi", "--units", str(tmp_path / "u.parquet"), "--words", "zh"])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "mask",
+            str(small),
+            "-t",
+            str(zh_wordpiece),
+            "-o",
+            str(tmp_path / "m"),
+            "--strategy",
+            "pmi",
+            "--units",
+            str(tmp_path / "u.parquet"),
+            "--words",
+            "zh",
+        ],
+    )
     assert r.exit_code == 1 and "counted with --words" in r.output and "Traceback" not in r.output
     invoke("mask", str(small), "-t", str(zh_wordpiece), "-o", str(tmp_path / "s"), "--words", "zh",
            "--strategy", "word")
     (tmp_path / "s" / "_maskprep" / "manifest.json").unlink()  # as if interrupted before the end
-    r = CliRunner().invoke(cli, ["--quiet", "mask", str(small), "-t", str(zh_wordpiece), "-o", str(tmp_path / "s"),
-                                 "--strategy", "word", "--resume"])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "--quiet",
+            "mask",
+            str(small),
+            "-t",
+            str(zh_wordpiece),
+            "-o",
+            str(tmp_path / "s"),
+            "--strategy",
+            "word",
+            "--resume",
+        ],
+    )
     assert r.exit_code == 1 and "words" in r.output and "options differ" in r.output
     invoke("mask", str(small), "-t", str(zh_wordpiece), "-o", str(tmp_path / "s"), "--words", "zh",
            "--strategy", "word", "--resume")
@@ -288,20 +364,63 @@ def zh_files(zh_corpus: Path, tmp_path_factory) -> list[str]:
 @pytest.mark.slow
 def test_outputs_are_byte_identical_for_1_and_2_workers_and_dask(zh_files, zh_bpe, tmp_path):
     distributed = pytest.importorskip("distributed")
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                       dashboard_address=None)
+    cluster = distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+    )
     try:
         outputs = {}
         for name, where in {"w1": ["--workers", "1"], "w2": ["--workers", "2"],
                             "dask": ["--dask", cluster.scheduler_address]}.items():
             base = tmp_path / name
-            invoke(*where, "count", *zh_files, "-t", str(zh_bpe), "-o", str(base / "c"), "--words", "zh",
-                   "--max-n", "3", "--min-count", "2", "--memory", "8MiB")
-            invoke("units", str(base / "c"), "-o", str(base / "u.parquet"), "--top", "300", "--show", "0")
-            invoke(*where, "mask", *zh_files, "-t", str(zh_bpe), "-o", str(base / "s"), "--words", "zh",
-                   "--strategy", "pmi", "--units", str(base / "u.parquet"), "--shard-rows", "200")
-            outputs[name] = {str(p.relative_to(base)): p.read_bytes() for p in sorted(base.rglob("*"))
-                             if p.is_file()}
+            invoke(
+                *where,
+                "count",
+                *zh_files,
+                "-t",
+                str(zh_bpe),
+                "-o",
+                str(base / "c"),
+                "--words",
+                "zh",
+                "--max-n",
+                "3",
+                "--min-count",
+                "2",
+                "--memory",
+                "8MiB",
+            )
+            invoke(
+                "units",
+                str(base / "c"),
+                "-o",
+                str(base / "u.parquet"),
+                "--top",
+                "300",
+                "--show",
+                "0",
+            )
+            invoke(
+                *where,
+                "mask",
+                *zh_files,
+                "-t",
+                str(zh_bpe),
+                "-o",
+                str(base / "s"),
+                "--words",
+                "zh",
+                "--strategy",
+                "pmi",
+                "--units",
+                str(base / "u.parquet"),
+                "--shard-rows",
+                "200",
+            )
+            outputs[name] = {
+                str(p.relative_to(base)): p.read_bytes()
+                for p in sorted(base.rglob("*"))
+                if p.is_file()
+            }
     finally:
         cluster.close(timeout=30)
     ref = outputs["w1"]
@@ -318,7 +437,9 @@ def test_cohesion_words_are_mostly_in_a_published_lexicon(zh_corpus, zh_wordpiec
     # (about 350,000 words). Measured here: 91% of the 500 most frequent multi-character
     # learnt words are in it; of the 500 most frequent character bigrams of the same text
     # (frequency alone, no cohesion), 71%.
-    jieba = pytest.importorskip("jieba", reason="jieba (its dictionary is the reference) is not installed")
+    jieba = pytest.importorskip(
+        "jieba", reason="jieba (its dictionary is the reference) is not installed"
+    )
     lexicon = {ln.split(" ")[0] for ln in
                (Path(jieba.__file__).parent / "dict.txt").read_text(encoding="utf-8").splitlines()}
     from collections import Counter
@@ -333,20 +454,36 @@ def test_cohesion_words_are_mostly_in_a_published_lexicon(zh_corpus, zh_wordpiec
     bigrams: Counter[str] = Counter()
     for i in range(0, len(lines), 500):
         batch = encode_documents(info, lines[i:i + 500], words)
-        freq.update(t for t, k in zip(word_texts(info, batch), batch.word_kinds.tolist()) if k == WORD)
+        freq.update(
+            t for t, k in zip(word_texts(info, batch), batch.word_kinds.tolist()) if k == WORD
+        )
         for line in lines[i:i + 500]:
             for run in HAN_RUN.findall(line):
                 bigrams.update(run[j:j + 2] for j in range(len(run) - 1))
     multi = [w for w, _ in freq.most_common() if len(w) >= 2 and HAN_RUN.fullmatch(w)][:500]
     share = sum(w in lexicon for w in multi) / len(multi)
     control = sum(w in lexicon for w, _ in bigrams.most_common(500)) / 500
-    print(f"cohesion words in jieba/dict.txt: {share:.0%} of the top 500; frequent bigrams: {control:.0%}")
+    print(
+        f"cohesion words in jieba/dict.txt: {share:.0%} of the top 500; frequent bigrams: {control:.0%}"
+    )
     assert len(multi) == 500 and share >= 0.8 and share > control + 0.1
 
 
 def test_cohesion_words_through_the_cli(zh_corpus, zh_wordpiece, tmp_path):
-    invoke("count", str(zh_corpus), "-t", str(zh_wordpiece), "-o", str(tmp_path / "c"), "--words", "cohesion",
-           "--max-n", "2", "--min-count", "5")
+    invoke(
+        "count",
+        str(zh_corpus),
+        "-t",
+        str(zh_wordpiece),
+        "-o",
+        str(tmp_path / "c"),
+        "--words",
+        "cohesion",
+        "--max-n",
+        "2",
+        "--min-count",
+        "5",
+    )
     meta = json.loads((tmp_path / "c" / "counts.json").read_text())
     assert meta["words"]["definition"] == "cohesion" and meta["words"]["lexicon_words"] > 1000
     words = set(__import__("pyarrow.parquet", fromlist=["x"]).read_table(
@@ -365,5 +502,7 @@ def test_an_encoded_directory_keeps_the_word_definition(zh_corpus, zh_bpe, tmp_p
                "--max-n", "2", "--min-count", "2")
     for f in ("ngrams-1.parquet", "ngrams-2.parquet"):
         assert (tmp_path / "c-raw" / f).read_bytes() == (tmp_path / "c-enc" / f).read_bytes(), f
-    r = CliRunner().invoke(cli, ["--quiet", "count", str(tmp_path / "enc"), "-o", str(tmp_path / "c-tok")])
+    r = CliRunner().invoke(
+        cli, ["--quiet", "count", str(tmp_path / "enc"), "-o", str(tmp_path / "c-tok")]
+    )
     assert r.exit_code == 1 and "encoded with --words zh" in r.output

@@ -41,7 +41,12 @@ from ..tokenizer.words import WordsConfig, code_points, script_classes
 from .page import render_audit_html
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
 
-AUDIT_BANDS = ((1, 1000, "top 1k"), (1001, 10000, "1k-10k"), (10001, 100000, "10k-100k"), (100001, None, "rarer"))
+AUDIT_BANDS = (
+    (1, 1000, "top 1k"),
+    (1001, 10000, "1k-10k"),
+    (10001, 100000, "10k-100k"),
+    (100001, None, "rarer"),
+)
 
 
 @dataclass(frozen=True)
@@ -78,7 +83,9 @@ class _FormTable:
         n = len(uniq)
 
         def merged(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-            return np.bincount(inv, weights=np.concatenate([a, b]).astype(np.float64), minlength=n).astype(np.int64)
+            return np.bincount(
+                inv, weights=np.concatenate([a, b]).astype(np.float64), minlength=n
+            ).astype(np.int64)
 
         self.occ = merged(self.occ, occ)
         self.tokens = merged(self.tokens, tokens)
@@ -98,8 +105,10 @@ def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase
     """
     config = TrainConfig(model=model, vocab_size=vocab_size, lowercase=lowercase)
     if open_source(corpus, corpus_options).encoded:
-        raise MaskprepError(f"{', '.join(corpus)}: an encoded directory holds token ids, not text; train "
-                            "tokenizers on the raw corpus files")
+        raise MaskprepError(
+            f"{', '.join(corpus)}: an encoded directory holds token ids, not text; train "
+            "tokenizers on the raw corpus files"
+        )
     files = resolve_inputs(corpus)
     if output is not None:
         from .._paths import check_apart
@@ -141,13 +150,17 @@ def _task_words(info: TokenizerInfo, reader: TaskReader) -> list[WordType]:
         return [wt for wt in info.word_types() if wt.kind == WORD]
     sel = np.flatnonzero(table.fields["word_kinds"] == WORD)
     keys, offs = table.fields["word_keys"], table.offsets
-    return [WordType(int(keys[i]), WORD, text, tuple(table.ids[offs[i]:offs[i + 1]].tolist()))
-            for i, text in zip(sel.tolist(), table.texts.take(sel).to_pylist())]  # one step per word type
+    return [
+        WordType(int(keys[i]), WORD, text, tuple(table.ids[offs[i] : offs[i + 1]].tolist()))
+        for i, text in zip(sel.tolist(), table.texts.take(sel).to_pylist())
+    ]  # one step per word type
 
 
 def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
     """Task function: per-word-form figures of one task (raw text or an encoded directory's)."""
-    info = tokenizer_from_json(job.tokenizer_json, name=job.tokenizer_name)  # a fresh word-type cache
+    info = tokenizer_from_json(
+        job.tokenizer_json, name=job.tokenizer_name
+    )  # a fresh word-type cache
     reader = TaskReader(task, info, job.options, words=job.words)
     table = _FormTable()
     pending: list[tuple[np.ndarray, ...]] = []
@@ -168,11 +181,16 @@ def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
         forms = form_hashes(batch.ids, batch.word_offsets)[keep]
         rows, first, inv = unique_rows(np.stack([batch.word_keys[keep], forms], axis=1))
         n = len(rows)
-        pending.append((rows, np.bincount(inv, minlength=n).astype(np.int64),
-                        np.bincount(inv, weights=lk, minlength=n).astype(np.int64),
-                        np.bincount(inv, weights=(lk >= 2), minlength=n).astype(np.int64),
-                        np.bincount(inv, weights=batch.word_chars[keep], minlength=n).astype(np.int64),
-                        batch.word_kinds[keep][first]))
+        pending.append(
+            (
+                rows,
+                np.bincount(inv, minlength=n).astype(np.int64),
+                np.bincount(inv, weights=lk, minlength=n).astype(np.int64),
+                np.bincount(inv, weights=(lk >= 2), minlength=n).astype(np.int64),
+                np.bincount(inv, weights=batch.word_chars[keep], minlength=n).astype(np.int64),
+                batch.word_kinds[keep][first],
+            )
+        )
         pending_words += n
         if pending_words > 2_000_000:
             _flush(table, pending)
@@ -180,14 +198,25 @@ def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
     _flush(table, pending)
     if task.encoded is not None:
         crossing = task.encoded.crossing_tokens
-    return {"table": (table.keys, table.occ, table.tokens, table.split, table.chars, table.kind),
-            "totals": (tokens_total, unk_total, cont_total, crossing), "read": reader.consumed.to_dict(),
-            "words": _task_words(info, reader)}
+    return {
+        "table": (table.keys, table.occ, table.tokens, table.split, table.chars, table.kind),
+        "totals": (tokens_total, unk_total, cont_total, crossing),
+        "read": reader.consumed.to_dict(),
+        "words": _task_words(info, reader),
+    }
 
 
-def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: CorpusOptions = CorpusOptions(),
-                    top_words: int = 25, frequent_types: int = 1000, quiet: bool = False,
-                    executor: Any = None, words: WordsConfig | None = None) -> dict[str, Any]:
+def audit_tokenizer(
+    info: TokenizerInfo,
+    corpus: list[str],
+    *,
+    corpus_options: CorpusOptions = CorpusOptions(),
+    top_words: int = 25,
+    frequent_types: int = 1000,
+    quiet: bool = False,
+    executor: Any = None,
+    words: WordsConfig | None = None,
+) -> dict[str, Any]:
     """Fragmentation figures of one tokenizer on a corpus or an encoded directory (tasks in parallel).
 
     `words` chooses the word definition (default: the tokenizer's own words).
@@ -198,7 +227,9 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
     from ..execute import Executor, map_tasks
 
     source = open_source(corpus, corpus_options)
-    source.tokenizer(info, stage="audit")  # an encoded directory must have been made with this tokenizer
+    source.tokenizer(
+        info, stage="audit"
+    )  # an encoded directory must have been made with this tokenizer
     executor = executor or Executor(quiet=quiet)
     wcfg: WordsConfig = source.check_words(words or WordsConfig())
     job = _AuditJob(info.json, info.name, source.options, None if wcfg.is_tokenizer else wcfg)
@@ -207,9 +238,15 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
     totals = [0, 0, 0, 0]
     seen: dict[tuple[int, tuple[int, ...]], WordType] = {}
     tasks = source.tasks
-    for res in map_tasks(_audit_task, [(job, t) for t in tasks], executor=executor, label=f"audit {info.name}",
-                         describe=lambda i: tasks[i].describe(), weights=[t.weight / 1e6 for t in tasks],
-                         unit="MB"):
+    for res in map_tasks(
+        _audit_task,
+        [(job, t) for t in tasks],
+        executor=executor,
+        label=f"audit {info.name}",
+        describe=lambda i: tasks[i].describe(),
+        weights=[t.weight / 1e6 for t in tasks],
+        unit="MB",
+    ):
         pending.append(res["table"])
         if sum(len(p[0]) for p in pending) > 2_000_000:
             _flush(table, pending)
@@ -223,7 +260,9 @@ def audit_tokenizer(info: TokenizerInfo, corpus: list[str], *, corpus_options: C
     warn_literal_specials(info, stats.literal_specials, ", ".join(corpus))
     forms = [seen[k] for k in sorted(seen)]  # in an order that does not depend on the tasks
     tokens_total, unk_total, cont_total, crossing = totals
-    result = _summarise(info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types, forms)
+    result = _summarise(
+        info, table, tokens_total, unk_total, cont_total, stats, top_words, frequent_types, forms
+    )
     result["words_definition"] = wcfg.describe()
     result["boundary_crossing_tokens"] = crossing
     result["boundary_crossing_share"] = crossing / tokens_total if tokens_total else 0.0
@@ -288,29 +327,42 @@ def _summarise(info: TokenizerInfo, f: _FormTable, tokens_total: int, unk_total:
     for lo, hi, label in AUDIT_BANDS:
         sel = order[lo - 1:hi] if hi is not None else order[lo - 1:]
         occ = int(occ_t[sel].sum())
-        bands.append({
-            "band": label, "rank_from": lo, "rank_to": hi, "types": int(len(sel)), "occurrences": occ,
-            "occurrence_share": occ / occ_w,
-            "tokens_per_word": (float(tok_t[sel].sum()) / occ) if occ else None,
-            "split_share": (float(split_t[sel].sum()) / occ) if occ else None,
-        })
+        bands.append(
+            {
+                "band": label,
+                "rank_from": lo,
+                "rank_to": hi,
+                "types": int(len(sel)),
+                "occurrences": occ,
+                "occurrence_share": occ / occ_w,
+                "tokens_per_word": (float(tok_t[sel].sum()) / occ) if occ else None,
+                "split_share": (float(split_t[sel].sum()) / occ) if occ else None,
+            }
+        )
     main = main_forms(word_of_form, f.occ, f.keys[:, 1], nw)
     main_tokens = f.tokens[main] // np.maximum(f.occ[main], 1)
     mean_tokens = tok_t / np.maximum(occ_t, 1)
     listed = select_fragmented(order, main_tokens, mean_tokens, frequent_types=frequent_types,
                                top_words=top_words)
     return {
-        "name": info.name, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
-        "documents": stats.documents, "empty_documents_skipped": stats.empty_skipped,
+        "name": info.name,
+        "vocab_size": info.vocab_size,
+        "tokenizer_hash": info.hash,
+        "documents": stats.documents,
+        "empty_documents_skipped": stats.empty_skipped,
         "invalid_utf8_replaced": stats.invalid_utf8,
-        "words": occ_w, "words_all": occ_a, "word_types": int(is_word.sum()), "tokens": tokens_total,
-        "tokens_per_word": tok_w / occ_w, "tokens_per_word_all": tok_a / occ_a if occ_a else None,
+        "words": occ_w,
+        "words_all": occ_a,
+        "word_types": int(is_word.sum()),
+        "tokens": tokens_total,
+        "tokens_per_word": tok_w / occ_w,
+        "tokens_per_word_all": tok_a / occ_a if occ_a else None,
         "split_share": float(split_t[is_word].sum()) / occ_w,
         "tokens_per_char": tok_a / chars_a if chars_a else None,
         "unk_rate": unk_total / tokens_total if tokens_total else 0.0,
         "continuation_share": cont_total / tokens_total if tokens_total else 0.0,
-        "bands": bands, "worst_words": _word_rows(info, f, word_keys, word_of_form, order, listed,
-                                                     forms),
+        "bands": bands,
+        "worst_words": _word_rows(info, f, word_keys, word_of_form, order, listed, forms),
     }
 
 
@@ -365,23 +417,45 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
     infos: list[TokenizerInfo] = [source.tokenizer(p, stage="audit") for p in config.tokenizers]
     if source.encoded:
         if config.vocab_sizes:
-            raise MaskprepError(f"{size_option}: {source.describe()} is an encoded directory; training needs "
-                                "the raw text: give the corpus files instead")
+            raise MaskprepError(
+                f"{size_option}: {source.describe()} is an encoded directory; training needs "
+                "the raw text: give the corpus files instead"
+            )
         if not infos:
             infos.append(source.tokenizer(None, stage="audit"))
     for size in config.vocab_sizes:
         name = f"{config.model}-{size}"
         tok_path = output / "tokenizers" / f"{name}.json"
-        infos.append(train_on_corpus(corpus, model=config.model, vocab_size=size, lowercase=config.lowercase,
-                                     corpus_options=corpus_options, output=tok_path, quiet=quiet, name=name,
-                                     option=size_option))
+        infos.append(
+            train_on_corpus(
+                corpus,
+                model=config.model,
+                vocab_size=size,
+                lowercase=config.lowercase,
+                corpus_options=corpus_options,
+                output=tok_path,
+                quiet=quiet,
+                name=name,
+                option=size_option,
+            )
+        )
     names = [i.name for i in infos]
     for i, info in enumerate(infos):  # make names unique for tables and charts
         if names.count(info.name) > 1:
             info.name = f"{info.name}#{i + 1}"
-    results = [audit_tokenizer(info, corpus, corpus_options=corpus_options, top_words=config.top_words,
-                               frequent_types=config.frequent_types, quiet=quiet, executor=executor,
-                               words=words) for info in infos]
+    results = [
+        audit_tokenizer(
+            info,
+            corpus,
+            corpus_options=corpus_options,
+            top_words=config.top_words,
+            frequent_types=config.frequent_types,
+            quiet=quiet,
+            executor=executor,
+            words=words,
+        )
+        for info in infos
+    ]
     w = words or WordsConfig()
     doc = {"corpus": list(source.files), "bands": [b[2] for b in AUDIT_BANDS],
            "words": w.describe(), "words_label": w.label(),
@@ -403,10 +477,14 @@ def words_note(words: WordsConfig, results: list[dict[str, Any]]) -> str:
         note = "Words are the tokenizer's own pre-tokenization pieces (--words tokenizer)."
         share = max((r.get("unspaced_script_share", 0.0) for r in results), default=0.0)
         if share >= 0.2:
-            note += (f" {share:.0%} of this corpus's word characters are of scripts written without spaces "
-                     "(CJK, Thai): there these pieces are single characters or whole clauses, not words, "
-                     "so the per-word figures say little; use --words zh, ja, th, auto or cohesion.")
+            note += (
+                f" {share:.0%} of this corpus's word characters are of scripts written without spaces "
+                "(CJK, Thai): there these pieces are single characters or whole clauses, not words, "
+                "so the per-word figures say little; use --words zh, ja, th, auto or cohesion."
+            )
         return note
-    return (f"Words are those of --words {words.label()}: each token belongs to the word holding its "
-            "first character; tokens running past the end of their word are counted as "
-            "boundary-crossing and join the word they start in.")
+    return (
+        f"Words are those of --words {words.label()}: each token belongs to the word holding its "
+        "first character; tokens running past the end of their word are counted as "
+        "boundary-crossing and join the word they start in."
+    )

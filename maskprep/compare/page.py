@@ -25,12 +25,24 @@ __all__ = ["render_compare_html", "length_bins"]
 _MEASURES = (  # (key path, chart title, axis label, percent)
     (("masking_rate", "corpus"), "Actual masking rate (targets / maskable tokens)", "rate", True),
     (("multiword_share",), "Share of targets inside multi-word units", "share of targets", True),
-    (("within_word_leakage",), "Within-word leakage: targets whose word keeps a visible token",
-     "share of targets", True),
-    (("within_unit_leakage",), "Within-unit leakage: targets whose vocabulary unit keeps a visible token",
-     "share of targets", True),
-    (("easy_target_share",), "Easy targets: punctuation or the sample's most frequent words",
-     "share of targets", True),
+    (
+        ("within_word_leakage",),
+        "Within-word leakage: targets whose word keeps a visible token",
+        "share of targets",
+        True,
+    ),
+    (
+        ("within_unit_leakage",),
+        "Within-unit leakage: targets whose vocabulary unit keeps a visible token",
+        "share of targets",
+        True,
+    ),
+    (
+        ("easy_target_share",),
+        "Easy targets: punctuation or the sample's most frequent words",
+        "share of targets",
+        True,
+    ),
     (("unit_lengths", "mean_tokens"), "Mean length of masked units in tokens", "tokens", False),
     (("unit_lengths", "mean_words"), "Mean length of masked units in words", "words", False),
     (("targets_per_sequence", "mean"), "Mean targets per sequence", "targets", False),
@@ -66,7 +78,9 @@ def length_bins(hists: Sequence[dict[str, int]], *, cap: int) -> tuple[list[str]
     return labels, rows
 
 
-def _value_bins(hists: Sequence[dict[str, int]], *, most: int = 30) -> tuple[list[str], list[list[int]]]:
+def _value_bins(
+    hists: Sequence[dict[str, int]], *, most: int = 30
+) -> tuple[list[str], list[list[int]]]:
     """Integer bins from the smallest to the largest value seen, in ranges when there are many."""
     values = [int(k) for h in hists for k in h]
     lo, hi = (min(values), max(values)) if values else (0, 0)
@@ -88,22 +102,72 @@ def _summary(doc: dict[str, Any], order: list[str]) -> str:
     hidden, leaks = [], []
     for name in order:
         f = doc["strategies"][name]
-        hidden.append([name, f["targets"], f["masking_rate"]["corpus"], f["unit_lengths"]["mean_tokens"],
-                       f["unit_lengths"]["mean_words"], f["multiword_share"], f["targets_per_sequence"]["mean"]])
-        leaks.append([name, f["within_word_leakage"], f["within_unit_leakage"], f["easy_target_share"],
-                      f["mix"]["mask"], f["mix"]["random"], f["mix"]["keep"]])
+        hidden.append(
+            [
+                name,
+                f["targets"],
+                f["masking_rate"]["corpus"],
+                f["unit_lengths"]["mean_tokens"],
+                f["unit_lengths"]["mean_words"],
+                f["multiword_share"],
+                f["targets_per_sequence"]["mean"],
+            ]
+        )
+        leaks.append(
+            [
+                name,
+                f["within_word_leakage"],
+                f["within_unit_leakage"],
+                f["easy_target_share"],
+                f["mix"]["mask"],
+                f["mix"]["random"],
+                f["mix"]["keep"],
+            ]
+        )
     first = report.table(
-        headers=["strategy", "targets", "masking rate", "tokens/unit", "words/unit", "multi-word share",
-                 "targets/sequence"], rows=hidden,
-        column_formats={"masking rate": pct, "multi-word share": pct, "tokens/unit": ".2f", "words/unit": ".2f",
-                        "targets/sequence": ".1f"},
-        caption=f"What is hidden: {doc['sample']['sequences']:,} sequences, the same for every strategy")
+        headers=[
+            "strategy",
+            "targets",
+            "masking rate",
+            "tokens/unit",
+            "words/unit",
+            "multi-word share",
+            "targets/sequence",
+        ],
+        rows=hidden,
+        column_formats={
+            "masking rate": pct,
+            "multi-word share": pct,
+            "tokens/unit": ".2f",
+            "words/unit": ".2f",
+            "targets/sequence": ".1f",
+        },
+        caption=f"What is hidden: {doc['sample']['sequences']:,} sequences, the same for every strategy",
+    )
     second = report.table(
-        headers=["strategy", "within-word leakage", "within-unit leakage", "easy targets", "shown as mask",
-                 "random", "kept"], rows=leaks,
-        column_formats={h: pct for h in ("within-word leakage", "within-unit leakage", "easy targets",
-                                          "shown as mask", "random", "kept")},
-        caption="What stays visible and how targets are shown (shares of targets); an empty cell was not measured")
+        headers=[
+            "strategy",
+            "within-word leakage",
+            "within-unit leakage",
+            "easy targets",
+            "shown as mask",
+            "random",
+            "kept",
+        ],
+        rows=leaks,
+        column_formats={
+            h: pct
+            for h in (
+                "within-word leakage",
+                "within-unit leakage",
+                "easy targets",
+                "shown as mask",
+                "random",
+                "kept",
+            )
+        },
+        caption="What stays visible and how targets are shown (shares of targets); an empty cell was not measured",
+    )
     return first + second
 
 
@@ -124,13 +188,15 @@ def _bands(doc: dict[str, Any], order: list[str], slots: dict[str, int]) -> str:
         rows.append([b["band"], b["types"], b["tokens"], b["token_share"]]
                     + [doc["strategies"][n]["targets_by_band"][i]["rate"] for n in order])
     empty = [b["band"] for i, b in enumerate(first) if i not in shown]
-    table = report.table(headers=["band", "word types", "maskable tokens", "share of tokens"]
-                         + [f"rate: {n}" for n in order], rows=rows,
-                         column_formats={h: "{:.2%}" for h in ["share of tokens"] + [f"rate: {n}" for n in order]},
-                         caption="Masking rate within each band; a strategy that spreads its "
-                                 "budget evenly masks every band at about the asked rate"
-                                 + (f". No tokens in {', '.join(empty)}, left out." if empty
-                                    else ""))
+    table = report.table(
+        headers=["band", "word types", "maskable tokens", "share of tokens"]
+        + [f"rate: {n}" for n in order],
+        rows=rows,
+        column_formats={h: "{:.2%}" for h in ["share of tokens"] + [f"rate: {n}" for n in order]},
+        caption="Masking rate within each band; a strategy that spreads its "
+        "budget evenly masks every band at about the asked rate"
+        + (f". No tokens in {', '.join(empty)}, left out." if empty else ""),
+    )
     return chart + table
 
 
@@ -139,9 +205,17 @@ def _histograms(doc: dict[str, Any], order: list[str], slots: dict[str, int]) ->
     out = []
     for what, cap in (("tokens", 13), ("words", 11)):
         labels, rows = length_bins([f["unit_lengths"][what] for f in figs], cap=cap)
-        out.append(charts.histogram_chart(title=f"Length of masked units in {what}", bins=labels,
-                                          series=dict(zip(order, rows)), y_label="share of masked units",
-                                          normalize=True, x_label=what, slots=slots))
+        out.append(
+            charts.histogram_chart(
+                title=f"Length of masked units in {what}",
+                bins=labels,
+                series=dict(zip(order, rows)),
+                y_label="share of masked units",
+                normalize=True,
+                x_label=what,
+                slots=slots,
+            )
+        )
     labels, rows = _value_bins([f["targets_per_sequence"]["histogram"] for f in figs])
     out.append(charts.histogram_chart(title="Targets per sequence", bins=labels,
                                       series=dict(zip(order, rows)), y_label="share of sequences",
@@ -149,7 +223,9 @@ def _histograms(doc: dict[str, Any], order: list[str], slots: dict[str, int]) ->
     return "".join(out)
 
 
-def _examples(doc: dict[str, Any], order: list[str], examples: Sequence[dict[str, Any]], tokenizer: Any) -> str:
+def _examples(
+    doc: dict[str, Any], order: list[str], examples: Sequence[dict[str, Any]], tokenizer: Any
+) -> str:
     if not examples:
         return report.paragraph("No sequences to show.")
     tok = tokenizer.tokenizer
@@ -157,9 +233,13 @@ def _examples(doc: dict[str, Any], order: list[str], examples: Sequence[dict[str
     def pieces(ids: list[int]) -> list[str]:
         return [tok.id_to_token(int(i)) or "?" for i in ids]
 
-    out = [report.paragraph("The same sequences under each strategy. Highlighted boxes are masked units "
-                            "(one box per unit), with the original token under each target; a target shown "
-                            "unchanged or as a random token is highlighted too. Padding is left out.")]
+    out = [
+        report.paragraph(
+            "The same sequences under each strategy. Highlighted boxes are masked units "
+            "(one box per unit), with the original token under each target; a target shown "
+            "unchanged or as a random token is highlighted too. Padding is left out."
+        )
+    ]
     for ex in examples:
         length = sum(ex["attention_mask"])
         original = ex["input_ids"][:length]
@@ -173,12 +253,20 @@ def _examples(doc: dict[str, Any], order: list[str], examples: Sequence[dict[str
             labels = row["labels"][:length]
             masked = [lab != -100 for lab in labels]
             out.append(report.paragraph(f"{name}: {sum(masked)} targets"))
-            out.append(report.highlighted_sequence(pieces(row["input_ids"][:length]), masked=masked,
-                                                   unit_ids=row["unit_ids"][:length], originals=pieces(original)))
+            out.append(
+                report.highlighted_sequence(
+                    pieces(row["input_ids"][:length]),
+                    masked=masked,
+                    unit_ids=row["unit_ids"][:length],
+                    originals=pieces(original),
+                )
+            )
     return "".join(out)
 
 
-def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any]], tokenizer: Any) -> str:
+def render_compare_html(
+    doc: dict[str, Any], *, examples: Sequence[dict[str, Any]], tokenizer: Any
+) -> str:
     """The whole page: ``write_page("cmp/compare.html", render_compare_html(doc, examples=ex, tokenizer=info))``."""
     order = list(doc["order"])
     slots = {name: k for k, name in enumerate(order)}  # one colour per strategy on every chart
@@ -191,19 +279,34 @@ def render_compare_html(doc: dict[str, Any], *, examples: Sequence[dict[str, Any
                                                series=values, y_label=axis, percent=percent,
                                                name_bars=True, slots=slots, width=_SMALL_W,
                                                plot_height=_SMALL_H))
-    mix = charts.bar_chart(title="How targets are shown", categories=["mask token", "random token", "unchanged"],
-                           series={n: [doc["strategies"][n]["mix"][k] for k in ("mask", "random", "keep")]
-                                   for n in order}, y_label="share of targets", percent=True,
-                           slots=slots)
-    sections = [("Summary", _summary(doc, order)),
-                ("Measures, strategy by strategy", report.grid(measure_charts)),
-                ("Targets by word frequency", _bands(doc, order, slots)),
-                ("Unit lengths and targets per sequence", _histograms(doc, order, slots)),
-                ("Replacement mix", mix), ("Example sequences", _examples(doc, order, examples, tokenizer))]
+    mix = charts.bar_chart(
+        title="How targets are shown",
+        categories=["mask token", "random token", "unchanged"],
+        series={
+            n: [doc["strategies"][n]["mix"][k] for k in ("mask", "random", "keep")] for n in order
+        },
+        y_label="share of targets",
+        percent=True,
+        slots=slots,
+    )
+    sections = [
+        ("Summary", _summary(doc, order)),
+        ("Measures, strategy by strategy", report.grid(measure_charts)),
+        ("Targets by word frequency", _bands(doc, order, slots)),
+        ("Unit lengths and targets per sequence", _histograms(doc, order, slots)),
+        ("Replacement mix", mix),
+        ("Example sequences", _examples(doc, order, examples, tokenizer)),
+    ]
     skipped = [f"{name}: {why}" for name, why in doc.get("skipped", {}).items()]
     units = doc.get("units")
-    subtitle = (f"Corpus: {', '.join(doc['corpus']['files'])}. Tokenizer: {doc['tokenizer']['name']} "
-                f"({doc['tokenizer']['vocab_size']:,} tokens)."
-                + (f" Units: {units['path']} ({units['units']:,} units, {units['measure']})." if units else ""))
+    subtitle = (
+        f"Corpus: {', '.join(doc['corpus']['files'])}. Tokenizer: {doc['tokenizer']['name']} "
+        f"({doc['tokenizer']['vocab_size']:,} tokens)."
+        + (
+            f" Units: {units['path']} ({units['units']:,} units, {units['measure']})."
+            if units
+            else ""
+        )
+    )
     return report.page(title="Masking strategies compared", subtitle=subtitle, sections=sections,
                        notes=list(doc["notes"]) + skipped)

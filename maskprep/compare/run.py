@@ -44,8 +44,16 @@ from ..masking.strategies import check_seed
 from ..stats.masks import MaskStats
 from ..stats.targets import TOP_WORDS, TargetStats, targets_per_sequence
 
-__all__ = ["CompareConfig", "compare_strategies", "parse_strategies", "format_compare_table", "sample_quotas",
-           "resolve_strategies", "ALL_STRATEGIES", "DEFAULT_SAMPLE"]
+__all__ = [
+    "CompareConfig",
+    "compare_strategies",
+    "parse_strategies",
+    "format_compare_table",
+    "sample_quotas",
+    "resolve_strategies",
+    "ALL_STRATEGIES",
+    "DEFAULT_SAMPLE",
+]
 
 ALL_STRATEGIES: tuple[Strategy, ...] = (Strategy.TOKEN, Strategy.WORD, Strategy.SPAN, Strategy.PMI)
 DEFAULT_SAMPLE = 10_000
@@ -116,11 +124,15 @@ class CompareConfig:
         set_(self, "pack", packing.pack)
         set_(self, "seed", int(self.seed))
         if self.sample is not None and not is_whole(self.sample, 1):
-            raise MaskprepError(f"--sample must be a whole number of sequences >= 1 or 'all', got {self.sample!r}")
+            raise MaskprepError(
+                f"--sample must be a whole number of sequences >= 1 or 'all', got {self.sample!r}"
+            )
         for name, value, low, high in (("--examples", self.examples, 0, MAX_EXAMPLES),
                                        ("--top-words", self.top_words, 1, 1_000_000)):
             if not is_whole(value, low, high):
-                raise MaskprepError(f"{name} must be a whole number from {low} to {high}, got {value!r}")
+                raise MaskprepError(
+                    f"{name} must be a whole number from {low} to {high}, got {value!r}"
+                )
 
     def masking(self, strategy: Strategy) -> MaskingConfig:
         """The `MaskingConfig` of one strategy: ``config.masking(Strategy.SPAN)``."""
@@ -133,9 +145,19 @@ class CompareConfig:
 
     def to_json(self) -> dict[str, Any]:
         """The options as JSON values: ``CompareConfig().to_json()["mix"]`` -> [0.8, 0.1, 0.1]."""
-        return {"rate": self.rate, "mix": list(self.mix), "mix_per": self.mix_per.value, "span_p": self.span_p,
-                "span_max": self.span_max, "seq_len": self.seq_len, "pack": self.pack, "seed": self.seed,
-                "sample": self.sample, "examples": self.examples, "top_words": self.top_words}
+        return {
+            "rate": self.rate,
+            "mix": list(self.mix),
+            "mix_per": self.mix_per.value,
+            "span_p": self.span_p,
+            "span_max": self.span_max,
+            "seq_len": self.seq_len,
+            "pack": self.pack,
+            "seed": self.seed,
+            "sample": self.sample,
+            "examples": self.examples,
+            "top_words": self.top_words,
+        }
 
 
 # ------------------------------------------------------------------ the task function
@@ -163,11 +185,26 @@ def _compare_task(job: _Job, task: SourceTask, quota: int | None) -> dict[str, A
         rows: dict[Strategy, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         for s in job.strategies:
             units, masked, labels = loop.mask(pb, masking[s], 0)
-            stats[s].add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
-                         attention_mask=pb.attention_mask, mask_token_id=loop.mask_id, first_copy=True)
-            targets[s].add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
-                           word_keys=pb.word_keys, word_kinds=pb.word_kinds, attention_mask=pb.attention_mask,
-                           mask_token_id=loop.mask_id, group_ids=groups)
+            stats[s].add(
+                masked_ids=masked,
+                labels=labels,
+                unit_ids=units,
+                word_ids=pb.word_ids,
+                attention_mask=pb.attention_mask,
+                mask_token_id=loop.mask_id,
+                first_copy=True,
+            )
+            targets[s].add(
+                masked_ids=masked,
+                labels=labels,
+                unit_ids=units,
+                word_ids=pb.word_ids,
+                word_keys=pb.word_keys,
+                word_kinds=pb.word_kinds,
+                attention_mask=pb.attention_mask,
+                mask_token_id=loop.mask_id,
+                group_ids=groups,
+            )
             rows[s] = (masked, labels, units)
         if len(examples) < cfg.examples:
             _pick_examples(pb, rows, groups, examples, fallback, cfg.examples)
@@ -177,20 +214,42 @@ def _compare_task(job: _Job, task: SourceTask, quota: int | None) -> dict[str, A
             "examples": (examples + fallback)[:cfg.examples]}
 
 
-def _pick_examples(pb: PackedBatch, rows: Mapping[Strategy, tuple[np.ndarray, ...]], groups: np.ndarray | None,
-                   examples: list[dict[str, Any]], fallback: list[dict[str, Any]], want: int) -> None:
+def _pick_examples(
+    pb: PackedBatch,
+    rows: Mapping[Strategy, tuple[np.ndarray, ...]],
+    groups: np.ndarray | None,
+    examples: list[dict[str, Any]],
+    fallback: list[dict[str, Any]],
+    want: int,
+) -> None:
     """Keep rows to show: first those holding a multi-word vocabulary unit, else the first rows."""
     n_words = pb.word_ids.max(axis=1, initial=-1) + 1
-    rich = np.zeros(len(pb), bool) if groups is None else (groups.max(axis=1, initial=-1) + 1) < n_words
+    rich = (
+        np.zeros(len(pb), bool)
+        if groups is None
+        else (groups.max(axis=1, initial=-1) + 1) < n_words
+    )
     for r in range(len(pb)):
         dest = examples if rich[r] else fallback
         if len(examples) >= want or (dest is fallback and len(fallback) >= want):
             continue
-        dest.append({"sequence_id": int(pb.sequence_ids[r]), "rich": bool(rich[r]), "input_ids": pb.input_ids[r].tolist(),
-                     "attention_mask": pb.attention_mask[r].tolist(),
-                     "units": None if groups is None else groups[r].tolist(),
-                     "strategies": {s.value: {"input_ids": m[r].tolist(), "labels": lab[r].tolist(),
-                                              "unit_ids": u[r].tolist()} for s, (m, lab, u) in rows.items()}})
+        dest.append(
+            {
+                "sequence_id": int(pb.sequence_ids[r]),
+                "rich": bool(rich[r]),
+                "input_ids": pb.input_ids[r].tolist(),
+                "attention_mask": pb.attention_mask[r].tolist(),
+                "units": None if groups is None else groups[r].tolist(),
+                "strategies": {
+                    s.value: {
+                        "input_ids": m[r].tolist(),
+                        "labels": lab[r].tolist(),
+                        "unit_ids": u[r].tolist(),
+                    }
+                    for s, (m, lab, u) in rows.items()
+                },
+            }
+        )
 
 
 # ------------------------------------------------------------------ the driver
@@ -225,14 +284,23 @@ def _load_units(units: str | Path | None, info: Any,
     vocab = read_units_for(units, info, words)
     digest = file_sha256(units)
     lengths = {str(k): int(v) for k, v in zip(*np.unique(np.asarray(vocab.n), return_counts=True))}
-    doc = {"path": str(units), "sha256": digest, "units": len(vocab), "measure": vocab.measure.value,
-           "by_length": lengths}
-    if "units_tokenizer_hash" in vocab.source:  # built with another tokenizer that has the same words
+    doc = {
+        "path": str(units),
+        "sha256": digest,
+        "units": len(vocab),
+        "measure": vocab.measure.value,
+        "by_length": lengths,
+    }
+    if (
+        "units_tokenizer_hash" in vocab.source
+    ):  # built with another tokenizer that has the same words
         doc["built_with_tokenizer"] = vocab.source["units_tokenizer_hash"]
     return vocab.by_length(), digest, doc
 
 
-def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[Strategy, ...], dict[str, str]]:
+def resolve_strategies(
+    config: CompareConfig, has_units: bool
+) -> tuple[tuple[Strategy, ...], dict[str, str]]:
     """The strategies to run and the skipped ones with the reason.
 
     >>> resolve_strategies(CompareConfig(), False)[1]["pmi"][:30]
@@ -241,10 +309,15 @@ def resolve_strategies(config: CompareConfig, has_units: bool) -> tuple[tuple[St
     if config.strategies is None:
         if has_units:
             return ALL_STRATEGIES, {}
-        return ALL_STRATEGIES[:3], {"pmi": needs_units("", UNITS_REMEDY + "; skipped, and within-unit "
-                                                       "leakage is not measured").lstrip()}
+        return ALL_STRATEGIES[:3], {
+            "pmi": needs_units(
+                "", UNITS_REMEDY + "; skipped, and within-unit leakage is not measured"
+            ).lstrip()
+        }
     if Strategy.PMI in config.strategies and not has_units:
-        raise MaskprepError(needs_units("--strategies lists pmi, which", UNITS_REMEDY + " or leave pmi out"))
+        raise MaskprepError(
+            needs_units("--strategies lists pmi, which", UNITS_REMEDY + " or leave pmi out")
+        )
     return config.strategies, {}
 
 
@@ -279,7 +352,12 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     from .._budget import check_budget
     from ..count.types import parse_memory
 
-    check_budget(parse_memory(memory), option=f"--memory {memory}", executor=executor, tasks=len(source.tasks))
+    check_budget(
+        parse_memory(memory),
+        option=f"--memory {memory}",
+        executor=executor,
+        tasks=len(source.tasks),
+    )
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="compare")
     info.require_mask()
@@ -293,9 +371,17 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
 
     tasks = source.tasks
     quotas = sample_quotas([t.weight for t in tasks], config.sample)
-    loop = LoopJob(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash,
-                   packing=config.packing(), corpus_options=corpus_options, seed=config.seed, units=by_length,
-                   units_digest=units_digest, words=None if words.is_tokenizer else words)
+    loop = LoopJob(
+        tokenizer_json=info.json,
+        tokenizer_name=info.name,
+        tokenizer_hash=info.hash,
+        packing=config.packing(),
+        corpus_options=corpus_options,
+        seed=config.seed,
+        units=by_length,
+        units_digest=units_digest,
+        words=None if words.is_tokenizer else words,
+    )
     job = _Job(loop=loop, config=config, strategies=strategies)
     todo = [(job, t, q) for t, q in zip(tasks, quotas) if q != 0]
     results = list(map_tasks(_compare_task, todo, executor=executor, label="compare",
@@ -312,33 +398,60 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
         examples.extend(res["examples"])
     sequences = sum(res["sequences"] for res in results)
     if sequences == 0:
-        raise MaskprepError(f"{', '.join(map(str, corpus))}: corpus is empty (no non-empty documents)")
+        raise MaskprepError(
+            f"{', '.join(map(str, corpus))}: corpus is empty (no non-empty documents)"
+        )
     from ..tokenizer.encoding import warn_literal_specials
 
     warn_literal_specials(info, read.literal_specials, ", ".join(map(str, corpus)))
-    examples = sorted(examples, key=lambda e: not e["rich"])[:config.examples]  # stable: task order kept
+    examples = sorted(examples, key=lambda e: not e["rich"])[
+        : config.examples
+    ]  # stable: task order kept
 
     figures = {}
     for s in strategies:
-        options = {"strategy": s.value, "rate": config.rate, "mix": list(config.mix),
-                   "mix_per": config.mix_per.value, "span_p": config.span_p, "span_max": config.span_max,
-                   "seq_len": config.seq_len, "pack": config.pack}
-        doc = stats[s].to_dict(seed=config.seed, layout="static", options=options,
-                               note="rate is over maskable (non-special) tokens; each sequence's budget is "
-                                    "round(rate x its maskable tokens), so per-sequence rates vary")
+        options = {
+            "strategy": s.value,
+            "rate": config.rate,
+            "mix": list(config.mix),
+            "mix_per": config.mix_per.value,
+            "span_p": config.span_p,
+            "span_max": config.span_max,
+            "seq_len": config.seq_len,
+            "pack": config.pack,
+        }
+        doc = stats[s].to_dict(
+            seed=config.seed,
+            layout="static",
+            options=options,
+            note="rate is over maskable (non-special) tokens; each sequence's budget is "
+            "round(rate x its maskable tokens), so per-sequence rates vary",
+        )
         doc.update(targets[s].to_dict(top_words=config.top_words))
         doc["targets_per_sequence"] = targets_per_sequence(stats[s])
         figures[s.value] = doc
     doc = {
-        "format": "maskprep-compare", "strategies": figures, "skipped": skipped,
+        "format": "maskprep-compare",
+        "strategies": figures,
+        "skipped": skipped,
         "order": [s.value for s in strategies],
         "options": {**config.to_json(), "strategies": [s.value for s in strategies], "copy": 0},
-        "sample": {"sequences": sequences, "asked": config.sample, "tasks": len(todo),
-                   "how": "all sequences" if config.sample is None else
-                   "the first sequences of each corpus task, tasks weighted by their bytes on disk"},
-        "corpus": {"files": list(source.files), "fingerprint": source.fingerprint,
-                   **read.to_dict()},
-        "tokenizer": info.describe(), "units": units_doc, "words": words.describe(),
+        "sample": {
+            "sequences": sequences,
+            "asked": config.sample,
+            "tasks": len(todo),
+            "how": "all sequences"
+            if config.sample is None
+            else "the first sequences of each corpus task, tasks weighted by their bytes on disk",
+        },
+        "corpus": {
+            "files": list(source.files),
+            "fingerprint": source.fingerprint,
+            **read.to_dict(),
+        },
+        "tokenizer": info.describe(),
+        "units": units_doc,
+        "words": words.describe(),
         "notes": _notes(config, units_doc is not None),
     }
     from .page import render_compare_html
@@ -364,8 +477,10 @@ def _notes(config: CompareConfig, has_units: bool) -> list[str]:
         "A word or unit cut by a sequence boundary counts once in each sequence.",
     ]
     if not has_units:
-        notes.append("No unit vocabulary was given, so pmi is not compared and within-unit leakage is not "
-                     "measured.")
+        notes.append(
+            "No unit vocabulary was given, so pmi is not compared and within-unit leakage is not "
+            "measured."
+        )
     return notes
 
 
@@ -380,19 +495,39 @@ def format_compare_table(doc: dict[str, Any]) -> str:
     def num(x: float | None, spec: str = ".2f") -> str:
         return "-" if x is None else format(x, spec)
 
-    head = ("strategy", "rate", "tok/unit", "words/unit", "multiword", "word leak", "unit leak", "easy",
-            "targets/seq")
+    head = (
+        "strategy",
+        "rate",
+        "tok/unit",
+        "words/unit",
+        "multiword",
+        "word leak",
+        "unit leak",
+        "easy",
+        "targets/seq",
+    )
     rows = [head]
     for name in doc["order"]:
         f = doc["strategies"][name]
-        rows.append((name, pct(f["masking_rate"]["corpus"]), num(f["unit_lengths"]["mean_tokens"]),
-                     num(f["unit_lengths"]["mean_words"]), pct(f["multiword_share"]), pct(f["within_word_leakage"]),
-                     pct(f["within_unit_leakage"]), pct(f["easy_target_share"]),
-                     num(f["targets_per_sequence"]["mean"], ".1f")))
+        rows.append(
+            (
+                name,
+                pct(f["masking_rate"]["corpus"]),
+                num(f["unit_lengths"]["mean_tokens"]),
+                num(f["unit_lengths"]["mean_words"]),
+                pct(f["multiword_share"]),
+                pct(f["within_word_leakage"]),
+                pct(f["within_unit_leakage"]),
+                pct(f["easy_target_share"]),
+                num(f["targets_per_sequence"]["mean"], ".1f"),
+            )
+        )
     lines = [format_table(rows)]
     s = doc["sample"]
-    lines.append(f"\n{plural(s['sequences'], 'sequence')} of {doc['options']['seq_len']} tokens, seed {doc['options']['seed']}"
-                 f", asked rate {doc['options']['rate']:g} of maskable tokens")
+    lines.append(
+        f"\n{plural(s['sequences'], 'sequence')} of {doc['options']['seq_len']} tokens, seed {doc['options']['seed']}"
+        f", asked rate {doc['options']['rate']:g} of maskable tokens"
+    )
     for name, why in doc["skipped"].items():
         lines.append(f"{name}: {why}")
     return "\n".join(lines)

@@ -92,7 +92,9 @@ def _broken_link(item: str, p: Path) -> None:
         p.stat()
     except OSError as exc:
         if exc.errno == errno.ELOOP:
-            raise MaskprepError(f"{item}: symbolic link loop (the link leads back to itself)") from None
+            raise MaskprepError(
+                f"{item}: symbolic link loop (the link leads back to itself)"
+            ) from None
     raise MaskprepError(f"{item}: symbolic link to {os.readlink(p)}, which does not exist")
 
 

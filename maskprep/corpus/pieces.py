@@ -81,7 +81,9 @@ def line_pieces(first: bytes, readline: Callable[[int], bytes],
             read += len(more)
             ended = len(more) < want or more.endswith(b"\n")
             buf += more
-        content = buf.rstrip(b"\r\n") if buf.endswith(b"\n") else (buf.rstrip(b"\r") if ended else buf)
+        content = (
+            buf.rstrip(b"\r\n") if buf.endswith(b"\n") else (buf.rstrip(b"\r") if ended else buf)
+        )
         if ended and len(content) <= bound:
             yield off, content, True, read
             return

@@ -58,7 +58,9 @@ class CorpusOptions:
         if self.doc_sep not in ("line", "blank"):
             raise MaskprepError(f"--doc-sep: expected 'line' or 'blank', got {self.doc_sep!r}")
         if self.chunk_bytes is not None and self.chunk_bytes < 1024:
-            raise MaskprepError(f"chunk size {self.chunk_bytes} bytes is too small; use at least 1024")
+            raise MaskprepError(
+                f"chunk size {self.chunk_bytes} bytes is too small; use at least 1024"
+            )
 
 
 @dataclass(frozen=True)
@@ -80,7 +82,11 @@ class CorpusTask:
     def describe(self) -> str:
         if self.start == 0 and self.end == -1:
             return self.path
-        unit = "bytes" if self.fmt in TEXT_FORMATS else ("row groups" if self.fmt == "parquet" else "batches")
+        unit = (
+            "bytes"
+            if self.fmt in TEXT_FORMATS
+            else ("row groups" if self.fmt == "parquet" else "batches")
+        )
         return f"{self.path} ({unit} {self.start}-{self.end})"
 
 
@@ -111,8 +117,13 @@ class ReadStats:
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> "ReadStats":
-        return cls(int(d["documents"]), int(d["empty_skipped"]), int(d["invalid_utf8_replaced"]),
-                   int(d["bytes_read"]), {str(k): int(v) for k, v in d.get("literal_special_tokens", {}).items()})
+        return cls(
+            int(d["documents"]),
+            int(d["empty_skipped"]),
+            int(d["invalid_utf8_replaced"]),
+            int(d["bytes_read"]),
+            {str(k): int(v) for k, v in d.get("literal_special_tokens", {}).items()},
+        )
 
 
 MIN_TASK_BYTES = 1 << 20
@@ -212,13 +223,20 @@ def iter_documents(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
         else:
             stats.empty_skipped += 1
     if cut:
-        sys.stderr.write(f"note: {task.describe()}: documents longer than {PIECE_BYTES:,} bytes were cut into "
-                         f"{cut:,} more piece(s) of at most that size; each piece is treated as a document "
-                         "(n-grams do not span a cut, packing separates the pieces)\n")
+        sys.stderr.write(
+            f"note: {task.describe()}: documents longer than {PIECE_BYTES:,} bytes were cut into "
+            f"{cut:,} more piece(s) of at most that size; each piece is treated as a document "
+            "(n-grams do not span a cut, packing separates the pieces)\n"
+        )
 
 
-def iter_batches(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
-                 stats: ReadStats | None = None, *, batch_chars: int = 1 << 20) -> Iterator[list[str]]:
+def iter_batches(
+    task: CorpusTask,
+    options: CorpusOptions = CorpusOptions(),
+    stats: ReadStats | None = None,
+    *,
+    batch_chars: int = 1 << 20,
+) -> Iterator[list[str]]:
     """Yield lists of documents of about `batch_chars` characters in total.
 
     >>> sum(len(b) for b in iter_batches(task))  # doctest: +SKIP
@@ -288,15 +306,25 @@ def _raw_lines(task: CorpusTask, piece: int | None = None) -> Iterator[tuple[int
                     pos += consumed
                     continue
                 pos += len(line)
-                yield start, line.rstrip(b"\r\n") if line.endswith(b"\n") else line.rstrip(b"\r"), True
+                yield (
+                    start,
+                    line.rstrip(b"\r\n") if line.endswith(b"\n") else line.rstrip(b"\r"),
+                    True,
+                )
     except EOFError as exc:
         if task.compression == "zstd":
             raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
-        raise MaskprepError(f"{task.path}: compressed file is truncated ({exc}); re-create or re-download it") from None
+        raise MaskprepError(
+            f"{task.path}: compressed file is truncated ({exc}); re-create or re-download it"
+        ) from None
     except (gzip.BadGzipFile, zlib.error) as exc:
         raise MaskprepError(f"{task.path}: not a valid gzip file ({exc})") from None
     except OSError as exc:
-        if "zstd" in type(exc).__module__.lower() or "zstd" in str(exc).lower() or task.compression == "zstd":
+        if (
+            "zstd" in type(exc).__module__.lower()
+            or "zstd" in str(exc).lower()
+            or task.compression == "zstd"
+        ):
             raise MaskprepError(f"{task.path}: not a valid or complete zstd file ({exc})") from None
         raise MaskprepError(f"{task.path}: cannot read ({exc.strerror or exc})") from None
     except Exception as exc:  # zstandard.ZstdError is not an OSError
@@ -346,9 +374,11 @@ class _Replaced:
         if not self.bytes:
             return
         line = _line_number(task, self.first) if self.first >= 0 else 0
-        sys.stderr.write(f"warning: {task.describe()}: {self.bytes:,} invalid UTF-8 byte(s) replaced with "
-                         f"U+FFFD in {self.lines:,} line(s), the first at line {line:,} (byte {self.first:,}); "
-                         "pass --strict to stop on them instead\n")
+        sys.stderr.write(
+            f"warning: {task.describe()}: {self.bytes:,} invalid UTF-8 byte(s) replaced with "
+            f"U+FFFD in {self.lines:,} line(s), the first at line {line:,} (byte {self.first:,}); "
+            "pass --strict to stop on them instead\n"
+        )
 
 
 def _decode(task: CorpusTask, offset: int, raw: bytes, options: CorpusOptions, stats: ReadStats,
@@ -359,13 +389,16 @@ def _decode(task: CorpusTask, offset: int, raw: bytes, options: CorpusOptions, s
         if offset == 0 and task.start == 0:
             for bom, name in _BOMS.items():
                 if raw.startswith(bom):
-                    raise MaskprepError(f"{task.path}: the file is {name} (it starts with a byte-order mark); "
-                                        "convert it to UTF-8, e.g. iconv -f " + name + " -t UTF-8") from None
+                    raise MaskprepError(
+                        f"{task.path}: the file is {name} (it starts with a byte-order mark); "
+                        "convert it to UTF-8, e.g. iconv -f " + name + " -t UTF-8"
+                    ) from None
         if options.strict:
             line = _line_number(task, offset)
             raise MaskprepError(
                 f"{task.path}:{line}: invalid UTF-8 at byte offset {offset + exc.start} "
-                f"(byte 0x{raw[exc.start]:02x}); fix the file or drop --strict to replace invalid bytes") from None
+                f"(byte 0x{raw[exc.start]:02x}); fix the file or drop --strict to replace invalid bytes"
+            ) from None
         stats.invalid_utf8 += 1
         _replaced.bytes = 0
         text = raw.decode("utf-8", errors="maskprep-count-replace")
@@ -377,7 +410,9 @@ def _decode(task: CorpusTask, offset: int, raw: bytes, options: CorpusOptions, s
         return text
 
 
-def _iter_text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+def _iter_text_documents(
+    task: CorpusTask, options: CorpusOptions, stats: ReadStats
+) -> Iterator[str]:
     replaced = _Replaced()
     try:
         yield from _text_documents(task, options, stats, replaced)
@@ -407,7 +442,9 @@ def _text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats,
                 obj = json.loads(text)
             except json.JSONDecodeError as exc:
                 line = _line_number(task, offset)
-                raise MaskprepError(f"{task.path}:{line}: not valid JSON ({exc.msg} at column {exc.colno})") from None
+                raise MaskprepError(
+                    f"{task.path}:{line}: not valid JSON ({exc.msg} at column {exc.colno})"
+                ) from None
             if not isinstance(obj, dict) or field_name not in obj:
                 line = _line_number(task, offset)
                 have = ", ".join(sorted(obj)) if isinstance(obj, dict) else type(obj).__name__
@@ -420,7 +457,8 @@ def _text_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats,
             if not isinstance(value, str):
                 line = _line_number(task, offset)
                 raise MaskprepError(
-                    f"{task.path}:{line}: field {field_name!r} is {type(value).__name__}, expected a string")
+                    f"{task.path}:{line}: field {field_name!r} is {type(value).__name__}, expected a string"
+                )
             yield value
 
 
@@ -485,7 +523,9 @@ def _check_column(path: str, names: list[str], column: str) -> None:
             "choose one with --text-column")
 
 
-def _iter_table_documents(task: CorpusTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+def _iter_table_documents(
+    task: CorpusTask, options: CorpusOptions, stats: ReadStats
+) -> Iterator[str]:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -521,14 +561,18 @@ def _iter_table_documents(task: CorpusTask, options: CorpusOptions, stats: ReadS
                 try:
                     stream = pa.ipc.open_stream(path)
                 except Exception as exc:
-                    raise MaskprepError(f"{task.path}: not a readable Arrow IPC file ({exc})") from None
+                    raise MaskprepError(
+                        f"{task.path}: not a readable Arrow IPC file ({exc})"
+                    ) from None
                 batches = iter(stream)
                 names = stream.schema.names
             _check_column(task.path, names, column)
             for batch in batches:
                 yield from _column_texts(task, batch.column(names.index(column)), stats)
     except (EOFError, gzip.BadGzipFile, zlib.error) as exc:
-        raise MaskprepError(f"{task.path}: compressed file is truncated or corrupt ({exc})") from None
+        raise MaskprepError(
+            f"{task.path}: compressed file is truncated or corrupt ({exc})"
+        ) from None
     finally:
         if tmp_path is not None:
             os.unlink(tmp_path)

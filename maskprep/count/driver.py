@@ -52,11 +52,32 @@ from .files import Vocabulary, publish, write_ngrams
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
 from ..tokenizer.encoding import TokenizerInfo, warn_literal_specials
 
-from .types import FORMAT_VERSION, MAX_N, MIN_TASK_MEMORY, POOL_ROWS, TASK_BYTES, CountConfig, CountSummary, \
-    TaskCounts, parse_memory
+from .types import (
+    FORMAT_VERSION,
+    MAX_N,
+    MIN_TASK_MEMORY,
+    POOL_ROWS,
+    TASK_BYTES,
+    CountConfig,
+    CountSummary,
+    TaskCounts,
+    parse_memory,
+)
 
-__all__ = ["CountConfig", "CountSummary", "count_ngrams", "finish_counts", "task_share", "write_task",
-           "parse_memory", "format_summary", "FORMAT_VERSION", "MIN_TASK_MEMORY", "MAX_N", "TASK_BYTES"]
+__all__ = [
+    "CountConfig",
+    "CountSummary",
+    "count_ngrams",
+    "finish_counts",
+    "task_share",
+    "write_task",
+    "parse_memory",
+    "format_summary",
+    "FORMAT_VERSION",
+    "MIN_TASK_MEMORY",
+    "MAX_N",
+    "TASK_BYTES",
+]
 
 
 # ---------------------------------------------------------------- the driver
@@ -65,11 +86,18 @@ def _path_of(tokenizer: object) -> str | None:
     return str(tokenizer) if isinstance(tokenizer, (str, Path)) else None
 
 
-def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path | TokenizerInfo | None,
-                 output: str | Path,
-                 config: CountConfig = CountConfig(), corpus_options: CorpusOptions = CorpusOptions(),
-                 executor: Executor = Executor(), overwrite: bool = False, quiet: bool = False,
-                 resume: bool = False) -> CountSummary:
+def count_ngrams(
+    corpus: list[str] | tuple[str, ...],
+    *,
+    tokenizer: str | Path | TokenizerInfo | None,
+    output: str | Path,
+    config: CountConfig = CountConfig(),
+    corpus_options: CorpusOptions = CorpusOptions(),
+    executor: Executor = Executor(),
+    overwrite: bool = False,
+    quiet: bool = False,
+    resume: bool = False,
+) -> CountSummary:
     """Count the word n-grams of a corpus exactly into COUNTS_DIR `output`; `resume` finishes an interrupted count.
 
     Finished tasks are recorded in ``COUNTS_DIR/.maskprep-count/`` (see `maskprep.count.resume`).
@@ -93,14 +121,20 @@ def count_ngrams(corpus: list[str] | tuple[str, ...], *, tokenizer: str | Path |
     tasks = source.tasks
     share = task_share(config, executor, len(tasks))
     fingerprint = source.fingerprint
-    identity = count_state.run_identity(config, info, fingerprint, task_options, format_version=FORMAT_VERSION)
+    identity = count_state.run_identity(
+        config, info, fingerprint, task_options, format_version=FORMAT_VERSION
+    )
     with count_state.open_state(output, identity, resume=resume, overwrite=overwrite) as state:
         if state.finished:  # --resume on counts finished with these options: nothing to do
             return count_state.finished_summary(output, tasks=len(tasks), started=started)
-        done = count_state.finished_results(state, [t.index for t in tasks]) if state.resumed else {}
+        done = (
+            count_state.finished_results(state, [t.index for t in tasks]) if state.resumed else {}
+        )
         state.clean(count_state.attempts_of(done))
         todo = [t for t in tasks if t.index not in done]
-        root = os.path.abspath(state.root)  # absolute paths: a Dask worker's cwd is not the driver's
+        root = os.path.abspath(
+            state.root
+        )  # absolute paths: a Dask worker's cwd is not the driver's
         args = [(t, info.json, config, root, corpus_options, share, state.digest) for t in todo]
         for result in map_tasks(count_state.count_recorded, args, executor=executor, label="count",
                                 describe=lambda i: todo[i].describe(),
@@ -123,13 +157,17 @@ def task_share(config: CountConfig, executor: Executor, tasks: int) -> int:
     slots = max(1, min(1 if executor.dask else executor.workers, tasks))
     share = config.memory_bytes // slots
     if share < MIN_TASK_MEMORY:
-        raise MaskprepError(f"--memory {config.memory}: too small to make progress with {slots} workers; the "
-                            f"minimum is {MIN_TASK_MEMORY * slots >> 20} MiB ({MIN_TASK_MEMORY >> 20} MiB per "
-                            "worker); raise --memory or lower --workers")
+        raise MaskprepError(
+            f"--memory {config.memory}: too small to make progress with {slots} workers; the "
+            f"minimum is {MIN_TASK_MEMORY * slots >> 20} MiB ({MIN_TASK_MEMORY >> 20} MiB per "
+            "worker); raise --memory or lower --workers"
+        )
     return share
 
 
-def write_task(path: str, n: int, parts: list[PartitionResult], vocab_path: str, band_rows: int) -> str:
+def write_task(
+    path: str, n: int, parts: list[PartitionResult], vocab_path: str, band_rows: int
+) -> str:
     """Task function: write ngrams-<n>.parquet from the merged key ranges of one n."""
     vocab = Vocabulary()
     vocab.add_file(vocab_path)
@@ -146,14 +184,29 @@ def write_task(path: str, n: int, parts: list[PartitionResult], vocab_path: str,
 def _for_rows(executor: Executor, rows: int) -> Executor:
     """The executor for a phase of `rows` rows: small phases run in this process (same results), unless
     the counting tasks already started the pool."""
-    if executor.dask or executor.workers == 1 or rows >= POOL_ROWS or pool_running(executor.workers):
+    if (
+        executor.dask
+        or executor.workers == 1
+        or rows >= POOL_ROWS
+        or pool_running(executor.workers)
+    ):
         return executor
     return dataclasses.replace(executor, workers=1)
 
 
-def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Path, spill: Path,
-                  config: CountConfig, files: list[Path], corpus_options: CorpusOptions, executor: Executor,
-                  started: float, fingerprint: str | None = None) -> CountSummary:
+def finish_counts(
+    results: list[TaskCounts],
+    *,
+    info: TokenizerInfo,
+    output: Path,
+    spill: Path,
+    config: CountConfig,
+    files: list[Path],
+    corpus_options: CorpusOptions,
+    executor: Executor,
+    started: float,
+    fingerprint: str | None = None,
+) -> CountSummary:
     """Merge the spilled runs of all tasks, write COUNTS_DIR and rename it into place.
 
     >>> finish_counts(results, info=info, output=Path("counts"), spill=spill, config=config, files=files,
@@ -171,25 +224,39 @@ def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Pat
         raise disk_error(exc, spill, "writing the word list") from None
     totals = [sum(r.totals[n - 1] for r in results) for n in range(1, max_n + 1)]
     if totals[0] == 0:
-        raise MaskprepError(f"{', '.join(map(str, files))}: no words to count (every document is empty, "
-                            "whitespace or punctuation)")
+        raise MaskprepError(
+            f"{', '.join(map(str, files))}: no words to count (every document is empty, "
+            "whitespace or punctuation)"
+        )
     share = task_share(config, executor, 2 * max_n)
     jobs: list[MergeJob] = []
     for n in range(1, max_n + 1):
         runs = [run for r in results for run in r.runs if run.n == n]
         group_rows = int(np.clip(share // (16 * (n + 1) + 64), 4096, 1 << 18))
-        jobs += plan_merges(runs, n, 2 * max(1, executor.workers), config.min_count, group_rows, spill)
+        jobs += plan_merges(
+            runs, n, 2 * max(1, executor.workers), config.min_count, group_rows, spill
+        )
     run_rows = sum(run.rows for r in results for run in r.runs)
-    parts: list[PartitionResult] = list(map_tasks(
-        merge_partition, [(j,) for j in jobs], executor=_for_rows(executor, run_rows), label="merge",
-        describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}"))
+    parts: list[PartitionResult] = list(
+        map_tasks(
+            merge_partition,
+            [(j,) for j in jobs],
+            executor=_for_rows(executor, run_rows),
+            label="merge",
+            describe=lambda i: f"merge of {jobs[i].n}-grams, part {i}",
+        )
+    )
     by_n = {n: [p for p in parts if p.n == n] for n in range(1, max_n + 1)}
     for n in range(1, max_n + 1):
         if sum(p.total for p in by_n[n]) != totals[n - 1]:
-            raise RuntimeError(f"internal error: merged {n}-gram occurrences do not add up to the counted total")
+            raise RuntimeError(
+                f"internal error: merged {n}-gram occurrences do not add up to the counted total"
+            )
     distinct = [sum(p.distinct for p in by_n[n]) for n in range(1, max_n + 1)]
     kept = [sum(p.kept for p in by_n[n]) for n in range(1, max_n + 1)]
-    order = sorted(range(1, max_n + 1), key=lambda n: -kept[n - 1])  # biggest first: better load balance
+    order = sorted(
+        range(1, max_n + 1), key=lambda n: -kept[n - 1]
+    )  # biggest first: better load balance
     list(map_tasks(write_task, [(str(spill / f"ngrams-{n}.parquet"), n, by_n[n], vocab_path,
                                  max(1024, share // (24 * (n + 1) + 96))) for n in order],
                    executor=_for_rows(executor, 2 * sum(kept)), label="write",
@@ -201,20 +268,34 @@ def finish_counts(results: list[TaskCounts], *, info: TokenizerInfo, output: Pat
             literal[s] = literal.get(s, 0) + k
     warn_literal_specials(info, literal, ", ".join(str(f) for f in files))
     meta = {
-        "format_version": FORMAT_VERSION, "N": totals[0], "max_n": max_n, "min_count": config.min_count,
+        "format_version": FORMAT_VERSION,
+        "N": totals[0],
+        "max_n": max_n,
+        "min_count": config.min_count,
         "totals": {str(n): totals[n - 1] for n in range(1, max_n + 1)},
         "distinct": {str(n): distinct[n - 1] for n in range(1, max_n + 1)},
         "kept": {str(n): kept[n - 1] for n in range(1, max_n + 1)},
-        "documents": documents, "literal_special_tokens": dict(sorted(literal.items())),
-        "tokenizer_hash": info.hash, "tokenizer_name": info.name, "words": config.words.describe(),
+        "documents": documents,
+        "literal_special_tokens": dict(sorted(literal.items())),
+        "tokenizer_hash": info.hash,
+        "tokenizer_name": info.name,
+        "words": config.words.describe(),
         "corpus_fingerprint": fingerprint or corpus_fingerprint(files, corpus_options),
         "corpus_files": [str(f) for f in files],
-        "options": {"max_n": max_n, "min_count": config.min_count, "doc_sep": corpus_options.doc_sep,
-                    "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
-                    "strict": corpus_options.strict},
+        "options": {
+            "max_n": max_n,
+            "min_count": config.min_count,
+            "doc_sep": corpus_options.doc_sep,
+            "text_field": corpus_options.text_field,
+            "text_column": corpus_options.text_column,
+            "strict": corpus_options.strict,
+        },
         "maskprep_version": __version__,
         # checked by the stages that read the files (a flipped byte must not pass as counts)
-        "sha256": {f"ngrams-{n}.parquet": file_sha256(spill / f"ngrams-{n}.parquet") for n in range(1, max_n + 1)},
+        "sha256": {
+            f"ngrams-{n}.parquet": file_sha256(spill / f"ngrams-{n}.parquet")
+            for n in range(1, max_n + 1)
+        },
     }
     try:
         fsynced_write_text(spill / "tokenizer.json", info.json)
@@ -236,12 +317,16 @@ def format_summary(summary: CountSummary) -> str:
 
     >>> print(format_summary(summary))  # doctest: +SKIP
     """
-    lines = [f"counted N = {plural(summary.N, 'word position')} in {plural(summary.documents, 'document')} "
-             f"({plural(summary.tasks, 'task')}, {plural(summary.spill_runs, 'sorted run')} spilled, "
-             f"{summary.seconds:.1f}s)",
-             f"{'n':>3}  {'occurrences':>14}  {'distinct':>12}  {'kept (count >= ' + str(summary.min_count) + ')':>20}"]
+    lines = [
+        f"counted N = {plural(summary.N, 'word position')} in {plural(summary.documents, 'document')} "
+        f"({plural(summary.tasks, 'task')}, {plural(summary.spill_runs, 'sorted run')} spilled, "
+        f"{summary.seconds:.1f}s)",
+        f"{'n':>3}  {'occurrences':>14}  {'distinct':>12}  {'kept (count >= ' + str(summary.min_count) + ')':>20}",
+    ]
     for n in range(1, summary.max_n + 1):
-        lines.append(f"{n:>3}  {summary.totals[n]:>14,}  {summary.distinct[n]:>12,}  {summary.kept[n]:>20,}")
+        lines.append(
+            f"{n:>3}  {summary.totals[n]:>14,}  {summary.distinct[n]:>12,}  {summary.kept[n]:>20,}"
+        )
     names = ", ".join(f"ngrams-{n}.parquet" for n in range(1, summary.max_n + 1))
     lines.append(f"wrote {summary.output}/ ({names}, counts.json, tokenizer.json)")
     return "\n".join(lines)

@@ -29,8 +29,10 @@ ROW_GROUP = 1 << 17             # rows per Parquet row group (fixed, so files ar
 
 def collision_error(key: int, a: str, b: str) -> MaskprepError:
     """The error for two different word texts under one 64-bit key."""
-    return MaskprepError(f"word key collision: {a!r} and {b!r} share the 64-bit key {key:#018x}; the counts "
-                         "would merge two different words, so counting stopped (please report this)")
+    return MaskprepError(
+        f"word key collision: {a!r} and {b!r} share the 64-bit key {key:#018x}; the counts "
+        "would merge two different words, so counting stopped (please report this)"
+    )
 
 
 class Vocabulary:
@@ -56,7 +58,9 @@ class Vocabulary:
             table = pa.ipc.open_file(source).read_all()
         self._pending.append(table)
         self._pending_rows += table.num_rows
-        if self._pending_rows > len(self.keys):  # merge when the pending words double the vocabulary
+        if self._pending_rows > len(
+            self.keys
+        ):  # merge when the pending words double the vocabulary
             self.finish()
 
     def finish(self) -> None:
@@ -66,15 +70,18 @@ class Vocabulary:
         if not self._pending:
             return
         keys = np.concatenate([self.keys] + [t.column("key").to_numpy() for t in self._pending])
-        texts = pa.concat_arrays([self.texts] + [c for t in self._pending for c in t.column("text").chunks])
+        texts = pa.concat_arrays(
+            [self.texts] + [c for t in self._pending for c in t.column("text").chunks]
+        )
         self._pending, self._pending_rows = [], 0
         order = np.argsort(keys, kind="stable")
         keys = keys[order]
         texts = texts.take(pa.array(order))
         dup = np.flatnonzero(keys[1:] == keys[:-1])
         if len(dup):
-            differ = pc.not_equal(texts.take(pa.array(dup)), texts.take(pa.array(dup + 1))).to_numpy(
-                zero_copy_only=False)
+            differ = pc.not_equal(
+                texts.take(pa.array(dup)), texts.take(pa.array(dup + 1))
+            ).to_numpy(zero_copy_only=False)
             if differ.any():
                 i = int(dup[np.flatnonzero(differ)[0]])
                 raise collision_error(int(keys[i]), texts[i].as_py(), texts[i + 1].as_py())
@@ -98,14 +105,18 @@ class Vocabulary:
         import pyarrow.compute as pc
 
         m = rows.shape[0]
-        query = np.ascontiguousarray(rows[:, :n]).ravel()  # row by row: the words of an n-gram side by side
+        query = np.ascontiguousarray(
+            rows[:, :n]
+        ).ravel()  # row by row: the words of an n-gram side by side
         index = pc.index_in(pa.array(query), value_set=pa.array(self.keys))
         if index.null_count:
             raise RuntimeError("internal error: an n-gram word has no text in the vocabulary")
         words = self.texts.take(index)
         if n == 1:
             return words.cast(pa.string())
-        lists = pa.LargeListArray.from_arrays(pa.array(np.arange(0, m * n + 1, n, dtype=np.int64)), words)
+        lists = pa.LargeListArray.from_arrays(
+            pa.array(np.arange(0, m * n + 1, n, dtype=np.int64)), words
+        )
         return pc.binary_join(lists, pa.scalar(" ", pa.large_string())).cast(pa.string())
 
 
@@ -122,8 +133,13 @@ class _ParquetSink:
                                 + [(f"w{j}", pa.uint64()) for j in range(n)])
         # word keys are hashes (incompressible): only text and count are compressed
         compression = {"text": "snappy", "count": "snappy"} | {f"w{j}": "none" for j in range(n)}
-        self.writer = pq.ParquetWriter(str(path), self.schema, compression=compression, use_dictionary=False,
-                                      write_statistics=["count"])
+        self.writer = pq.ParquetWriter(
+            str(path),
+            self.schema,
+            compression=compression,
+            use_dictionary=False,
+            write_statistics=["count"],
+        )
         self.pending: list[Any] = []
         self.pending_rows = 0
 
@@ -166,12 +182,16 @@ def _count_desc_order(counts: np.ndarray) -> np.ndarray:
     ib = max(1, (m - 1).bit_length())
     if (hi - lo).bit_length() + ib > 64:
         return np.argsort(-counts.astype(np.int64), kind="stable")
-    packed = (np.uint64(hi) - counts.astype(np.uint64)) << np.uint64(ib) | np.arange(m, dtype=np.uint64)
+    packed = (np.uint64(hi) - counts.astype(np.uint64)) << np.uint64(ib) | np.arange(
+        m, dtype=np.uint64
+    )
     packed.sort()
     return (packed & np.uint64((1 << ib) - 1)).astype(np.intp)
 
 
-def write_ngrams(path: Path, n: int, parts: list[PartitionResult], vocab: Vocabulary, band_rows: int) -> None:
+def write_ngrams(
+    path: Path, n: int, parts: list[PartitionResult], vocab: Vocabulary, band_rows: int
+) -> None:
     """Write the kept rows of one n, count descending, ties in canonical (fingerprint, keys) order.
 
     >>> write_ngrams(Path("ngrams-2.parquet"), 2, parts, vocab, 1 << 20)  # doctest: +SKIP
@@ -184,7 +204,9 @@ def write_ngrams(path: Path, n: int, parts: list[PartitionResult], vocab: Vocabu
     values, rows = merge_hist([p.hist_values for p in parts], [p.hist_rows for p in parts])
     bands: list[tuple[int, int]] = []
     acc = 0
-    for v, r in zip(values[::-1].tolist(), rows[::-1].tolist()):  # one step per distinct count value
+    for v, r in zip(
+        values[::-1].tolist(), rows[::-1].tolist()
+    ):  # one step per distinct count value
         if bands and acc + r <= band_rows:
             bands[-1] = (bands[-1][0], v)
             acc += r

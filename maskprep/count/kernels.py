@@ -23,8 +23,18 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["FINE_BITS", "FINE_BUCKETS", "COARSE_BITS", "COARSE_BUCKETS", "fingerprint", "reduce_rows",
-           "reduce_table", "count_block", "count_windows", "fine_bucket"]
+__all__ = [
+    "FINE_BITS",
+    "FINE_BUCKETS",
+    "COARSE_BITS",
+    "COARSE_BUCKETS",
+    "fingerprint",
+    "reduce_rows",
+    "reduce_table",
+    "count_block",
+    "count_windows",
+    "fine_bucket",
+]
 
 FINE_BITS = 12                  # fine buckets: the key ranges merges are planned over
 FINE_BUCKETS = 1 << FINE_BITS
@@ -158,7 +168,9 @@ def _sorted_prefixes(fp: np.ndarray, ib: int) -> tuple[np.ndarray, np.ndarray]:
     return (packed & low).astype(np.intp), prefix[1:] == prefix[:-1]
 
 
-def _reduce_sorted(table: np.ndarray, fp: np.ndarray, n: int, ib: int) -> tuple[np.ndarray, np.ndarray] | None:
+def _reduce_sorted(
+    table: np.ndarray, fp: np.ndarray, n: int, ib: int
+) -> tuple[np.ndarray, np.ndarray] | None:
     """Reduce a row-major (m, n + 1) table when every equal-prefix group is one n-gram; None if two differ.
 
     Whole rows are gathered into sorted order (one cache line each, about
@@ -193,7 +205,9 @@ def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray, n: in
     m = len(counts)
     out = np.empty((len(starts), n + 1), np.uint64)
     for j, col in enumerate(cols):
-        np.take(col, starts, out=out[:, j], mode="clip")  # clip: indices are in range; no buffered copy
+        np.take(
+            col, starts, out=out[:, j], mode="clip"
+        )  # clip: indices are in range; no buffered copy
     run = np.cumsum(counts)
     ends = np.append(starts[1:], m) - 1
     out[:, n] = run[ends]
@@ -252,12 +266,19 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
     M = len(wk)
     out: list[tuple[np.ndarray, ...]] = []
     if M == 0:
-        return [_grouped(np.zeros((n, 0), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
-                for n in range(1, max_n + 1)]
+        return [
+            _grouped(np.zeros((n, 0), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
+            for n in range(1, max_n + 1)
+        ]
     ids, uniq = _dense_ids(wk)
     V = len(uniq)
-    out.append(_grouped(uniq.reshape(1, -1), np.bincount(ids.astype(np.intp), minlength=V).astype(np.uint64),
-                        fingerprint(uniq.reshape(1, -1))))
+    out.append(
+        _grouped(
+            uniq.reshape(1, -1),
+            np.bincount(ids.astype(np.intp), minlength=V).astype(np.uint64),
+            fingerprint(uniq.reshape(1, -1)),
+        )
+    )
     b = np.uint64(_bits(V - 1))
     padded = np.zeros(M + max_n, np.uint64)
     padded[:M] = wk
@@ -270,14 +291,20 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
         pos, roll = pos[keep], roll[keep]
         m = len(pos)
         if m == 0:
-            out.extend(_grouped(np.zeros((k, 0), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64))
-                       for k in range(n, max_n + 1))
+            out.extend(
+                _grouped(
+                    np.zeros((k, 0), np.uint64), np.zeros(0, np.uint64), np.zeros(0, np.uint64)
+                )
+                for k in range(n, max_n + 1)
+            )
             break
         last = pos + (n - 1)
         roll ^= padded[last]
         roll *= _MUL1
         if grouping:
-            first, counts, rank, rank_bits = _group_level(rank[keep], ids[last], int(b), rank_bits, n < max_n)
+            first, counts, rank, rank_bits = _group_level(
+                rank[keep], ids[last], int(b), rank_bits, n < max_n
+            )
             # nearly all distinct: grouping the longer n-grams of this block would not pay (the spill
             # reduce merges equal rows anyway), so they are emitted one per position from now on
             grouping = len(first) < 0.85 * m
@@ -347,7 +374,9 @@ def _grouped(keys: np.ndarray, counts: np.ndarray, fp: np.ndarray) -> tuple[np.n
     return keys[:, order], counts[order], fp[order], _offsets(bucket)
 
 
-def count_windows(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.ndarray, np.ndarray]]:
+def count_windows(
+    wk: np.ndarray, rem: np.ndarray, max_n: int
+) -> list[tuple[np.ndarray, np.ndarray]]:
     """(keys (D_n, n) rows, counts (D_n,)) of the distinct n-grams of a block, for n = 1..max_n.
 
     >>> [c.tolist() for _, c in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]

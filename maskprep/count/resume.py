@@ -54,8 +54,16 @@ from .spills import SpillFile
 from .task import count_task
 from .types import CountSummary, TaskCounts
 
-__all__ = ["STATE_DIR", "COUNT_STAGE", "run_identity", "open_state", "finished_results", "count_recorded",
-           "finished_summary", "file_sha256"]
+__all__ = [
+    "STATE_DIR",
+    "COUNT_STAGE",
+    "run_identity",
+    "open_state",
+    "finished_results",
+    "count_recorded",
+    "finished_summary",
+    "file_sha256",
+]
 
 STATE_DIR = ".maskprep-count"
 STATE_VERSION = 1
@@ -69,17 +77,28 @@ _LABELS = {"max_n": "--max-n", "min_count": "--min-count", "tokenizer_hash": "to
            "words": "--words (word definition)"}
 
 
-def run_identity(config: Any, info: Any, fingerprint: str, task_options: Any, *, format_version: int) -> dict[str, Any]:
+def run_identity(
+    config: Any, info: Any, fingerprint: str, task_options: Any, *, format_version: int
+) -> dict[str, Any]:
     """What must not change between the attempts of one count (not --memory, --workers or --strict).
 
     >>> run_identity(CountConfig(), info, corpus_fingerprint(files), CorpusOptions(), format_version=1)["max_n"]  # doctest: +SKIP
     5
     """
-    return {"state_version": STATE_VERSION, "format_version": format_version, "maskprep_version": __version__,
-            "max_n": config.max_n, "min_count": config.min_count, "tokenizer_hash": info.hash,
-            "corpus_fingerprint": fingerprint, "doc_sep": task_options.doc_sep,
-            "text_field": task_options.text_field, "text_column": task_options.text_column,
-            "task_bytes": task_options.chunk_bytes, "words": config.words.describe()}
+    return {
+        "state_version": STATE_VERSION,
+        "format_version": format_version,
+        "maskprep_version": __version__,
+        "max_n": config.max_n,
+        "min_count": config.min_count,
+        "tokenizer_hash": info.hash,
+        "corpus_fingerprint": fingerprint,
+        "doc_sep": task_options.doc_sep,
+        "text_field": task_options.text_field,
+        "text_column": task_options.text_column,
+        "task_bytes": task_options.chunk_bytes,
+        "words": config.words.describe(),
+    }
 
 
 def _drop_old_spills(output: Path) -> None:
@@ -97,7 +116,9 @@ COUNT_STAGE = Stage(noun="count", state=STATE_DIR, marker="counts.json", labels=
                     finished_identity=_finished_identity, on_overwrite=_drop_old_spills)
 
 
-def open_state(output: Path, identity: Mapping[str, Any], *, resume: bool, overwrite: bool) -> RunDir:
+def open_state(
+    output: Path, identity: Mapping[str, Any], *, resume: bool, overwrite: bool
+) -> RunDir:
     """Lock COUNTS_DIR and check it against `--resume` / `--overwrite` (``run.finished``: nothing to do).
 
     >>> with open_state(Path("counts"), identity, resume=False, overwrite=False) as run: ...  # doctest: +SKIP
@@ -107,7 +128,9 @@ def open_state(output: Path, identity: Mapping[str, Any], *, resume: bool, overw
 
 def finished_results(run: RunDir, task_indices: list[int]) -> dict[int, Any]:
     """TaskCounts of the tasks whose done-record and files are intact (others are counted again)."""
-    records = run.done(task_indices, files=lambda rec: [rec["words_file"], *rec["runs"]], base=run.root)
+    records = run.done(
+        task_indices, files=lambda rec: [rec["words_file"], *rec["runs"]], base=run.root
+    )
     done = {}
     for i, rec in records.items():
         result = _result_of(run.root, rec)
@@ -125,8 +148,15 @@ def attempts_of(results: Mapping[int, Any]) -> set[str]:
     return names
 
 
-_FINISHED_KEYS = ("max_n", "min_count", "tokenizer_hash", "corpus_fingerprint", "doc_sep", "text_field",
-                  "text_column")
+_FINISHED_KEYS = (
+    "max_n",
+    "min_count",
+    "tokenizer_hash",
+    "corpus_fingerprint",
+    "doc_sep",
+    "text_field",
+    "text_column",
+)
 
 
 def _identity_of_counts(meta: Any) -> dict[str, Any]:
@@ -134,10 +164,15 @@ def _identity_of_counts(meta: Any) -> dict[str, Any]:
     if not isinstance(meta, dict):
         return {}
     options = meta.get("options", {}) if isinstance(meta.get("options"), dict) else {}
-    return {"max_n": meta.get("max_n"), "min_count": meta.get("min_count"),
-            "tokenizer_hash": meta.get("tokenizer_hash"), "corpus_fingerprint": meta.get("corpus_fingerprint"),
-            "doc_sep": options.get("doc_sep"), "text_field": options.get("text_field"),
-            "text_column": options.get("text_column")}
+    return {
+        "max_n": meta.get("max_n"),
+        "min_count": meta.get("min_count"),
+        "tokenizer_hash": meta.get("tokenizer_hash"),
+        "corpus_fingerprint": meta.get("corpus_fingerprint"),
+        "doc_sep": options.get("doc_sep"),
+        "text_field": options.get("text_field"),
+        "text_column": options.get("text_column"),
+    }
 
 
 def finished_summary(output: Path, *, tasks: int, started: float) -> Any:
@@ -153,19 +188,38 @@ def finished_summary(output: Path, *, tasks: int, started: float) -> Any:
         max_n = int(meta["max_n"])
         per_n = {key: {n: int(meta[key][str(n)]) for n in range(1, max_n + 1)}
                  for key in ("totals", "distinct", "kept")}
-        return CountSummary(output=output, N=int(meta["N"]), max_n=max_n, min_count=int(meta["min_count"]),
-                            totals=per_n["totals"], distinct=per_n["distinct"], kept=per_n["kept"],
-                            documents=int(meta["documents"]), spill_runs=0, tasks=tasks,
-                            seconds=time.monotonic() - started, files=list(meta.get("corpus_files", [])))
+        return CountSummary(
+            output=output,
+            N=int(meta["N"]),
+            max_n=max_n,
+            min_count=int(meta["min_count"]),
+            totals=per_n["totals"],
+            distinct=per_n["distinct"],
+            kept=per_n["kept"],
+            documents=int(meta["documents"]),
+            spill_runs=0,
+            tasks=tasks,
+            seconds=time.monotonic() - started,
+            files=list(meta.get("corpus_files", [])),
+        )
     except (KeyError, TypeError, ValueError) as exc:
-        raise MaskprepError(f"{output / 'counts.json'}: incomplete counts file ({exc}); use --overwrite to "
-                            "count again") from None
+        raise MaskprepError(
+            f"{output / 'counts.json'}: incomplete counts file ({exc}); use --overwrite to "
+            "count again"
+        ) from None
 
 
 # ---------------------------------------------------------------- the task function and its record
 
-def count_recorded(task: Any, tokenizer_json: str, config: Any, state_dir: str, corpus_options: Any, share: int,
-                   digest: str) -> Any:
+def count_recorded(
+    task: Any,
+    tokenizer_json: str,
+    config: Any,
+    state_dir: str,
+    corpus_options: Any,
+    share: int,
+    digest: str,
+) -> Any:
     """Task function: `count.task.count_task` into a fresh attempt directory, then its done-record.
 
     >>> count_recorded(task, info.json, CountConfig(), "counts/.maskprep-count", CorpusOptions(), 1 << 28, digest)  # doctest: +SKIP
@@ -191,11 +245,24 @@ def count_recorded(task: Any, tokenizer_json: str, config: Any, state_dir: str, 
 def _result_of(root: Path, rec: Mapping[str, Any]) -> Any:
     """The TaskCounts of a done-record (files already checked), else None."""
     try:
-        runs = [SpillFile(str(root / r["file"]), int(r["n"]), int(r["rows"]), np.asarray(r["offsets"], np.int64))
-                for r in rec["runs"]]
-        return TaskCounts(task_index=int(rec["task"]), runs=runs, totals=[int(x) for x in rec["totals"]],
-                           words_path=str(root / rec["words_file"]["file"]), words=int(rec["words"]),
-                           flushes=int(rec["flushes"]), documents=int(rec["documents"]),
-                           literal_specials={str(k): int(v) for k, v in rec.get("literal_specials", {}).items()})
+        runs = [
+            SpillFile(
+                str(root / r["file"]),
+                int(r["n"]),
+                int(r["rows"]),
+                np.asarray(r["offsets"], np.int64),
+            )
+            for r in rec["runs"]
+        ]
+        return TaskCounts(
+            task_index=int(rec["task"]),
+            runs=runs,
+            totals=[int(x) for x in rec["totals"]],
+            words_path=str(root / rec["words_file"]["file"]),
+            words=int(rec["words"]),
+            flushes=int(rec["flushes"]),
+            documents=int(rec["documents"]),
+            literal_specials={str(k): int(v) for k, v in rec.get("literal_specials", {}).items()},
+        )
     except (KeyError, TypeError, ValueError):
         return None

@@ -150,10 +150,12 @@ class MergeJob:
 
 def disk_error(exc: OSError, where: Path, doing: str) -> MaskprepError:
     if exc.errno in (errno.ENOSPC, errno.EDQUOT):
-        return MaskprepError(f"{where}: no space left on device while {doing}; free disk space, write "
-                             "COUNTS_DIR (-o) on a larger disk, or raise --memory so fewer runs are spilled; "
-                             "finished tasks are kept in COUNTS_DIR/.maskprep-count for --resume (delete it to "
-                             "free their space)")
+        return MaskprepError(
+            f"{where}: no space left on device while {doing}; free disk space, write "
+            "COUNTS_DIR (-o) on a larger disk, or raise --memory so fewer runs are spilled; "
+            "finished tasks are kept in COUNTS_DIR/.maskprep-count for --resume (delete it to "
+            "free their space)"
+        )
     return MaskprepError(f"{where}: cannot write while {doing} ({exc.strerror or exc})")
 
 
@@ -184,8 +186,11 @@ def merge_partition(job: MergeJob) -> PartitionResult:
     try:
         with SpillWriter(Path(job.out_path), n + 1) as writer:
             for s0, s1 in groups:
-                parts = [read_rows(path, n + 1, int(off[s0]), int(off[s1])) for path, off in job.sources
-                         if off[s1] > off[s0]]
+                parts = [
+                    read_rows(path, n + 1, int(off[s0]), int(off[s1]))
+                    for path, off in job.sources
+                    if off[s1] > off[s0]
+                ]
                 if len(parts) == 1:  # one run: already distinct and in canonical order
                     out = parts[0]
                 else:
@@ -228,6 +233,10 @@ def plan_merges(runs: list[SpillFile], n: int, parts: int, min_count: int, group
     edges = np.unique(np.concatenate(([0], cuts, [FINE_BUCKETS]))).tolist()
     jobs = []
     for p, (b0, b1) in enumerate(zip(edges[:-1], edges[1:])):
-        sources = [(r.path, r.offsets[b0:b1 + 1].copy()) for r in runs if r.offsets[b1] > r.offsets[b0]]
-        jobs.append(MergeJob(n, sources, min_count, group_rows, str(spill_dir / f"kept-n{n}-p{p:04d}.npy")))
+        sources = [
+            (r.path, r.offsets[b0 : b1 + 1].copy()) for r in runs if r.offsets[b1] > r.offsets[b0]
+        ]
+        jobs.append(
+            MergeJob(n, sources, min_count, group_rows, str(spill_dir / f"kept-n{n}-p{p:04d}.npy"))
+        )
     return jobs

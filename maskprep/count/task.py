@@ -48,7 +48,9 @@ def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     words = np.flatnonzero(is_word)
     wk = keys[words]
     run_starts = np.flatnonzero(~continues[words])
-    run_ends = np.append(run_starts[1:], len(wk)) if len(run_starts) else run_starts  # no words: no runs
+    run_ends = (
+        np.append(run_starts[1:], len(wk)) if len(run_starts) else run_starts
+    )  # no words: no runs
     rem = np.repeat(run_ends, run_ends - run_starts) - np.arange(len(wk), dtype=np.int64)
     return wk, rem, run_starts
 
@@ -69,7 +71,9 @@ class ChunkCounter:
         self.tag = tag
         self.limit = share * 5 // 8   # the rest: one batch in flight and one bucket being reduced
         self.block_words = block_words or int(np.clip(share // 256, 2048, 1 << 17))
-        self.buffers: list[list[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]] = [[[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)]
+        self.buffers: list[list[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]] = [
+            [[] for _ in range(COARSE_BUCKETS)] for _ in range(max_n)
+        ]
         self.buffer_bytes = 0
         self.totals = [0] * max_n
         self.runs: list[SpillFile] = []
@@ -90,8 +94,12 @@ class ChunkCounter:
         targets = np.arange(self.block_words, M, self.block_words)
         cuts = run_starts[np.searchsorted(run_starts, targets, side="right") - 1]
         bounds = np.unique(np.concatenate(([0], cuts, [M])))
-        for a, b in zip(bounds[:-1].tolist(), bounds[1:].tolist()):  # one step per block of ~64k words
-            for n, (keys, counts, fp, offsets) in enumerate(count_block(wk[a:b], rem[a:b], self.max_n), start=1):
+        for a, b in zip(
+            bounds[:-1].tolist(), bounds[1:].tolist()
+        ):  # one step per block of ~64k words
+            for n, (keys, counts, fp, offsets) in enumerate(
+                count_block(wk[a:b], rem[a:b], self.max_n), start=1
+            ):
                 buf = self.buffers[n - 1]
                 for c in np.flatnonzero(np.diff(offsets)).tolist():
                     lo, hi = offsets[c], offsets[c + 1]
@@ -140,15 +148,21 @@ class ChunkCounter:
         keys = np.fromiter(self.vocab.keys(), dtype=np.uint64, count=len(self.vocab))
         order = np.argsort(keys, kind="stable")
         texts = list(self.vocab.values())
-        table = pa.table({"key": pa.array(keys[order]), "text": pa.array([texts[i] for i in order.tolist()],
-                                                                          type=pa.large_string())})
+        table = pa.table(
+            {
+                "key": pa.array(keys[order]),
+                "text": pa.array([texts[i] for i in order.tolist()], type=pa.large_string()),
+            }
+        )
         path = self.spill_dir / f"{self.tag}-words.arrow"
         try:
             with pa.OSFile(str(path), "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
                 w.write_table(table)
         except OSError as exc:
             raise disk_error(exc, self.spill_dir, "writing the word list") from None
-        return TaskCounts(task_index, self.runs, self.totals, str(path), len(keys), self.flushes, documents)
+        return TaskCounts(
+            task_index, self.runs, self.totals, str(path), len(keys), self.flushes, documents
+        )
 
     def _collect_words(self, batch: EncodedBatch) -> None:
         """Texts of the words first seen in this batch; two texts with one key raise."""
@@ -179,7 +193,9 @@ class ChunkCounter:
         keys, kinds = table.fields["word_keys"], table.fields["word_kinds"]
         sel = np.flatnonzero(kinds == WORD)
         vocab = self.vocab
-        for key, text in zip(keys[sel].tolist(), table.texts.take(sel).to_pylist()):  # one step per word type
+        for key, text in zip(
+            keys[sel].tolist(), table.texts.take(sel).to_pylist()
+        ):  # one step per word type
             prev = vocab.setdefault(key, text)
             if prev != text:
                 raise collision_error(key, prev, text)
@@ -202,7 +218,9 @@ def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill
 
     >>> count_task(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x", CorpusOptions(), 1 << 28)  # doctest: +SKIP
     """
-    info = tokenizer_from_json(tokenizer_json)  # a fresh word-type cache per task: its entries give the texts
+    info = tokenizer_from_json(
+        tokenizer_json
+    )  # a fresh word-type cache per task: its entries give the texts
     counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,
                            tag=f"t{task.index:06d}", joined=not config.words.is_tokenizer)
     reader = TaskReader(task, info, corpus_options, batch_chars=_batch_chars(config, share),

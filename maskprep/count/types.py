@@ -22,8 +22,8 @@ FORMAT_VERSION = 1
 MAX_N = 8
 MIN_TASK_MEMORY = 4 << 20       # below this a task cannot hold a batch and a buffer at once
 TASK_BYTES = 8 << 20            # text files are split into tasks of about this size
-POOL_ROWS = 8_000_000           # merges / writes smaller than this run in the driver unless the pool is
-                                # already running (starting one costs ~1-2 s)
+POOL_ROWS = 8_000_000  # merges / writes smaller than this run in the driver unless the pool is
+# already running (starting one costs ~1-2 s)
 _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
           "kib": 1 << 10, "mib": 1 << 20, "gib": 1 << 30, "tib": 1 << 40,
           "kb": 10 ** 3, "mb": 10 ** 6, "gb": 10 ** 9, "tb": 10 ** 12}
@@ -41,8 +41,10 @@ def parse_memory(text: str | int, *, option: str = "--memory") -> int:
         m = re.fullmatch(r"\s*(\d+(?:\.\d*)?|\.\d+)\s*([a-zA-Z]*)\s*", str(text))
         unit = m.group(2).lower() if m else None
         if m is None or unit not in _UNITS:
-            raise MaskprepError(f"{option}: cannot read {text!r} as a size; write e.g. 1GiB, 512MiB, 2G or a "
-                                "number of bytes")
+            raise MaskprepError(
+                f"{option}: cannot read {text!r} as a size; write e.g. 1GiB, 512MiB, 2G or a "
+                "number of bytes"
+            )
         value = int(float(m.group(1)) * _UNITS[unit])
     if value < MIN_TASK_MEMORY:
         raise MaskprepError(f"{option}: {text} is too small to make progress; the minimum is "
@@ -91,7 +93,9 @@ class TaskCounts:
     words: int
     flushes: int
     documents: int
-    literal_specials: dict[str, int] = field(default_factory=dict)  # special-token strings in the text
+    literal_specials: dict[str, int] = field(
+        default_factory=dict
+    )  # special-token strings in the text
 
 
 @dataclass(frozen=True)

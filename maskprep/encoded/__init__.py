@@ -8,5 +8,13 @@ from .format import EncodedManifest, is_encoded_dir, iter_encoded
 from .source import Source, SourceTask, TaskReader, open_source
 from .write import encode_corpus
 
-__all__ = ["EncodedManifest", "Source", "SourceTask", "TaskReader", "encode_corpus", "is_encoded_dir",
-           "iter_encoded", "open_source"]
+__all__ = [
+    "EncodedManifest",
+    "Source",
+    "SourceTask",
+    "TaskReader",
+    "encode_corpus",
+    "is_encoded_dir",
+    "iter_encoded",
+    "open_source",
+]

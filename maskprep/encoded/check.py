@@ -52,8 +52,10 @@ def _check_task(t: EncodedTask, report: EncodedReport) -> None:
         docs += len(col)
         words += len(types)
         if len(types) and types.max() >= len(table):
-            report.faults.append(f"{name}: batch {i} refers to word type {int(types.max())}, but the task has "
-                                 f"{len(table)} types")
+            report.faults.append(
+                f"{name}: batch {i} refers to word type {int(types.max())}, but the task has "
+                f"{len(table)} types"
+            )
             return
         tokens += int(lengths[types].sum())
     expect = {"documents": (docs, t.documents), "words": (words, t.num_words),
@@ -63,7 +65,9 @@ def _check_task(t: EncodedTask, report: EncodedReport) -> None:
         if have != want:
             report.faults.append(f"{name}: {have:,} {what}, manifest says {want:,}")
     if sum(b[0] for b in t.batches) != docs:
-        report.faults.append(f"{name}: read statistics of its batches count other documents than it holds")
+        report.faults.append(
+            f"{name}: read statistics of its batches count other documents than it holds"
+        )
     report.documents += docs
     report.tokens += tokens
 
@@ -77,16 +81,23 @@ def verify_encoded(directory: str | Path) -> EncodedReport:
     report = EncodedReport(tasks=len(m.tasks))
     listed = set()
     for t in m.tasks:
-        for path, size, digest in ((t.docs, t.docs_bytes, t.docs_sha256), (t.words, t.words_bytes, t.words_sha256)):
+        for path, size, digest in (
+            (t.docs, t.docs_bytes, t.docs_sha256),
+            (t.words, t.words_bytes, t.words_sha256),
+        ):
             p = Path(path)
             listed.add(p.name)
             if not p.is_file():
                 report.faults.append(f"{p.name}: listed in {MANIFEST} but missing")
             elif p.stat().st_size != size:
-                report.faults.append(f"{p.name}: {p.stat().st_size:,} bytes, {MANIFEST} says {size:,} (truncated "
-                                     "or changed)")
+                report.faults.append(
+                    f"{p.name}: {p.stat().st_size:,} bytes, {MANIFEST} says {size:,} (truncated "
+                    "or changed)"
+                )
             elif file_sha256(p) != digest:
-                report.faults.append(f"{p.name}: sha256 differs from {MANIFEST} (changed or damaged)")
+                report.faults.append(
+                    f"{p.name}: sha256 differs from {MANIFEST} (changed or damaged)"
+                )
     for p in sorted(d.glob("*.arrow")):
         if p.name not in listed:
             report.faults.append(f"{p.name}: not listed in {MANIFEST}")
@@ -109,5 +120,7 @@ def verify_encoded(directory: str | Path) -> EncodedReport:
             "bytes": sum(t.docs_bytes + t.words_bytes for t in m.tasks)}
     for key, value in sums.items():
         if totals.get(key) != value:
-            report.faults.append(f"{MANIFEST}: totals.{key} is {totals.get(key)!r}, the tasks add up to {value:,}")
+            report.faults.append(
+                f"{MANIFEST}: totals.{key} is {totals.get(key)!r}, the tasks add up to {value:,}"
+            )
     return report

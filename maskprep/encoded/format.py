@@ -44,15 +44,31 @@ from .._files import read_json
 from ..errors import MaskprepError
 from ..tokenizer.encoding import EncodedBatch
 
-__all__ = ["FORMAT", "FORMAT_VERSION", "MANIFEST", "STATE_DIR", "BATCH_CHARS", "PER_WORD", "PER_DOC",
-           "EncodedTask", "EncodedManifest", "WordTable", "is_encoded_dir", "docs_name", "words_name",
-           "read_word_table", "iter_encoded"]
+__all__ = [
+    "FORMAT",
+    "FORMAT_VERSION",
+    "MANIFEST",
+    "STATE_DIR",
+    "BATCH_CHARS",
+    "PER_WORD",
+    "PER_DOC",
+    "EncodedTask",
+    "EncodedManifest",
+    "WordTable",
+    "is_encoded_dir",
+    "docs_name",
+    "words_name",
+    "read_word_table",
+    "iter_encoded",
+]
 
 FORMAT = "maskprep-encoded"
 FORMAT_VERSION = 1
 MANIFEST = "encoded.json"
 STATE_DIR = ".maskprep"
-BATCH_CHARS = 1 << 20     # characters per batch, as `corpus.iter_batches` reads them for mask and compare
+BATCH_CHARS = (
+    1 << 20
+)  # characters per batch, as `corpus.iter_batches` reads them for mask and compare
 COMPRESSION = "zstd"
 # EncodedBatch fields other than the structure (ids, word_offsets, doc_offsets), by what they describe,
 # with their column names; tests fail if EncodedBatch gains a field not listed here.
@@ -103,7 +119,9 @@ class EncodedTask:
     tokens: int
     types: int
     read: Mapping[str, int]
-    batches: tuple[tuple[int, int, int, int], ...]  # per batch: documents, empty skipped, invalid, bytes
+    batches: tuple[
+        tuple[int, int, int, int], ...
+    ]  # per batch: documents, empty skipped, invalid, bytes
     crossing_tokens: int = 0    # tokens running past the end of their word (segmenter words only)
 
     def to_json(self) -> dict[str, Any]:
@@ -128,7 +146,9 @@ class EncodedTask:
     def located(self, directory: Path) -> "EncodedTask":
         """The same task with absolute file paths (a Dask worker's working directory is not the driver's)."""
         d = directory.resolve()
-        return dataclasses.replace(self, docs=str(d / Path(self.docs).name), words=str(d / Path(self.words).name))
+        return dataclasses.replace(
+            self, docs=str(d / Path(self.docs).name), words=str(d / Path(self.words).name)
+        )
 
 
 @dataclass(frozen=True)
@@ -152,14 +172,18 @@ class EncodedManifest:
         d = Path(directory)
         path = d / MANIFEST
         if not path.is_file():
-            raise MaskprepError(f"{d}: no {MANIFEST}; not a finished encoded directory (write one with maskprep "
-                                "encode, or finish it with maskprep encode ... --resume)")
+            raise MaskprepError(
+                f"{d}: no {MANIFEST}; not a finished encoded directory (write one with maskprep "
+                "encode, or finish it with maskprep encode ... --resume)"
+            )
         doc = read_json(path, what="encoded manifest")
         if not isinstance(doc, dict) or doc.get("format") != FORMAT:
             raise MaskprepError(f"{path}: not a maskprep encoded manifest")
         if doc.get("format_version") != FORMAT_VERSION:
-            raise MaskprepError(f"{path}: format_version {doc.get('format_version')!r}; this maskprep reads "
-                                f"version {FORMAT_VERSION}; encode the corpus again")
+            raise MaskprepError(
+                f"{path}: format_version {doc.get('format_version')!r}; this maskprep reads "
+                f"version {FORMAT_VERSION}; encode the corpus again"
+            )
         try:
             tasks = tuple(EncodedTask.from_json(t).located(d) for t in doc["tasks"])
             for key in ("tokenizer", "corpus", "totals"):
@@ -195,10 +219,14 @@ def open_ipc(path: str, what: str) -> Any:
     try:
         return pa.ipc.open_file(pa.memory_map(path, "r"))
     except FileNotFoundError:
-        raise MaskprepError(f"{path}: {what} file is missing; encode the corpus again (or maskprep verify "
-                            "the directory)") from None
+        raise MaskprepError(
+            f"{path}: {what} file is missing; encode the corpus again (or maskprep verify "
+            "the directory)"
+        ) from None
     except (OSError, pa.ArrowInvalid) as exc:
-        raise MaskprepError(f"{path}: not a readable {what} file ({exc}); encode the corpus again") from None
+        raise MaskprepError(
+            f"{path}: not a readable {what} file ({exc}); encode the corpus again"
+        ) from None
 
 
 def _numpy(array: Any, dtype: Any) -> np.ndarray:
@@ -210,16 +238,25 @@ def read_word_table(path: str) -> WordTable:
     import pyarrow as pa
 
     table = open_ipc(path, "word table").read_all()
-    ids_col = table.column("ids").combine_chunks() if table.num_rows else pa.array([], pa.list_(pa.uint16()))
+    ids_col = (
+        table.column("ids").combine_chunks()
+        if table.num_rows
+        else pa.array([], pa.list_(pa.uint16()))
+    )
     offsets = _numpy(ids_col.offsets, np.int64)
     offsets = offsets - offsets[0] if len(offsets) else np.zeros(1, np.int64)
     ids = _numpy(ids_col.values, np.int32)[: offsets[-1]] if len(ids_col) else np.zeros(0, np.int32)
     dtypes = {"word_keys": np.uint64, "word_kinds": np.int8, "word_chars": np.int32}
-    fields = {name: _numpy(table.column(col), dtypes.get(name, np.int64)) for name, col in PER_WORD.items()}
+    fields = {
+        name: _numpy(table.column(col), dtypes.get(name, np.int64))
+        for name, col in PER_WORD.items()
+    }
     return WordTable(ids=ids, offsets=offsets, fields=fields, texts=table.column("text"))
 
 
-def _batch_from(words_of_doc: Any, doc_fields: Mapping[str, np.ndarray], table: WordTable) -> EncodedBatch:
+def _batch_from(
+    words_of_doc: Any, doc_fields: Mapping[str, np.ndarray], table: WordTable
+) -> EncodedBatch:
     offs = _numpy(words_of_doc.offsets, np.int64)
     doc_offsets = offs - offs[0]
     types = _numpy(words_of_doc.values, np.int64)[offs[0]:offs[-1]]
@@ -230,7 +267,11 @@ def _batch_from(words_of_doc: Any, doc_fields: Mapping[str, np.ndarray], table: 
     T = int(word_offsets[-1])
     start = table.offsets[types] - word_offsets[:-1]
     ids = table.ids[np.repeat(start, lengths) + np.arange(T, dtype=np.int64)]
-    values: dict[str, np.ndarray] = {"ids": ids, "word_offsets": word_offsets, "doc_offsets": doc_offsets}
+    values: dict[str, np.ndarray] = {
+        "ids": ids,
+        "word_offsets": word_offsets,
+        "doc_offsets": doc_offsets,
+    }
     for name, col in table.fields.items():
         values[name] = col[types]
     values.update(doc_fields)

@@ -27,13 +27,31 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterator, Sequence
 
-from ..corpus.reader import CorpusOptions, CorpusTask, ReadStats, corpus_fingerprint, iter_batches, plan_tasks, \
-    resolve_inputs, task_size, task_weights
+from ..corpus.reader import (
+    CorpusOptions,
+    CorpusTask,
+    ReadStats,
+    corpus_fingerprint,
+    iter_batches,
+    plan_tasks,
+    resolve_inputs,
+    task_size,
+    task_weights,
+)
 from ..errors import MaskprepError
 from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
     tally_literal_specials
-from .format import BATCH_CHARS, MANIFEST, EncodedManifest, EncodedTask, WordTable, is_encoded_dir, \
-    is_unfinished_encoded_dir, iter_encoded, read_word_table
+from .format import (
+    BATCH_CHARS,
+    MANIFEST,
+    EncodedManifest,
+    EncodedTask,
+    WordTable,
+    is_encoded_dir,
+    is_unfinished_encoded_dir,
+    iter_encoded,
+    read_word_table,
+)
 
 __all__ = ["SourceTask", "Source", "TaskReader", "open_source", "read_stats_of"]
 
@@ -86,8 +104,10 @@ class Source:
         or ``-t`` if it is the same tokenizer (same hash), else a clear error."""
         if self.manifest is None:
             if given is None:
-                raise MaskprepError(f"{stage}: give the tokenizer with -t TOKENIZER.json (it is optional only "
-                                    "when CORPUS is an encoded directory made by maskprep encode)")
+                raise MaskprepError(
+                    f"{stage}: give the tokenizer with -t TOKENIZER.json (it is optional only "
+                    "when CORPUS is an encoded directory made by maskprep encode)"
+                )
             return given if isinstance(given, TokenizerInfo) else load_tokenizer(given)
         m = self.manifest
         recorded = m.tokenizer
@@ -98,9 +118,11 @@ class Source:
             info = given if isinstance(given, TokenizerInfo) else load_tokenizer(given)
         if info.hash != recorded["hash"]:
             label = info.path or info.name
-            raise MaskprepError(f"-t {label}: not the tokenizer {m.directory} was encoded with (tokenizer hash "
-                                f"{info.hash[:12]}, the directory's {str(recorded['hash'])[:12]}); drop -t to "
-                                "use the directory's tokenizer, or encode the corpus again with this one")
+            raise MaskprepError(
+                f"-t {label}: not the tokenizer {m.directory} was encoded with (tokenizer hash "
+                f"{info.hash[:12]}, the directory's {str(recorded['hash'])[:12]}); drop -t to "
+                "use the directory's tokenizer, or encode the corpus again with this one"
+            )
         return info
 
     def check_words(self, words: Any) -> Any:
@@ -111,23 +133,33 @@ class Source:
         if isinstance(recorded, str):
             recorded = {"definition": recorded}
         if words.describe() != recorded:
-            raise MaskprepError(f"--words {words.definition}: {self.manifest.directory} was encoded with --words "
-                                f"{recorded.get('definition')} ({recorded}); pass that --words, or encode again")
+            raise MaskprepError(
+                f"--words {words.definition}: {self.manifest.directory} was encoded with --words "
+                f"{recorded.get('definition')} ({recorded}); pass that --words, or encode again"
+            )
         return words
 
 
-def _check_options(directory: Path, recorded: dict[str, Any], options: CorpusOptions) -> CorpusOptions:
+def _check_options(
+    directory: Path, recorded: dict[str, Any], options: CorpusOptions
+) -> CorpusOptions:
     """The encoded directory's reading options; options given on the command line must agree."""
     mine = CorpusOptions(doc_sep=recorded["doc_sep"], text_field=recorded["text_field"],
                          text_column=recorded["text_column"], strict=bool(recorded["strict"]),
                          chunk_bytes=int(recorded["chunk_bytes"]))
     default = CorpusOptions()
-    for name, flag in (("doc_sep", "--doc-sep"), ("text_field", "--text-field"), ("text_column", "--text-column"),
-                       ("strict", "--strict")):
+    for name, flag in (
+        ("doc_sep", "--doc-sep"),
+        ("text_field", "--text-field"),
+        ("text_column", "--text-column"),
+        ("strict", "--strict"),
+    ):
         asked = getattr(options, name)
         if asked != getattr(default, name) and asked != getattr(mine, name):
-            raise MaskprepError(f"{flag} {asked}: {directory} was encoded with {flag} {getattr(mine, name)}; "
-                                f"drop {flag} (an encoded directory keeps its reading options) or encode again")
+            raise MaskprepError(
+                f"{flag} {asked}: {directory} was encoded with {flag} {getattr(mine, name)}; "
+                f"drop {flag} (an encoded directory keeps its reading options) or encode again"
+            )
     return mine
 
 
@@ -143,26 +175,44 @@ def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = No
     encoded = [n for n in names if is_encoded_dir(n)]
     for n in names:
         if is_unfinished_encoded_dir(n):
-            raise MaskprepError(f"{n}: an unfinished encoded directory (no {MANIFEST}); finish it with maskprep "
-                                "encode ... --resume, or give the raw corpus")
+            raise MaskprepError(
+                f"{n}: an unfinished encoded directory (no {MANIFEST}); finish it with maskprep "
+                "encode ... --resume, or give the raw corpus"
+            )
     if encoded:
         if len(names) > 1:
-            raise MaskprepError(f"{encoded[0]}: an encoded directory must be the only CORPUS argument "
-                                f"(got {len(names)}); encode all the files into one directory")
+            raise MaskprepError(
+                f"{encoded[0]}: an encoded directory must be the only CORPUS argument "
+                f"(got {len(names)}); encode all the files into one directory"
+            )
         m = EncodedManifest.read(encoded[0])
         opts = _check_options(m.directory, m.corpus["options"], options)
         tasks = tuple(SourceTask(t.index, t.source, t.weight, encoded=t) for t in m.tasks)
-        return Source(tuple(names), tuple(m.corpus["files"]), str(m.corpus["fingerprint"]), opts, tasks, m)
+        return Source(
+            tuple(names), tuple(m.corpus["files"]), str(m.corpus["fingerprint"]), opts, tasks, m
+        )
     files = resolve_inputs(names)
-    options = dataclasses.replace(options, chunk_bytes=task_size(files, options))  # recorded as a number
+    options = dataclasses.replace(
+        options, chunk_bytes=task_size(files, options)
+    )  # recorded as a number
     assert options.chunk_bytes is not None
     task_opts = options if task_bytes is None else dataclasses.replace(
         options, chunk_bytes=min(options.chunk_bytes, task_bytes))
     planned = plan_tasks(files, task_opts)
     weights = task_weights(planned)
-    tasks = tuple(SourceTask(t.index, t.describe(), w, raw=dataclasses.replace(t, path=os.path.abspath(t.path)))
-                  for t, w in zip(planned, weights))
-    return Source(tuple(names), tuple(str(f) for f in files), corpus_fingerprint(files, options), options, tasks)
+    tasks = tuple(
+        SourceTask(
+            t.index, t.describe(), w, raw=dataclasses.replace(t, path=os.path.abspath(t.path))
+        )
+        for t, w in zip(planned, weights)
+    )
+    return Source(
+        tuple(names),
+        tuple(str(f) for f in files),
+        corpus_fingerprint(files, options),
+        options,
+        tasks,
+    )
 
 
 class TaskReader:
@@ -233,5 +283,9 @@ class TaskReader:
 
 
 def _minus(a: ReadStats, b: ReadStats) -> ReadStats:
-    return ReadStats(a.documents - b.documents, a.empty_skipped - b.empty_skipped, a.invalid_utf8 - b.invalid_utf8,
-                     a.bytes_read - b.bytes_read)
+    return ReadStats(
+        a.documents - b.documents,
+        a.empty_skipped - b.empty_skipped,
+        a.invalid_utf8 - b.invalid_utf8,
+        a.bytes_read - b.bytes_read,
+    )

@@ -44,10 +44,25 @@ from maskprep.masking.strategies import (
 )
 
 __all__ = [
-    "Strategy", "MixPer", "MaskingConfig", "parse_mix", "needs_units", "strategy_units", "select_targets", "mask_batch",
-    "token_units", "word_units", "span_units", "pmi_units", "span_word_starts",
-    "pmi_word_starts", "units_from_word_starts", "word_starts_from_units", "span_lengths",
-    "UnitTable", "IGNORE_LABEL",
+    "Strategy",
+    "MixPer",
+    "MaskingConfig",
+    "parse_mix",
+    "needs_units",
+    "strategy_units",
+    "select_targets",
+    "mask_batch",
+    "token_units",
+    "word_units",
+    "span_units",
+    "pmi_units",
+    "span_word_starts",
+    "pmi_word_starts",
+    "units_from_word_starts",
+    "word_starts_from_units",
+    "span_lengths",
+    "UnitTable",
+    "IGNORE_LABEL",
 ]
 
 IGNORE_LABEL = -100  # label of non-target tokens (common practice)
@@ -253,9 +268,13 @@ def mask_batch(input_ids: np.ndarray, unit_ids: np.ndarray, *, sequence_ids: np.
     input_ids = np.asarray(input_ids, dtype=np.int32)
     unit_ids, sequence_ids = _check_units(unit_ids, sequence_ids)
     if input_ids.shape != unit_ids.shape:
-        raise ValueError(f"input_ids {input_ids.shape} and unit_ids {unit_ids.shape} differ in shape")
+        raise ValueError(
+            f"input_ids {input_ids.shape} and unit_ids {unit_ids.shape} differ in shape"
+        )
     if not isinstance(config, MaskingConfig):
-        raise MaskprepError("config must be a maskprep.masking.sampler.MaskingConfig, e.g. MaskingConfig(rate=0.15)")
+        raise MaskprepError(
+            "config must be a maskprep.masking.sampler.MaskingConfig, e.g. MaskingConfig(rate=0.15)"
+        )
     if not is_whole(mask_token_id, 0):
         raise MaskprepError(f"mask_token_id must be the tokenizer's mask token id (an int >= 0), "
                             f"got {mask_token_id!r}")

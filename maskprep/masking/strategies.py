@@ -259,8 +259,16 @@ def span_lengths(sequence_ids: np.ndarray, n_runs: int, *, seed: int, copy: int 
     return (np.searchsorted(cdf, u, side="right") + 1).astype(np.int32)
 
 
-def span_word_starts(special: np.ndarray, word_ids: np.ndarray, *, sequence_ids: np.ndarray,
-                     seed: int, copy: int = 0, span_p: float = 0.2, span_max: int = 10) -> np.ndarray:
+def span_word_starts(
+    special: np.ndarray,
+    word_ids: np.ndarray,
+    *,
+    sequence_ids: np.ndarray,
+    seed: int,
+    copy: int = 0,
+    span_p: float = 0.2,
+    span_max: int = 10,
+) -> np.ndarray:
     """Word starts of span runs, bool (B, Lw); runs are cut at document boundaries.
 
     >>> span_word_starts(np.array([[0, 0]], bool), np.array([[0, 1]]), sequence_ids=np.array([0], np.uint64), seed=0, span_p=1.0).tolist()
@@ -328,8 +336,10 @@ class UnitTable:
             keys = np.asarray(keys, dtype=_U64)
             scores = np.asarray(scores, dtype=np.float64)
             if int(n) < 2 or keys.ndim != 2 or keys.shape[1] != n or scores.shape != keys.shape[:1]:
-                raise ValueError(f"unit vocabulary entry n={n}: need keys (m, {n}) and scores (m,), "
-                                 f"got {keys.shape} and {scores.shape}")
+                raise ValueError(
+                    f"unit vocabulary entry n={n}: need keys (m, {n}) and scores (m,), "
+                    f"got {keys.shape} and {scores.shape}"
+                )
             if not np.all(np.isfinite(scores)):
                 raise MaskprepError(f"unit vocabulary: {n}-gram scores must be finite numbers; "
                                     "rebuild the units file")

@@ -44,23 +44,71 @@ _SHARDS = ("copies", "seed", "format", "shard_rows", "dynamic")
 # Allowed keys per table, with the TOML types accepted for each.
 SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
     "": {"output": (str,)},
-    "corpus": {"paths": (list, str), "doc_sep": (str,), "text_field": (str,), "text_column": (str,),
-               "strict": (bool,), "words": (str,)},
+    "corpus": {
+        "paths": (list, str),
+        "doc_sep": (str,),
+        "text_field": (str,),
+        "text_column": (str,),
+        "strict": (bool,),
+        "words": (str,),
+    },
     "tokenizer": {"path": (str,), "model": (str,), "vocab_size": (int,), "lowercase": (bool,)},
-    "audit": {"vocab_sizes": (list,), "tokenizers": (list,), "model": (str,), "lowercase": (bool,),
-              "top_words": (int,), "include_tokenizer": (bool,)},
+    "audit": {
+        "vocab_sizes": (list,),
+        "tokenizers": (list,),
+        "model": (str,),
+        "lowercase": (bool,),
+        "top_words": (int,),
+        "include_tokenizer": (bool,),
+    },
     "count": {"max_n": (int,), "min_count": (int,), "memory": (str, int)},
-    "units": {"measure": (str,), "top": (int,), "min_count": (int,), "per_length": (str, dict),
-              "max_n": (int,), "edge_words": (int,), "fragment_share": (float, int)},
-    "mask": {"strategies": (list, str), "rate": (float, int), "mix": (list, str), "mix_per": (str,),
-             "span_p": (float, int), "span_max": (int,), "seq_len": (int,), "pack": (bool,), "copies": (int,),
-             "seed": (int,), "format": (str,), "shard_rows": (int,), "dynamic": (bool,)},
-    "compare": {"strategies": (list, str), "sample": (int, str), "examples": (int,), "top_words": (int,),
-                "rate": (float, int), "mix": (list, str), "mix_per": (str,), "span_p": (float, int),
-                "span_max": (int,), "seq_len": (int,), "pack": (bool,), "seed": (int,)},
+    "units": {
+        "measure": (str,),
+        "top": (int,),
+        "min_count": (int,),
+        "per_length": (str, dict),
+        "max_n": (int,),
+        "edge_words": (int,),
+        "fragment_share": (float, int),
+    },
+    "mask": {
+        "strategies": (list, str),
+        "rate": (float, int),
+        "mix": (list, str),
+        "mix_per": (str,),
+        "span_p": (float, int),
+        "span_max": (int,),
+        "seq_len": (int,),
+        "pack": (bool,),
+        "copies": (int,),
+        "seed": (int,),
+        "format": (str,),
+        "shard_rows": (int,),
+        "dynamic": (bool,),
+    },
+    "compare": {
+        "strategies": (list, str),
+        "sample": (int, str),
+        "examples": (int,),
+        "top_words": (int,),
+        "rate": (float, int),
+        "mix": (list, str),
+        "mix_per": (str,),
+        "span_p": (float, int),
+        "span_max": (int,),
+        "seq_len": (int,),
+        "pack": (bool,),
+        "seed": (int,),
+    },
 }
-_TYPE_NAMES = {list: "a list", str: "a string", int: "a whole number", float: "a number", bool: "true or false",
-               dict: "a table"}
+_TYPE_NAMES = {
+    list: "a list",
+    str: "a string",
+    int: "a whole number",
+    float: "a number",
+    bool: "true or false",
+    dict: "a table",
+}
 
 
 def _type_names(types: tuple[type, ...]) -> str:
@@ -113,10 +161,16 @@ def find_key_line(text: str, section: str, key: str | None) -> int | None:
                 return i
             continue
         name = r"\s*[\"']?%s[\"']?\s*"
-        if key is not None and table == section and re.match(rf"^{name % re.escape(key)}[=.]", line):
+        if (
+            key is not None
+            and table == section
+            and re.match(rf"^{name % re.escape(key)}[=.]", line)
+        ):
             return i
         if table == "" and section:
-            if key is not None and re.match(rf"^\s*{re.escape(section)}\s*\.{name % re.escape(key)}=", line):
+            if key is not None and re.match(
+                rf"^\s*{re.escape(section)}\s*\.{name % re.escape(key)}=", line
+            ):
                 return i
             if re.match(rf"^{name % re.escape(section)}[=.]", line) and fallback is None:
                 fallback = i
@@ -148,7 +202,9 @@ class _Checker:
         allowed = SECTIONS[section]
         for key, v in value.items():
             if key not in allowed:
-                raise self.fail(section, key, f"unknown key; [{section}] takes {', '.join(allowed)}")
+                raise self.fail(
+                    section, key, f"unknown key; [{section}] takes {', '.join(allowed)}"
+                )
             types = allowed[key]
             if isinstance(v, bool) and bool not in types or not isinstance(v, types):
                 names = _type_names(types)
@@ -169,7 +225,9 @@ class _Checker:
         p = Path(value).expanduser()
         p = p if p.is_absolute() else (self.base / p)
         if must_exist and not p.exists():
-            raise self.fail(section, key, f"{value!r}: {p} not found (paths are relative to {self.base})")
+            raise self.fail(
+                section, key, f"{value!r}: {p} not found (paths are relative to {self.base})"
+            )
         return p
 
 
@@ -188,7 +246,9 @@ def _train_size(size: Any, _sizes: Any) -> Any:
     return TrainConfig(vocab_size=size)
 
 
-def _each(c: _Checker, section: str, key: str, values: dict[str, Any], make: Callable[..., Any]) -> None:
+def _each(
+    c: _Checker, section: str, key: str, values: dict[str, Any], make: Callable[..., Any]
+) -> None:
     """Check each given key alone through `make(**{key: value})` (the config class's own rules)."""
     for k in key.split(","):
         if k in values:
@@ -219,14 +279,21 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     c = _Checker(path, text, doc)
     for key in doc:
         if key not in SECTIONS and key not in SECTIONS[""]:
-            raise c.fail("", key, "unknown key or table; the tables are " + ", ".join(f"[{s}]" for s in SECTIONS
-                                                                                         if s))
+            raise c.fail(
+                "",
+                key,
+                "unknown key or table; the tables are "
+                + ", ".join(f"[{s}]" for s in SECTIONS if s),
+            )
     top = {k: v for k, v in doc.items() if k in SECTIONS[""]}
     for key, value in top.items():
         if not isinstance(value, SECTIONS[""][key]):
             raise c.fail("", key, f"must be a string, got {_shown(value)}")
-    out = Path(output) if output is not None else (c.path_of("", "output", top["output"], must_exist=False)
-                                                   if "output" in top else None)
+    out = (
+        Path(output)
+        if output is not None
+        else (c.path_of("", "output", top["output"], must_exist=False) if "output" in top else None)
+    )
 
     corpus = c.table("corpus")
     if corpus is None or "paths" not in corpus:
@@ -234,11 +301,15 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
                      "missing: add a [corpus] table with paths = [\"file or directory\", ...]")
     paths = corpus["paths"] if isinstance(corpus["paths"], list) else [corpus["paths"]]
     if not paths or not all(isinstance(p, str) for p in paths):
-        raise c.fail("corpus", "paths", "must be a non-empty list of file, directory or glob strings")
+        raise c.fail(
+            "corpus", "paths", "must be a non-empty list of file, directory or glob strings"
+        )
     files = tuple(str(p if Path(p).is_absolute() else c.base / p) for p in paths)
     c.check("corpus", "paths", corpus["paths"], lambda v: resolve_inputs(list(files)))
     _each(c, "corpus", "doc_sep,text_field,text_column,strict", corpus, CorpusOptions)
-    corpus_options = CorpusOptions(**{k: v for k, v in corpus.items() if k not in ("paths", "words")})
+    corpus_options = CorpusOptions(
+        **{k: v for k, v in corpus.items() if k not in ("paths", "words")}
+    )
     words = corpus.get("words", "tokenizer")
     if words != "cohesion":
         from ..tokenizer.words import words_option
@@ -250,8 +321,12 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     if "path" in tok:
         extra = [k for k in tok if k != "path"]
         if extra:
-            raise c.fail("tokenizer", extra[0], "give either path (load a tokenizer) or model / vocab_size / "
-                                                "lowercase (train one), not both")
+            raise c.fail(
+                "tokenizer",
+                extra[0],
+                "give either path (load a tokenizer) or model / vocab_size / "
+                "lowercase (train one), not both",
+            )
         tokenizer_path = c.path_of("tokenizer", "path", tok["path"])
     else:
         _each(c, "tokenizer", "model,vocab_size,lowercase", tok, TrainConfig)
@@ -262,9 +337,21 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     units = _units(c, count)
     mask = _mask(c, units is not None)
     compare = _compare(c, mask, units is not None)
-    return RunConfig(path=path, output=out, corpus=files, corpus_options=corpus_options,
-                     tokenizer_path=tokenizer_path, train=train, audit=audit, count=count, units=units,
-                     mask=mask, compare=compare, text=text, words=words)
+    return RunConfig(
+        path=path,
+        output=out,
+        corpus=files,
+        corpus_options=corpus_options,
+        tokenizer_path=tokenizer_path,
+        train=train,
+        audit=audit,
+        count=count,
+        units=units,
+        mask=mask,
+        compare=compare,
+        text=text,
+        words=words,
+    )
 
 
 def _audit(c: _Checker) -> dict[str, Any] | None:
@@ -287,10 +374,20 @@ def _audit(c: _Checker) -> dict[str, Any] | None:
         raise c.fail("audit", "top_words", f"{top}: expected 1 to 10000")
     include = a.get("include_tokenizer", True)
     if not sizes and not paths and not include:
-        raise c.fail("audit", None, "nothing to audit: give vocab_sizes or tokenizers, or include_tokenizer = true")
+        raise c.fail(
+            "audit",
+            None,
+            "nothing to audit: give vocab_sizes or tokenizers, or include_tokenizer = true",
+        )
     AuditConfig(vocab_sizes=tuple(sizes))
-    return {"vocab_sizes": tuple(sizes), "tokenizers": tuple(paths), "model": a.get("model", "wordpiece"),
-            "lowercase": a.get("lowercase", True), "top_words": top, "include_tokenizer": include}
+    return {
+        "vocab_sizes": tuple(sizes),
+        "tokenizers": tuple(paths),
+        "model": a.get("model", "wordpiece"),
+        "lowercase": a.get("lowercase", True),
+        "top_words": top,
+        "include_tokenizer": include,
+    }
 
 
 def _count(c: _Checker) -> Any:
@@ -308,26 +405,50 @@ def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
     if t is None:
         return None
     if count is None:
-        raise c.fail("units", None, "needs a [count] table: units are chosen from the n-gram counts")
+        raise c.fail(
+            "units", None, "needs a [count] table: units are chosen from the n-gram counts"
+        )
     from ..units.cohesion import Measure
     from ..units.filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE
     from ..units.select import DEFAULT_MEASURE, DEFAULT_TOP, parse_per_length
 
-    out: dict[str, Any] = {"measure": c.check("units", "measure", t.get("measure", DEFAULT_MEASURE.value),
-                                              lambda v: Measure.parse(v, option="measure").value),
-                           "top": t.get("top", DEFAULT_TOP), "min_count": t.get("min_count"),
-                           "max_n": t.get("max_n"), "edge_words": t.get("edge_words", DEFAULT_EDGE_WORDS),
-                           "fragment_share": float(t.get("fragment_share", DEFAULT_FRAGMENT_SHARE))}
+    out: dict[str, Any] = {
+        "measure": c.check(
+            "units",
+            "measure",
+            t.get("measure", DEFAULT_MEASURE.value),
+            lambda v: Measure.parse(v, option="measure").value,
+        ),
+        "top": t.get("top", DEFAULT_TOP),
+        "min_count": t.get("min_count"),
+        "max_n": t.get("max_n"),
+        "edge_words": t.get("edge_words", DEFAULT_EDGE_WORDS),
+        "fragment_share": float(t.get("fragment_share", DEFAULT_FRAGMENT_SHARE)),
+    }
     if out["edge_words"] < 0:
         raise c.fail("units", "edge_words", f"{out['edge_words']}: must be 0 (no filter) or more")
     if not 0.0 <= out["fragment_share"] <= 1.0:
-        raise c.fail("units", "fragment_share", f"{out['fragment_share']:g}: must be in [0, 1] (0: keep fragments)")
+        raise c.fail(
+            "units",
+            "fragment_share",
+            f"{out['fragment_share']:g}: must be in [0, 1] (0: keep fragments)",
+        )
     for key, low in (("top", 1), ("min_count", count.min_count)):
         if out[key] is not None and out[key] < low:
-            raise c.fail("units", key, f"{out[key]}: must be at least {low}"
-                         + (" (the [count] min_count: rarer n-grams were not kept)" if key == "min_count" else ""))
+            raise c.fail(
+                "units",
+                key,
+                f"{out[key]}: must be at least {low}"
+                + (
+                    " (the [count] min_count: rarer n-grams were not kept)"
+                    if key == "min_count"
+                    else ""
+                ),
+            )
     if out["max_n"] is not None and not 2 <= out["max_n"] <= count.max_n:
-        raise c.fail("units", "max_n", f"{out['max_n']}: must be in 2..{count.max_n} (the [count] max_n)")
+        raise c.fail(
+            "units", "max_n", f"{out['max_n']}: must be in 2..{count.max_n} (the [count] max_n)"
+        )
     per = t.get("per_length")
     longest = out["max_n"] or count.max_n
 
@@ -358,8 +479,12 @@ def _mask(c: _Checker, has_units: bool) -> dict[str, Any] | None:
     masking = MaskingConfig(**{k: t[k] for k in _MASKING if k in t})
     packing = PackingConfig(**{k: t[k] for k in _PACKING if k in t})
     shards = ShardConfig(**{k: t[k] for k in _SHARDS if k in t})
-    return {"strategies": tuple(s.value for s in strategies), "masking": masking, "packing": packing,
-            "shards": shards}
+    return {
+        "strategies": tuple(s.value for s in strategies),
+        "masking": masking,
+        "packing": packing,
+        "shards": shards,
+    }
 
 
 def _compare(c: _Checker, mask: Mapping[str, Any] | None, has_units: bool) -> Any:
@@ -371,14 +496,29 @@ def _compare(c: _Checker, mask: Mapping[str, Any] | None, has_units: bool) -> An
     if t.get("sample") == "all":
         t["sample"] = None
     elif isinstance(t.get("sample"), str):
-        raise c.fail("compare", "sample", f"{t['sample']!r}: give a whole number of sequences or \"all\"")
-    _each(c, "compare", "strategies,sample,examples,top_words," + ",".join(_MASKING + _PACKING) + ",seed", t,
-          CompareConfig)
+        raise c.fail(
+            "compare", "sample", f'{t["sample"]!r}: give a whole number of sequences or "all"'
+        )
+    _each(
+        c,
+        "compare",
+        "strategies,sample,examples,top_words," + ",".join(_MASKING + _PACKING) + ",seed",
+        t,
+        CompareConfig,
+    )
     base: dict[str, Any] = {}
     if mask is not None:  # defaults from [mask], so the comparison describes the shards written
         m, p = mask["masking"], mask["packing"]
-        base = {"rate": m.rate, "mix": m.mix, "mix_per": m.mix_per, "span_p": m.span_p, "span_max": m.span_max,
-                "seq_len": p.seq_len, "pack": p.pack, "seed": mask["shards"].seed}
+        base = {
+            "rate": m.rate,
+            "mix": m.mix,
+            "mix_per": m.mix_per,
+            "span_p": m.span_p,
+            "span_max": m.span_max,
+            "seq_len": p.seq_len,
+            "pack": p.pack,
+            "seed": mask["shards"].seed,
+        }
     config = CompareConfig(**{**base, **t})
     if config.strategies and any(s.value == "pmi" for s in config.strategies) and not has_units:
         raise c.fail("compare", "strategies", needs_units("pmi", "add [count] and [units] tables"))

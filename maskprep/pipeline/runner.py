@@ -47,8 +47,18 @@ from .._files import atomic_write_json as write_json
 from .._files import read_json
 from .config import RunConfig, load_run_config
 
-__all__ = ["StageResult", "RunResult", "run_pipeline", "run_demo", "sample_corpus_dir", "code_version",
-           "stage_fingerprint", "format_run_summary", "STAGE_FILE", "RUN_FILE"]
+__all__ = [
+    "StageResult",
+    "RunResult",
+    "run_pipeline",
+    "run_demo",
+    "sample_corpus_dir",
+    "code_version",
+    "stage_fingerprint",
+    "format_run_summary",
+    "STAGE_FILE",
+    "RUN_FILE",
+]
 
 STAGE_FILE = ".stage.json"
 RUN_FILE = "pipeline.json"
@@ -71,7 +81,10 @@ class StageResult:
             return {"seconds": round(self.seconds, 3), "seconds_from": "this run"}
         if self.earlier_seconds is None:
             return {"seconds": None, "seconds_from": "not recorded"}
-        return {"seconds": round(self.earlier_seconds, 3), "seconds_from": "an earlier run (skipped now)"}
+        return {
+            "seconds": round(self.earlier_seconds, 3),
+            "seconds_from": "an earlier run (skipped now)",
+        }
 
 
 @dataclass(frozen=True)
@@ -149,7 +162,9 @@ class _Runner:
                 old = json.loads(record.read_text(encoding="utf-8"))
             except (OSError, ValueError):
                 old = {}
-            if old.get("fingerprint") == fp and all((d / f).exists() for f in old.get("files", ["?"])):
+            if old.get("fingerprint") == fp and all(
+                (d / f).exists() for f in old.get("files", ["?"])
+            ):
                 earlier = old.get("seconds")
                 result = StageResult(name, "skipped", 0.0, d, fp,
                                      float(earlier) if isinstance(earlier, (int, float)) else None)
@@ -190,17 +205,31 @@ def _files_in(d: Path) -> list[str]:
 def _prepare_output(out: Path, config: RunConfig) -> None:
     if out.exists() and not out.is_dir():
         raise MaskprepError(f"-o {out}: exists and is not a directory")
-    if out.is_dir() and any(p.name != ".maskprep-lock" for p in out.iterdir()) and not (out / RUN_FILE).is_file():
-        raise MaskprepError(f"-o {out}: directory is not empty and holds no {RUN_FILE}, so it is not the output "
-                            "of maskprep run; choose a new or empty directory (stages replace their own "
-                            "subdirectories)")
+    if (
+        out.is_dir()
+        and any(p.name != ".maskprep-lock" for p in out.iterdir())
+        and not (out / RUN_FILE).is_file()
+    ):
+        raise MaskprepError(
+            f"-o {out}: directory is not empty and holds no {RUN_FILE}, so it is not the output "
+            "of maskprep run; choose a new or empty directory (stages replace their own "
+            "subdirectories)"
+        )
     out.mkdir(parents=True, exist_ok=True)
     if not (out / RUN_FILE).is_file():
-        write_json(out / RUN_FILE, {"format": "maskprep-run", "config": str(config.path), "stages": []})
+        write_json(
+            out / RUN_FILE, {"format": "maskprep-run", "config": str(config.path), "stages": []}
+        )
 
 
-def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = None, force: bool = False,
-                 executor: Any = None, quiet: bool = False) -> RunResult:
+def run_pipeline(
+    config: RunConfig | str | Path,
+    *,
+    output: str | Path | None = None,
+    force: bool = False,
+    executor: Any = None,
+    quiet: bool = False,
+) -> RunResult:
     """Run every stage of a pipeline file that is not up to date; return what ran and what was skipped.
 
     >>> result = run_pipeline("sample_corpus/demo.toml", output="demo-out")  # doctest: +SKIP
@@ -213,7 +242,9 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
     cfg = config if isinstance(config, RunConfig) else load_run_config(config, output=output)
     out = Path(output) if output is not None else cfg.output
     if out is None:
-        raise MaskprepError(f"{cfg.path}: no output directory: add output = \"DIR\" to the file or pass -o DIR")
+        raise MaskprepError(
+            f'{cfg.path}: no output directory: add output = "DIR" to the file or pass -o DIR'
+        )
     executor = executor or Executor()
     from .._paths import check_apart
 
@@ -228,7 +259,9 @@ def run_pipeline(config: RunConfig | str | Path, *, output: str | Path | None = 
         try:
             return _run_stages(cfg, out, force=force, executor=executor, quiet=quiet)
         except BaseException:
-            if fresh:  # a first run that failed leaves nothing behind: no pipeline.json, no empty folders
+            if (
+                fresh
+            ):  # a first run that failed leaves nothing behind: no pipeline.json, no empty folders
                 _undo_first_run(out, made)
             raise
 
@@ -256,8 +289,12 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
     corpus = list(cfg.corpus)
     copts = cfg.corpus_options
     corpus_fp = corpus_fingerprint(resolve_inputs(corpus), copts)
-    read_opts = {"doc_sep": copts.doc_sep, "text_field": copts.text_field, "text_column": copts.text_column,
-                 "strict": copts.strict}
+    read_opts = {
+        "doc_sep": copts.doc_sep,
+        "text_field": copts.text_field,
+        "text_column": copts.text_column,
+        "strict": copts.strict,
+    }
     base_inputs = {"corpus": corpus_fp, "reading": read_opts}
     from ..units.words import resolve_words
 
@@ -270,9 +307,17 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
         train = cfg.train
 
         def run_tok(d: Path) -> list[str]:
-            train_on_corpus(corpus, model=train.model, vocab_size=train.vocab_size, lowercase=train.lowercase,
-                            corpus_options=copts, output=d / "tokenizer.json", quiet=quiet,
-                            name=f"{train.model}-{train.vocab_size}", option=f"{cfg.path}: [tokenizer] vocab_size")
+            train_on_corpus(
+                corpus,
+                model=train.model,
+                vocab_size=train.vocab_size,
+                lowercase=train.lowercase,
+                corpus_options=copts,
+                output=d / "tokenizer.json",
+                quiet=quiet,
+                name=f"{train.model}-{train.vocab_size}",
+                option=f"{cfg.path}: [tokenizer] vocab_size",
+            )
             return ["tokenizer.json"]
 
         runner.stage("tokenizer", "tokenizer", train, base_inputs, run_tok)
@@ -291,7 +336,9 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                           overwrite=True, words=words)
             return _files_in(d)
 
-        enc_fp = runner.stage("encode", "encoded", {"words": words.describe()}, inputs, run_enc).fingerprint
+        enc_fp = runner.stage(
+            "encode", "encoded", {"words": words.describe()}, inputs, run_enc
+        ).fingerprint
         inputs = {**inputs, "encoded": enc_fp}
         raw, corpus = corpus, [str(out / "encoded")]
     else:
@@ -303,19 +350,38 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
 
         a = cfg.audit
         given = ((str(tok_path),) if a["include_tokenizer"] else ()) + tuple(a["tokenizers"])
-        audit_cfg = AuditConfig(tokenizers=given, vocab_sizes=tuple(a["vocab_sizes"]), model=a["model"],
-                                lowercase=a["lowercase"], top_words=a["top_words"])
+        audit_cfg = AuditConfig(
+            tokenizers=given,
+            vocab_sizes=tuple(a["vocab_sizes"]),
+            model=a["model"],
+            lowercase=a["lowercase"],
+            top_words=a["top_words"],
+        )
         extra = {"audited": [file_sha256(p) for p in a["tokenizers"]]}
 
         # only the run's own tokenizer can read the encoded directory; others tokenize the raw text
         own = not audit_cfg.vocab_sizes and all(Path(p) == Path(tok_path) for p in given)
 
         def run_aud(d: Path) -> list[str]:
-            run_audit(corpus if own else raw, audit_cfg, output=d, corpus_options=copts, quiet=quiet,
-                      executor=executor, size_option="[audit] vocab_sizes", words=words)
+            run_audit(
+                corpus if own else raw,
+                audit_cfg,
+                output=d,
+                corpus_options=copts,
+                quiet=quiet,
+                executor=executor,
+                size_option="[audit] vocab_sizes",
+                words=words,
+            )
             return _files_in(d)
 
-        runner.stage("audit", "audit", {**a, "tokenizers": len(a["tokenizers"])}, {**inputs, **extra}, run_aud)
+        runner.stage(
+            "audit",
+            "audit",
+            {**a, "tokenizers": len(a["tokenizers"])},
+            {**inputs, **extra},
+            run_aud,
+        )
 
     counts_dir, units_path, units_fp = out / "counts", None, None
     if cfg.count is not None:
@@ -333,13 +399,23 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                 from ..units.files import write_units
                 from ..units.select import build_units
 
-                vocab = build_units(counts_dir, measure=u["measure"], top=u["top"], min_count=u["min_count"],
-                                    per_length=u["per_length"], max_n=u["max_n"], edge_words=u["edge_words"],
-                                    fragment_share=u["fragment_share"], quiet=quiet)
+                vocab = build_units(
+                    counts_dir,
+                    measure=u["measure"],
+                    top=u["top"],
+                    min_count=u["min_count"],
+                    per_length=u["per_length"],
+                    max_n=u["max_n"],
+                    edge_words=u["edge_words"],
+                    fragment_share=u["fragment_share"],
+                    quiet=quiet,
+                )
                 write_units(vocab, d / "units.parquet")
                 return ["units.parquet", "units.tsv"]
 
-            units_fp = runner.stage("units", "units", u, {"counts": counts_fp}, run_units).fingerprint
+            units_fp = runner.stage(
+                "units", "units", u, {"counts": counts_fp}, run_units
+            ).fingerprint
             units_path = out / "units" / "units.parquet"
 
     if cfg.mask is not None:
@@ -348,14 +424,31 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
 
         m = cfg.mask
         for strategy in m["strategies"]:
-            masking = MaskingConfig(**{**{k: getattr(m["masking"], k) for k in
-                                          ("rate", "mix", "mix_per", "span_p", "span_max")}, "strategy": strategy})
+            masking = MaskingConfig(
+                **{
+                    **{
+                        k: getattr(m["masking"], k)
+                        for k in ("rate", "mix", "mix_per", "span_p", "span_max")
+                    },
+                    "strategy": strategy,
+                }
+            )
             pmi = strategy == "pmi"
 
             def run_mask(d: Path, masking: MaskingConfig = masking, pmi: bool = pmi) -> list[str]:
-                write_shards(corpus, tokenizer=info, output=d, masking=masking, packing=m["packing"],
-                             shards=m["shards"], units=units_path if pmi else None, corpus_options=copts,
-                             executor=executor, overwrite=True, words=words)
+                write_shards(
+                    corpus,
+                    tokenizer=info,
+                    output=d,
+                    masking=masking,
+                    packing=m["packing"],
+                    shards=m["shards"],
+                    units=units_path if pmi else None,
+                    corpus_options=copts,
+                    executor=executor,
+                    overwrite=True,
+                    words=words,
+                )
                 return _files_in(d)
 
             runner.stage(f"mask.{strategy}", f"mask/{strategy}",
@@ -369,15 +462,28 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
         cc = cfg.compare
 
         def run_cmp(d: Path) -> list[str]:
-            compare_strategies(corpus, tokenizer=info, output=d, config=cc, units=units_path, corpus_options=copts,
-                               executor=executor, words=words)
+            compare_strategies(
+                corpus,
+                tokenizer=info,
+                output=d,
+                config=cc,
+                units=units_path,
+                corpus_options=copts,
+                executor=executor,
+                words=words,
+            )
             return ["compare.json", "compare.html"]
 
         r = runner.stage("compare", "compare", cc, {**inputs, "units": units_fp}, run_cmp)
         compare_doc = read_json(r.output / "compare.json", what="comparison")
 
-    result = RunResult(output=out, config=cfg.path, stages=tuple(runner.results), tokenizer=tok_path,
-                       compare=compare_doc)
+    result = RunResult(
+        output=out,
+        config=cfg.path,
+        stages=tuple(runner.results),
+        tokenizer=tok_path,
+        compare=compare_doc,
+    )
     write_json(out / RUN_FILE, {
         "format": "maskprep-run", "config": str(cfg.path), "code": code_version(),
         "stages": [{"name": s.name, "status": s.status, "output": str(s.output.relative_to(out)),
@@ -385,12 +491,27 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
     return result
 
 
-def _count(corpus: list[str], tokenizer: Path, output: Path, config: Any, corpus_options: Any, executor: Any,
-           quiet: bool) -> None:
+def _count(
+    corpus: list[str],
+    tokenizer: Path,
+    output: Path,
+    config: Any,
+    corpus_options: Any,
+    executor: Any,
+    quiet: bool,
+) -> None:
     from ..count.driver import count_ngrams
 
-    count_ngrams(corpus, tokenizer=tokenizer, output=output, config=config, corpus_options=corpus_options,
-                 executor=executor, overwrite=True, quiet=quiet)
+    count_ngrams(
+        corpus,
+        tokenizer=tokenizer,
+        output=output,
+        config=config,
+        corpus_options=corpus_options,
+        executor=executor,
+        overwrite=True,
+        quiet=quiet,
+    )
 
 
 def sample_corpus_dir() -> Path:
@@ -409,9 +530,11 @@ def sample_corpus_dir() -> Path:
     for d in places:
         if (d / "demo.toml").is_file():
             return d
-    raise MaskprepError("the sample corpus (with demo.toml) is not installed: looked in "
-                        + " and ".join(str(d) for d in places)
-                        + "; reinstall maskprep (pip install .) or run from a clone of the repository")
+    raise MaskprepError(
+        "the sample corpus (with demo.toml) is not installed: looked in "
+        + " and ".join(str(d) for d in places)
+        + "; reinstall maskprep (pip install .) or run from a clone of the repository"
+    )
 
 
 def run_demo(*, output: str | Path = "maskprep-demo", force: bool = False, executor: Any = None,
@@ -421,12 +544,23 @@ def run_demo(*, output: str | Path = "maskprep-demo", force: bool = False, execu
     >>> run_demo(output="maskprep-demo").stage("compare").output  # doctest: +SKIP
     PosixPath('maskprep-demo/compare')
     """
-    return run_pipeline(sample_corpus_dir() / "demo.toml", output=output, force=force, executor=executor,
-                        quiet=quiet)
+    return run_pipeline(
+        sample_corpus_dir() / "demo.toml",
+        output=output,
+        force=force,
+        executor=executor,
+        quiet=quiet,
+    )
 
 
-_MAIN_FILES = {"tokenizer": "tokenizer.json", "encode": "encoded.json", "audit": "audit.html", "count": "counts.json",
-               "units": "units.tsv", "compare": "compare.html"}
+_MAIN_FILES = {
+    "tokenizer": "tokenizer.json",
+    "encode": "encoded.json",
+    "audit": "audit.html",
+    "count": "counts.json",
+    "units": "units.tsv",
+    "compare": "compare.html",
+}
 
 
 def format_run_summary(result: RunResult) -> str:
@@ -435,5 +569,7 @@ def format_run_summary(result: RunResult) -> str:
     for s in result.stages:
         main = _MAIN_FILES.get(s.name.split(".")[0])
         where = s.output / main if main and (s.output / main).exists() else s.output
-        rows.append((s.name, s.status, f"{s.seconds:.1f}" if s.status == "ran" else "-", str(where)))
+        rows.append(
+            (s.name, s.status, f"{s.seconds:.1f}" if s.status == "ran" else "-", str(where))
+        )
     return format_table(rows, left=(0, 1, 3))

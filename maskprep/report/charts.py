@@ -40,7 +40,11 @@ _ROT = math.radians(40)
 
 def _char_w(ch: str, size: float) -> float:
     """Estimated advance of one character: wide East Asian 1 em, combining 0, others 0.6 em."""
-    return 0.0 if unicodedata.combining(ch) else size * (1.0 if unicodedata.east_asian_width(ch) in "WF" else 0.6)
+    return (
+        0.0
+        if unicodedata.combining(ch)
+        else size * (1.0 if unicodedata.east_asian_width(ch) in "WF" else 0.6)
+    )
 
 
 def _text_w(text: str, size: float) -> float:
@@ -65,7 +69,9 @@ def _svg_text(text: str, *, x: float, y: float, size: float, max_w: float,
             f"{tip}{esc(shown)}</text>")
 
 
-def _columns(series: Mapping[str, Sequence[object]], count: int, what: str) -> list[list[float | None]]:
+def _columns(
+    series: Mapping[str, Sequence[object]], count: int, what: str
+) -> list[list[float | None]]:
     """Each series as floats, None for a gap (None, NaN, infinities); checks lengths and types."""
     rows = []
     for name, values in series.items():
@@ -99,16 +105,29 @@ def _decimals(value: float) -> int:
 def _tick_labels(ticks: Sequence[float], *, percent: bool) -> list[str]:
     """Labels for evenly spaced ticks: one number of decimals, as %, or with M/B/T."""
     top = max(abs(t) for t in ticks)
-    big = next(((1.0 / div, name) for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M")) if top >= div), (1.0, ""))
+    big = next(
+        ((1.0 / div, name) for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M")) if top >= div),
+        (1.0, ""),
+    )
     scale, suffix = (100.0, "%") if percent else big
     dec = _decimals((ticks[1] - ticks[0]) * scale if len(ticks) > 1 else 1.0)
-    return ["0" if t == 0 and suffix not in ("", "%") else f"{t * scale + 0.0:,.{dec}f}{suffix}" for t in ticks]
+    return [
+        "0" if t == 0 and suffix not in ("", "%") else f"{t * scale + 0.0:,.{dec}f}{suffix}"
+        for t in ticks
+    ]
 
 
 def _short(value: float, *, percent: bool) -> str:
     """A compact value label: ``1.23``, ``15.0%``, ``12,345``, ``3.4M``."""
     size = abs(value)
-    big = next((f"{value / div:.3g}{name}" for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M")) if size >= div), "")
+    big = next(
+        (
+            f"{value / div:.3g}{name}"
+            for div, name in ((1e12, "T"), (1e9, "B"), (1e6, "M"))
+            if size >= div
+        ),
+        "",
+    )
     if percent or big:
         return f"{value * 100:.1f}%" if percent else big
     if value.is_integer():
@@ -257,32 +276,55 @@ class _Frame:
         for x, y, k in self.legend:
             slot = self.slots[k]
             if self.swatch == "line":
-                out.append(f'<line x1="{x:.1f}" y1="{y - 4:.1f}" x2="{x + 24:.1f}" y2="{y - 4:.1f}" '
-                           f'stroke="{_colour(slot)}" stroke-width="2"{_dash(slot)}/>'
-                           + _marker(slot, x + 12, y - 4))
+                out.append(
+                    f'<line x1="{x:.1f}" y1="{y - 4:.1f}" x2="{x + 24:.1f}" y2="{y - 4:.1f}" '
+                    f'stroke="{_colour(slot)}" stroke-width="2"{_dash(slot)}/>'
+                    + _marker(slot, x + 12, y - 4)
+                )
             else:
                 out.append(f'<rect x="{x + 6:.1f}" y="{y - 10:.1f}" width="12" height="12" '
                            f'{_bar_paint(slot)}/>')
             out.append(_svg_text(self.names[k], x=x + 30, y=y, size=12, max_w=self.name_w))
         for tick, text in zip(self.ticks, self.tick_text):
             yy, strong = self.y(tick), tick == 0 or tick == self.ticks[0]
-            out.append(f'<line x1="{self.left:.1f}" y1="{yy:.1f}" x2="{self.left + self.plot_w:.1f}" '
-                       f'y2="{yy:.1f}" stroke="currentColor" stroke-opacity="{0.5 if strong else 0.15}"/>')
+            out.append(
+                f'<line x1="{self.left:.1f}" y1="{yy:.1f}" x2="{self.left + self.plot_w:.1f}" '
+                f'y2="{yy:.1f}" stroke="currentColor" stroke-opacity="{0.5 if strong else 0.15}"/>'
+            )
             out.append(f'<text x="{self.left - 6:.1f}" y="{yy + 4:.1f}" font-size="11" '
                        f'text-anchor="end">{esc(text)}</text>')
         if self.y_label:
             cy = self.top + self.plot_h / 2
-            out.append(_svg_text(self.y_label, x=_PAD + 10, y=cy, size=12, max_w=self.plot_h,
-                                 anchor="middle", extra=f' transform="rotate(-90 {_PAD + 10:.1f} {cy:.1f})"'))
-        every = math.ceil(15 / self.slot) if self.rotate else 1  # thin out labels closer than a line apart
+            out.append(
+                _svg_text(
+                    self.y_label,
+                    x=_PAD + 10,
+                    y=cy,
+                    size=12,
+                    max_w=self.plot_h,
+                    anchor="middle",
+                    extra=f' transform="rotate(-90 {_PAD + 10:.1f} {cy:.1f})"',
+                )
+            )
+        every = (
+            math.ceil(15 / self.slot) if self.rotate else 1
+        )  # thin out labels closer than a line apart
         for i, text in enumerate(self.x_text[::every]):
             x = self.xc(i * every)
             turn = f' transform="rotate(-40 {x:.1f} {self.label_y:.1f})"' if self.rotate else ""
             out.append(_svg_text(text, x=x, y=self.label_y, size=11, max_w=170,
                                  anchor="end" if self.rotate else "middle", extra=turn))
         if self.x_label:
-            out.append(_svg_text(self.x_label, x=self.left + self.plot_w / 2, y=self.height - _PAD - 4,
-                                 size=12, max_w=self.plot_w, anchor="middle"))
+            out.append(
+                _svg_text(
+                    self.x_label,
+                    x=self.left + self.plot_w / 2,
+                    y=self.height - _PAD - 4,
+                    size=12,
+                    max_w=self.plot_w,
+                    anchor="middle",
+                )
+            )
         return out
 
 
@@ -317,7 +359,9 @@ def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequ
     lo = min(present) if y_min is None else min(min(present), float(y_min))
     ticks = _nice_ticks(lo, max(present))
     bottom = ticks[0] if y_min is None else lo
-    ticks = [t for t in ticks if t >= bottom - 1e-12 * max(1.0, abs(bottom))]  # ticks[-1] >= max > bottom
+    ticks = [
+        t for t in ticks if t >= bottom - 1e-12 * max(1.0, abs(bottom))
+    ]  # ticks[-1] >= max > bottom
     styles = style_slots(list(series), slots)
     frame = _Frame(title=title, names=list(series), slots=styles, x_labels=x_labels,
                    y_label=y_label, x_label=x_label, ticks=ticks, domain=(bottom, ticks[-1]),
@@ -333,11 +377,15 @@ def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequ
             path.append(f"{'L' if pen_down else 'M'}{x:.1f} {y:.1f}")
             pen_down = True
             tip = esc(f"{name} \u2014 {x_labels[i]}: {_exact(value)}")
-            points.append(f'<g class="point"><title>{tip}</title>{_marker(k, x, y)}'
-                          f'<circle cx="{x:.1f}" cy="{y:.1f}" r="9" fill="#000" fill-opacity="0"/></g>')
-        out.append(f'<g class="series" data-series="{esc(name)}">'
-                   f'<path class="line" d="{" ".join(path)}" fill="none" stroke="{_colour(k)}" '
-                   f'stroke-width="2.2" stroke-linejoin="round"{_dash(k)}/>' + "".join(points) + "</g>")
+            points.append(
+                f'<g class="point"><title>{tip}</title>{_marker(k, x, y)}'
+                f'<circle cx="{x:.1f}" cy="{y:.1f}" r="9" fill="#000" fill-opacity="0"/></g>'
+            )
+        out.append(
+            f'<g class="series" data-series="{esc(name)}">'
+            f'<path class="line" d="{" ".join(path)}" fill="none" stroke="{_colour(k)}" '
+            f'stroke-width="2.2" stroke-linejoin="round"{_dash(k)}/>' + "".join(points) + "</g>"
+        )
     out.append("</svg>")
     return "\n".join(out)
 
@@ -364,7 +412,9 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
     widest = max((_text_w(t, 10) for row in labels for t in row if t), default=0.0)
     mode = "flat" if widest <= bar_w - 6 else "up" if bar_w >= 10 and turn_labels else "none"
     above, below, span = 0.0, 0.0, ticks[-1] - ticks[0]  # label room needed beyond the plot edges
-    for value, text in ((v, t) for row, texts in zip(rows, labels) for v, t in zip(row, texts) if v is not None):
+    for value, text in (
+        (v, t) for row, texts in zip(rows, labels) for v, t in zip(row, texts) if v is not None
+    ):
         extent = {"flat": 14.0, "up": _text_w(text or "", 10) + 6, "none": 0.0}[mode]
         if value >= 0:
             above = max(above, extent - (ticks[-1] - value) / span * plot_height)
@@ -399,10 +449,19 @@ def _bars(*, title: str, categories: Sequence[str], series: Mapping[str, Sequenc
     return "\n".join(out)
 
 
-def bar_chart(*, title: str, categories: Sequence[str], series: Mapping[str, Sequence[float | None]],
-              y_label: str, percent: bool = False, x_label: str = "", name_bars: bool = False,
-              slots: Mapping[str, int] | None = None, width: float = _WIDTH,
-              plot_height: float = _PLOT_H) -> str:
+def bar_chart(
+    *,
+    title: str,
+    categories: Sequence[str],
+    series: Mapping[str, Sequence[float | None]],
+    y_label: str,
+    percent: bool = False,
+    x_label: str = "",
+    name_bars: bool = False,
+    slots: Mapping[str, int] | None = None,
+    width: float = _WIDTH,
+    plot_height: float = _PLOT_H,
+) -> str:
     """Inline SVG of grouped bars: per category, one bar per series side by side, labelled.
 
     With ``percent=True`` values are fractions (0.15) shown as percentages (15.0%).

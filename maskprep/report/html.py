@@ -40,9 +40,15 @@ def _formatted(value: float, fmt: Format) -> str:
     return fmt.format(value) if "{" in fmt else format(value, fmt)
 
 
-def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_format: Format = ",.3f",
-          integer_format: Format = ",d", column_formats: Mapping[str, Format] | None = None,
-          caption: str = "") -> str:
+def table(
+    *,
+    headers: Sequence[str],
+    rows: Sequence[Sequence[object]],
+    numeric_format: Format = ",.3f",
+    integer_format: Format = ",d",
+    column_formats: Mapping[str, Format] | None = None,
+    caption: str = "",
+) -> str:
     """An HTML table: numbers formatted and right-aligned, everything else escaped.
 
     Floats use ``numeric_format``, integers ``integer_format`` (format specs like
@@ -68,7 +74,13 @@ def table(*, headers: Sequence[str], rows: Sequence[Sequence[object]], numeric_f
                 has_number[c] = True
                 cells.append(f'<td class="num">{esc(text)}</td>')
             else:
-                text = "" if value is None else ("yes" if value else "no") if isinstance(value, bool) else str(value)
+                text = (
+                    ""
+                    if value is None
+                    else ("yes" if value else "no")
+                    if isinstance(value, bool)
+                    else str(value)
+                )
                 has_text[c] = has_text[c] or value is not None
                 name = ' class="name"' if c == 0 else ""
                 cells.append(f"<td{name}>{esc(text)}</td>")
@@ -89,11 +101,20 @@ def _breakable(header: str) -> str:
 def _shown(token: str) -> str:
     if token == "":
         return "\u2205"
-    return token.replace(" ", "\u2423").translate(_SHOWN) if token.isspace() else token.translate(_SHOWN)
+    return (
+        token.replace(" ", "\u2423").translate(_SHOWN)
+        if token.isspace()
+        else token.translate(_SHOWN)
+    )
 
 
-def highlighted_sequence(tokens: Sequence[str], *, masked: Sequence[bool], unit_ids: Sequence[int] | None = None,
-                         originals: Sequence[str] | None = None) -> str:
+def highlighted_sequence(
+    tokens: Sequence[str],
+    *,
+    masked: Sequence[bool],
+    unit_ids: Sequence[int] | None = None,
+    originals: Sequence[str] | None = None,
+) -> str:
     """HTML of one sequence with each masked unit in one highlighted box.
 
     Consecutive masked tokens with the same unit id (>= 0) share a box; without
@@ -121,10 +142,16 @@ def highlighted_sequence(tokens: Sequence[str], *, masked: Sequence[bool], unit_
             while j < n and masked[j] and int(unit_ids[j]) == unit:
                 j += 1
         tip = f"masked unit {unit}" if unit_ids is not None and unit >= 0 else "masked token"
-        tip += f", {j - i} token{'s' if j - i > 1 else ''}" + (": " + " ".join(originals[i:j]) if originals else "")
+        tip += f", {j - i} token{'s' if j - i > 1 else ''}" + (
+            ": " + " ".join(originals[i:j]) if originals else ""
+        )
         boxed = (esc(_shown(tokens[p])) + ("" if originals is None else
                  f'<span class="o">{esc(_shown(originals[p]))}</span>') for p in range(i, j))
-        out.append(f'<mark title="{esc(tip)}">' + "".join(f'<span class="t m">{b}</span>' for b in boxed) + "</mark>")
+        out.append(
+            f'<mark title="{esc(tip)}">'
+            + "".join(f'<span class="t m">{b}</span>' for b in boxed)
+            + "</mark>"
+        )
         i = j
     out.append("</div>")
     return "".join(out)
@@ -201,25 +228,44 @@ def page(*, title: str, sections: Sequence[tuple[str, str]], subtitle: str = "",
     >>> page(title="Audit", sections=[("Tokens per word", paragraph("1.3 on average"))]).startswith("<!DOCTYPE html>")
     True
     """
-    out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
-           '<meta name="viewport" content="width=device-width, initial-scale=1">',
-           '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
-           'style-src \'unsafe-inline\'; img-src data:">',
-           '<meta name="generator" content="maskprep">', f"<title>{esc(title)}</title>",
-           f"<style>{_CSS}</style>", "</head>", "<body>", "<main>", "<header>", f"<h1>{esc(title)}</h1>"]
+    out = [
+        "<!DOCTYPE html>",
+        '<html lang="en">',
+        "<head>",
+        '<meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+        '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
+        "style-src 'unsafe-inline'; img-src data:\">",
+        '<meta name="generator" content="maskprep">',
+        f"<title>{esc(title)}</title>",
+        f"<style>{_CSS}</style>",
+        "</head>",
+        "<body>",
+        "<main>",
+        "<header>",
+        f"<h1>{esc(title)}</h1>",
+    ]
     if subtitle:
         out.append(f'<p class="subtitle">{esc(subtitle)}</p>')
     out.append("</header>")
     if len(sections) >= 3:
-        links = "".join(f'<li><a href="#section-{k}">{esc(h)}</a></li>' for k, (h, _) in enumerate(sections, 1))
+        links = "".join(
+            f'<li><a href="#section-{k}">{esc(h)}</a></li>' for k, (h, _) in enumerate(sections, 1)
+        )
         out.append(f'<nav aria-label="Contents"><strong>Contents</strong><ol>{links}</ol></nav>')
     for k, (heading, body) in enumerate(sections, 1):
         out.append(f'<section id="section-{k}">\n<h2>{esc(heading)}</h2>\n{body}\n</section>')
     if notes:
         items = "".join(f"<li>{esc(n)}</li>" for n in notes)
         out.append(f'<section class="notes">\n<h2>Notes</h2>\n<ul>{items}</ul>\n</section>')
-    out += ["<footer>Written by maskprep. This page is self-contained: it loads nothing and runs no scripts."
-            "</footer>", "</main>", "</body>", "</html>", ""]
+    out += [
+        "<footer>Written by maskprep. This page is self-contained: it loads nothing and runs no scripts."
+        "</footer>",
+        "</main>",
+        "</body>",
+        "</html>",
+        "",
+    ]
     return "\n".join(out)
 
 

@@ -5,5 +5,13 @@ from .loader import ShardLoader
 from .read import ShardSet, open_shards
 from .write import ShardConfig, ShardManifest, write_shards
 
-__all__ = ["ShardConfig", "ShardLoader", "ShardManifest", "ShardSet", "format_examples", "open_shards",
-           "verify_shards", "write_shards"]
+__all__ = [
+    "ShardConfig",
+    "ShardLoader",
+    "ShardManifest",
+    "ShardSet",
+    "format_examples",
+    "open_shards",
+    "verify_shards",
+    "write_shards",
+]

@@ -47,8 +47,20 @@ __all__ = ["VerifyReport", "verify_shards", "format_examples"]
 
 _STATIC = ("input_ids", "labels", "attention_mask", "sequence_id", "copy")
 _DYNAMIC = ("input_ids", "unit_ids", "attention_mask", "sequence_id", "copy")
-_META_KEYS = ("strategy", "rate", "mix", "mix_per", "span_p", "span_max", "seed", "copies", "seq_len", "pack",
-              "tokenizer_hash", "units_sha256")
+_META_KEYS = (
+    "strategy",
+    "rate",
+    "mix",
+    "mix_per",
+    "span_p",
+    "span_max",
+    "seed",
+    "copies",
+    "seq_len",
+    "pack",
+    "tokenizer_hash",
+    "units_sha256",
+)
 
 
 @dataclass
@@ -71,8 +83,15 @@ def _first(bad: np.ndarray) -> int | None:
     return int(idx[0]) if idx.size else None
 
 
-def _check_rows(batch: dict[str, np.ndarray], *, ss: ShardSet, record: ShardRecord, meta: dict[str, Any],
-                row0: int, faults: list[str]) -> dict[str, int]:
+def _check_rows(
+    batch: dict[str, np.ndarray],
+    *,
+    ss: ShardSet,
+    record: ShardRecord,
+    meta: dict[str, Any],
+    row0: int,
+    faults: list[str],
+) -> dict[str, int]:
     o, tok = ss.options, ss.manifest.tokenizer
     ids, att = batch["input_ids"], batch["attention_mask"]
     specials = np.asarray(tok["special_ids"], dtype=np.int32)
@@ -90,7 +109,10 @@ def _check_rows(batch: dict[str, np.ndarray], *, ss: ShardSet, record: ShardReco
           "attention_mask is not ones followed by zeros")
     fault(ids[:, 0] != cls_id, f"first token is not the start token (id {cls_id})")
     fault(batch["copy"] != record.copy, f"copy is not {record.copy}, the copy of this file")
-    fault((~on & (ids != pad_id)).any(axis=1), f"a padded position (attention 0) is not the pad token {pad_id}")
+    fault(
+        (~on & (ids != pad_id)).any(axis=1),
+        f"a padded position (attention 0) is not the pad token {pad_id}",
+    )
     is_special = np.isin(ids, specials)
     if ss.dynamic:
         units = batch["unit_ids"]
@@ -108,20 +130,30 @@ def _check_rows(batch: dict[str, np.ndarray], *, ss: ShardSet, record: ShardReco
         masked = ids
         target = labels != IGNORE_LABEL
         fault((target & ~on).any(axis=1), "a padded position has a label")
-        fault((target & ((labels < 0) | (labels >= vocab))).any(axis=1), "a label is not a token id")
-        fault((target & np.isin(labels, specials)).any(axis=1), "a special token is a target (label is special)")
+        fault(
+            (target & ((labels < 0) | (labels >= vocab))).any(axis=1), "a label is not a token id"
+        )
+        fault(
+            (target & np.isin(labels, specials)).any(axis=1),
+            "a special token is a target (label is special)",
+        )
         fault((target & is_special & (ids != mask_id)).any(axis=1),
               "a target is shown as a special token other than the mask token")
         maskable = on & (target | ~is_special)
     target = labels != IGNORE_LABEL
     n_t = target.sum(axis=1)
     n_m = maskable.sum(axis=1)
-    fault(n_t > np.floor(float(o["rate"]) * n_m + 0.5), "more targets than the row's budget round(rate x maskable)")
+    fault(
+        n_t > np.floor(float(o["rate"]) * n_m + 0.5),
+        "more targets than the row's budget round(rate x maskable)",
+    )
     return {"tokens": int(on.sum()), "maskable": int(n_m.sum()), "targets": int(n_t.sum()),
             "masked_shown": int((target & (masked == mask_id)).sum())}
 
 
-def _check_schema(path: Path, ss: ShardSet, record: ShardRecord, faults: list[str]) -> dict[str, Any] | None:
+def _check_schema(
+    path: Path, ss: ShardSet, record: ShardRecord, faults: list[str]
+) -> dict[str, Any] | None:
     import pyarrow as pa
 
     try:
@@ -138,7 +170,9 @@ def _check_schema(path: Path, ss: ShardSet, record: ShardRecord, faults: list[st
     if not ss.manifest.has_copy_column:
         expected = expected[:-1]
     if tuple(schema.names) != expected:
-        faults.append(f"{record.file}: columns {', '.join(schema.names)}; expected {', '.join(expected)}")
+        faults.append(
+            f"{record.file}: columns {', '.join(schema.names)}; expected {', '.join(expected)}"
+        )
         return None
     if "copy" in expected and schema.field("copy").type != pa.int16():
         faults.append(f"{record.file}: column copy is {schema.field('copy').type}; expected int16")
@@ -149,16 +183,25 @@ def _check_schema(path: Path, ss: ShardSet, record: ShardRecord, faults: list[st
         faults.append(f"{record.file}: no maskprep schema metadata")
         return None
     wrong = [k for k in _META_KEYS if meta.get(k) != ss.options.get(k)]
-    wrong += [k for k, v in (("copy", record.copy), ("task", record.task),
-                             ("mask_token_id", ss.manifest.tokenizer["mask_token_id"]),
-                             ("special_ids", ss.manifest.tokenizer["special_ids"])) if meta.get(k) != v]
+    wrong += [
+        k
+        for k, v in (
+            ("copy", record.copy),
+            ("task", record.task),
+            ("mask_token_id", ss.manifest.tokenizer["mask_token_id"]),
+            ("special_ids", ss.manifest.tokenizer["special_ids"]),
+        )
+        if meta.get(k) != v
+    ]
     if meta.get("layout") != ("dynamic" if ss.dynamic else "static"):
         wrong.append("layout")
     tokenizer_words = {"definition": "tokenizer"}  # files of the tokenizer's words carry no key
     if meta.get("words", tokenizer_words) != ss.options.get("words", tokenizer_words):
         wrong.append("words (the word definition)")
     if wrong:
-        faults.append(f"{record.file}: schema metadata differs from the manifest in {', '.join(wrong)}")
+        faults.append(
+            f"{record.file}: schema metadata differs from the manifest in {', '.join(wrong)}"
+        )
     return meta
 
 
@@ -183,14 +226,18 @@ def verify_shards(directory: str | Path, *, max_faults: int = 50) -> VerifyRepor
             faults.append(f"{record.file}: listed in manifest.json but missing")
             continue
         if path.stat().st_size != record.bytes or file_sha256(path) != record.sha256:
-            faults.append(f"{record.file}: sha256 differs from manifest.json (file changed or damaged)")
+            faults.append(
+                f"{record.file}: sha256 differs from manifest.json (file changed or damaged)"
+            )
         meta = _check_schema(path, ss, record, faults)
         if meta is None:
             continue
         got = {"rows": 0, "tokens": 0, "maskable": 0, "targets": 0}
         try:
             for batch in _raw_batches(ss, record, L, faults):
-                counts = _check_rows(batch, ss=ss, record=record, meta=meta, row0=got["rows"], faults=faults)
+                counts = _check_rows(
+                    batch, ss=ss, record=record, meta=meta, row0=got["rows"], faults=faults
+                )
                 got["rows"] += len(batch["sequence_id"])
                 for k in ("tokens", "maskable", "targets"):
                     got[k] += counts[k]
@@ -217,7 +264,8 @@ def verify_shards(directory: str | Path, *, max_faults: int = 50) -> VerifyRepor
             f"{ss.directory}: metadata at the top of the directory (format version "
             f"{ss.manifest.format_version}); maskprep reads it, but pyarrow.dataset and other directory "
             f"readers cannot open the directory until manifest.json, stats.json and tokenizer.json "
-            f"are moved into {META_DIR}/")
+            f"are moved into {META_DIR}/"
+        )
     if not stats_path.is_file():
         faults.append(f"{stats_path.relative_to(ss.directory)}: missing")
     else:
@@ -248,11 +296,15 @@ def _check_tokenizer_copy(ss: ShardSet, faults: list[str]) -> None:
         return
     want = ss.manifest.tokenizer.get("hash")
     if info.hash != want:
-        faults.append(f"{name}: not the tokenizer manifest.json names (hash {info.hash[:12]}, manifest "
-                      f"{str(want)[:12]})")
+        faults.append(
+            f"{name}: not the tokenizer manifest.json names (hash {info.hash[:12]}, manifest "
+            f"{str(want)[:12]})"
+        )
 
 
-def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -> Iterator[dict[str, np.ndarray]]:
+def _raw_batches(
+    ss: ShardSet, record: ShardRecord, L: int, faults: list[str]
+) -> Iterator[dict[str, np.ndarray]]:
     """Batches with a check that every list has exactly L entries (before reshaping)."""
     import pyarrow as pa
 
@@ -266,7 +318,9 @@ def _raw_batches(ss: ShardSet, record: ShardRecord, L: int, faults: list[str]) -
                 lengths = np.diff(col.offsets.to_numpy())
                 bad = _first(lengths != L)
                 if bad is not None:
-                    faults.append(f"{record.file} row {row0 + bad}: {name} has {lengths[bad]} entries, not {L}")
+                    faults.append(
+                        f"{record.file} row {row0 + bad}: {name} has {lengths[bad]} entries, not {L}"
+                    )
                     return
         row0 += part.num_rows
         yield to_numpy(part, seq_len=L, copy=record.copy)
@@ -335,7 +389,9 @@ def _vocab_text(tokenizer: Any, token_id: int) -> str:
         return raw
     if "\ufffd" in piece:
         return PARTIAL
-    return (SPACE_MARK if piece[:1].isspace() else "") + piece.strip() if piece.strip() else SPACE_MARK
+    return (
+        (SPACE_MARK if piece[:1].isspace() else "") + piece.strip() if piece.strip() else SPACE_MARK
+    )
 
 
 def _render(pieces: list[str], runs: list[tuple[int, int]], color: bool) -> str:
@@ -361,18 +417,22 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     ss = open_shards(directory)
     tok_path = ss.metadata("tokenizer.json")
     if not tok_path.is_file():
-        raise MaskprepError(f"{tok_path}: missing; the shards directory keeps a copy of its tokenizer")
+        raise MaskprepError(
+            f"{tok_path}: missing; the shards directory keeps a copy of its tokenizer"
+        )
     tokenizer = load_tokenizer(tok_path).tokenizer
     mask_id = int(ss.manifest.tokenizer["mask_token_id"])
     o = ss.options
     words = o.get("words", {"definition": "tokenizer"})
-    lines = [f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, words {words['definition']}, "
-             f"rate {o['rate']}, mix "
-             f"{'/'.join(str(x) for x in o['mix'])}, seed {o['seed']}, "
-             + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static"),
-             ("masked runs in colour" if color else "{...} a masked run")
-             + f"; {RANDOM_OPEN}piece{RANDOM_CLOSE} a random replacement, shown as its vocabulary piece "
-             "(not joined to the word before it)"]
+    lines = [
+        f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, words {words['definition']}, "
+        f"rate {o['rate']}, mix "
+        f"{'/'.join(str(x) for x in o['mix'])}, seed {o['seed']}, "
+        + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static"),
+        ("masked runs in colour" if color else "{...} a masked run")
+        + f"; {RANDOM_OPEN}piece{RANDOM_CLOSE} a random replacement, shown as its vocabulary piece "
+        "(not joined to the word before it)",
+    ]
     shown = 0
     for record in ss.manifest.shards:
         row_in_file = 0
@@ -389,25 +449,47 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
                 runs = _runs(target)
                 seq = int(batch["sequence_id"][r])
                 lines.append("")
-                lines.append(f"{record.file} row {row_in_file + r}: sequence {seq >> 32}:{seq & 0xFFFFFFFF}, copy "
-                             f"{record.copy}, {plural(length, 'token')}, {plural(sum(target), 'target')} in "
-                             f"{plural(len(runs), 'run')}"
-                             + (f", {masked.shape[1] - length} padding" if length < masked.shape[1] else ""))
-                random = [t and s != mask_id and s != o for t, s, o in zip(target, shown_ids, orig_ids)]
+                lines.append(
+                    f"{record.file} row {row_in_file + r}: sequence {seq >> 32}:{seq & 0xFFFFFFFF}, copy "
+                    f"{record.copy}, {plural(length, 'token')}, {plural(sum(target), 'target')} in "
+                    f"{plural(len(runs), 'run')}"
+                    + (f", {masked.shape[1] - length} padding" if length < masked.shape[1] else "")
+                )
+                random = [
+                    t and s != mask_id and s != o for t, s, o in zip(target, shown_ids, orig_ids)
+                ]
                 in_context = _pieces(tokenizer, shown_ids)
                 p_shown = mark_random(in_context, tokenizer, shown_ids, random)
                 p_orig = _pieces(tokenizer, orig_ids)
-                lines.append("  input:    " + _render(mark_random(in_context, tokenizer, shown_ids, random, color)
-                                                      if color else p_shown, runs, color))
+                lines.append(
+                    "  input:    "
+                    + _render(
+                        mark_random(in_context, tokenizer, shown_ids, random, color)
+                        if color
+                        else p_shown,
+                        runs,
+                        color,
+                    )
+                )
                 lines.append("  original: " + _render(p_orig, runs, color))
                 parts = []
                 for a, b in runs:
-                    how = ["mask" if shown_ids[i] == mask_id else "keep" if shown_ids[i] == orig_ids[i]
-                           else "random" for i in range(a, b)]
+                    how = [
+                        "mask"
+                        if shown_ids[i] == mask_id
+                        else "keep"
+                        if shown_ids[i] == orig_ids[i]
+                        else "random"
+                        for i in range(a, b)
+                    ]
                     text = "".join(p_orig[a:b]).strip()
                     seen = "".join(p_shown[a:b]).strip()
-                    kinds = ", ".join(f"{how.count(k)} {k}" for k in ("mask", "random", "keep") if k in how)
-                    parts.append(f"{text!r} -> {seen!r}" + ("" if set(how) == {"mask"} else f" ({kinds})"))
+                    kinds = ", ".join(
+                        f"{how.count(k)} {k}" for k in ("mask", "random", "keep") if k in how
+                    )
+                    parts.append(
+                        f"{text!r} -> {seen!r}" + ("" if set(how) == {"mask"} else f" ({kinds})")
+                    )
                 lines.append("  targets:  " + ("; ".join(parts) if parts else "(none)"))
                 shown += 1
             row_in_file += len(masked)

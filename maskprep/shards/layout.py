@@ -132,7 +132,9 @@ class ShardManifest:
     @classmethod
     def read(cls, directory: str | Path) -> "ShardManifest":
         if not Path(directory).exists():
-            raise MaskprepError(f"{directory}: no such directory (give the SHARDS_DIR written by maskprep mask)")
+            raise MaskprepError(
+                f"{directory}: no such directory (give the SHARDS_DIR written by maskprep mask)"
+            )
         if not Path(directory).is_dir():
             raise MaskprepError(f"{directory}: is a file, not a shards directory "
                                 "(give the SHARDS_DIR written by maskprep mask)")

@@ -116,13 +116,21 @@ class ShardSet:
         """The shards as a ``pyarrow.dataset.Dataset`` (in manifest order)."""
         import pyarrow.dataset as ds
 
-        return ds.dataset([str(f) for f in self.files], format="ipc" if self.options["format"] == "arrow"
-                          else "parquet")
+        return ds.dataset(
+            [str(f) for f in self.files],
+            format="ipc" if self.options["format"] == "arrow" else "parquet",
+        )
 
     def masking_config(self) -> MaskingConfig:
         o = self.options
-        return MaskingConfig(strategy=o["strategy"], rate=o["rate"], mix=tuple(o["mix"]), mix_per=o["mix_per"],
-                             span_p=o["span_p"], span_max=o["span_max"])
+        return MaskingConfig(
+            strategy=o["strategy"],
+            rate=o["rate"],
+            mix=tuple(o["mix"]),
+            mix_per=o["mix_per"],
+            span_p=o["span_p"],
+            span_max=o["span_max"],
+        )
 
     def random_token_ids(self) -> np.ndarray:
         """The non-special ids random replacements draw from (as when writing)."""
@@ -145,13 +153,17 @@ class ShardSet:
                                 "write them with --dynamic to mask on the fly")
         if copy is not None and epoch is not None:
             raise MaskprepError("ShardSet.mask: pass copy= or epoch=, not both")
-        if epoch is not None and (isinstance(epoch, bool) or not isinstance(epoch, (int, np.integer))
-                                  or epoch < 0):
+        if epoch is not None and (
+            isinstance(epoch, bool) or not isinstance(epoch, (int, np.integer)) or epoch < 0
+        ):
             raise MaskprepError(f"epoch must be a whole number >= 0, got {epoch!r}")
         ids, units, seqs = batch["input_ids"], batch["unit_ids"], batch["sequence_id"]
-        kw: dict[str, Any] = {"seed": self.options["seed"] if seed is None else seed, "config": self.masking_config(),
-              "mask_token_id": int(self.manifest.tokenizer["mask_token_id"]),
-              "random_token_ids": self.random_token_ids()}
+        kw: dict[str, Any] = {
+            "seed": self.options["seed"] if seed is None else seed,
+            "config": self.masking_config(),
+            "mask_token_id": int(self.manifest.tokenizer["mask_token_id"]),
+            "random_token_ids": self.random_token_ids(),
+        }
         if copy is not None:
             return mask_batch(ids, units, sequence_ids=seqs, copy=copy, **kw)
         row_copy = np.asarray(batch["copy"], dtype=np.int64)

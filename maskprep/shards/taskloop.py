@@ -58,7 +58,9 @@ def _cached(kind: str, digest: str, make: Any) -> Any:
 
 
 def _head(pb: PackedBatch, k: int) -> PackedBatch:
-    return dataclasses.replace(pb, **{f.name: getattr(pb, f.name)[:k] for f in dataclasses.fields(pb)})
+    return dataclasses.replace(
+        pb, **{f.name: getattr(pb, f.name)[:k] for f in dataclasses.fields(pb)}
+    )
 
 
 class TaskLoop:
@@ -72,7 +74,9 @@ class TaskLoop:
             job.tokenizer_json, name=job.tokenizer_name))
         self.table = None
         if job.units is not None:
-            self.table = _cached("units", job.units_digest or "", lambda: UnitTable.from_by_length(job.units))
+            self.table = _cached(
+                "units", job.units_digest or "", lambda: UnitTable.from_by_length(job.units)
+            )
         self.mask_id = self.info.require_mask()
         self.random_ids = self.info.normal_ids()
         self.reader = TaskReader(task, self.info, job.corpus_options, words=job.words)
@@ -109,17 +113,37 @@ class TaskLoop:
         if pb is not self._pb:
             self._pb, self._units = pb, {}
         span = config.strategy is Strategy.SPAN
-        key = (config.strategy, config.span_p, config.span_max, copy) if span else (config.strategy,)
+        key = (
+            (config.strategy, config.span_p, config.span_max, copy) if span else (config.strategy,)
+        )
         units = self._units.get(key)
         if units is None:
             units = self._units[key] = strategy_units(
-                pb.special, pb.word_ids, config=config, sequence_ids=pb.sequence_ids, seed=self.job.seed, copy=copy,
-                word_keys=pb.word_keys, word_kinds=pb.word_kinds, units=self.table)
+                pb.special,
+                pb.word_ids,
+                config=config,
+                sequence_ids=pb.sequence_ids,
+                seed=self.job.seed,
+                copy=copy,
+                word_keys=pb.word_keys,
+                word_kinds=pb.word_kinds,
+                units=self.table,
+            )
         return units
 
-    def mask(self, pb: PackedBatch, config: MaskingConfig, copy: int = 0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    def mask(
+        self, pb: PackedBatch, config: MaskingConfig, copy: int = 0
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(unit_ids, masked input_ids, labels) of `pb` for one masking config and copy."""
         units = self.units(pb, config, copy)
-        masked, labels = mask_batch(pb.input_ids, units, sequence_ids=pb.sequence_ids, seed=self.job.seed, copy=copy,
-                                    config=config, mask_token_id=self.mask_id, random_token_ids=self.random_ids)
+        masked, labels = mask_batch(
+            pb.input_ids,
+            units,
+            sequence_ids=pb.sequence_ids,
+            seed=self.job.seed,
+            copy=copy,
+            config=config,
+            mask_token_id=self.mask_id,
+            random_token_ids=self.random_ids,
+        )
         return units, masked, labels

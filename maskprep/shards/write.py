@@ -92,10 +92,15 @@ class ShardConfig:
     def __post_init__(self) -> None:
         if self.format not in _FORMATS:
             raise MaskprepError(f"--format must be arrow or parquet, got {self.format!r}")
-        for name, value, low, high in (("--shard-rows", self.shard_rows, 1, 1 << 24),
-                                       ("--copies", self.copies, 1, 1000), ("--seed", self.seed, 0, (1 << 64) - 1)):
+        for name, value, low, high in (
+            ("--shard-rows", self.shard_rows, 1, 1 << 24),
+            ("--copies", self.copies, 1, 1000),
+            ("--seed", self.seed, 0, (1 << 64) - 1),
+        ):
             if not is_whole(value, low, high):
-                raise MaskprepError(f"{name} must be a whole number from {low} to {high}, got {value!r}")
+                raise MaskprepError(
+                    f"{name} must be a whole number from {low} to {high}, got {value!r}"
+                )
         object.__setattr__(self, "dynamic", bool(self.dynamic))
 
 
@@ -117,12 +122,16 @@ def _list_column(values: np.ndarray) -> Any:
     return pa.ListArray.from_arrays(offsets, pa.array(np.ascontiguousarray(values).ravel()))
 
 
-def _write_file(path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, metadata: Mapping[str, Any]) -> None:
+def _write_file(
+    path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, metadata: Mapping[str, Any]
+) -> None:
     import pyarrow as pa
 
     arrays = [_list_column(v) if v.ndim == 2 else pa.array(v) for v in columns.values()]
     meta = {METADATA_KEY: json.dumps(metadata, sort_keys=True).encode("utf-8")}
-    schema = pa.schema([pa.field(k, a.type, nullable=False) for k, a in zip(columns, arrays)], metadata=meta)
+    schema = pa.schema(
+        [pa.field(k, a.type, nullable=False) for k, a in zip(columns, arrays)], metadata=meta
+    )
     table = pa.Table.from_arrays(arrays, schema=schema)
     with atomic_path(path) as tmp:
         if fmt == "arrow":
@@ -137,7 +146,9 @@ def _write_file(path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, meta
 class _ShardWriter:
     """Buffers rows of one (task, copy) and writes files of exactly shard_rows rows (the last may be short)."""
 
-    def __init__(self, out: Path, *, task: int, copy: int, config: ShardConfig, metadata: Mapping[str, Any]) -> None:
+    def __init__(
+        self, out: Path, *, task: int, copy: int, config: ShardConfig, metadata: Mapping[str, Any]
+    ) -> None:
         self.out, self.task, self.copy, self.config = out, task, copy, config
         self.metadata = {**metadata, "task": task, "copy": copy}
         self.pending: list[dict[str, np.ndarray]] = []
@@ -200,8 +211,15 @@ def _shard_task(job: _Job, task: SourceTask) -> dict[str, Any]:
     for pb in loop.packed():
         for c, writer in enumerate(writers):
             units, masked, labels = loop.mask(pb, mcfg, c)
-            stats.add(masked_ids=masked, labels=labels, unit_ids=units, word_ids=pb.word_ids,
-                      attention_mask=pb.attention_mask, mask_token_id=loop.mask_id, first_copy=c == 0)
+            stats.add(
+                masked_ids=masked,
+                labels=labels,
+                unit_ids=units,
+                word_ids=pb.word_ids,
+                attention_mask=pb.attention_mask,
+                mask_token_id=loop.mask_id,
+                first_copy=c == 0,
+            )
             cols: dict[str, np.ndarray] = {"input_ids": pb.input_ids if cfg.dynamic else masked}
             cols["unit_ids" if cfg.dynamic else "labels"] = units if cfg.dynamic else labels
             cols["attention_mask"] = pb.attention_mask
@@ -219,21 +237,41 @@ def _shard_task(job: _Job, task: SourceTask) -> dict[str, Any]:
 
 # ------------------------------------------------------------------ the driver
 
-_OPTION_LABELS = {"strategy": "--strategy", "rate": "--rate", "mix": "--mix", "mix_per": "--mix-per",
-                  "span_p": "--span-p", "span_max": "--span-max", "seq_len": "--seq-len", "pack": "pack (--no-pack)",
-                  "copies": "--copies", "seed": "--seed", "format": "--format", "shard_rows": "--shard-rows",
-                  "dynamic": "--dynamic", "units_sha256": "units (--units)", "tokenizer_hash": "tokenizer (-t)",
-                  "corpus_fingerprint": "corpus (file names, sizes and contents)", "doc_sep": "--doc-sep",
-                  "text_field": "--text-field", "text_column": "--text-column", "chunk_bytes": "task size",
-                  "maskprep_version": "maskprep version", "units_tokenizer_hash": "the units' tokenizer"}
+_OPTION_LABELS = {
+    "strategy": "--strategy",
+    "rate": "--rate",
+    "mix": "--mix",
+    "mix_per": "--mix-per",
+    "span_p": "--span-p",
+    "span_max": "--span-max",
+    "seq_len": "--seq-len",
+    "pack": "pack (--no-pack)",
+    "copies": "--copies",
+    "seed": "--seed",
+    "format": "--format",
+    "shard_rows": "--shard-rows",
+    "dynamic": "--dynamic",
+    "units_sha256": "units (--units)",
+    "tokenizer_hash": "tokenizer (-t)",
+    "corpus_fingerprint": "corpus (file names, sizes and contents)",
+    "doc_sep": "--doc-sep",
+    "text_field": "--text-field",
+    "text_column": "--text-column",
+    "chunk_bytes": "task size",
+    "maskprep_version": "maskprep version",
+    "units_tokenizer_hash": "the units' tokenizer",
+}
 _FINISHED_NAMES = METADATA_FILES  # in META_DIR; at the top of format version 1 directories
 
 
 def _owned(name: str) -> bool:
     """Files of OUT that mask writes (replaced by --overwrite); other files are left alone."""
-    return (name in _FINISHED_NAMES or (name.startswith("shard-") and name.endswith(tuple(_FORMATS.values())))
-            or (name.startswith(".shard-") and name.endswith(".tmp"))
-            or any(name.startswith(f".{n}.") for n in _FINISHED_NAMES))
+    return (
+        name in _FINISHED_NAMES
+        or (name.startswith("shard-") and name.endswith(tuple(_FORMATS.values())))
+        or (name.startswith(".shard-") and name.endswith(".tmp"))
+        or any(name.startswith(f".{n}.") for n in _FINISHED_NAMES)
+    )
 
 
 def _remove_owned(out: Path) -> None:
@@ -248,11 +286,15 @@ def _remove_owned(out: Path) -> None:
             (out / META_DIR).rmdir()
 
 
-MASK_STAGE = Stage(noun="mask run", state=STATE_DIR, marker=f"{META_DIR}/manifest.json",
-                   labels=_OPTION_LABELS,
-                   changed=("units_sha256", "tokenizer_hash", "corpus_fingerprint", "units_tokenizer_hash"),
-                   digits=5,
-                   on_overwrite=_remove_owned)
+MASK_STAGE = Stage(
+    noun="mask run",
+    state=STATE_DIR,
+    marker=f"{META_DIR}/manifest.json",
+    labels=_OPTION_LABELS,
+    changed=("units_sha256", "tokenizer_hash", "corpus_fingerprint", "units_tokenizer_hash"),
+    digits=5,
+    on_overwrite=_remove_owned,
+)
 MASK_STAGE_RECORD = "task-{:05d}.json"
 
 
@@ -301,11 +343,20 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     from .._budget import check_budget
     from ..count.types import parse_memory
 
-    check_budget(parse_memory(memory), option=f"--memory {memory}", executor=executor, tasks=len(source.tasks),
-                 copies=shards.copies, shard_rows=shards.shard_rows, seq_len=packing.seq_len)
+    check_budget(
+        parse_memory(memory),
+        option=f"--memory {memory}",
+        executor=executor,
+        tasks=len(source.tasks),
+        copies=shards.copies,
+        shard_rows=shards.shard_rows,
+        seq_len=packing.seq_len,
+    )
     if shards.shard_rows * packing.seq_len >= 1 << 31:
-        raise MaskprepError(f"--shard-rows {shards.shard_rows} x --seq-len {packing.seq_len} tokens is too many "
-                            "for one shard; use fewer rows per shard")
+        raise MaskprepError(
+            f"--shard-rows {shards.shard_rows} x --seq-len {packing.seq_len} tokens is too many "
+            "for one shard; use fewer rows per shard"
+        )
     by_length, units_digest, units_built_with = None, None, None
     if masking.strategy is Strategy.PMI:
         if units is None:
@@ -316,12 +367,20 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
         by_length, units_digest = vocab.by_length(), file_sha256(units)
         units_built_with = vocab.source.get("units_tokenizer_hash")
     elif units is not None:
-        raise MaskprepError(f"--units is only used by --strategy pmi (this run uses {masking.strategy.value}); "
-                            "drop --units or pass --strategy pmi")
+        raise MaskprepError(
+            f"--units is only used by --strategy pmi (this run uses {masking.strategy.value}); "
+            "drop --units or pass --strategy pmi"
+        )
 
     tasks, files, fingerprint = source.tasks, list(source.files), source.fingerprint
-    mcfg = {"strategy": masking.strategy.value, "rate": masking.rate, "mix": list(masking.mix),
-            "mix_per": masking.mix_per.value, "span_p": masking.span_p, "span_max": masking.span_max}
+    mcfg = {
+        "strategy": masking.strategy.value,
+        "rate": masking.rate,
+        "mix": list(masking.mix),
+        "mix_per": masking.mix_per.value,
+        "span_p": masking.span_p,
+        "span_max": masking.span_max,
+    }
     options = {**mcfg, "seq_len": packing.seq_len, "pack": packing.pack, "copies": shards.copies,
                "seed": shards.seed, "format": shards.format, "shard_rows": shards.shard_rows,
                "dynamic": shards.dynamic, "units_sha256": units_digest, "tokenizer_hash": info.hash,
@@ -329,24 +388,45 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                "text_field": corpus_options.text_field, "text_column": corpus_options.text_column,
                "chunk_bytes": corpus_options.chunk_bytes, "maskprep_version": __version__,
                "words": words.describe()}
-    if units_built_with is not None:  # units of another tokenizer with the same words (token ids re-derived)
+    if (
+        units_built_with is not None
+    ):  # units of another tokenizer with the same words (token ids re-derived)
         options["units_tokenizer_hash"] = units_built_with
     out = Path(output)
     run = _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
     try:
-        job_args = {"tokenizer_json": info.json, "tokenizer_name": info.name, "tokenizer_hash": info.hash,
-                    "masking": masking, "packing": packing, "shards": shards, "corpus_options": corpus_options,
-                    "units": by_length, "units_digest": units_digest, "run_digest": run.digest,
-                    "words": None if words.is_tokenizer else words}
+        job_args = {
+            "tokenizer_json": info.json,
+            "tokenizer_name": info.name,
+            "tokenizer_hash": info.hash,
+            "masking": masking,
+            "packing": packing,
+            "shards": shards,
+            "corpus_options": corpus_options,
+            "units": by_length,
+            "units_digest": units_digest,
+            "run_digest": run.digest,
+            "words": None if words.is_tokenizer else words,
+        }
         return _write_claimed(out, run, job_args=job_args, info=info, tasks=tasks, files=files,
             options=options, mcfg=mcfg, executor=executor, ids=(mask_id, cls_id, sep_id, pad_id))
     finally:
         run.release()
 
 
-def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: Any, tasks: Any, files: Any,
-                   options: dict[str, Any], mcfg: dict[str, Any], executor: Any,
-                   ids: tuple[int, int, int, int]) -> tuple[ShardManifest, dict[str, Any]]:
+def _write_claimed(
+    out: Path,
+    run: RunDir,
+    *,
+    job_args: dict[str, Any],
+    info: Any,
+    tasks: Any,
+    files: Any,
+    options: dict[str, Any],
+    mcfg: dict[str, Any],
+    executor: Any,
+    ids: tuple[int, int, int, int],
+) -> tuple[ShardManifest, dict[str, Any]]:
     """Run the tasks not yet done in a claimed shards directory, then write its finished files."""
     from ..corpus.reader import ReadStats
     from ..encoded.source import read_stats_of
@@ -358,18 +438,40 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
     units_digest = job_args["units_digest"]
 
     special_ids = [int(i) for i in info.special_ids]
-    metadata = {"kind": "maskprep-shard", "format_version": FORMAT_VERSION,
-                "layout": "dynamic" if shards.dynamic else "static", **mcfg, "seed": shards.seed,
-                "copies": shards.copies, "seq_len": packing.seq_len, "pack": packing.pack,
-                "mask_token_id": mask_id, "special_ids": special_ids, "cls_id": cls_id, "sep_id": sep_id,
-                "pad_id": pad_id, "vocab_size": info.vocab_size, "tokenizer_hash": info.hash,
-                "units_sha256": units_digest}
-    if job_args.get("words") is not None:  # absent: the tokenizer's words (those files stay as they were)
+    metadata = {
+        "kind": "maskprep-shard",
+        "format_version": FORMAT_VERSION,
+        "layout": "dynamic" if shards.dynamic else "static",
+        **mcfg,
+        "seed": shards.seed,
+        "copies": shards.copies,
+        "seq_len": packing.seq_len,
+        "pack": packing.pack,
+        "mask_token_id": mask_id,
+        "special_ids": special_ids,
+        "cls_id": cls_id,
+        "sep_id": sep_id,
+        "pad_id": pad_id,
+        "vocab_size": info.vocab_size,
+        "tokenizer_hash": info.hash,
+        "units_sha256": units_digest,
+    }
+    if (
+        job_args.get("words") is not None
+    ):  # absent: the tokenizer's words (those files stay as they were)
         metadata["words"] = job_args["words"].describe()
     # tasks get absolute paths: a Dask worker's working directory is not the driver's
-    loop = LoopJob(tokenizer_json=info.json, tokenizer_name=info.name, tokenizer_hash=info.hash, packing=packing,
-                   corpus_options=job_args["corpus_options"], seed=shards.seed, units=job_args["units"],
-                   units_digest=units_digest, words=job_args.get("words"))
+    loop = LoopJob(
+        tokenizer_json=info.json,
+        tokenizer_name=info.name,
+        tokenizer_hash=info.hash,
+        packing=packing,
+        corpus_options=job_args["corpus_options"],
+        seed=shards.seed,
+        units=job_args["units"],
+        units_digest=units_digest,
+        words=job_args.get("words"),
+    )
     job = _Job(out=os.path.abspath(out), loop=loop, masking=job_args["masking"], shards=shards,
                run_digest=job_args["run_digest"], metadata=metadata)
     done: dict[int, dict[str, Any]] = {}
@@ -377,8 +479,14 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
         done = run.done([t.index for t in tasks], files=lambda rec: rec["shards"], base=out)
     todo = [t for t in tasks if t.index not in done]
     args = [(job, t) for t in todo]
-    for rec in map_tasks(_shard_task, args, executor=executor, label="mask", describe=lambda i: todo[i].describe(),
-                         shared=out):
+    for rec in map_tasks(
+        _shard_task,
+        args,
+        executor=executor,
+        label="mask",
+        describe=lambda i: todo[i].describe(),
+        shared=out,
+    ):
         done[rec["task"]] = rec
 
     stats, read = MaskStats(), ReadStats()
@@ -390,19 +498,38 @@ def _write_claimed(out: Path, run: RunDir, *, job_args: dict[str, Any], info: An
         records.extend(ShardRecord(**s) for s in rec["shards"])
     warn_literal_specials(info, read.literal_specials, ", ".join(str(f) for f in files))
     if stats.sequences == 0:
-        raise MaskprepError(f"{', '.join(map(str, files))}: no documents to mask (every document is empty or "
-                            "whitespace); no shards were written")
-    totals = {"shards": len(records), "rows": stats.rows, "sequences": stats.sequences, "tokens": stats.tokens,
-              "maskable": stats.maskable, "targets": stats.targets}
+        raise MaskprepError(
+            f"{', '.join(map(str, files))}: no documents to mask (every document is empty or "
+            "whitespace); no shards were written"
+        )
+    totals = {
+        "shards": len(records),
+        "rows": stats.rows,
+        "sequences": stats.sequences,
+        "tokens": stats.tokens,
+        "maskable": stats.maskable,
+        "targets": stats.targets,
+    }
     manifest = ShardManifest(
-        options=options, tokenizer={**info.describe(), "mask_token_id": mask_id, "special_ids": special_ids},
+        options=options,
+        tokenizer={**info.describe(), "mask_token_id": mask_id, "special_ids": special_ids},
         corpus={"files": [str(f) for f in files], "tasks": len(tasks), **read.to_dict()},
-        totals=totals, shards=tuple(records), maskprep_version=__version__)
-    stats_doc = stats.to_dict(seed=shards.seed, layout=metadata["layout"], options=options,
-                              note="rate is over maskable (non-special) tokens; each sequence's budget is "
-                                   "round(rate x its maskable tokens), so per-sequence rates vary"
-                                   + ("; dynamic shards: figures of mask_batch with copy = the shard's copy"
-                                      if shards.dynamic else ""))
+        totals=totals,
+        shards=tuple(records),
+        maskprep_version=__version__,
+    )
+    stats_doc = stats.to_dict(
+        seed=shards.seed,
+        layout=metadata["layout"],
+        options=options,
+        note="rate is over maskable (non-special) tokens; each sequence's budget is "
+        "round(rate x its maskable tokens), so per-sequence rates vary"
+        + (
+            "; dynamic shards: figures of mask_batch with copy = the shard's copy"
+            if shards.dynamic
+            else ""
+        ),
+    )
     positions = stats.rows * packing.seq_len
     stats_doc["padding"] = {"positions": positions, "padded": positions - stats.tokens,
                             "share": (positions - stats.tokens) / positions if positions else None,

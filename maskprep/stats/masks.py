@@ -74,8 +74,17 @@ class MaskStats:
     # rows by (targets, maskable): key targets * 2**32 + maskable
     row_rates: dict[int, int] = field(default_factory=dict)
 
-    def add(self, *, masked_ids: np.ndarray, labels: np.ndarray, unit_ids: np.ndarray, word_ids: np.ndarray,
-            attention_mask: np.ndarray, mask_token_id: int, first_copy: bool = True) -> None:
+    def add(
+        self,
+        *,
+        masked_ids: np.ndarray,
+        labels: np.ndarray,
+        unit_ids: np.ndarray,
+        word_ids: np.ndarray,
+        attention_mask: np.ndarray,
+        mask_token_id: int,
+        first_copy: bool = True,
+    ) -> None:
         """Count one batch of rows (all arrays (B, L)); `first_copy` counts them as new sequences."""
         masked_ids = np.asarray(masked_ids)
         labels = np.asarray(labels)
@@ -173,23 +182,34 @@ class MaskStats:
 
         rates = self.per_row_rates()
         out: dict[str, Any] = {
-            "sequences": self.sequences, "rows": self.rows, "tokens": self.tokens,
-            "maskable_tokens": self.maskable, "targets": self.targets,
-            "masking_rate": {"corpus": share(self.targets, self.maskable),
-                             "per_sequence_min": rates[0] if rates else None,
-                             "per_sequence_median": rates[1] if rates else None,
-                             "per_sequence_max": rates[2] if rates else None,
-                             "over": "maskable (non-special) tokens"},
-            "mix": {"mask": share(self.mask, self.targets), "random": share(self.random, self.targets),
-                    "keep": share(self.keep, self.targets)},
+            "sequences": self.sequences,
+            "rows": self.rows,
+            "tokens": self.tokens,
+            "maskable_tokens": self.maskable,
+            "targets": self.targets,
+            "masking_rate": {
+                "corpus": share(self.targets, self.maskable),
+                "per_sequence_min": rates[0] if rates else None,
+                "per_sequence_median": rates[1] if rates else None,
+                "per_sequence_max": rates[2] if rates else None,
+                "over": "maskable (non-special) tokens",
+            },
+            "mix": {
+                "mask": share(self.mask, self.targets),
+                "random": share(self.random, self.targets),
+                "keep": share(self.keep, self.targets),
+            },
             "mix_counts": {"mask": self.mask, "random": self.random, "keep": self.keep},
             "unit_lengths": {
                 "tokens": {str(k): v for k, v in sorted(self.unit_tokens.items())},
                 "words": {str(k): v for k, v in sorted(self.unit_words.items())},
-                "mean_tokens": share(sum(k * v for k, v in self.unit_tokens.items()),
-                                     sum(self.unit_tokens.values())),
-                "mean_words": share(sum(k * v for k, v in self.unit_words.items()),
-                                    sum(self.unit_words.values()))},
+                "mean_tokens": share(
+                    sum(k * v for k, v in self.unit_tokens.items()), sum(self.unit_tokens.values())
+                ),
+                "mean_words": share(
+                    sum(k * v for k, v in self.unit_words.items()), sum(self.unit_words.values())
+                ),
+            },
             "multiword_share": share(self.multiword_targets, self.targets),
             "within_word_leakage": share(self.leaked_targets, self.targets),
             "tokens_per_word": share(self.maskable, self.words),
@@ -198,8 +218,16 @@ class MaskStats:
         return out
 
 
-def batch_stats(*, masked_ids: np.ndarray, labels: np.ndarray, unit_ids: np.ndarray, word_ids: np.ndarray,
-                attention_mask: np.ndarray, mask_token_id: int, **context: Any) -> dict[str, Any]:
+def batch_stats(
+    *,
+    masked_ids: np.ndarray,
+    labels: np.ndarray,
+    unit_ids: np.ndarray,
+    word_ids: np.ndarray,
+    attention_mask: np.ndarray,
+    mask_token_id: int,
+    **context: Any,
+) -> dict[str, Any]:
     """Statistics of one batch of rows as a dict (same keys as stats.json).
 
     >>> batch_stats(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]), unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 1]]), attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)["masking_rate"]["corpus"]

@@ -65,15 +65,27 @@ class TargetStats:
     punct_tokens: int = 0
     punct_targets: int = 0
     keys: np.ndarray = field(default_factory=lambda: np.zeros(0, np.uint64))
-    words: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))    # occurrences per key
-    tokens: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))   # maskable tokens per key
-    hits: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))     # target tokens per key
+    words: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # occurrences per key
+    tokens: np.ndarray = field(
+        default_factory=lambda: np.zeros(0, np.int64)
+    )  # maskable tokens per key
+    hits: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # target tokens per key
     _pending: list[tuple[np.ndarray, ...]] = field(default_factory=list, repr=False)
     _pending_rows: int = field(default=0, repr=False)
 
-    def add(self, *, masked_ids: np.ndarray, labels: np.ndarray, unit_ids: np.ndarray, word_ids: np.ndarray,
-            word_keys: np.ndarray, word_kinds: np.ndarray, attention_mask: np.ndarray, mask_token_id: int,
-            group_ids: np.ndarray | None = None) -> None:
+    def add(
+        self,
+        *,
+        masked_ids: np.ndarray,
+        labels: np.ndarray,
+        unit_ids: np.ndarray,
+        word_ids: np.ndarray,
+        word_keys: np.ndarray,
+        word_kinds: np.ndarray,
+        attention_mask: np.ndarray,
+        mask_token_id: int,
+        group_ids: np.ndarray | None = None,
+    ) -> None:
         """Count one batch of rows: (B, L) token arrays, (B, Lw) word keys and kinds (0 word, 1 punctuation)."""
         labels = np.asarray(labels)
         word_ids = np.asarray(word_ids, dtype=np.int64)
@@ -86,7 +98,9 @@ class TargetStats:
         maskable = np.asarray(unit_ids) >= 0
         self.targets += int(target.sum())
         if group_ids is not None:
-            view = MaskStats()  # leakage of `group_ids` = MaskStats' within-word leakage with groups as words
+            view = (
+                MaskStats()
+            )  # leakage of `group_ids` = MaskStats' within-word leakage with groups as words
             view.add(masked_ids=masked_ids, labels=labels, unit_ids=unit_ids, word_ids=group_ids,
                      attention_mask=attention_mask, mask_token_id=mask_token_id)
             self.group_rows += B
@@ -166,21 +180,45 @@ class TargetStats:
         bands = []
         for lo, hi, label in TARGET_BANDS:
             sel = order[lo - 1:hi] if hi is not None else order[lo - 1:]
-            bands.append(self._band(label, lo, hi, len(sel), int(self.words[sel].sum()),
-                                    int(self.tokens[sel].sum()), int(self.hits[sel].sum()), all_tokens))
+            bands.append(
+                self._band(
+                    label,
+                    lo,
+                    hi,
+                    len(sel),
+                    int(self.words[sel].sum()),
+                    int(self.tokens[sel].sum()),
+                    int(self.hits[sel].sum()),
+                    all_tokens,
+                )
+            )
         bands.append(self._band(PUNCT_BAND, None, None, None, self.punct_words, self.punct_tokens,
                                 self.punct_targets, all_tokens))
         return {
             "easy_target_share": share(easy, self.targets),
-            "easy_targets": {"targets": easy, "top_words": top_words,
-                             "words": "punctuation, or the most frequent words of the rows compared"},
-            "within_unit_leakage": share(self.unit_leaked, self.unit_targets) if self.group_rows else None,
+            "easy_targets": {
+                "targets": easy,
+                "top_words": top_words,
+                "words": "punctuation, or the most frequent words of the rows compared",
+            },
+            "within_unit_leakage": share(self.unit_leaked, self.unit_targets)
+            if self.group_rows
+            else None,
             "targets_by_band": bands,
             "word_types": int(len(self.keys)),
         }
 
-    def _band(self, label: str, lo: int | None, hi: int | None, types: int | None, words: int, tokens: int,
-              hits: int, all_tokens: int) -> dict[str, Any]:
+    def _band(
+        self,
+        label: str,
+        lo: int | None,
+        hi: int | None,
+        types: int | None,
+        words: int,
+        tokens: int,
+        hits: int,
+        all_tokens: int,
+    ) -> dict[str, Any]:
         return {"band": label, "rank_from": lo, "rank_to": hi, "types": types, "words": words,
                 "tokens": tokens, "targets": hits,
                 "target_share": hits / self.targets if self.targets else None,

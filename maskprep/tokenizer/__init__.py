@@ -18,6 +18,18 @@ from .encoding import (
 from .train import TrainConfig, train_tokenizer
 from .words import WordsConfig
 
-__all__ = ["PUNCT", "SPACE", "SPECIAL", "WORD", "EncodedBatch", "TokenizerInfo", "TrainConfig",
-           "encode_documents", "encode_stream", "load_tokenizer", "save_tokenizer", "train_tokenizer",
-           "WordsConfig"]
+__all__ = [
+    "PUNCT",
+    "SPACE",
+    "SPECIAL",
+    "WORD",
+    "EncodedBatch",
+    "TokenizerInfo",
+    "TrainConfig",
+    "encode_documents",
+    "encode_stream",
+    "load_tokenizer",
+    "save_tokenizer",
+    "train_tokenizer",
+    "WordsConfig",
+]

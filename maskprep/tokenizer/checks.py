@@ -42,12 +42,16 @@ def check_unknown_token(spec: dict[str, Any], path: str | Path) -> None:
     if model.get("type") in ("WordPiece", "BPE", "WordLevel") and isinstance(unk, str):
         names = set(vocab) if isinstance(vocab, dict) else set()  # the model's own vocabulary
         if unk not in names:
-            raise MaskprepError(f"{path}: the model's unknown token {unk!r} is not in its vocabulary; add it "
-                                "to the vocabulary (and as a special token), or retrain with maskprep "
-                                "train-tokenizer")
+            raise MaskprepError(
+                f"{path}: the model's unknown token {unk!r} is not in its vocabulary; add it "
+                "to the vocabulary (and as a special token), or retrain with maskprep "
+                "train-tokenizer"
+            )
     if model.get("type") == "Unigram" and model.get("unk_id") is not None:
         size = len(vocab) if isinstance(vocab, list) else 0
         unk_id = model.get("unk_id")
         if not isinstance(unk_id, int) or not 0 <= unk_id < size:
-            raise MaskprepError(f"{path}: the model's unknown token id {unk_id!r} is not in its vocabulary "
-                                f"of {size} pieces; fix unk_id or retrain with maskprep train-tokenizer")
+            raise MaskprepError(
+                f"{path}: the model's unknown token id {unk_id!r} is not in its vocabulary "
+                f"of {size} pieces; fix unk_id or retrain with maskprep train-tokenizer"
+            )

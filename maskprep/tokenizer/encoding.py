@@ -109,14 +109,21 @@ class TokenizerInfo:
         self.path = path
         self.json = tokenizer.to_str()
         # Hash a canonical form: key order in the library's JSON is not stable across save/load.
-        canonical = json.dumps(json.loads(self.json), sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+        canonical = json.dumps(
+            json.loads(self.json), sort_keys=True, ensure_ascii=False, separators=(",", ":")
+        )
         self.hash = hashlib.sha256(canonical.encode("utf-8")).hexdigest()
         self.vocab_size = tokenizer.get_vocab_size(with_added_tokens=True)
         self.roles = _find_roles(tokenizer, json.loads(self.json))
         specials = [t.content for t in tokenizer.get_added_tokens_decoder().values() if t.special]
         ids = [tokenizer.token_to_id(s) for s in specials]
-        self.special_ids = np.array(sorted({i for i in ids if i is not None}
-                                           | {v for v in self.roles.values() if v is not None}), dtype=np.int32)
+        self.special_ids = np.array(
+            sorted(
+                {i for i in ids if i is not None}
+                | {v for v in self.roles.values() if v is not None}
+            ),
+            dtype=np.int32,
+        )
         self.max_length = _model_max_length(json.loads(self.json))
         self._types: dict[bytes, WordType] = {}
         self._base = self.vocab_size + 1
@@ -213,7 +220,9 @@ class TokenizerInfo:
                 kind = PUNCT
             else:
                 kind = WORD
-            key = int.from_bytes(hashlib.blake2b(canon.encode("utf-8"), digest_size=8).digest(), "little")
+            key = int.from_bytes(
+                hashlib.blake2b(canon.encode("utf-8"), digest_size=8).digest(), "little"
+            )
             wt = WordType(key, kind, canon, tuple(int(i) for i in ids))
             self._types[row] = wt
             out.append(wt)
@@ -229,7 +238,9 @@ class TokenizerInfo:
         return s
 
 
-def encode_documents(info: TokenizerInfo, texts: list[str], words: WordsConfig | None = None) -> EncodedBatch:
+def encode_documents(
+    info: TokenizerInfo, texts: list[str], words: WordsConfig | None = None
+) -> EncodedBatch:
     """Encode a batch of documents with the tokenizer's parallel batch API.
 
     `words` chooses the word definition (default: the tokenizer's own words).
@@ -238,7 +249,9 @@ def encode_documents(info: TokenizerInfo, texts: list[str], words: WordsConfig |
     >>> b.num_words  # doctest: +SKIP
     5
     """
-    return _from_encodings(info, info.tokenizer.encode_batch(texts, add_special_tokens=False), texts, words)
+    return _from_encodings(
+        info, info.tokenizer.encode_batch(texts, add_special_tokens=False), texts, words
+    )
 
 
 def set_encode_ahead(enabled: bool) -> None:
@@ -294,19 +307,24 @@ def warn_literal_specials(info: TokenizerInfo, counts: dict[str, int], corpus: s
     the same special tokens (a pipeline reads the corpus several times)."""
     if not counts:
         return
-    key = tuple(sorted(t.content for t in info.tokenizer.get_added_tokens_decoder().values() if t.special))
+    key = tuple(
+        sorted(t.content for t in info.tokenizer.get_added_tokens_decoder().values() if t.special)
+    )
     if key in _WARNED:
         return
     _WARNED.add(key)
     import sys
 
     total = sum(counts.values())
-    each = ", ".join(f"{s} x{n:,}" for s, n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0])))
+    each = ", ".join(
+        f"{s} x{n:,}" for s, n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    )
     sys.stderr.write(
         f"warning: {corpus}: the text holds {total:,} literal special-token "
         f"string{'' if total == 1 else 's'} ({each}); tokenizer {info.name} reads each as its special "
         "token (never counted or masked as a word). Remove or escape them in the corpus if they "
-        "are meant as text.\n")
+        "are meant as text.\n"
+    )
     sys.stderr.flush()
 
 
@@ -339,9 +357,13 @@ def _from_encodings(info: TokenizerInfo, encs: list[Any], texts: list[str] | Non
                     words: WordsConfig | None = None) -> EncodedBatch:
     lens = np.fromiter((len(e.ids) for e in encs), dtype=np.int64, count=len(encs))
     total = int(lens.sum())
-    ids = np.fromiter(itertools.chain.from_iterable(e.ids for e in encs), dtype=np.int32, count=total)
+    ids = np.fromiter(
+        itertools.chain.from_iterable(e.ids for e in encs), dtype=np.int32, count=total
+    )
     try:
-        wid = np.fromiter(itertools.chain.from_iterable(e.word_ids for e in encs), dtype=np.int64, count=total)
+        wid = np.fromiter(
+            itertools.chain.from_iterable(e.word_ids for e in encs), dtype=np.int64, count=total
+        )
     except TypeError:  # special tokens inside the text have no word id
         wid = np.array([-1 if w is None else w for e in encs for w in e.word_ids], dtype=np.int64)
     tok_doc = np.zeros(len(encs) + 1, dtype=np.int64)
@@ -350,8 +372,11 @@ def _from_encodings(info: TokenizerInfo, encs: list[Any], texts: list[str] | Non
         return group_words(info, ids, wid, tok_doc)
     if texts is None:
         raise ValueError("word definitions other than the tokenizer's need the documents' texts")
-    offsets = np.fromiter(itertools.chain.from_iterable(itertools.chain.from_iterable(e.offsets for e in encs)),
-                          dtype=np.int64, count=2 * total).reshape(total, 2)
+    offsets = np.fromiter(
+        itertools.chain.from_iterable(itertools.chain.from_iterable(e.offsets for e in encs)),
+        dtype=np.int64,
+        count=2 * total,
+    ).reshape(total, 2)
     wid, crossing = word_ids_by_offsets(texts, offsets, tok_doc, wid, words)
     batch = group_words(info, ids, wid, tok_doc, joined=True)
     return dataclasses.replace(batch, crossing_tokens=crossing)
@@ -388,7 +413,9 @@ def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
     doc_offsets = np.searchsorted(word_starts, token_doc_offsets).astype(np.int64)
     if W == 0:
         empty_u = np.zeros(0, dtype=np.uint64)
-        return EncodedBatch(ids, word_offsets, doc_offsets, empty_u, np.zeros(0, np.int8), np.zeros(0, np.int32))
+        return EncodedBatch(
+            ids, word_offsets, doc_offsets, empty_u, np.zeros(0, np.int8), np.zeros(0, np.int32)
+        )
 
     lengths = np.diff(word_offsets)
     word_of_token = np.repeat(np.arange(W, dtype=np.int64), lengths)
@@ -423,12 +450,16 @@ def group_words(info: TokenizerInfo, ids: np.ndarray, word_ids: np.ndarray,
             type_kind[i] = t.kind
             type_chars[i] = len(t.text)
     if missing_idx:
-        id_lists = [ids[word_offsets[first[i]]:word_offsets[first[i] + 1]].tolist() for i in missing_idx]
+        id_lists = [
+            ids[word_offsets[first[i]] : word_offsets[first[i] + 1]].tolist() for i in missing_idx
+        ]
         for i, t in zip(missing_idx, info._new_types(missing_rows, id_lists, joined)):
             type_key[i] = t.key
             type_kind[i] = t.kind
             type_chars[i] = len(t.text)
-    return EncodedBatch(ids, word_offsets, doc_offsets, type_key[inverse], type_kind[inverse], type_chars[inverse])
+    return EncodedBatch(
+        ids, word_offsets, doc_offsets, type_key[inverse], type_kind[inverse], type_chars[inverse]
+    )
 
 
 def unique_rows(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -487,17 +518,23 @@ def load_tokenizer(path: str | Path, *, name: str | None = None) -> TokenizerInf
     except UnicodeDecodeError:
         raise MaskprepError(f"{path}: not a tokenizer.json (not UTF-8 text)") from None
     except json.JSONDecodeError as exc:
-        raise MaskprepError(f"{path}: not a valid tokenizer.json (bad JSON at line {exc.lineno}: {exc.msg})") from None
+        raise MaskprepError(
+            f"{path}: not a valid tokenizer.json (bad JSON at line {exc.lineno}: {exc.msg})"
+        ) from None
     except OSError as exc:
         raise MaskprepError(f"{path}: cannot read tokenizer ({exc.strerror or exc})") from None
     spec = json.loads(raw)
     if not isinstance(spec, dict) or not isinstance(spec.get("model"), dict):
-        kind = type(spec).__name__ if not isinstance(spec, dict) else "an object without a 'model' key"
+        kind = (
+            type(spec).__name__ if not isinstance(spec, dict) else "an object without a 'model' key"
+        )
         from .checks import json_kind
 
         hint = json_kind(spec)
-        raise MaskprepError(f"{path}: valid JSON but not a tokenizer.json ({kind}{hint}); give the "
-                            "tokenizer.json written by maskprep train-tokenizer or the tokenizers library")
+        raise MaskprepError(
+            f"{path}: valid JSON but not a tokenizer.json ({kind}{hint}); give the "
+            "tokenizer.json written by maskprep train-tokenizer or the tokenizers library"
+        )
     try:
         tok = Tokenizer.from_str(raw)
     except Exception as exc:

@@ -42,7 +42,9 @@ def readable_pieces(info: Any, ids: Sequence[int]) -> tuple[list[str], bool]:
     tok = info.tokenizer if hasattr(info, "tokenizer") else info
     ids = [int(i) for i in ids]
     ref = tok.encode("a", add_special_tokens=False).ids[:1]
-    texts = tok.decode_batch([ref + ids[:k] for k in range(len(ids) + 1)], skip_special_tokens=False)
+    texts = tok.decode_batch(
+        [ref + ids[:k] for k in range(len(ids) + 1)], skip_special_tokens=False
+    )
     base, done, pieces = texts[0], "", []
     for k, text in enumerate(texts[1:], 1):
         if not text.startswith(base):
@@ -93,5 +95,12 @@ def running_text(info: Any, ids: Sequence[int]) -> list[str]:
 
 def _cjk(ch: str) -> bool:
     c = ord(ch)
-    return (0x3040 <= c <= 0x30FF or 0x3400 <= c <= 0x4DBF or 0x4E00 <= c <= 0x9FFF or 0xF900 <= c <= 0xFAFF
-            or 0x3000 <= c <= 0x303F or 0xFF00 <= c <= 0xFFEF or 0x20000 <= c <= 0x3134F)
+    return (
+        0x3040 <= c <= 0x30FF
+        or 0x3400 <= c <= 0x4DBF
+        or 0x4E00 <= c <= 0x9FFF
+        or 0xF900 <= c <= 0xFAFF
+        or 0x3000 <= c <= 0x303F
+        or 0xFF00 <= c <= 0xFFEF
+        or 0x20000 <= c <= 0x3134F
+    )

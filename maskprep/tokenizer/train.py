@@ -43,7 +43,9 @@ class TrainConfig:
     model: str = "wordpiece"
     vocab_size: int = 30000
     lowercase: bool = True
-    min_frequency: int = 0  # the library default: keep every pair, so a small corpus can reach large sizes
+    min_frequency: int = (
+        0  # the library default: keep every pair, so a small corpus can reach large sizes
+    )
 
     def __post_init__(self) -> None:
         if self.model not in MODELS:
@@ -51,12 +53,22 @@ class TrainConfig:
         if not isinstance(self.vocab_size, int) or self.vocab_size < 100:
             raise MaskprepError(f"--vocab-size: {self.vocab_size} is too small; use at least 100")
         if self.vocab_size > 2_000_000:
-            raise MaskprepError(f"--vocab-size: {self.vocab_size} is absurdly large; use at most 2,000,000")
+            raise MaskprepError(
+                f"--vocab-size: {self.vocab_size} is absurdly large; use at most 2,000,000"
+            )
 
 
 def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
     """An untrained tokenizer and its `tokenizers` trainer for `config` (None for Unigram)."""
-    from tokenizers import Tokenizer, decoders, models, normalizers, pre_tokenizers, processors, trainers
+    from tokenizers import (
+        Tokenizer,
+        decoders,
+        models,
+        normalizers,
+        pre_tokenizers,
+        processors,
+        trainers,
+    )
 
     sp = SPECIALS[config.model]
     special_list = [sp[r] for r in ROLE_ORDER]
@@ -68,8 +80,12 @@ def build_empty_tokenizer(config: TrainConfig) -> tuple[Any, Any]:
                                                     handle_chinese_chars=True, strip_accents=None)
         tok.pre_tokenizer = pre_tokenizers.BertPreTokenizer()
         tok.decoder = decoders.WordPiece(cleanup=False)
-        trainer = trainers.WordPieceTrainer(vocab_size=config.vocab_size, special_tokens=special_list,
-                                            min_frequency=config.min_frequency, show_progress=False)
+        trainer = trainers.WordPieceTrainer(
+            vocab_size=config.vocab_size,
+            special_tokens=special_list,
+            min_frequency=config.min_frequency,
+            show_progress=False,
+        )
     elif config.model == "bpe":
         tok = Tokenizer(models.BPE(unk_token=None))
         norms = [normalizers.NFC()] + ([normalizers.Lowercase()] if config.lowercase else [])
@@ -163,12 +179,15 @@ def _from_str(text: str) -> Any:
     return Tokenizer.from_str(text)
 
 
-def check_trained_size(info: TokenizerInfo, config: TrainConfig, option: str = "--vocab-size") -> None:
+def check_trained_size(
+    info: TokenizerInfo, config: TrainConfig, option: str = "--vocab-size"
+) -> None:
     """Raise, naming `option`, if training stopped short of the requested vocabulary size."""
     if info.vocab_size < config.vocab_size:
         raise MaskprepError(
             f"{option}: {config.vocab_size:,} is larger than this corpus supports for {config.model}: "
-            f"training reached {info.vocab_size:,} tokens; use a smaller size or a larger corpus")
+            f"training reached {info.vocab_size:,} tokens; use a smaller size or a larger corpus"
+        )
 
 
 def _batched(texts: Iterable[str], size: int = 1000) -> Iterator[list[str]]:

@@ -42,7 +42,12 @@ OTHER, HAN, KANA, THAI = 0, 1, 2, 3
 
 # The library used for each language: (extra, import name, distribution, what it is).
 SEGMENTERS: dict[str, tuple[str, str, str, str]] = {
-    "zh": ("zh", "rjieba", "rjieba", "jieba-rs (Rust) with jieba's dictionary, HMM for unknown words"),
+    "zh": (
+        "zh",
+        "rjieba",
+        "rjieba",
+        "jieba-rs (Rust) with jieba's dictionary, HMM for unknown words",
+    ),
     "ja": ("ja", "sudachipy", "sudachipy", "Sudachi (Rust), core dictionary, split mode C"),
     "th": ("th", "pythainlp", "pythainlp", "PyThaiNLP newmm, its Thai word list"),
 }
@@ -63,10 +68,14 @@ class WordsConfig:
 
     def __post_init__(self) -> None:
         if self.definition not in DEFINITIONS:
-            raise MaskprepError(f"--words: expected one of {', '.join(DEFINITIONS)}, got {self.definition!r}")
+            raise MaskprepError(
+                f"--words: expected one of {', '.join(DEFINITIONS)}, got {self.definition!r}"
+            )
         if self.definition == "cohesion" and not self.lexicon:
-            raise MaskprepError("--words cohesion: no words were learnt (the corpus has no cohesive "
-                                "multi-character sequences); use another --words definition")
+            raise MaskprepError(
+                "--words cohesion: no words were learnt (the corpus has no cohesive "
+                "multi-character sequences); use another --words definition"
+            )
         if len(self.scores) != len(self.lexicon):
             raise ValueError("WordsConfig: one score per learnt word")
 
@@ -147,8 +156,10 @@ def _segmenter(lang: str) -> Callable[[str], list[str]]:
     try:
         mod = importlib.import_module(module)
     except ImportError:
-        raise MaskprepError(f"--words {lang}: needs the {dist} library, which is not installed; install it with "
-                            f"pip install 'maskprep[{extra}]' (or pip install {dist})") from None
+        raise MaskprepError(
+            f"--words {lang}: needs the {dist} library, which is not installed; install it with "
+            f"pip install 'maskprep[{extra}]' (or pip install {dist})"
+        ) from None
     if lang == "zh":
         cut = mod.cut
 
@@ -167,8 +178,10 @@ def _sudachi(mod: Any) -> Callable[[str], list[str]]:
         from sudachipy import Dictionary, SplitMode
         tok = Dictionary(dict="core").create(mode=SplitMode.C)
     except Exception as exc:  # the dictionary is a separate package
-        raise MaskprepError(f"--words ja: the Sudachi dictionary is missing ({exc}); install it with "
-                            "pip install 'maskprep[ja]' (or pip install sudachidict_core)") from None
+        raise MaskprepError(
+            f"--words ja: the Sudachi dictionary is missing ({exc}); install it with "
+            "pip install 'maskprep[ja]' (or pip install sudachidict_core)"
+        ) from None
 
     def fn(text: str) -> list[str]:
         out: list[str] = []
@@ -200,8 +213,14 @@ def script_classes(codes: np.ndarray) -> np.ndarray:
     """
     c = codes
     out = np.zeros(len(c), np.int8)
-    han = (((c >= 0x4E00) & (c <= 0x9FFF)) | ((c >= 0x3400) & (c <= 0x4DBF)) | ((c >= 0xF900) & (c <= 0xFAFF))
-           | ((c >= 0x20000) & (c <= 0x3134F)) | (c == 0x3007) | (c == 0x3005))
+    han = (
+        ((c >= 0x4E00) & (c <= 0x9FFF))
+        | ((c >= 0x3400) & (c <= 0x4DBF))
+        | ((c >= 0xF900) & (c <= 0xFAFF))
+        | ((c >= 0x20000) & (c <= 0x3134F))
+        | (c == 0x3007)
+        | (c == 0x3005)
+    )
     kana = ((c >= 0x3041) & (c <= 0x30FF) & (c != 0x30FB)) | ((c >= 0x31F0) & (c <= 0x31FF)) \
         | ((c >= 0xFF66) & (c <= 0xFF9F))
     thai = (c >= 0x0E01) & (c <= 0x0E5B)
@@ -253,8 +272,13 @@ def segment_runs(text: str, starts: np.ndarray, ends: np.ndarray,
 
 # ------------------------------------------------------------------ tokens to words
 
-def word_ids_by_offsets(texts: Sequence[str], offsets: np.ndarray, tok_doc: np.ndarray, token_word_ids: np.ndarray,
-                        words: WordsConfig) -> tuple[np.ndarray, int]:
+def word_ids_by_offsets(
+    texts: Sequence[str],
+    offsets: np.ndarray,
+    tok_doc: np.ndarray,
+    token_word_ids: np.ndarray,
+    words: WordsConfig,
+) -> tuple[np.ndarray, int]:
     """Word index of each token under `words`, and the number of boundary-crossing tokens.
 
     texts           the batch's documents
@@ -325,7 +349,12 @@ def word_ids_by_offsets(texts: Sequence[str], offsets: np.ndarray, tok_doc: np.n
     tend_c = np.clip(tend, 0, C)
     cross_seg = in_seg & (len(seg_starts) > 0) & (tend_c > seg_ends[np.clip(seg_of, 0, None)]) \
         if len(seg_starts) else np.zeros(T, bool)
-    cross_other = ~in_seg & ~special & (seg_cum[tend_c] - seg_cum[np.clip(first, 0, C)] > 0) & (tend_c > first)
+    cross_other = (
+        ~in_seg
+        & ~special
+        & (seg_cum[tend_c] - seg_cum[np.clip(first, 0, C)] > 0)
+        & (tend_c > first)
+    )
     crossing = int(np.count_nonzero(cross_seg | cross_other))
     return ids.astype(np.int64), crossing
 
@@ -353,7 +382,11 @@ def _segmented(big: str, cls: np.ndarray, base: np.ndarray,
     char_doc_kana = np.repeat(doc_has_kana, np.diff(base))
     cjk = (cls == HAN) | (cls == KANA)
     out: dict[str, np.ndarray] = {}
-    for lang, mask in (("ja", cjk & char_doc_kana), ("zh", cjk & ~char_doc_kana), ("th", cls == THAI)):
+    for lang, mask in (
+        ("ja", cjk & char_doc_kana),
+        ("zh", cjk & ~char_doc_kana),
+        ("th", cls == THAI),
+    ):
         if mask.any():
             out[lang] = mask
     return cjk | (cls == THAI), out
@@ -370,9 +403,19 @@ def _run_end(mask: np.ndarray) -> np.ndarray:
 def _next_nonspace(codes: np.ndarray) -> np.ndarray:
     """For each position (and the end), the first position at or after it that is not whitespace."""
     C = len(codes)
-    space = (codes == 0x20) | ((codes >= 0x09) & (codes <= 0x0D)) | (codes == 0xA0) | (codes == 0x3000) \
-        | ((codes >= 0x2000) & (codes <= 0x200B)) | (codes == 0x85) | (codes == 0x1680) | (codes == 0x2028) \
-        | (codes == 0x2029) | (codes == 0x202F) | (codes == 0x205F)
+    space = (
+        (codes == 0x20)
+        | ((codes >= 0x09) & (codes <= 0x0D))
+        | (codes == 0xA0)
+        | (codes == 0x3000)
+        | ((codes >= 0x2000) & (codes <= 0x200B))
+        | (codes == 0x85)
+        | (codes == 0x1680)
+        | (codes == 0x2028)
+        | (codes == 0x2029)
+        | (codes == 0x202F)
+        | (codes == 0x205F)
+    )
     idx = np.arange(C + 1, dtype=np.int64)
     cand = np.where(np.append(space, False), C, idx)
     return np.minimum.accumulate(cand[::-1])[::-1]

@@ -54,8 +54,15 @@ import numpy as np
 from ..errors import MaskprepError
 from ..wording import plural
 
-__all__ = ["Measure", "CountTable", "NgramIndex", "score_ngrams", "score_with_split_pmi", "binary_split_pmi",
-           "MAX_N"]
+__all__ = [
+    "Measure",
+    "CountTable",
+    "NgramIndex",
+    "score_ngrams",
+    "score_with_split_pmi",
+    "binary_split_pmi",
+    "MAX_N",
+]
 
 MAX_N = 8
 """Longest n-gram this module scores (segmentations of n words: 2**(n-1) - 1)."""
@@ -81,7 +88,9 @@ class Measure(str, enum.Enum):
             return cls(str(value).strip().lower())
         except ValueError:
             choices = ", ".join(m.value for m in cls)
-            raise MaskprepError(f"{option}: unknown measure {value!r}; choose one of {choices}") from None
+            raise MaskprepError(
+                f"{option}: unknown measure {value!r}; choose one of {choices}"
+            ) from None
 
     @property
     def range_text(self) -> str:
@@ -127,7 +136,9 @@ class CountTable:
     keys: np.ndarray  # (m, k) uint64, rows distinct, any order
     counts: np.ndarray  # (m,) int64
     _columns: tuple[np.ndarray, ...] = field(repr=False)  # sorted distinct values per column
-    _levels: tuple[np.ndarray, ...] = field(repr=False)  # sorted distinct packed codes, per column >= 1
+    _levels: tuple[np.ndarray, ...] = field(
+        repr=False
+    )  # sorted distinct packed codes, per column >= 1
     _row_of_code: np.ndarray = field(repr=False)
 
     @property
@@ -142,7 +153,9 @@ class CountTable:
         """Index `keys` (m, k) uint64 with their `counts`; duplicate rows raise."""
         keys = np.ascontiguousarray(keys, dtype=np.uint64)
         if keys.ndim != 2 or keys.shape[1] < 1:
-            raise MaskprepError(f"{name}: keys must be a 2-D (rows, k) array, got shape {keys.shape}")
+            raise MaskprepError(
+                f"{name}: keys must be a 2-D (rows, k) array, got shape {keys.shape}"
+            )
         counts = np.ascontiguousarray(counts, dtype=np.int64)
         if counts.shape != (keys.shape[0],):
             raise MaskprepError(f"{name}: {keys.shape[0]} key rows but {counts.shape} counts")
@@ -224,7 +237,8 @@ def _missing(k: int, count: int) -> MaskprepError:
     return MaskprepError(
         f"corrupt counts: {plural(count, 'part')} of length {k} {'is' if count == 1 else 'are'} missing "
         f"from the {k}-gram counts although a "
-        "longer n-gram containing them was kept; re-run maskprep count with one --min-count for every n")
+        "longer n-gram containing them was kept; re-run maskprep count with one --min-count for every n"
+    )
 
 
 @dataclass(frozen=True, eq=False)
@@ -242,7 +256,9 @@ class NgramIndex:
     """
 
     words: np.ndarray  # sorted distinct word keys (V,)
-    codes: tuple[np.ndarray, ...]  # codes[k - 1]: sorted codes of the k-grams (k >= 2); codes[0] unused
+    codes: tuple[
+        np.ndarray, ...
+    ]  # codes[k - 1]: sorted codes of the k-grams (k >= 2); codes[0] unused
     counts: tuple[np.ndarray, ...]  # counts[k - 1][id]: count of the k-gram with that id
 
     @property
@@ -259,7 +275,9 @@ class NgramIndex:
         order = np.argsort(keys1[:, 0], kind="stable")
         words = keys1[order, 0]
         if len(words) > 1 and (words[1:] == words[:-1]).any():
-            raise MaskprepError("1-gram table: duplicate word keys; the counts are corrupt (re-run maskprep count)")
+            raise MaskprepError(
+                "1-gram table: duplicate word keys; the counts are corrupt (re-run maskprep count)"
+            )
         index = cls(words, (words,), (counts1[order],))
         for k in range(2, len(arrays) + 1):
             index = index.add(*arrays[k])
@@ -271,14 +289,22 @@ class NgramIndex:
         keys = _key_rows(keys, counts, k)
         v = np.uint64(max(len(self.words), 1))
         if len(self.counts[-1]) * float(v) >= 2.0 ** 64:
-            raise MaskprepError(f"{k}-gram table too large to index ({len(self.counts[-1])} x {int(v)} codes)")
+            raise MaskprepError(
+                f"{k}-gram table too large to index ({len(self.counts[-1])} x {int(v)} codes)"
+            )
         wid = self.word_ids(keys)
-        code = self.prefix_ids(wid[:, :k - 1]).astype(np.uint64) * v + wid[:, k - 1].astype(np.uint64)
+        code = self.prefix_ids(wid[:, : k - 1]).astype(np.uint64) * v + wid[:, k - 1].astype(
+            np.uint64
+        )
         order = np.argsort(code, kind="stable")
         code = code[order]
         if len(code) > 1 and (code[1:] == code[:-1]).any():
-            raise MaskprepError(f"{k}-gram table: duplicate key rows; the counts are corrupt (re-run maskprep count)")
-        return NgramIndex(self.words, self.codes + (code,), self.counts + (np.asarray(counts, np.int64)[order],))
+            raise MaskprepError(
+                f"{k}-gram table: duplicate key rows; the counts are corrupt (re-run maskprep count)"
+            )
+        return NgramIndex(
+            self.words, self.codes + (code,), self.counts + (np.asarray(counts, np.int64)[order],)
+        )
 
     def word_ids(self, keys: np.ndarray) -> np.ndarray:
         """Ids (int64, same shape) of word keys; a word not in the 1-gram table raises."""
@@ -291,8 +317,12 @@ class NgramIndex:
     def extend(self, k: int, prefix_ids: np.ndarray, last_word_ids: np.ndarray) -> np.ndarray:
         """Ids of the k-grams made of a (k-1)-gram id and a word id; an absent k-gram raises."""
         if k > self.max_k:
-            raise MaskprepError(f"the {k}-gram counts are needed to score longer n-grams but were not given")
-        code = prefix_ids.astype(np.uint64) * np.uint64(len(self.words)) + last_word_ids.astype(np.uint64)
+            raise MaskprepError(
+                f"the {k}-gram counts are needed to score longer n-grams but were not given"
+            )
+        code = prefix_ids.astype(np.uint64) * np.uint64(len(self.words)) + last_word_ids.astype(
+            np.uint64
+        )
         pos, ok = _search(self.codes[k - 1], code)
         if not ok.all():
             raise _missing(k, int((~ok).sum()))
@@ -316,7 +346,9 @@ TableLike = Union[CountTable, tuple]
 
 def _as_arrays(tables: Mapping[int, TableLike], k: int) -> tuple[np.ndarray, np.ndarray]:
     if k not in tables:
-        raise MaskprepError(f"the {k}-gram counts are needed to score longer n-grams but were not given")
+        raise MaskprepError(
+            f"the {k}-gram counts are needed to score longer n-grams but were not given"
+        )
     t = tables[k]
     keys, counts = (t.keys, t.counts) if isinstance(t, CountTable) else t
     return _key_rows(keys, counts, k), np.asarray(counts, np.int64)
@@ -327,7 +359,9 @@ def _key_rows(keys: np.ndarray, counts: np.ndarray, k: int) -> np.ndarray:
     if keys.size == 0 and len(counts) == 0:
         return keys.reshape(0, k)
     if keys.ndim != 2 or keys.shape != (len(counts), k):
-        raise MaskprepError(f"the {k}-gram table needs keys of shape ({len(counts)}, {k}), got {keys.shape}")
+        raise MaskprepError(
+            f"the {k}-gram table needs keys of shape ({len(counts)}, {k}), got {keys.shape}"
+        )
     return keys
 
 
@@ -337,7 +371,9 @@ def _as_index(tables: Union[NgramIndex, Mapping[int, TableLike]], n: int) -> Ngr
             raise MaskprepError(f"the {tables.max_k + 1}-gram counts are needed to score {n}-grams "
                                 "but were not given")
         return tables
-    return NgramIndex.build({k: tables[k] for k in range(1, n) if k in tables} or {1: _as_arrays(tables, 1)})
+    return NgramIndex.build(
+        {k: tables[k] for k in range(1, n) if k in tables} or {1: _as_arrays(tables, 1)}
+    )
 
 
 def score_ngrams(measure: Union[Measure, str], *, n: int, keys: np.ndarray, counts: np.ndarray,
@@ -357,9 +393,15 @@ def score_ngrams(measure: Union[Measure, str], *, n: int, keys: np.ndarray, coun
     return _run((Measure.parse(measure),), n=n, keys=keys, counts=counts, tables=tables, N=N)[0]
 
 
-def score_with_split_pmi(measure: Union[Measure, str], *, n: int, keys: np.ndarray, counts: np.ndarray,
-                         tables: Union[NgramIndex, Mapping[int, TableLike]], N: int
-                         ) -> tuple[np.ndarray, np.ndarray]:
+def score_with_split_pmi(
+    measure: Union[Measure, str],
+    *,
+    n: int,
+    keys: np.ndarray,
+    counts: np.ndarray,
+    tables: Union[NgramIndex, Mapping[int, TableLike]],
+    N: int,
+) -> tuple[np.ndarray, np.ndarray]:
     """``(score_ngrams(...), binary_split_pmi(...))`` in one pass over the parts.
 
     >>> scores, split = score_with_split_pmi("llr", n=2, keys=k, counts=c, tables=t, N=n)  # doctest: +SKIP
@@ -389,7 +431,9 @@ def _run(kinds: tuple[Measure | None, ...], *, n: int, keys: np.ndarray, counts:
         stop = min(start + _CHUNK_ROWS, len(counts))
         spans = _span_counts(keys[start:stop], counts[start:stop], index, n)
         for kind, dest in zip(kinds, out):
-            dest[start:stop] = _split_pmi(spans, n, N) if kind is None else _score_chunk(kind, n, spans, N)
+            dest[start:stop] = (
+                _split_pmi(spans, n, N) if kind is None else _score_chunk(kind, n, spans, N)
+            )
     return out
 
 
@@ -397,11 +441,15 @@ def _split_pmi(spans: Mapping[tuple[int, int], np.ndarray], n: int, N: int) -> n
     c = spans[(0, n)]
     best = np.full(len(c), np.inf)
     for s in range(1, n):
-        best = np.minimum(best, np.log(c) - np.log(spans[(0, s)]) - np.log(spans[(s, n)]) + np.log(float(N)))
+        best = np.minimum(
+            best, np.log(c) - np.log(spans[(0, s)]) - np.log(spans[(s, n)]) + np.log(float(N))
+        )
     return best
 
 
-def _check_inputs(*, n: int, keys: np.ndarray, counts: np.ndarray, N: int) -> tuple[np.ndarray, np.ndarray]:
+def _check_inputs(
+    *, n: int, keys: np.ndarray, counts: np.ndarray, N: int
+) -> tuple[np.ndarray, np.ndarray]:
     if not 2 <= int(n) <= MAX_N:
         raise MaskprepError(f"n-gram length {n} cannot be scored; lengths 2..{MAX_N} are supported")
     keys = np.ascontiguousarray(keys, dtype=np.uint64)
@@ -412,8 +460,10 @@ def _check_inputs(*, n: int, keys: np.ndarray, counts: np.ndarray, N: int) -> tu
     if int(N) < 1:
         raise MaskprepError(f"N (number of counted word positions) must be >= 1, got {N}")
     if len(counts) and (counts.min() < 1 or counts.max() > int(N)):
-        raise MaskprepError(f"corrupt counts: {n}-gram counts must lie in 1..N={N}, "
-                            f"found {int(counts.min())}..{int(counts.max())}; re-run maskprep count")
+        raise MaskprepError(
+            f"corrupt counts: {n}-gram counts must lie in 1..N={N}, "
+            f"found {int(counts.min())}..{int(counts.max())}; re-run maskprep count"
+        )
     return keys, counts
 
 
@@ -433,12 +483,15 @@ def _span_counts(keys: np.ndarray, counts: np.ndarray, index: NgramIndex, n: int
             if (c < counts).any():
                 raise MaskprepError(
                     f"corrupt counts: a {j - i}-gram is counted less often than a {n}-gram that contains "
-                    "it; re-run maskprep count")
+                    "it; re-run maskprep count"
+                )
             spans[(i, j)] = c.astype(np.float64)
     return spans
 
 
-def _score_chunk(measure: Measure, n: int, spans: Mapping[tuple[int, int], np.ndarray], N: int) -> np.ndarray:
+def _score_chunk(
+    measure: Measure, n: int, spans: Mapping[tuple[int, int], np.ndarray], N: int
+) -> np.ndarray:
     log_n = np.log(float(N))
     if measure in (Measure.LLR, Measure.T):
         c = spans[(0, n)]

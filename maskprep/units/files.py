@@ -58,17 +58,27 @@ def write_units(vocab: UnitVocabulary, path: Union[str, Path]) -> tuple[Path, Pa
                         ("score", pa.float64()), ("token_ids", pa.list_(pa.int32())),
                         ("word_keys", pa.list_(pa.uint64()))],
                        metadata={METADATA_KEY: json.dumps(meta, sort_keys=True).encode("utf-8")})
-    table = pa.table([pa.array(list(vocab.text), pa.string()), pa.array(n.astype(np.int32)),
-                      pa.array(np.asarray(vocab.count, np.int64)), pa.array(np.asarray(vocab.score, np.float64)),
-                      _list_array(vocab.token_ids, np.int32), _list_array(vocab.word_keys, np.uint64)],
-                     schema=schema)
+    table = pa.table(
+        [
+            pa.array(list(vocab.text), pa.string()),
+            pa.array(n.astype(np.int32)),
+            pa.array(np.asarray(vocab.count, np.int64)),
+            pa.array(np.asarray(vocab.score, np.float64)),
+            _list_array(vocab.token_ids, np.int32),
+            _list_array(vocab.word_keys, np.uint64),
+        ],
+        schema=schema,
+    )
     with atomic_path(path) as tmp:
         pq.write_table(table, tmp)
     tsv = path.with_suffix(".tsv")
     lines = ["rank\tn\tcount\tscore\ttext"]
-    lines += [f"{i + 1}\t{int(k)}\t{int(c)}\t{float(s):.6f}\t{t}"
-              for i, (k, c, s, t) in enumerate(zip(n.tolist(), vocab.count.tolist(), vocab.score.tolist(),
-                                                   vocab.text))]
+    lines += [
+        f"{i + 1}\t{int(k)}\t{int(c)}\t{float(s):.6f}\t{t}"
+        for i, (k, c, s, t) in enumerate(
+            zip(n.tolist(), vocab.count.tolist(), vocab.score.tolist(), vocab.text)
+        )
+    ]
     with atomic_path(tsv) as tmp:
         tmp.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return path, tsv
@@ -78,7 +88,9 @@ def _list_array(arrays: tuple[np.ndarray, ...], dtype: Any) -> Any:
     import pyarrow as pa
 
     flat = np.concatenate(arrays).astype(dtype) if arrays else np.zeros(0, dtype)
-    offsets = np.concatenate([[0], np.cumsum([len(a) for a in arrays], dtype=np.int64)]).astype(np.int32)
+    offsets = np.concatenate([[0], np.cumsum([len(a) for a in arrays], dtype=np.int64)]).astype(
+        np.int32
+    )
     return pa.ListArray.from_arrays(pa.array(offsets), pa.array(flat))
 
 
@@ -89,37 +101,51 @@ def read_units(path: Union[str, Path]) -> UnitVocabulary:
 
     path = Path(path)
     if not path.is_file():
-        raise MaskprepError(f"{path}: units file not found; make one with maskprep units COUNTS_DIR -o {path}")
+        raise MaskprepError(
+            f"{path}: units file not found; make one with maskprep units COUNTS_DIR -o {path}"
+        )
     try:
         table = pq.read_table(path)
     except (pa.ArrowException, OSError) as exc:
-        raise MaskprepError(f"{path}: not a Parquet file ({exc}); give the units.parquet written by "
-                            "maskprep units") from None
+        raise MaskprepError(
+            f"{path}: not a Parquet file ({exc}); give the units.parquet written by maskprep units"
+        ) from None
     raw = (table.schema.metadata or {}).get(METADATA_KEY)
     try:
         meta = json.loads(raw) if raw is not None else None
     except (UnicodeDecodeError, json.JSONDecodeError):
         meta = None
     if not isinstance(meta, dict) or meta.get("kind") != _KIND:
-        raise MaskprepError(f"{path}: not a units file (no maskprep units metadata); give the units.parquet "
-                            "written by maskprep units")
+        raise MaskprepError(
+            f"{path}: not a units file (no maskprep units metadata); give the units.parquet "
+            "written by maskprep units"
+        )
     if meta.get("format_version") != FORMAT_VERSION:
-        raise MaskprepError(f"{path}: units format_version {meta.get('format_version')!r}, but this maskprep "
-                            f"reads version {FORMAT_VERSION}; re-run maskprep units with this version")
+        raise MaskprepError(
+            f"{path}: units format_version {meta.get('format_version')!r}, but this maskprep "
+            f"reads version {FORMAT_VERSION}; re-run maskprep units with this version"
+        )
     missing = [c for c in _COLUMNS if c not in table.schema.names]
     if missing:
-        raise MaskprepError(f"{path}: missing column(s) {', '.join(missing)}; not a complete units file, "
-                            "re-run maskprep units")
+        raise MaskprepError(
+            f"{path}: missing column(s) {', '.join(missing)}; not a complete units file, "
+            "re-run maskprep units"
+        )
     measure = Measure.parse(meta.get("measure", ""), option=f"{path}: measure")
     n = table.column("n").to_numpy().astype(np.int64)
     return UnitVocabulary(
-        text=tuple(table.column("text").to_pylist()), n=n,
+        text=tuple(table.column("text").to_pylist()),
+        n=n,
         count=table.column("count").to_numpy().astype(np.int64),
         score=table.column("score").to_numpy().astype(np.float64),
         token_ids=_split_lists(table.column("token_ids"), np.int32),
         word_keys=_split_lists(table.column("word_keys"), np.uint64),
-        measure=measure, options=meta.get("options", {}), tokenizer_hash=meta.get("tokenizer_hash", ""),
-        source=meta.get("source", {}), word_splitting=meta.get("word_splitting") or {})
+        measure=measure,
+        options=meta.get("options", {}),
+        tokenizer_hash=meta.get("tokenizer_hash", ""),
+        source=meta.get("source", {}),
+        word_splitting=meta.get("word_splitting") or {},
+    )
 
 
 def read_units_for(path: Union[str, Path], info: Any, words: Any = None) -> UnitVocabulary:
@@ -147,9 +173,11 @@ def read_units_for(path: Union[str, Path], info: Any, words: Any = None) -> Unit
                             f"{json.dumps(want, sort_keys=True)}; rebuild them with maskprep count "
                             "--words ... and maskprep units, or pass the same --words")
     if len(vocab) == 0:
-        raise MaskprepError(f"--units {path}: holds no units, so --strategy pmi would mask single words only; "
-                            "rebuild it with maskprep units (a lower --min-count, or larger counts), or use "
-                            "--strategy word")
+        raise MaskprepError(
+            f"--units {path}: holds no units, so --strategy pmi would mask single words only; "
+            "rebuild it with maskprep units (a lower --min-count, or larger counts), or use "
+            "--strategy word"
+        )
     if vocab.tokenizer_hash == info.hash:
         return vocab
     return retarget_units(vocab, info, path=path)
@@ -172,8 +200,10 @@ def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
     unit = " in nats" if vocab.measure in (Measure.PMI, Measure.PMI_NAIVE) else ""
     n = np.asarray(vocab.n, dtype=np.int64)
     lengths = np.unique(n).tolist()
-    head = (f"{plural(len(vocab), 'unit')} by {vocab.measure.value} (range {vocab.measure.range_text}), "
-            + ", ".join(f"{int((n == k).sum())} of {k} words" for k in lengths))
+    head = (
+        f"{plural(len(vocab), 'unit')} by {vocab.measure.value} (range {vocab.measure.range_text}), "
+        + ", ".join(f"{int((n == k).sum())} of {k} words" for k in lengths)
+    )
     if not len(vocab):
         return f"0 units by {vocab.measure.value}: no n-gram passed the filters (count, positive association)"
     lines = [head, _filters_line(vocab)]
@@ -182,7 +212,9 @@ def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
         lines.append(f"\n{k} words (top {len(idx)}):")
         lines.append(f"  {'rank':>6}  {'score':>10}  {'count':>10}  text")
         for i in idx.tolist():
-            lines.append(f"  {i + 1:>6}  {vocab.score[i]:>10.4f}  {int(vocab.count[i]):>10}  {vocab.text[i]}")
+            lines.append(
+                f"  {i + 1:>6}  {vocab.score[i]:>10.4f}  {int(vocab.count[i]):>10}  {vocab.text[i]}"
+            )
     lines.append(f"\nscores{unit}; higher is more cohesive")
     return "\n".join(lines)
 
@@ -195,12 +227,16 @@ def _filters_line(vocab: UnitVocabulary) -> str:
     parts = []
     if k > 0:
         shown = ", ".join(words[:12]) + (", ..." if len(words) > 12 else "")
-        parts.append(f"{plural(int(src.get('dropped_edge', 0)), 'candidate')} began or ended with one of "
-                     f"the {plural(len(words), 'most frequent word')} ({shown})")
+        parts.append(
+            f"{plural(int(src.get('dropped_edge', 0)), 'candidate')} began or ended with one of "
+            f"the {plural(len(words), 'most frequent word')} ({shown})"
+        )
     if share > 0:
         frags = int(src.get("dropped_fragment", 0))
-        parts.append(f"{frags:,} {'was a fragment' if frags == 1 else 'were fragments'} (one n-gram a word longer holds "
-                     f">= {share:g} of their occurrences)")
+        parts.append(
+            f"{frags:,} {'was a fragment' if frags == 1 else 'were fragments'} (one n-gram a word longer holds "
+            f">= {share:g} of their occurrences)"
+        )
     if not parts:
         return "filters: none (--edge-words 0 --fragment-share 0)"
     return "left out: " + "; ".join(parts)

@@ -39,8 +39,10 @@ def resolve_words(definition: Any, corpus: Sequence[str], *, corpus_options: Any
         from ..encoded.format import is_encoded_dir
 
         if any(is_encoded_dir(c) for c in corpus):
-            raise MaskprepError("--words cohesion: learns its words from the raw text; give the corpus files "
-                                "rather than an encoded directory")
+            raise MaskprepError(
+                "--words cohesion: learns its words from the raw text; give the corpus files "
+                "rather than an encoded directory"
+            )
         return learn_words(corpus, corpus_options=corpus_options, quiet=quiet)
     return words_option(definition)
 
@@ -49,9 +51,16 @@ def _script_chars(codes: np.ndarray) -> np.ndarray:
     return (script_classes(codes) != OTHER) & (codes < 0x10000)
 
 
-def learn_words(corpus: Sequence[str], *, corpus_options: Any = None, sample_chars: int = 50_000_000,
-                min_count: int = 5, min_score: float = 2.0, top: int = 200_000,
-                quiet: bool = False) -> WordsConfig:
+def learn_words(
+    corpus: Sequence[str],
+    *,
+    corpus_options: Any = None,
+    sample_chars: int = 50_000_000,
+    min_count: int = 5,
+    min_score: float = 2.0,
+    top: int = 200_000,
+    quiet: bool = False,
+) -> WordsConfig:
     """Learn a word vocabulary from character n-gram cohesion: ``learn_words(["zh.txt"])``.
 
     Deterministic: the same corpus and options give the same words (the first
@@ -65,7 +74,9 @@ def learn_words(corpus: Sequence[str], *, corpus_options: Any = None, sample_cha
     tables: list[dict[int, tuple[np.ndarray, np.ndarray]]] = []
     pending: list[str] = []
     pending_chars = seen = 0
-    with Progress("learn words", total=float(sample_chars), unit="characters", quiet=quiet) as progress:
+    with Progress(
+        "learn words", total=float(sample_chars), unit="characters", quiet=quiet
+    ) as progress:
         for text in iter_corpus([str(f) for f in files], corpus_options or CorpusOptions()):
             pending.append(text)
             pending_chars += len(text)
@@ -83,8 +94,10 @@ def learn_words(corpus: Sequence[str], *, corpus_options: Any = None, sample_cha
             progress.advance(pending_chars)
     counts = _merge(tables) if tables else {}
     if 1 not in counts or len(counts[1][0]) == 0:
-        raise MaskprepError(f"--words cohesion: {', '.join(map(str, corpus))} has no CJK or Thai characters "
-                            "to learn words from; use --words tokenizer")
+        raise MaskprepError(
+            f"--words cohesion: {', '.join(map(str, corpus))} has no CJK or Thai characters "
+            "to learn words from; use --words tokenizer"
+        )
     N = int(counts[1][1].sum())
     index = {k: (_unpack(counts[k][0], k), counts[k][1]) for k in counts}
     words: list[tuple[float, int, str]] = []
@@ -128,7 +141,9 @@ def _count_chars(text: str) -> dict[int, tuple[np.ndarray, np.ndarray]]:
     return out
 
 
-def _merge(tables: list[dict[int, tuple[np.ndarray, np.ndarray]]]) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+def _merge(
+    tables: list[dict[int, tuple[np.ndarray, np.ndarray]]],
+) -> dict[int, tuple[np.ndarray, np.ndarray]]:
     out = {}
     for n in sorted({n for t in tables for n in t}):
         keys = np.concatenate([t[n][0] for t in tables if n in t])
