@@ -77,4 +77,6 @@ def _fmt(x: float) -> str:
         return f"{x / 1e6:.2f}M"
     if x >= 1e4:
         return f"{x / 1e3:.1f}k"
-    return f"{x:g}"
+    if x == int(x):
+        return f"{int(x)}"
+    return f"{x:.3g}"  # 1.31123 MB shows as 1.31

@@ -76,3 +76,12 @@ def test_progress_without_total_counts_up(capsys: pytest.CaptureFixture[str]) ->
     with Progress("train wordpiece-8000", unit="documents") as p:
         p.advance(12_345)
     assert capsys.readouterr().err.startswith("train wordpiece-8000: 12.3k documents")
+
+
+def test_progress_shows_fractional_totals_in_three_figures(
+    capsys: pytest.CaptureFixture[str],
+) -> None:
+    # what audit prints for a corpus of 1.31123 MB: three significant figures, not six
+    with Progress("audit tokenizer", total=1.31123, unit="MB") as p:
+        p.advance(1.31123)
+    assert capsys.readouterr().err.startswith("audit tokenizer: 100.0% (1.31/1.31 MB)")

@@ -19,6 +19,7 @@ from maskprep.tokenizer.encoding import (
     encode_documents,
     load_tokenizer,
     save_tokenizer,
+    tokenizer_from_json,
 )
 from maskprep.tokenizer.train import SPECIALS, TrainConfig, train_tokenizer
 
@@ -140,6 +141,24 @@ def test_batch_independence(trained: dict[str, object]) -> None:
     parts = [encode_documents(info, [d]) for d in docs]  # type: ignore[arg-type]
     assert np.array_equal(whole.word_keys, np.concatenate([p.word_keys for p in parts]))
     assert np.array_equal(whole.ids, np.concatenate([p.ids for p in parts]))
+
+
+def test_tokenizer_from_json_gives_each_task_its_own_word_cache(
+    trained: dict[str, object],
+) -> None:
+    # A worker parses a tokenizer once and reuses it across tasks; each task must still see a
+    # fresh word-type cache (count reads the word texts a task added) and its own name.
+    info = trained["wordpiece"]
+    first = tokenizer_from_json(info.json, name="a")  # type: ignore[attr-defined]
+    encode_documents(first, ["the king is dead", "long live the king"])
+    second = tokenizer_from_json(info.json, name="b")  # type: ignore[attr-defined]
+    assert first.word_type_count > 0 and second.word_type_count == 0
+    assert (first.name, second.name) == ("a", "b")
+    assert second.tokenizer is first.tokenizer and second.hash == first.hash
+    again = encode_documents(second, ["the king is dead", "long live the king"])
+    fresh = encode_documents(info, ["the king is dead", "long live the king"])  # type: ignore[arg-type]
+    assert np.array_equal(again.ids, fresh.ids)
+    assert np.array_equal(again.word_keys, fresh.word_keys)
 
 
 def test_specials_recorded_and_roundtrip(tmp_path: Path, trained: dict[str, object]) -> None:

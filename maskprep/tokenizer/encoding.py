@@ -19,6 +19,7 @@ tokens (see packing.py).
 from __future__ import annotations
 
 import dataclasses
+import copy
 import hashlib
 import os
 import itertools
@@ -108,13 +109,12 @@ class TokenizerInfo:
         self.name = name
         self.path = path
         self.json = tokenizer.to_str()
+        spec = json.loads(self.json)
         # Hash a canonical form: key order in the library's JSON is not stable across save/load.
-        canonical = json.dumps(
-            json.loads(self.json), sort_keys=True, ensure_ascii=False, separators=(",", ":")
-        )
+        canonical = json.dumps(spec, sort_keys=True, ensure_ascii=False, separators=(",", ":"))
         self.hash = hashlib.sha256(canonical.encode("utf-8")).hexdigest()
         self.vocab_size = tokenizer.get_vocab_size(with_added_tokens=True)
-        self.roles = _find_roles(tokenizer, json.loads(self.json))
+        self.roles = _find_roles(tokenizer, spec)
         specials = [t.content for t in tokenizer.get_added_tokens_decoder().values() if t.special]
         ids = [tokenizer.token_to_id(s) for s in specials]
         self.special_ids = np.array(
@@ -124,7 +124,7 @@ class TokenizerInfo:
             ),
             dtype=np.int32,
         )
-        self.max_length = _model_max_length(json.loads(self.json))
+        self.max_length = _model_max_length(spec)
         self._types: dict[bytes, WordType] = {}
         self._base = self.vocab_size + 1
         per = 1
@@ -548,11 +548,28 @@ def load_tokenizer(path: str | Path, *, name: str | None = None) -> TokenizerInf
     return TokenizerInfo(tok, name=name, path=str(p))
 
 
-def tokenizer_from_json(text: str, *, name: str = "tokenizer") -> TokenizerInfo:
-    """Rebuild a `TokenizerInfo` from its JSON (used to ship tokenizers to workers)."""
-    from tokenizers import Tokenizer
+# Tokenizers this process has parsed, by their JSON: parsing one costs about 10 ms, which a
+# stage of many small tasks (a directory of small files) would otherwise pay in every task.
+_PARSED: dict[str, TokenizerInfo] = {}
 
-    return TokenizerInfo(Tokenizer.from_str(text), name=name)
+
+def tokenizer_from_json(text: str, *, name: str = "tokenizer") -> TokenizerInfo:
+    """Rebuild a `TokenizerInfo` from its JSON (used to ship tokenizers to workers).
+
+    Each call returns its own object with an empty word-type cache; the parsed tokenizer
+    underneath is shared within the process (nothing here changes a loaded tokenizer).
+    """
+    proto = _PARSED.get(text)
+    if proto is None:
+        from tokenizers import Tokenizer
+
+        if len(_PARSED) >= 4:
+            _PARSED.clear()
+        proto = _PARSED[text] = TokenizerInfo(Tokenizer.from_str(text))
+    info = copy.copy(proto)
+    info.name = name
+    info._types = {}
+    return info
 
 
 def _find_roles(tokenizer: Any, spec: dict[str, Any]) -> dict[str, int | None]:
