@@ -1,4 +1,4 @@
-"""Shared pieces of the command line: option groups, the executor from global options, error handling.
+"""Shared pieces of the command line: option groups, the executor, error handling.
 
 `maskprep.cli` defines the commands with these; nothing here runs a stage.
 """
@@ -178,7 +178,7 @@ _WORDS_HELP = (
 
 
 def words_option(fn: Callable[..., Any]) -> Callable[..., Any]:
-    """The --words option of every command that groups tokens into words (read with `make_words`)."""
+    """The --words option of the commands that group tokens into words (read by `make_words`)."""
     return click.option(
         "--words",
         "words",
@@ -190,7 +190,10 @@ def words_option(fn: Callable[..., Any]) -> Callable[..., Any]:
 
 
 def make_words(copts: dict[str, Any], corpus: Any, ctx: click.Context) -> tuple[Any, Any]:
-    """(CorpusOptions, WordsConfig) from a command's corpus options and --words (cohesion: learnt first)."""
+    """(CorpusOptions, WordsConfig) from a command's corpus options and --words.
+
+    With ``--words cohesion`` the words are learnt from the corpus first.
+    """
     from .units.words import resolve_words
 
     words = copts.pop("words", "tokenizer")

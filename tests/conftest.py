@@ -106,3 +106,32 @@ def small_wordpiece(tmp_path_factory: pytest.TempPathFactory, shakespeare_small:
     return trained_tokenizer(
         shakespeare_small, tmp_path_factory.mktemp("tok"), model="wordpiece", vocab_size=4000
     )
+
+
+@pytest.fixture(scope="session")
+def plain_words():
+    """A plain recount of the words of a text file, for the audit tests' reference figures.
+
+    ``plain_words(tok, path)`` yields (word text, token ids) for every word of every non-empty
+    line, each line encoded on its own, tokens grouped by the `tokenizers` library's ``word_ids``
+    and decoded by its decoder; punctuation-only words are left out (source: the tokenizers API;
+    the word definition of DEVELOPERS.md).
+    """
+    import regex
+
+    punct = regex.compile(r"[\p{P}\p{S}]+")
+
+    def recount(tok, path: Path):
+        for line in path.read_text(encoding="utf-8").splitlines():
+            if not line.strip():
+                continue
+            enc = tok.encode(line, add_special_tokens=False)
+            groups: dict[int, list[int]] = {}
+            for i, w in zip(enc.ids, enc.word_ids):
+                groups.setdefault(w, []).append(i)
+            for ids in groups.values():
+                text = tok.decode(ids).strip()
+                if text and not punct.fullmatch(text):
+                    yield text, ids
+
+    return recount

@@ -48,30 +48,16 @@ def test_fragmentation_falls_with_vocabulary_size(tmp_path: Path, shakespeare_co
 
 
 def test_audit_figures_match_a_plain_recount(
-    shakespeare_small: Path, small_wordpiece: Path
+    shakespeare_small: Path, small_wordpiece: Path, plain_words
 ) -> None:
     info = load_tokenizer(small_wordpiece)
     got = audit_tokenizer(info, [str(shakespeare_small)], quiet=True)
     # Plain reference: encode each document on its own and count words from word_ids in Python.
-    tok = info.tokenizer
     words = tokens = split = 0
-    import regex
-
-    punct = regex.compile(r"[\p{P}\p{S}]+")
-    for line in shakespeare_small.read_text(encoding="utf-8").splitlines():
-        if not line.strip():
-            continue
-        enc = tok.encode(line, add_special_tokens=False)
-        groups: dict[int, list[int]] = {}
-        for i, w in zip(enc.ids, enc.word_ids):
-            groups.setdefault(w, []).append(i)
-        for ids in groups.values():
-            text = tok.decode(ids).strip()
-            if not text or punct.fullmatch(text):
-                continue
-            words += 1
-            tokens += len(ids)
-            split += len(ids) >= 2
+    for _text, ids in plain_words(info.tokenizer, shakespeare_small):
+        words += 1
+        tokens += len(ids)
+        split += len(ids) >= 2
     assert got["words"] == words
     assert got["tokens_per_word"] == pytest.approx(tokens / words, rel=1e-12)
     assert got["split_share"] == pytest.approx(split / words, rel=1e-12)
@@ -103,7 +89,8 @@ def test_audit_cli_table_and_outputs(
     [
         (
             ["--vocab-sizes", "2000,x"],
-            "Error: --vocab-sizes: '2000,x' is not a comma-separated list of positive integers (e.g. 2000,8000,30000)",
+            "Error: --vocab-sizes: '2000,x' is not a comma-separated list of positive integers "
+            "(e.g. 2000,8000,30000)",
         ),
         (
             ["--vocab-sizes", "0"],
@@ -112,8 +99,8 @@ def test_audit_cli_table_and_outputs(
         ),
         (
             [],
-            "Error: audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,... (or an encoded directory "
-            "as CORPUS: its tokenizer is audited)",
+            "Error: audit: give at least one -t TOKENIZER.json or --vocab-sizes N,N,... (or an "
+            "encoded directory as CORPUS: its tokenizer is audited)",
         ),
         (["-t", "missing.json"], "Error: missing.json: tokenizer file not found"),
     ],
@@ -141,6 +128,6 @@ def test_audit_empty_corpus_and_too_large_vocab(tmp_path: Path) -> None:
     )
     assert r.exit_code == 1
     assert (
-        "Error: --vocab-sizes: 30,000 is larger than this corpus supports for wordpiece: training reached"
-        in r.output
+        "Error: --vocab-sizes: 30,000 is larger than this corpus supports for wordpiece: "
+        "training reached" in r.output
     )

@@ -15,7 +15,6 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
-import regex
 from click.testing import CliRunner
 
 from maskprep.audit.measure import audit_tokenizer
@@ -31,9 +30,6 @@ from maskprep.cli import cli
 from maskprep.tokenizer.encoding import load_tokenizer
 from conftest import trained_tokenizer
 
-_PUNCT = regex.compile(r"[\p{P}\p{S}]+")
-
-
 @pytest.fixture(scope="module")
 def small_bpe(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
     """A 1,500-token byte-level BPE on the four plays: frequent words split, some in two forms."""
@@ -42,21 +38,17 @@ def small_bpe(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path)
     )
 
 
-def plain_forms(tok, path: Path) -> dict[str, Counter]:
+@pytest.fixture(scope="module")
+def plain_forms(plain_words):
     """Word text -> Counter of token-id tuples (its forms), recounted document by document."""
-    words: dict[str, Counter] = {}
-    for line in path.read_text(encoding="utf-8").splitlines():
-        if not line.strip():
-            continue
-        enc = tok.encode(line, add_special_tokens=False)
-        groups: dict[int, list[int]] = {}
-        for i, w in zip(enc.ids, enc.word_ids):
-            groups.setdefault(w, []).append(i)
-        for ids in groups.values():
-            text = tok.decode(ids).strip()
-            if text and not _PUNCT.fullmatch(text):
-                words.setdefault(text, Counter())[tuple(ids)] += 1
-    return words
+
+    def forms(tok, path: Path) -> dict[str, Counter]:
+        words: dict[str, Counter] = {}
+        for text, ids in plain_words(tok, path):
+            words.setdefault(text, Counter())[tuple(ids)] += 1
+        return words
+
+    return forms
 
 
 def plain_selection(words: dict[str, Counter], frequent: int, top: int) -> list[dict]:
@@ -92,7 +84,8 @@ def unmarked(pieces: str) -> str:
 
 @pytest.mark.parametrize("which, frequent", [("small_bpe", 1000), ("small_wordpiece", 4000)])
 def test_listed_words_and_forms_equal_a_plain_recount(
-    which: str, frequent: int, request: pytest.FixtureRequest, shakespeare_small: Path
+    which: str, frequent: int, request: pytest.FixtureRequest, shakespeare_small: Path,
+    plain_forms,
 ) -> None:
     info = load_tokenizer(request.getfixturevalue(which))
     got = audit_tokenizer(info, [str(shakespeare_small)], quiet=True, frequent_types=frequent)

@@ -174,7 +174,8 @@ def test_missing_and_empty_inputs(tmp_path: Path) -> None:
 def test_compressed_tables_and_arrow_streams_read_like_plain_files(
     tmp_path: Path, real_docs: list[str], monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    # Parquet and Arrow need random access: a .gz or .zst one is decompressed to a temporary file first
+    # Parquet and Arrow need random access: a .gz or .zst one is decompressed to a temporary
+    # file first
     import tempfile
 
     scratch = tmp_path / "scratch"

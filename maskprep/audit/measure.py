@@ -101,7 +101,8 @@ def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase
                     option: str = "--vocab-size") -> TokenizerInfo:
     """Train a tokenizer on a corpus and optionally save it; `option` names the size in errors.
 
-    >>> train_on_corpus(["sample_corpus"], model="wordpiece", vocab_size=8000, lowercase=True)  # doctest: +SKIP
+    >>> train_on_corpus(["sample_corpus"], model="wordpiece", vocab_size=8000,
+    ...                 lowercase=True)  # doctest: +SKIP
     """
     config = TrainConfig(model=model, vocab_size=vocab_size, lowercase=lowercase)
     if open_source(corpus, corpus_options).encoded:
@@ -144,7 +145,7 @@ class _AuditJob:
 
 
 def _task_words(info: TokenizerInfo, reader: TaskReader) -> list[WordType]:
-    """The word forms (kind WORD) of one task: from its word table, or from its fresh tokenizer cache."""
+    """The word forms (kind WORD) of one task: from its word table, or its fresh tokenizer cache."""
     table = reader.word_table()
     if table is None:  # raw text: this task's own tokenizer cache holds exactly its word types
         return [wt for wt in info.word_types() if wt.kind == WORD]
@@ -217,11 +218,12 @@ def audit_tokenizer(
     executor: Any = None,
     words: WordsConfig | None = None,
 ) -> dict[str, Any]:
-    """Fragmentation figures of one tokenizer on a corpus or an encoded directory (tasks in parallel).
+    """Fragmentation figures of one tokenizer on a corpus or an encoded directory, in parallel.
 
     `words` chooses the word definition (default: the tokenizer's own words).
 
-    >>> audit_tokenizer(load_tokenizer("tok.json"), ["sample_corpus"])["tokens_per_word"]  # doctest: +SKIP
+    >>> audit_tokenizer(load_tokenizer("tok.json"),
+    ...                 ["sample_corpus"])["tokens_per_word"]  # doctest: +SKIP
     1.21
     """
     from ..execute import Executor, map_tasks
@@ -271,7 +273,10 @@ def audit_tokenizer(
 
 
 def _unspaced_share(table: _FormTable, forms: list[WordType]) -> float:
-    """Share of the words' characters (by occurrence) in scripts written without spaces (CJK, Thai)."""
+    """Share of the words' characters (by occurrence) in scripts written without spaces (CJK, Thai).
+
+    Counted over word occurrences, so frequent words weigh more.
+    """
     if not forms or len(table.keys) == 0:
         return 0.0
     text_of = {wt.key: wt.text for wt in forms}
@@ -408,7 +413,8 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
 
     A size the corpus cannot give stops the audit with an error naming `size_option` and the size.
 
-    >>> run_audit(["sample_corpus"], AuditConfig(vocab_sizes=(2000, 8000)), output=Path("out"))  # doctest: +SKIP
+    >>> run_audit(["sample_corpus"], AuditConfig(vocab_sizes=(2000, 8000)),
+    ...           output=Path("out"))  # doctest: +SKIP
     """
     source = open_source(corpus, corpus_options)  # fail early on bad paths, before any training
     from .._paths import check_apart
@@ -478,8 +484,10 @@ def words_note(words: WordsConfig, results: list[dict[str, Any]]) -> str:
         share = max((r.get("unspaced_script_share", 0.0) for r in results), default=0.0)
         if share >= 0.2:
             note += (
-                f" {share:.0%} of this corpus's word characters are of scripts written without spaces "
-                "(CJK, Thai): there these pieces are single characters or whole clauses, not words, "
+                f" {share:.0%} of this corpus's word characters are of scripts written without "
+                "spaces "
+                "(CJK, Thai): there these pieces are single characters or whole clauses, not "
+                "words, "
                 "so the per-word figures say little; use --words zh, ja, th, auto or cohesion."
             )
         return note

@@ -111,7 +111,8 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
                     option: str = "--vocab-size") -> TokenizerInfo:
     """Train a tokenizer on an iterable of documents.
 
-    >>> info = train_tokenizer(iter_corpus(["sample_corpus"]), TrainConfig(vocab_size=2000))  # doctest: +SKIP
+    >>> info = train_tokenizer(iter_corpus(["sample_corpus"]),
+    ...                        TrainConfig(vocab_size=2000))  # doctest: +SKIP
     >>> info.vocab_size  # doctest: +SKIP
     2000
 
@@ -185,7 +186,8 @@ def check_trained_size(
     """Raise, naming `option`, if training stopped short of the requested vocabulary size."""
     if info.vocab_size < config.vocab_size:
         raise MaskprepError(
-            f"{option}: {config.vocab_size:,} is larger than this corpus supports for {config.model}: "
+            f"{option}: {config.vocab_size:,} is larger than this corpus supports for "
+            f"{config.model}: "
             f"training reached {info.vocab_size:,} tokens; use a smaller size or a larger corpus"
         )
 
