@@ -6,7 +6,7 @@ One helper so every line the user reads says "1 shard" and "2 shards", never
 
 from __future__ import annotations
 
-__all__ = ["plural"]
+__all__ = ["plural", "name_files"]
 
 
 def plural(n: int | float, noun: str, many: str | None = None) -> str:
@@ -22,3 +22,17 @@ def plural(n: int | float, noun: str, many: str | None = None) -> str:
     if not isinstance(n, int) and float(n).is_integer():
         number = f"{int(n):,}"
     return f"{number} {word}"
+
+
+def name_files(paths: object, shown: int = 3) -> str:
+    """Files for a message: all of them when few, else the first `shown` and how many more.
+
+    >>> name_files(["a.txt", "b.txt"])
+    'a.txt, b.txt'
+    >>> name_files([f"part-{i}.txt" for i in range(500)])
+    'part-0.txt, part-1.txt, part-2.txt and 497 more files'
+    """
+    names = [str(p) for p in paths]  # type: ignore[attr-defined]
+    if len(names) <= shown + 1:
+        return ", ".join(names)
+    return f"{', '.join(names[:shown])} and {plural(len(names) - shown, 'more file')}"

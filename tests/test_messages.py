@@ -156,13 +156,15 @@ def test_literal_special_tokens_are_reported_once(tmp_path: Path, small_wordpiec
     lines = shakespeare_small.read_text(encoding="utf-8").splitlines()[:60]
     lines[3] += " [MASK] and [MASK]"
     lines[30] = "[CLS] " + lines[30] + " [MASK]"
-    # two files, so two tasks on two worker processes whose tallies the driver adds up
-    corpus = [tmp_path / "specials-a.txt", tmp_path / "specials-b.txt"]
-    corpus[0].write_text("\n".join(lines[:20]) + "\n", encoding="utf-8")
-    corpus[1].write_text("\n".join(lines[20:]) + "\n", encoding="utf-8")
+    # six files, so six tasks on two worker processes whose tallies the driver adds up; the
+    # warning names the first three files only (a directory of 500 files must not fill a screen)
+    corpus = [tmp_path / f"specials-{c}.txt" for c in "abcdef"]
+    for i, path in enumerate(corpus):
+        path.write_text("\n".join(lines[i * 10 : i * 10 + 10]) + "\n", encoding="utf-8")
     name = load_tokenizer(small_wordpiece).name
     warning = (
-        f"warning: {corpus[0]}, {corpus[1]}: the text holds 4 literal special-token strings ([MASK] x3, "
+        f"warning: {corpus[0]}, {corpus[1]}, {corpus[2]} and 3 more files: the text holds 4 "
+        "literal special-token strings ([MASK] x3, "
         f"[CLS] x1); tokenizer {name} reads each as its special token (never counted or "
         "masked as a word). Remove or escape them in the corpus if they are meant as text."
     )

@@ -30,6 +30,7 @@ from .._resume import LOCK_STATE, locked_output
 from ..corpus.reader import CorpusOptions, ReadStats, iter_corpus, resolve_inputs
 from ..encoded.source import SourceTask, TaskReader, open_source, read_stats_of
 from ..errors import MaskprepError
+from ..wording import name_files
 from .._files import atomic_write_json
 from ..progress import Progress
 from ..report.html import write_page
@@ -259,7 +260,7 @@ def audit_tokenizer(
     _flush(table, pending)
     if stats.documents == 0:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
-    warn_literal_specials(info, stats.literal_specials, ", ".join(corpus))
+    warn_literal_specials(info, stats.literal_specials, name_files(corpus))
     forms = [seen[k] for k in sorted(seen)]  # in an order that does not depend on the tasks
     tokens_total, unk_total, cont_total, crossing = totals
     result = _summarise(

@@ -35,7 +35,7 @@ from .._checks import is_whole
 from .._resume import LOCK_STATE, locked_output
 from .._tables import format_table
 from ..errors import MaskprepError
-from ..wording import plural
+from ..wording import name_files, plural
 from ..encoded.source import SourceTask
 from ..masking.sampler import UNITS_REMEDY, MaskingConfig, MixPer, Strategy, needs_units
 from ..packing import PackedBatch, PackingConfig
@@ -399,7 +399,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     sequences = sum(res["sequences"] for res in results)
     if sequences == 0:
         raise MaskprepError(
-            f"{', '.join(map(str, corpus))}: corpus is empty (no non-empty documents)"
+            f"{name_files(corpus)}: corpus is empty (no non-empty documents)"
         )
     from ..tokenizer.encoding import warn_literal_specials
 

@@ -45,7 +45,7 @@ from ..corpus.reader import CorpusOptions, corpus_fingerprint
 from ..encoded.source import open_source
 from .._paths import check_apart
 from ..errors import MaskprepError
-from ..wording import plural
+from ..wording import name_files, plural
 from ..execute import Executor, map_tasks, pool_running
 from .._files import file_sha256, fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
@@ -225,7 +225,7 @@ def finish_counts(
     totals = [sum(r.totals[n - 1] for r in results) for n in range(1, max_n + 1)]
     if totals[0] == 0:
         raise MaskprepError(
-            f"{', '.join(map(str, files))}: no words to count (every document is empty, "
+            f"{name_files(files)}: no words to count (every document is empty, "
             "whitespace or punctuation)"
         )
     share = task_share(config, executor, 2 * max_n)
@@ -266,7 +266,7 @@ def finish_counts(
     for r in results:
         for s, k in r.literal_specials.items():
             literal[s] = literal.get(s, 0) + k
-    warn_literal_specials(info, literal, ", ".join(str(f) for f in files))
+    warn_literal_specials(info, literal, name_files(files))
     meta = {
         "format_version": FORMAT_VERSION,
         "N": totals[0],

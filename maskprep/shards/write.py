@@ -59,6 +59,7 @@ from .._resume import RunDir, Stage, claim, write_record
 from .._version import __version__
 from .._checks import is_whole
 from ..errors import MaskprepError
+from ..wording import name_files
 from ..encoded.source import SourceTask
 from ..masking.sampler import MaskingConfig, Strategy, needs_units
 from ..packing import PackingConfig, check_packing_tokenizer
@@ -496,10 +497,10 @@ def _write_claimed(
         stats.merge(MaskStats.from_state(rec["stats"]))
         read.merge(read_stats_of(rec["read"]))
         records.extend(ShardRecord(**s) for s in rec["shards"])
-    warn_literal_specials(info, read.literal_specials, ", ".join(str(f) for f in files))
+    warn_literal_specials(info, read.literal_specials, name_files(files))
     if stats.sequences == 0:
         raise MaskprepError(
-            f"{', '.join(map(str, files))}: no documents to mask (every document is empty or "
+            f"{name_files(files)}: no documents to mask (every document is empty or "
             "whitespace); no shards were written"
         )
     totals = {

@@ -22,6 +22,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from ..errors import MaskprepError
+from ..wording import name_files
 from ..tokenizer.words import OTHER, WordsConfig, code_points, script_classes, words_option
 
 __all__ = ["learn_words", "resolve_words", "MAX_LEN"]
@@ -95,7 +96,7 @@ def learn_words(
     counts = _merge(tables) if tables else {}
     if 1 not in counts or len(counts[1][0]) == 0:
         raise MaskprepError(
-            f"--words cohesion: {', '.join(map(str, corpus))} has no CJK or Thai characters "
+            f"--words cohesion: {name_files(corpus)} has no CJK or Thai characters "
             "to learn words from; use --words tokenizer"
         )
     N = int(counts[1][1].sum())
