@@ -24,6 +24,8 @@ __all__ = [
     "words_option",
     "make_words",
     "budget_option",
+    "sample_options",
+    "make_sample",
 ]
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
@@ -81,6 +83,32 @@ def budget_option(fn: Callable[..., Any]) -> Callable[..., Any]:
         "worker holds: one encoded batch and, for mask, the rows of one shard file "
         "per copy.",
     )(fn)
+
+
+def sample_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """--sample and --seed of audit and train-tokenizer (read with `make_sample`)."""
+    from .corpus.sample import SAMPLE_HELP
+
+    fn = click.option(
+        "--seed",
+        "sample_seed",
+        type=int,
+        default=0,
+        show_default=True,
+        help="Seed of the --sample: the same seed picks the same documents.",
+    )(fn)
+    return click.option(
+        "--sample", default=None, metavar="SHARE|SIZE", help=SAMPLE_HELP
+    )(fn)
+
+
+def make_sample(sample: str | None, seed: int) -> Any:
+    """The `SampleSpec` of --sample / --seed, or None for the whole corpus."""
+    from .corpus.sample import SampleSpec
+
+    if seed < 0:
+        raise MaskprepError(f"--seed: expected a whole number >= 0, got {seed}")
+    return None if sample is None else SampleSpec.parse(sample, seed)
 
 
 def corpus_options(fn: Callable[..., Any]) -> Callable[..., Any]:

@@ -27,19 +27,18 @@ from typing import Any
 import numpy as np
 
 from .._resume import LOCK_STATE, locked_output
-from ..corpus.reader import CorpusOptions, ReadStats, iter_corpus, resolve_inputs
+from ..corpus.reader import CorpusOptions, ReadStats
+from ..corpus.sample import SampleSpec, describe_sample, draw_sample
 from ..encoded.source import SourceTask, TaskReader, open_source, read_stats_of
 from ..errors import MaskprepError
 from ..wording import name_files
 from .._files import atomic_write_json
-from ..progress import Progress
 from ..report.html import write_page
 from ..tokenizer.encoding import (PUNCT, SPACE, SPECIAL, WORD, TokenizerInfo, WordType,
-                                  save_tokenizer, tokenizer_from_json, unique_rows,
-                                  warn_literal_specials)
-from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
+                                  tokenizer_from_json, unique_rows, warn_literal_specials)
 from ..tokenizer.words import WordsConfig, code_points, script_classes
 from .page import render_audit_html
+from .training import sampled_tasks, train_on_corpus
 from .words import cached_forms, form_hash, form_hashes, main_forms, select_fragmented, shown_forms
 
 AUDIT_BANDS = (
@@ -94,47 +93,6 @@ class _FormTable:
         self.chars = merged(self.chars, chars)
         self.kind = np.concatenate([self.kind, kind])[first]
         self.keys = uniq
-
-
-def train_on_corpus(corpus: list[str], *, model: str, vocab_size: int, lowercase: bool,
-                    corpus_options: CorpusOptions = CorpusOptions(), output: Path | None = None,
-                    quiet: bool = False, name: str | None = None,
-                    option: str = "--vocab-size") -> TokenizerInfo:
-    """Train a tokenizer on a corpus and optionally save it; `option` names the size in errors.
-
-    >>> train_on_corpus(["sample_corpus"], model="wordpiece", vocab_size=8000,
-    ...                 lowercase=True)  # doctest: +SKIP
-    """
-    config = TrainConfig(model=model, vocab_size=vocab_size, lowercase=lowercase)
-    if open_source(corpus, corpus_options).encoded:
-        raise MaskprepError(
-            f"{', '.join(corpus)}: an encoded directory holds token ids, not text; train "
-            "tokenizers on the raw corpus files"
-        )
-    files = resolve_inputs(corpus)
-    if output is not None:
-        from .._paths import check_apart
-
-        check_apart(output, [*corpus, *files])
-    stats = ReadStats()
-    info: TokenizerInfo | None = None
-    with Progress(f"train {model}-{vocab_size}", unit="documents", quiet=quiet) as progress:
-        def docs() -> Any:
-            for text in iter_corpus([str(f) for f in files], corpus_options, stats):
-                progress.advance(1)
-                yield text
-
-        try:
-            info = train_tokenizer(docs(), config, name=name, check_size=False, option=option)
-        except MaskprepError:
-            if stats.documents:
-                raise
-    if stats.documents == 0 or info is None:
-        raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
-    check_trained_size(info, config, option)
-    if output is not None:
-        save_tokenizer(info, output)
-    return info
 
 
 @dataclass(frozen=True)
@@ -218,10 +176,12 @@ def audit_tokenizer(
     quiet: bool = False,
     executor: Any = None,
     words: WordsConfig | None = None,
+    sample: SampleSpec | None = None,
 ) -> dict[str, Any]:
     """Fragmentation figures of one tokenizer on a corpus or an encoded directory, in parallel.
 
-    `words` chooses the word definition (default: the tokenizer's own words).
+    `words` chooses the word definition (default: the tokenizer's own words); `sample` audits a
+    seeded sample of a raw corpus (`maskprep.corpus.sample`), described in the result's "sample".
 
     >>> audit_tokenizer(load_tokenizer("tok.json"),
     ...                 ["sample_corpus"])["tokens_per_word"]  # doctest: +SKIP
@@ -236,11 +196,14 @@ def audit_tokenizer(
     executor = executor or Executor(quiet=quiet)
     wcfg: WordsConfig = source.check_words(words or WordsConfig())
     job = _AuditJob(info.json, info.name, source.options, None if wcfg.is_tokenizer else wcfg)
+    draw, tasks = None, source.tasks
+    if sample is not None:
+        draw = draw_sample(source.files, corpus_options, sample)
+        tasks = sampled_tasks(source, draw, sample)
     table, stats = _FormTable(), ReadStats()
     pending: list[tuple[np.ndarray, ...]] = []
     totals = [0, 0, 0, 0]
     seen: dict[tuple[int, tuple[int, ...]], WordType] = {}
-    tasks = source.tasks
     for res in map_tasks(
         _audit_task,
         [(job, t) for t in tasks],
@@ -258,6 +221,8 @@ def audit_tokenizer(
         for wt in res["words"]:
             seen.setdefault((wt.key, wt.ids), wt)
     _flush(table, pending)
+    if draw is not None:
+        draw.check(stats)
     if stats.documents == 0:
         raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
     warn_literal_specials(info, stats.literal_specials, name_files(corpus))
@@ -270,6 +235,8 @@ def audit_tokenizer(
     result["boundary_crossing_tokens"] = crossing
     result["boundary_crossing_share"] = crossing / tokens_total if tokens_total else 0.0
     result["unspaced_script_share"] = _unspaced_share(table, forms)
+    if draw is not None:
+        result["sample"] = draw.summary(stats)
     return result
 
 
@@ -409,8 +376,12 @@ def _word_rows(info: TokenizerInfo, f: _FormTable, word_keys: np.ndarray,
 def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
               corpus_options: CorpusOptions = CorpusOptions(), quiet: bool = False,
               size_option: str = "--vocab-sizes", executor: Any = None,
-              words: WordsConfig | None = None) -> dict[str, Any]:
+              words: WordsConfig | None = None,
+              sample: SampleSpec | None = None) -> dict[str, Any]:
     """Audit given and freshly trained tokenizers; write audit.json and audit.html.
+
+    With `sample`, tokenizers are trained and audited on the same seeded sample of the corpus,
+    and audit.json, the page and the table say so (its "sample": documents, bytes, share).
 
     A size the corpus cannot give stops the audit with an error naming `size_option` and the size.
 
@@ -422,6 +393,11 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
 
     check_apart(output, [*source.inputs, *source.files], others=config.tokenizers)
     infos: list[TokenizerInfo] = [source.tokenizer(p, stage="audit") for p in config.tokenizers]
+    if source.encoded and sample is not None:
+        raise MaskprepError(
+            f"{sample.option}: {source.describe()} is an encoded directory; sample the raw "
+            "corpus files instead"
+        )
     if source.encoded:
         if config.vocab_sizes:
             raise MaskprepError(
@@ -444,6 +420,7 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
                 quiet=quiet,
                 name=name,
                 option=size_option,
+                sample=sample,
             )
         )
     names = [i.name for i in infos]
@@ -460,11 +437,12 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
             quiet=quiet,
             executor=executor,
             words=words,
+            sample=sample,
         )
         for info in infos
     ]
     w = words or WordsConfig()
-    doc = {"corpus": list(source.files), "bands": [b[2] for b in AUDIT_BANDS],
+    doc: dict[str, Any] = {"corpus": list(source.files), "bands": [b[2] for b in AUDIT_BANDS],
            "words": w.describe(), "words_label": w.label(),
            "notes": [words_note(w, results), "Punctuation-only words are left out "
                      "of tokens_per_word and split_share but kept in tokens_per_word_all.",
@@ -472,6 +450,9 @@ def run_audit(corpus: list[str], config: AuditConfig, *, output: Path,
            "fragmented_list": {"frequent_types": config.frequent_types,
                                "top_words": config.top_words},
            "tokenizers": results}
+    if sample is not None:
+        doc["sample"] = results[0]["sample"]
+        doc["notes"].insert(1, describe_sample(doc["sample"]))
     output.mkdir(parents=True, exist_ok=True)
     atomic_write_json(output / "audit.json", doc)
     write_page(output / "audit.html", render_audit_html(doc))

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .._tables import format_table
+from ..corpus.sample import describe_sample
 from ..report import charts
 from ..report import html as report
 from .words import JOIN, PARTIAL, SPACE_MARK, fragmented_words
@@ -124,6 +125,7 @@ def format_audit_table(doc: dict[str, Any]) -> str:
         )
     note = doc["notes"][0] if doc.get("notes") else ""
     out = [
+        *([textwrap.fill(describe_sample(doc["sample"]), width=100)] if doc.get("sample") else []),
         words_line(doc),
         _format_rows(rows),
         textwrap.fill(_LEGEND + (_CROSSING if crossing else ""), width=100),
@@ -302,7 +304,8 @@ def render_audit_html(doc: dict[str, Any]) -> str:
     )
     return report.page(
         title="Vocabulary fragmentation audit",
-        subtitle="Corpus: " + ", ".join(doc["corpus"]) + "; " + words_line(doc),
+        subtitle="Corpus: " + ", ".join(doc["corpus"]) + "; " + words_line(doc)
+        + (" " + describe_sample(doc["sample"]) if doc.get("sample") else ""),
         sections=sections,
         notes=notes,
     )

@@ -9,13 +9,11 @@ import click
 
 from ..errors import MaskprepError
 from .._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, \
-    make_corpus_options, make_words, user_errors, words_option
+    make_corpus_options, make_sample, make_words, sample_options, user_errors, words_option
 from .group import cli
 
 __all__ = ["train_tokenizer_cmd", "parse_vocab_sizes", "audit_cmd"]
 
-
-# ---------------------------------------------------------------- train-tokenizer / audit (lead)
 
 @cli.command("train-tokenizer", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
@@ -40,6 +38,7 @@ __all__ = ["train_tokenizer_cmd", "parse_vocab_sizes", "audit_cmd"]
     "--lowercase/--no-lowercase", default=True, show_default=True, help="Lowercase the text first."
 )
 @click.option("--overwrite", is_flag=True, help="Replace the output file if it exists.")
+@sample_options
 @corpus_options
 @click.pass_context
 @user_errors
@@ -51,21 +50,28 @@ def train_tokenizer_cmd(
     vocab_size: int,
     lowercase: bool,
     overwrite: bool,
+    sample: str | None,
+    sample_seed: int,
     **copts: Any,
 ) -> None:
-    """Train a tokenizer on CORPUS (files, directories or globs).
+    """Train a tokenizer on CORPUS (files, directories or globs), or on a --sample of it.
 
     The tokenizer gets five special tokens, recorded in the file: padding,
     unknown, sequence start, separator and mask.
     """
     from .._paths import check_apart, refuse_existing_file
-    from ..audit.measure import train_on_corpus
+    from ..audit.training import train_on_sample
+    from ..corpus.sample import describe_sample
 
+    spec = make_sample(sample, sample_seed)
     check_apart(output, corpus)
     refuse_existing_file(output, overwrite=overwrite)
-    info = train_on_corpus(list(corpus), model=model, vocab_size=vocab_size, lowercase=lowercase,
-                           corpus_options=make_corpus_options(**copts), output=Path(output),
-                           quiet=is_quiet(ctx))
+    trained = train_on_sample(list(corpus), model=model, vocab_size=vocab_size,
+                              lowercase=lowercase, corpus_options=make_corpus_options(**copts),
+                              output=Path(output), quiet=is_quiet(ctx), sample=spec)
+    info = trained.info
+    if trained.sample is not None:
+        click.echo(describe_sample(trained.sample))
     click.echo(f"wrote {output}: {info.vocab_size} tokens ({model}), special tokens "
                + ", ".join(f"{r}={t}" for r, t in info.describe()["special_tokens"].items()))
 
@@ -111,6 +117,7 @@ def parse_vocab_sizes(text: str | None) -> list[int]:
 )
 @click.option("--top-words", type=int, default=25, show_default=True,
               help="How many badly fragmented frequent words to list.")
+@sample_options
 @words_option
 @corpus_options
 @click.pass_context
@@ -124,18 +131,22 @@ def audit_cmd(
     lowercase: bool,
     output: str,
     top_words: int,
+    sample: str | None,
+    sample_seed: int,
     **copts: Any,
 ) -> None:
-    """Measure how a vocabulary fragments the words of CORPUS.
+    """Measure how a vocabulary fragments the words of CORPUS (or of a --sample of it).
 
     Writes DIR/audit.json, DIR/audit.html (chart of tokens per word by
-    frequency band) and prints a table.
+    frequency band) and prints a table. With --sample, the tokenizers of
+    --vocab-sizes are trained on the same sample, and every output says so.
     """
     from ..audit.measure import AuditConfig, run_audit
     from ..audit.page import format_audit_table
 
     from ..encoded.format import is_encoded_dir
 
+    spec = make_sample(sample, sample_seed)
     sizes = parse_vocab_sizes(vocab_sizes)
     if not tokenizers and not sizes and not any(is_encoded_dir(c) for c in corpus):
         raise MaskprepError(
@@ -158,6 +169,7 @@ def audit_cmd(
         corpus_options=co,
         quiet=is_quiet(ctx),
         executor=executor_from(ctx),
+        sample=spec,
         words=words_cfg,
     )
     click.echo(format_audit_table(result))

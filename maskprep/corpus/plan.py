@@ -17,8 +17,8 @@ from ..errors import MaskprepError
 from .discover import detect_format
 from .types import TEXT_FORMATS, CorpusOptions, CorpusTask
 
-__all__ = ["task_size", "plan_tasks", "task_weights", "corpus_fingerprint", "MIN_TASK_BYTES",
-           "MAX_TASK_BYTES", "TASKS_WANTED"]
+__all__ = ["task_size", "chunk_for", "plan_tasks", "task_weights", "corpus_fingerprint",
+           "MIN_TASK_BYTES", "MAX_TASK_BYTES", "TASKS_WANTED"]
 
 MIN_TASK_BYTES = 1 << 20
 MAX_TASK_BYTES = 64 << 20
@@ -26,17 +26,25 @@ TASKS_WANTED = 32
 
 
 def task_size(files: list[Path], options: CorpusOptions = CorpusOptions()) -> int:
-    """Bytes per task: `options.chunk_bytes`, or else the power of two nearest below 1/32 of the
-    corpus's bytes on disk, from 1 MiB to 64 MiB, so a corpus makes enough tasks to keep every core
-    busy to the end
-    (the split depends on the files only, never on the number of workers).
+    """Bytes per task: `options.chunk_bytes`, or else `chunk_for` the corpus's bytes on disk.
+
+    The split depends on the files only, never on the number of workers.
 
     >>> task_size([]) >> 20
     1
     """
     if options.chunk_bytes is not None:
         return options.chunk_bytes
-    total = sum(os.path.getsize(f) for f in files)
+    return chunk_for(sum(os.path.getsize(f) for f in files))
+
+
+def chunk_for(total: float) -> int:
+    """The power of two nearest below 1/32 of `total` bytes, from 1 MiB to 64 MiB, so a corpus
+    makes enough tasks to keep every core busy to the end.
+
+    >>> chunk_for(0) >> 20, chunk_for(320 << 20) >> 20, chunk_for(1e12) >> 20
+    (1, 8, 64)
+    """
     size = MIN_TASK_BYTES
     while size * 2 <= min(total / TASKS_WANTED, MAX_TASK_BYTES):
         size *= 2
@@ -85,7 +93,9 @@ def task_weights(tasks: list[CorpusTask]) -> list[float]:
         per_file[t.path] = per_file.get(t.path, 0) + 1
     out = []
     for t in tasks:
-        if t.fmt in TEXT_FORMATS and t.compression is None and t.end >= 0:
+        if t.pick is not None and t.pick.ranges:  # a sample's byte ranges: what it reads
+            out.append(float(sum(e - s for s, e in t.pick.ranges)))
+        elif t.fmt in TEXT_FORMATS and t.compression is None and t.end >= 0:
             out.append(float(t.end - t.start))
         else:
             out.append(os.path.getsize(t.path) / per_file[t.path])

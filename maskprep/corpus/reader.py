@@ -18,11 +18,14 @@ and byte offset. Empty documents are skipped and counted.
 
 from __future__ import annotations
 
+import dataclasses
+import itertools
 import sys
 from typing import Iterator
 
 from .discover import detect_format, resolve_inputs
 from .pieces import PIECE_BYTES, Continued, text_pieces
+from .sample import keeps_document
 from .plan import corpus_fingerprint, plan_tasks, task_size, task_weights
 from .tables import iter_table_documents
 from .text import iter_text_documents
@@ -54,14 +57,31 @@ def iter_documents(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
     ['first document', 'second document']
     """
     stats = stats if stats is not None else ReadStats()
-    if task.fmt == "txt":  # text files come in pieces already
-        source = iter_text_documents(task, options, stats)
+    pick = task.pick
+    if pick is not None and pick.ranges:  # a sample's byte ranges: only they are read
+        parts = (dataclasses.replace(task, start=s, end=e, pick=None) for s, e in pick.ranges)
+        source: Iterator[str] = itertools.chain.from_iterable(
+            _pieces_of(part, options, stats) for part in parts
+        )
     else:
-        whole = iter_text_documents(task, options, stats) if task.fmt in TEXT_FORMATS else \
-            iter_table_documents(task, options, stats)
-        source = (Continued(p) if i else p for doc in whole for i, p in enumerate(text_pieces(doc)))
+        source = _pieces_of(task, options, stats)
+    read_before = stats.bytes_read
+    coin = pick is not None and not pick.ranges
+    keep, ordinal, seen_text, kept_text = True, 0, 0, 0
     cut = 0
     for doc in source:
+        if coin:  # a seeded coin per document; its later pieces follow its first
+            assert pick is not None
+            size = len(doc.encode("utf-8", "surrogatepass"))
+            seen_text += size
+            if not isinstance(doc, Continued):
+                keep = keeps_document(pick, task.start, ordinal)
+                ordinal += 1
+            if not keep:
+                continue
+            kept_text += size
+        elif pick is not None:
+            kept_text += len(doc.encode("utf-8", "surrogatepass"))
         if isinstance(doc, Continued):  # a later piece of a long document: not counted again
             cut += 1
             if doc.strip():
@@ -71,12 +91,27 @@ def iter_documents(task: CorpusTask, options: CorpusOptions = CorpusOptions(),
             yield doc
         else:
             stats.empty_skipped += 1
+    if pick is not None:
+        stats.sample_text_bytes += kept_text
+        stats.sample_disk_bytes += (
+            round(pick.weight * kept_text / seen_text) if coin and seen_text
+            else 0 if coin else stats.bytes_read - read_before
+        )
     if cut:
         sys.stderr.write(
             f"note: {task.describe()}: documents longer than {PIECE_BYTES:,} bytes were cut into "
             f"{cut:,} more piece(s) of at most that size; each piece is treated as a document "
             "(n-grams do not span a cut, packing separates the pieces)\n"
         )
+
+
+def _pieces_of(task: CorpusTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+    """A task's documents, those longer than a piece in pieces (all but the first `Continued`)."""
+    if task.fmt == "txt":  # text files come in pieces already
+        return iter_text_documents(task, options, stats)
+    whole = iter_text_documents(task, options, stats) if task.fmt in TEXT_FORMATS else \
+        iter_table_documents(task, options, stats)
+    return (Continued(p) if i else p for doc in whole for i, p in enumerate(text_pieces(doc)))
 
 
 def iter_batches(

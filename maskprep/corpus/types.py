@@ -1,7 +1,8 @@
 """The corpus's leaf types: how to read files, one task of reading work, and what reading counted.
 
-`CorpusOptions` holds the reading options, `CorpusTask` a file or a part of one, `ReadStats`
-the counts gathered while reading. They import nothing else of the package but its error type.
+`CorpusOptions` holds the reading options, `CorpusTask` a file or a part of one (`Pick`: the
+documents a sampled task keeps, see `corpus.sample`), `ReadStats` the counts gathered while
+reading. They import nothing else of the package but its error type.
 """
 
 from __future__ import annotations
@@ -11,7 +12,7 @@ from typing import Any
 
 from ..errors import MaskprepError
 
-__all__ = ["TEXT_FORMATS", "TABLE_FORMATS", "CorpusOptions", "CorpusTask", "ReadStats"]
+__all__ = ["TEXT_FORMATS", "TABLE_FORMATS", "CorpusOptions", "Pick", "CorpusTask", "ReadStats"]
 
 TEXT_FORMATS = ("txt", "jsonl")
 TABLE_FORMATS = ("parquet", "arrow")
@@ -41,6 +42,24 @@ class CorpusOptions:
 
 
 @dataclass(frozen=True)
+class Pick:
+    """Which documents of a task a sample keeps (`corpus.sample` makes them).
+
+    With `ranges`, the task reads only those byte ranges of its file and keeps every document
+    (line) that begins in one of them. Without, it reads the whole task and keeps each document
+    with probability `share`, by a coin drawn from (`seed`, `stream`, the task's start, the
+    document's position in the task). `weight` is the task's bytes on disk, for the estimate of
+    the bytes on disk that a coin sample stands for.
+    """
+
+    ranges: tuple[tuple[int, int], ...] = ()
+    share: float = 1.0
+    seed: int = 0
+    stream: int = 0
+    weight: float = 0.0
+
+
+@dataclass(frozen=True)
 class CorpusTask:
     """One unit of reading work: a file, or a part of one.
 
@@ -55,8 +74,15 @@ class CorpusTask:
     compression: str | None
     start: int = 0
     end: int = -1
+    pick: Pick | None = None  # a sample's documents only (None: every document)
 
     def describe(self) -> str:
+        if self.pick is not None and self.pick.ranges:
+            n = len(self.pick.ranges)
+            ranges = f"{n} byte range{'s' * (n != 1)}"
+            return f"{self.path} (sample: {ranges} in {self.start}-{self.end})"
+        if self.pick is not None:
+            return f"{self.path} (sample: each document with probability {self.pick.share:.4g})"
         if self.start == 0 and self.end == -1:
             return self.path
         unit = (
@@ -78,19 +104,30 @@ class ReadStats:
     # literal special-token strings of the text ("[MASK]") that the tokenizer read as special
     # tokens, by string; filled by `encode_stream(..., stats=)`
     literal_specials: dict[str, int] = field(default_factory=dict)
+    # a sample only (`corpus.sample`): UTF-8 bytes of the kept documents' text, and the bytes on
+    # disk they stand for (exact for byte ranges, estimated for a coin per document)
+    sample_text_bytes: int = 0
+    sample_disk_bytes: int = 0
 
     def merge(self, other: "ReadStats") -> None:
         self.documents += other.documents
         self.empty_skipped += other.empty_skipped
         self.invalid_utf8 += other.invalid_utf8
         self.bytes_read += other.bytes_read
+        self.sample_text_bytes += other.sample_text_bytes
+        self.sample_disk_bytes += other.sample_disk_bytes
         for s, n in other.literal_specials.items():
             self.literal_specials[s] = self.literal_specials.get(s, 0) + n
 
     def to_dict(self) -> dict[str, Any]:
-        return {"documents": self.documents, "empty_skipped": self.empty_skipped,
-                "invalid_utf8_replaced": self.invalid_utf8, "bytes_read": self.bytes_read,
-                "literal_special_tokens": dict(sorted(self.literal_specials.items()))}
+        """The counts as JSON; the sample's two keys only when a sample was read."""
+        out = {"documents": self.documents, "empty_skipped": self.empty_skipped,
+               "invalid_utf8_replaced": self.invalid_utf8, "bytes_read": self.bytes_read,
+               "literal_special_tokens": dict(sorted(self.literal_specials.items()))}
+        if self.sample_text_bytes or self.sample_disk_bytes:
+            out["sample_text_bytes"] = self.sample_text_bytes
+            out["sample_disk_bytes"] = self.sample_disk_bytes
+        return out
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> "ReadStats":
@@ -100,4 +137,6 @@ class ReadStats:
             int(d["invalid_utf8_replaced"]),
             int(d["bytes_read"]),
             {str(k): int(v) for k, v in d.get("literal_special_tokens", {}).items()},
+            int(d.get("sample_text_bytes", 0)),
+            int(d.get("sample_disk_bytes", 0)),
         )

@@ -14,8 +14,9 @@ table is present)::
     [corpus]    paths = ["data/"], doc_sep, text_field, text_column, strict,
                 words = "tokenizer" | "zh" | "ja" | "th" | "auto" | "cohesion" (one word
                 definition for every stage, so counts, units and masks agree)
-    [tokenizer] path = "tokenizer.json" | model, vocab_size, lowercase (train one)
-    [audit]     vocab_sizes, tokenizers, model, lowercase, top_words, include_tokenizer
+    [tokenizer] path = "tokenizer.json" | model, vocab_size, lowercase (train one), sample, seed
+    [audit]     vocab_sizes, tokenizers, model, lowercase, top_words, include_tokenizer, sample,
+                seed (sample = "10%" or "200MB": a seeded sample, as --sample of the commands)
     [count]     max_n, min_count, memory
     [units]     measure, top, min_count, per_length, max_n, edge_words, fragment_share
     [mask]      strategies, rate, mix, mix_per, span_p, span_max, seq_len, pack, copies, seed,
@@ -52,7 +53,8 @@ SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
         "strict": (bool,),
         "words": (str,),
     },
-    "tokenizer": {"path": (str,), "model": (str,), "vocab_size": (int,), "lowercase": (bool,)},
+    "tokenizer": {"path": (str,), "model": (str,), "vocab_size": (int,), "lowercase": (bool,),
+                  "sample": (str, float, int), "seed": (int,)},
     "audit": {
         "vocab_sizes": (list,),
         "tokenizers": (list,),
@@ -60,6 +62,8 @@ SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
         "lowercase": (bool,),
         "top_words": (int,),
         "include_tokenizer": (bool,),
+        "sample": (str, float, int),
+        "seed": (int,),
     },
     "count": {"max_n": (int,), "min_count": (int,), "memory": (str, int)},
     "units": {
@@ -140,6 +144,7 @@ class RunConfig:
     compare: Any = None  # CompareConfig or None
     text: str = field(default="", repr=False)
     words: str = "tokenizer"  # [corpus] words: the word definition of every stage
+    train_sample: Any = None  # [tokenizer] sample: a corpus.sample.SampleSpec or None
 
 
 def find_key_line(text: str, section: str, key: str | None) -> int | None:
@@ -330,7 +335,8 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
         tokenizer_path = c.path_of("tokenizer", "path", tok["path"])
     else:
         _each(c, "tokenizer", "model,vocab_size,lowercase", tok, TrainConfig)
-        train = TrainConfig(**tok)
+        train = TrainConfig(**{k: v for k, v in tok.items() if k not in ("sample", "seed")})
+    train_sample = _sample(c, "tokenizer", tok)
 
     audit = _audit(c)
     count = _count(c)
@@ -351,7 +357,22 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
         compare=compare,
         text=text,
         words=words,
+        train_sample=train_sample,
     )
+
+
+def _sample(c: _Checker, section: str, table: Mapping[str, Any]) -> Any:
+    """The `SampleSpec` of a table's sample / seed keys, or None."""
+    from ..corpus.sample import SampleSpec
+
+    if "seed" in table and "sample" not in table:
+        raise c.fail(section, "seed", "seed chooses a sample: give sample too")
+    if "sample" not in table:
+        return None
+    seed = table.get("seed", 0)
+    c.check(section, "seed", seed, lambda s: SampleSpec(share=1.0, seed=s))
+    return c.check(section, "sample", table["sample"],
+                   lambda v: SampleSpec.parse(v, seed, option="sample"))
 
 
 def _audit(c: _Checker) -> dict[str, Any] | None:
@@ -387,6 +408,7 @@ def _audit(c: _Checker) -> dict[str, Any] | None:
         "lowercase": a.get("lowercase", True),
         "top_words": top,
         "include_tokenizer": include,
+        "sample": _sample(c, "audit", a),
     }
 
 

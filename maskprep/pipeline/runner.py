@@ -317,10 +317,13 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                 quiet=quiet,
                 name=f"{train.model}-{train.vocab_size}",
                 option=f"{cfg.path}: [tokenizer] vocab_size",
+                sample=cfg.train_sample,
             )
             return ["tokenizer.json"]
 
-        runner.stage("tokenizer", "tokenizer", train, base_inputs, run_tok)
+        tok_options = train if cfg.train_sample is None else {"train": train,
+                                                               "sample": cfg.train_sample}
+        runner.stage("tokenizer", "tokenizer", tok_options, base_inputs, run_tok)
         tok_path = out / "tokenizer" / "tokenizer.json"
     else:
         assert cfg.tokenizer_path is not None
@@ -361,6 +364,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
 
         # only the run's own tokenizer can read the encoded directory; others tokenize the raw text
         own = not audit_cfg.vocab_sizes and all(Path(p) == Path(tok_path) for p in given)
+        own = own and a["sample"] is None  # a sample is drawn from the raw text
 
         def run_aud(d: Path) -> list[str]:
             run_audit(
@@ -372,6 +376,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                 executor=executor,
                 size_option="[audit] vocab_sizes",
                 words=words,
+                sample=a["sample"],
             )
             return _files_in(d)
 
