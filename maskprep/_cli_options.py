@@ -26,6 +26,8 @@ __all__ = [
     "budget_option",
     "sample_options",
     "make_sample",
+    "tokenizer_option",
+    "model_option",
 ]
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
@@ -83,6 +85,24 @@ def budget_option(fn: Callable[..., Any]) -> Callable[..., Any]:
         "worker holds: one encoded batch and, for mask, the rows of one shard file "
         "per copy.",
     )(fn)
+
+
+def tokenizer_option(
+    help: str = "The tokenizer.json to encode with (optional when CORPUS is an encoded directory).",
+) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
+    """-t / --tokenizer of the stages that also read an encoded directory (then optional)."""
+    return click.option("-t", "--tokenizer", default=None, type=click.Path(), help=help)
+
+
+def model_option(help: str) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
+    """--model: the family of the tokenizers a command trains."""
+    return click.option(
+        "--model",
+        type=click.Choice(["wordpiece", "bpe", "unigram"]),
+        default="wordpiece",
+        show_default=True,
+        help=help,
+    )
 
 
 def sample_options(fn: Callable[..., Any]) -> Callable[..., Any]:

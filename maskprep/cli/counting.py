@@ -9,14 +9,20 @@ import click
 
 from ..errors import MaskprepError
 from ..wording import plural
-from .._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, \
-    make_words, user_errors, words_option
+from .._cli_options import (
+    CONTEXT,
+    corpus_options,
+    executor_from,
+    is_quiet,
+    make_words,
+    tokenizer_option,
+    user_errors,
+    words_option,
+)
 from .group import cli
 
 __all__ = ["encode_cmd", "count_cmd", "units_cmd"]
 
-
-# ---------------------------------------------------------------- encode
 
 @cli.command("encode", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
@@ -58,17 +64,11 @@ def encode_cmd(
     click.echo(format_encode_summary(manifest))
 
 
-# ---------------------------------------------------------------- count (ngrams engineer)
-
 @cli.command("count", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option(
-    "-t",
-    "--tokenizer",
-    default=None,
-    type=click.Path(),
-    help="The tokenizer.json whose pre-tokenization defines the words (optional when CORPUS is an "
-    "encoded directory: it must then be the one it was encoded with).",
+@tokenizer_option(
+    "The tokenizer.json whose pre-tokenization defines the words (optional when CORPUS is an "
+    "encoded directory: it must then be the one it was encoded with)."
 )
 @click.option("-o", "--output", required=True, type=click.Path(), help="COUNTS_DIR to write.")
 @click.option(
@@ -131,8 +131,6 @@ def count_cmd(
                            overwrite=overwrite, quiet=is_quiet(ctx), resume=resume)
     click.echo(format_summary(summary))
 
-
-# ---------------------------------------------------------------- units (units engineer)
 
 _MEASURE_HELP = (
     "Cohesion measure: pmi = min over segmentations of log p(g) - sum log p(parts), nats, "

@@ -17,6 +17,7 @@ from .._cli_options import (
     executor_from,
     make_words,
     masking_options,
+    tokenizer_option,
     user_errors,
     words_option,
 )
@@ -45,13 +46,7 @@ def _pct(x: float | None) -> str:
 
 @cli.command("mask", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option(
-    "-t",
-    "--tokenizer",
-    default=None,
-    type=click.Path(),
-    help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).",
-)
+@tokenizer_option()
 @click.option(
     "-o",
     "--output",

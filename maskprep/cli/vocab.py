@@ -8,8 +8,19 @@ from typing import Any
 import click
 
 from ..errors import MaskprepError
-from .._cli_options import CONTEXT, corpus_options, executor_from, is_quiet, \
-    make_corpus_options, make_sample, make_words, sample_options, user_errors, words_option
+from .._cli_options import (
+    CONTEXT,
+    corpus_options,
+    executor_from,
+    is_quiet,
+    make_corpus_options,
+    make_sample,
+    make_words,
+    model_option,
+    sample_options,
+    user_errors,
+    words_option,
+)
 from .group import cli
 
 __all__ = ["train_tokenizer_cmd", "parse_vocab_sizes", "audit_cmd"]
@@ -24,13 +35,7 @@ __all__ = ["train_tokenizer_cmd", "parse_vocab_sizes", "audit_cmd"]
     type=click.Path(dir_okay=False),
     help="Where to write tokenizer.json.",
 )
-@click.option(
-    "--model",
-    type=click.Choice(["wordpiece", "bpe", "unigram"]),
-    default="wordpiece",
-    show_default=True,
-    help="Tokenizer family (bpe is byte-level).",
-)
+@model_option("Tokenizer family (bpe is byte-level).")
 @click.option(
     "--vocab-size", type=int, default=30000, show_default=True, help="Vocabulary size to train."
 )
@@ -103,13 +108,7 @@ def parse_vocab_sizes(text: str | None) -> list[int]:
     metavar="N,N,...",
     help="Also train tokenizers of these sizes on the corpus and audit them, e.g. 2000,8000,30000.",
 )
-@click.option(
-    "--model",
-    type=click.Choice(["wordpiece", "bpe", "unigram"]),
-    default="wordpiece",
-    show_default=True,
-    help="Family of the tokenizers trained for --vocab-sizes.",
-)
+@model_option("Family of the tokenizers trained for --vocab-sizes.")
 @click.option("--lowercase/--no-lowercase", default=True, show_default=True,
               help="Lowercasing of the tokenizers trained for --vocab-sizes.")
 @click.option(

@@ -9,15 +9,23 @@ import click
 
 from ..errors import MaskprepError
 from ..wording import plural
-from .._cli_options import CONTEXT, budget_option, corpus_options, executor_from, is_quiet, \
-    make_words, masking_options, user_errors, words_option
+from .._cli_options import (
+    CONTEXT,
+    budget_option,
+    corpus_options,
+    executor_from,
+    is_quiet,
+    make_words,
+    masking_options,
+    tokenizer_option,
+    user_errors,
+    words_option,
+)
 from .group import cli
 from .shards import units_note
 
 __all__ = ["compare_cmd", "run_cmd", "demo_cmd"]
 
-
-# ---------------------------------------------------------------- compare / run / demo (lead)
 
 def _parse_sample(text: str) -> int | None:
     if text.strip().lower() == "all":
@@ -32,13 +40,7 @@ def _parse_sample(text: str) -> int | None:
 
 @cli.command("compare", context_settings=CONTEXT)
 @click.argument("corpus", nargs=-1, required=True)
-@click.option(
-    "-t",
-    "--tokenizer",
-    default=None,
-    type=click.Path(),
-    help="The tokenizer.json to encode with (optional when CORPUS is an encoded directory).",
-)
+@tokenizer_option()
 @click.option(
     "--units",
     "units_path",
