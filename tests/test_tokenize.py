@@ -117,11 +117,13 @@ def test_literal_special_token_is_one_special_word(trained: dict[str, object], f
 @pytest.mark.parametrize("family", FAMILIES)
 def test_word_keys_are_content_based(trained: dict[str, object], family: str) -> None:
     info = trained[family]
-    b = encode_documents(info, ["the king and the queen", "The king, the king!"])  # type: ignore[arg-type]
+    docs = ["the king and the queen", "The king, the king!"]
+    b = encode_documents(info, docs)  # type: ignore[arg-type]
     texts = {}
     for w in range(b.num_words):
         ids = b.ids[b.word_offsets[w]:b.word_offsets[w + 1]].tolist()
-        texts.setdefault(int(b.word_keys[w]), set()).add(info.tokenizer.decode(ids).strip())  # type: ignore
+        text = info.tokenizer.decode(ids).strip()  # type: ignore[attr-defined]
+        texts.setdefault(int(b.word_keys[w]), set()).add(text)
     assert all(len(v) == 1 for v in texts.values())
     kinds = dict(zip([t for v in texts.values() for t in v], [0] * 99))
     assert "," in kinds and "!" in kinds
@@ -203,7 +205,8 @@ def test_vocab_size_beyond_corpus_says_what_it_reached() -> None:
 
 
 def test_bpe_training_is_reproducible(shakespeare_small: Path) -> None:
-    # Same corpus and options give a byte-identical byte-level BPE tokenizer (checked five times by hand).
+    # Same corpus and options give a byte-identical byte-level BPE tokenizer (checked five times
+    # by hand).
     from maskprep.corpus.reader import iter_corpus
 
     a = train_tokenizer(
@@ -259,7 +262,8 @@ def _word_id_starts(info: object, texts: list[str]) -> tuple[np.ndarray, np.ndar
     """Token ids and word starts from the library's own word ids (Encoding.word_ids)."""
     from maskprep.tokenizer.grouping import starts_from_word_ids
 
-    encs = info.tokenizer.encode_batch(texts, add_special_tokens=False)  # type: ignore[attr-defined]
+    tok = info.tokenizer  # type: ignore[attr-defined]
+    encs = tok.encode_batch(texts, add_special_tokens=False)
     ids = np.array([i for e in encs for i in e.ids], dtype=np.int64)
     wid = np.array([-1 if w is None else w for e in encs for w in e.word_ids], dtype=np.int64)
     starts = starts_from_word_ids(wid)

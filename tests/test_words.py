@@ -87,7 +87,8 @@ def test_segmenter_gives_jiebas_documented_segmentations():
         "我来到北京清华大学": ["我", "来到", "北京", "清华大学"],
         "他来到了网易杭研大厦": ["他", "来到", "了", "网易", "杭研", "大厦"],
         "小明硕士毕业于中国科学院计算所，后在日本京都大学深造":
-            ["小明", "硕士", "毕业", "于", "中国科学院", "计算所", "，", "后", "在", "日本京都大学", "深造"],
+            ["小明", "硕士", "毕业", "于", "中国科学院", "计算所", "，", "后", "在",
+             "日本京都大学", "深造"],
     }
     info = load_tokenizer_for_tests()
     for sentence, words in documented.items():
@@ -97,7 +98,10 @@ def test_segmenter_gives_jiebas_documented_segmentations():
 
 
 def load_tokenizer_for_tests():
-    """A byte-level BPE tokenizer with no training: every character is bytes, so words come from the segmenter."""
+    """A byte-level BPE tokenizer with no training.
+
+    Every character is bytes, so words come from the segmenter.
+    """
     from tokenizers import Tokenizer, decoders, models, pre_tokenizers
 
     from maskprep.tokenizer.encoding import TokenizerInfo
@@ -117,7 +121,8 @@ def test_mixed_chinese_and_english_text_is_right_for_both_scripts(zh_wordpiece):
     # Reference: Han runs are cut as rjieba cuts them; everything else keeps the tokenizer's own
     # words (its pre-tokenization), both from outside this project.
     info = load_tokenizer(zh_wordpiece)
-    docs = ["Debian 是一个自由的操作系统，version 3.14 于2024年发布。Linux 内核和 GNU 工具组成了它。",
+    docs = ["Debian 是一个自由的操作系统，version 3.14 于2024年发布。"
+            "Linux 内核和 GNU 工具组成了它。",
             "我们在 GitHub 上找到了 rjieba 的源代码, 它用 Rust 写成。"]
     zh = encode_documents(info, docs, WordsConfig("zh"))
     plain = encode_documents(info, docs)
@@ -152,7 +157,7 @@ def test_boundary_crossing_tokens_join_the_word_they_start_in(zh_bpe):
 
 
 def _python_words(doc: str, enc) -> dict:
-    """The word index of each token and the crossing count, computed one token at a time in plain Python."""
+    """The word index of each token and the crossing count, one token at a time in plain Python."""
     han = [bool(HAN_RUN.fullmatch(ch)) for ch in doc]
     seg_of_char: list[int | None] = [None] * len(doc)
     seg_end: dict[int, int] = {}
@@ -464,7 +469,8 @@ def test_cohesion_words_are_mostly_in_a_published_lexicon(zh_corpus, zh_wordpiec
     share = sum(w in lexicon for w in multi) / len(multi)
     control = sum(w in lexicon for w, _ in bigrams.most_common(500)) / 500
     print(
-        f"cohesion words in jieba/dict.txt: {share:.0%} of the top 500; frequent bigrams: {control:.0%}"
+        f"cohesion words in jieba/dict.txt: {share:.0%} of the top 500; "
+        f"frequent bigrams: {control:.0%}"
     )
     assert len(multi) == 500 and share >= 0.8 and share > control + 0.1
 

@@ -1,4 +1,4 @@
-"""Stage 3, encode: a corpus tokenized once (token ids, words, documents) that every later stage can read.
+"""Stage 3, encode: a corpus tokenized once (token ids, words, documents) for every later stage.
 
 It writes and reads encoded directories and hands any stage its batches from
 raw text or from an encoded directory alike; it does not count or mask.

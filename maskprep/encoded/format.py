@@ -8,7 +8,8 @@ later stages read token ids and word boundaries instead of tokenizing again::
         tokenizer.json        a copy of the tokenizer the ids belong to
         docs-TTTTT.arrow      corpus task T: one row per document
         words-TTTTT.arrow     corpus task T: one row per distinct word of the task
-        .maskprep/            while unfinished: the run's options and one record per finished task
+        .maskprep/            while unfinished: the run's options (run.json), one record per
+                              finished task and, while a run writes, its lock
 
 ``docs-*.arrow`` (Arrow IPC file, one record batch per encoded batch of the
 reader, about 1 MiB of text each): ``words`` list<uint32>, the index in the
@@ -41,6 +42,7 @@ from typing import Any, Iterator, Mapping
 import numpy as np
 
 from .._files import read_json
+from .._resume import RUN_NAME
 from ..errors import MaskprepError
 from ..tokenizer.encoding import EncodedBatch
 
@@ -66,16 +68,16 @@ FORMAT = "maskprep-encoded"
 FORMAT_VERSION = 1
 MANIFEST = "encoded.json"
 STATE_DIR = ".maskprep"
-BATCH_CHARS = (
-    1 << 20
-)  # characters per batch, as `corpus.iter_batches` reads them for mask and compare
+# characters per batch, as `corpus.iter_batches` reads them for mask and compare
+BATCH_CHARS = 1 << 20
 COMPRESSION = "zstd"
-# EncodedBatch fields other than the structure (ids, word_offsets, doc_offsets), by what they describe,
-# with their column names; tests fail if EncodedBatch gains a field not listed here.
+# EncodedBatch fields other than the structure (ids, word_offsets, doc_offsets), by what they
+# describe, with their column names; tests fail if EncodedBatch gains a field not listed here.
 PER_WORD: Mapping[str, str] = {"word_keys": "key", "word_kinds": "kind", "word_chars": "chars"}
 PER_DOC: Mapping[str, str] = {}
 STRUCTURE = ("ids", "word_offsets", "doc_offsets")
-# Batch fields kept per task in the manifest (a total; batches read back carry 0): boundary-crossing tokens.
+# Batch fields kept per task in the manifest (a total; batches read back carry 0):
+# boundary-crossing tokens.
 PER_TASK = ("crossing_tokens",)
 
 
@@ -98,7 +100,7 @@ def is_encoded_dir(path: str | Path) -> bool:
 def is_unfinished_encoded_dir(path: str | Path) -> bool:
     """A directory an interrupted `maskprep encode` left (its state, no manifest)."""
     p = Path(path)
-    return p.is_dir() and not (p / MANIFEST).exists() and (p / STATE_DIR / "encode.json").is_file()
+    return p.is_dir() and not (p / MANIFEST).exists() and (p / STATE_DIR / RUN_NAME).is_file()
 
 
 @dataclass(frozen=True)
@@ -144,7 +146,10 @@ class EncodedTask:
         return cls(**values)
 
     def located(self, directory: Path) -> "EncodedTask":
-        """The same task with absolute file paths (a Dask worker's working directory is not the driver's)."""
+        """The same task with absolute file paths.
+
+        A Dask worker's working directory is not the driver's.
+        """
         d = directory.resolve()
         return dataclasses.replace(
             self, docs=str(d / Path(self.docs).name), words=str(d / Path(self.words).name)

@@ -100,14 +100,17 @@ class Source:
         return ", ".join(self.inputs)
 
     def read_totals(self) -> ReadStats | None:
-        """Read statistics of the whole corpus when known without reading (encoded input), else None."""
+        """Read statistics of the whole corpus if known unread (encoded input), else None."""
         if self.manifest is None:
             return None
         return read_stats_of(self.manifest.corpus["read"])
 
     def tokenizer(self, given: str | Path | TokenizerInfo | None, *, stage: str) -> TokenizerInfo:
-        """The tokenizer to use: ``-t`` for raw input (required); for an encoded directory its own copy,
-        or ``-t`` if it is the same tokenizer (same hash), else a clear error."""
+        """The tokenizer to use.
+
+        ``-t`` for raw input (required); for an encoded directory its own copy, or ``-t`` if it
+        is the same tokenizer (same hash), else a clear error.
+        """
         if self.manifest is None:
             if given is None:
                 raise MaskprepError(
@@ -132,7 +135,7 @@ class Source:
         return info
 
     def check_words(self, words: Any) -> Any:
-        """`words` (a `WordsConfig`), checked against the word definition an encoded directory was made with."""
+        """`words` (a `WordsConfig`), checked against an encoded directory's word definition."""
         if self.manifest is None:
             return words
         recorded = self.manifest.doc.get("words", "tokenizer")
@@ -173,8 +176,8 @@ def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = No
                 task_bytes: int | None = None) -> Source:
     """A stage's CORPUS arguments as a `Source`: ``open_source(["enc/"]).encoded`` -> True.
 
-    `task_bytes` caps the size of the raw corpus tasks (count uses smaller tasks); an encoded directory
-    keeps the tasks it was written with.
+    `task_bytes` caps the size of the raw corpus tasks (count uses smaller tasks); an encoded
+    directory keeps the tasks it was written with.
     """
     options = options or CorpusOptions()
     names = [str(i) for i in inputs]
@@ -237,7 +240,7 @@ class TaskReader:
         self._table: WordTable | None = None
 
     def word_table(self) -> WordTable | None:
-        """The task's word types (encoded input only; raw input has them in the tokenizer's cache)."""
+        """The task's word types (encoded input only; raw input: in the tokenizer's cache)."""
         if self.task.encoded is None:
             return None
         if self._table is None:

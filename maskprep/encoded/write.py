@@ -1,16 +1,21 @@
-"""`maskprep encode`: tokenize a corpus once into an encoded directory (layout: `maskprep.encoded.format`).
+"""`maskprep encode`: tokenize a corpus once into an encoded directory.
 
-`encode_corpus` splits the corpus into tasks exactly as `mask` and `compare`
-do (`corpus.plan_tasks`) and runs `encode_task` for each through
-`execute.map_tasks` (local processes or Dask). A task reads its documents in
-batches of about `BATCH_CHARS` characters, encodes them, gives every word
-the index of its word type in the task (types first seen first), and
-streams one record batch per encoded batch into ``docs-T.arrow``; the word
-table goes to ``words-T.arrow`` when the task ends. A task writes its files
-under temporary names, renames them, and then records itself in
-``.maskprep/``; ``--resume`` keeps every task whose record matches this run
-and whose files still have their recorded size and sha256. The driver writes
-``tokenizer.json`` and, last, ``encoded.json``, then removes the state.
+The layout is in `maskprep.encoded.format`. `encode_corpus` splits the corpus
+into tasks exactly as `mask` and `compare` do (`corpus.plan_tasks`) and runs
+`encode_task` for each through `execute.map_tasks` (local processes or Dask).
+A task reads its documents in batches of about `BATCH_CHARS` characters,
+encodes them, gives every word the index of its word type in the task
+(`maskprep.encoded.types`), and streams one record batch per encoded batch
+into ``docs-T.arrow``; the word table goes to ``words-T.arrow`` when the task
+ends. A task writes its files under temporary names, renames them, and then
+writes its done-record (files with size and sha256) in ``.maskprep/``.
+
+Resume and the lock are the shared mechanism of every stage
+(`maskprep._resume`, `ENCODE_STAGE`): the directory is locked for the whole
+run, ``--resume`` keeps every task whose record belongs to this run's options
+and whose files are intact, and refuses other options naming each one. The
+driver writes ``tokenizer.json`` and, last, ``encoded.json``, then removes the
+state.
 
 Before starting, the free space of the output filesystem is compared with
 an estimate of the directory's size (`estimate_bytes`); too little raises.
@@ -20,7 +25,6 @@ This module does not read encoded directories back (see `maskprep.encoded.source
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import shutil
@@ -30,7 +34,8 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .._files import atomic_path, atomic_write_json, atomic_write_text, file_sha256, read_json
+from .._files import atomic_path, atomic_write_json, atomic_write_text, read_json
+from .._resume import RunDir, Stage, claim, file_entry, write_record
 from .._version import __version__
 from ..corpus.reader import CorpusOptions, ReadStats
 from ..errors import MaskprepError
@@ -60,8 +65,9 @@ __all__ = [
     "BYTES_PER_TEXT_BYTE",
 ]
 
-# Measured on English prose with an 8,000-token WordPiece tokenizer (scripts/bench.py): the directory takes
-# about 0.5 bytes per byte of text; the estimate keeps a margin. Compressed inputs are taken to hold 4x their size.
+# Measured on English prose with an 8,000-token WordPiece tokenizer (scripts/bench.py): the
+# directory takes about 0.5 bytes per byte of text; the estimate keeps a margin. Compressed
+# inputs are taken to hold 4x their size.
 BYTES_PER_TEXT_BYTE = 1.0
 COMPRESSED_RATIO = 4.0
 
@@ -122,12 +128,8 @@ def _record_batch(batch: EncodedBatch, types: np.ndarray, schema: Any) -> Any:
     return pa.RecordBatch.from_arrays(cols, schema=schema)
 
 
-def _done_path(out: Path, task: int) -> Path:
-    return out / STATE_DIR / f"task-{task:05d}.json"
-
-
 def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
-    """Task function: encode one corpus task into docs-T.arrow and words-T.arrow; returns its record."""
+    """Task function: encode one corpus task into docs-T.arrow and words-T.arrow; its record."""
     import pyarrow as pa
 
     info = _tokenizer(job)
@@ -161,16 +163,17 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
             pa.ipc.new_file(sink, table.schema, options=ipc) as writer,
         ):
             writer.write_table(table)
+    docs_entry, words_entry = file_entry(out, docs_path), file_entry(out, words_path)
     rec = EncodedTask(
         index=task.index,
         source=task.label,
         weight=task.weight,
         docs=docs_path.name,
         words=words_path.name,
-        docs_bytes=docs_path.stat().st_size,
-        docs_sha256=file_sha256(docs_path),
-        words_bytes=words_path.stat().st_size,
-        words_sha256=file_sha256(words_path),
+        docs_bytes=docs_entry["bytes"],
+        docs_sha256=docs_entry["sha256"],
+        words_bytes=words_entry["bytes"],
+        words_sha256=words_entry["sha256"],
         documents=documents,
         num_words=words,
         tokens=tokens,
@@ -179,8 +182,9 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
         batches=tuple(tuple(b) for b in batches),  # type: ignore[misc]
         crossing_tokens=crossing,
     )
-    done = {"run": job.run_digest, "task": rec.to_json()}
-    atomic_write_text(_done_path(out, task.index), json.dumps(done, sort_keys=True) + "\n")
+    done = {"run": job.run_digest, "task": task.index, "record": rec.to_json(),
+            "files": [docs_entry, words_entry]}
+    write_record(out / STATE_DIR / RECORD.format(task.index), done)
     return rec.to_json()
 
 
@@ -212,79 +216,73 @@ def check_free_space(out: Path, needed: int) -> None:
 
 # ---------------------------------------------------------------- the driver
 
-def _prepare(out: Path, *, options: Mapping[str, Any], overwrite: bool, resume: bool) -> bool:
-    """Make `out` ready; True if it already holds this very encoding, finished (nothing to do)."""
-    if overwrite and resume:
-        raise MaskprepError("--overwrite and --resume exclude each other: pick one")
-    if out.exists() and not out.is_dir():
-        raise MaskprepError(f"-o {out}: exists and is not a directory")
-    entries = sorted(out.iterdir()) if out.is_dir() else []
-    state = out / STATE_DIR / "encode.json"
-    if entries and resume:
-        if (out / MANIFEST).is_file() and not state.exists():
-            old = read_json(out / MANIFEST, what="encoded manifest").get("options")
-            if old == dict(options):
-                return True
-            raise MaskprepError(
-                f"--resume: {out} holds a finished encoding with other options; use --overwrite "
-                "to replace it"
-            )
-        if not state.is_file():
-            raise MaskprepError(
-                f"--resume: {out} holds no unfinished maskprep encode run (no {STATE_DIR}/"
-                "encode.json); use --overwrite to replace its contents"
-            )
-        old = read_json(state, what="encode options")
-        diffs = [f"{k}: {json.dumps(old.get(k))} before, {json.dumps(options.get(k))} now"
-                 for k in sorted(set(old) | set(options)) if old.get(k) != options.get(k)]
-        if diffs:
-            raise MaskprepError(
-                f"--resume: the options differ from the run in {out} ("
-                + "; ".join(diffs)
-                + "); rerun with the same options, or use --overwrite"
-            )
-        for tmp in [*out.glob(".*.tmp"), *(out / STATE_DIR).glob(".*.tmp")]:
-            tmp.unlink(missing_ok=True)
-        return False
-    if entries and not overwrite:
-        raise MaskprepError(
-            f"-o {out}: directory is not empty; pass --overwrite to replace it or --resume to "
-            "finish an interrupted encode"
-        )
+_LABELS = {
+    "tokenizer_hash": "tokenizer (-t)",
+    "corpus_fingerprint": "corpus (file names, sizes and contents)",
+    "doc_sep": "--doc-sep",
+    "text_field": "--text-field",
+    "text_column": "--text-column",
+    "strict": "--strict",
+    "chunk_bytes": "task size",
+    "batch_chars": "batch size",
+    "words": "--words (word definition)",
+    "format_version": "encoded format version",
+    "maskprep_version": "maskprep version",
+}
+RECORD = "task-{:05d}.json"  # a task's done-record in STATE_DIR (the stage's `digits`)
+
+
+def _finished_identity(out: Path) -> dict[str, Any] | None:
+    """The options of a finished encoded directory (its manifest), or None."""
+    if not (out / MANIFEST).is_file():
+        return None
+    options = read_json(out / MANIFEST, what="encoded manifest").get("options")
+    return dict(options) if isinstance(options, dict) else None
+
+
+def _ours(p: Path) -> bool:
+    return (
+        p.name in (MANIFEST, "tokenizer.json")
+        or (p.suffix == ".arrow" and p.name.startswith(("docs-", "words-")))
+        or (p.name.startswith(".") and p.name.endswith(".tmp"))
+    )
+
+
+def _remove_ours(out: Path) -> None:
+    """What ``--overwrite`` replaces: every file encode writes; any other file is refused."""
+    entries = [p for p in sorted(out.iterdir()) if p.name != STATE_DIR]
     for p in entries:
-        ours = (
-            p.name in (MANIFEST, "tokenizer.json")
-            or (p.suffix == ".arrow" and p.name.startswith(("docs-", "words-")))
-            or (p.name.startswith(".") and p.name.endswith(".tmp"))
-        )
-        if p.name == STATE_DIR and p.is_dir():
-            shutil.rmtree(p)
-        elif ours:
-            p.unlink()
-        else:
+        if not _ours(p):
             raise MaskprepError(
                 f"--overwrite: {out} holds {p.name}, which maskprep encode did not write; "
                 "choose another -o or remove it yourself"
             )
-    out.mkdir(parents=True, exist_ok=True)
-    atomic_write_json(state, dict(options))
-    return False
+    for p in entries:
+        p.unlink()
 
 
-def _finished(out: Path, task: int, run_digest: str) -> dict[str, Any] | None:
-    try:
-        rec = json.loads(_done_path(out, task).read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    if rec.get("run") != run_digest:
-        return None
-    t = rec.get("task", {})
-    for name, size, digest in ((t.get("docs"), t.get("docs_bytes"), t.get("docs_sha256")),
-                               (t.get("words"), t.get("words_bytes"), t.get("words_sha256"))):
-        p = out / str(name)
-        if not p.is_file() or p.stat().st_size != size or file_sha256(p) != digest:
-            return None
-    return t
+ENCODE_STAGE = Stage(
+    noun="encode",
+    state=STATE_DIR,
+    marker=MANIFEST,
+    labels=_LABELS,
+    changed=("tokenizer_hash", "corpus_fingerprint"),
+    digits=5,
+    finished_identity=_finished_identity,
+    on_overwrite=_remove_ours,
+)
+
+
+def _claim(out: Path, options: Mapping[str, Any], *, overwrite: bool, resume: bool) -> RunDir:
+    """Lock OUT and check it (`maskprep._resume.claim`); on resume, drop the last temporaries."""
+    if out.exists() and not out.is_dir():
+        raise MaskprepError(f"-o {out}: exists and is not a directory")
+    run = claim(out, ENCODE_STAGE, options, resume=resume, overwrite=overwrite)
+    if run.resumed:
+        for tmp in out.glob(".*.tmp"):
+            tmp.unlink(missing_ok=True)
+        run.clean(p.name for p in run.root.glob("task-*.json"))
+    return run
 
 
 def encode_corpus(
@@ -303,10 +301,11 @@ def encode_corpus(
     `words` (a `WordsConfig`; default the tokenizer's words) is the word definition
     stored with the batches and recorded in the manifest.
 
-    >>> encode_corpus(["plays.txt"], tokenizer="tokenizer.json", output="enc").doc["totals"]["tokens"]  # doctest: +SKIP
+    >>> m = encode_corpus(["plays.txt"], tokenizer="tokenizer.json", output="enc")  # doctest: +SKIP
+    >>> m.doc["totals"]["tokens"]  # doctest: +SKIP
     1203311
     """
-    from ..execute import Executor, map_tasks
+    from ..execute import Executor
     from ..tokenizer.words import words_option
 
     words = words_option(words)
@@ -334,15 +333,26 @@ def encode_corpus(
         "format_version": FORMAT_VERSION,
         "maskprep_version": __version__,
     }
-    digest = hashlib.sha256(json.dumps(options, sort_keys=True).encode()).hexdigest()
-    if _prepare(out, options=options, overwrite=overwrite, resume=resume):
-        return EncodedManifest.read(out)
-    done: dict[int, dict[str, Any]] = {}
-    if resume:
-        for t in source.tasks:
-            rec = _finished(out, t.index, digest)
-            if rec is not None:
-                done[t.index] = rec
+    run = _claim(out, options, overwrite=overwrite, resume=resume)
+    try:
+        if run.finished:
+            return EncodedManifest.read(out)
+        _encode_claimed(out, run, source, info, words, executor)
+    finally:
+        run.release()
+    return EncodedManifest.read(out)
+
+
+def _encode_claimed(out: Path, run: RunDir, source: Source, info: TokenizerInfo, words: Any,
+                    executor: Any) -> None:
+    """Run the tasks not yet done in a claimed directory, then write its manifest (last)."""
+    from ..execute import map_tasks
+
+    done = {
+        i: rec["record"]
+        for i, rec in run.done([t.index for t in source.tasks], files=lambda rec: rec["files"],
+                               base=out).items()
+    }
     todo = [t for t in source.tasks if t.index not in done]
     check_free_space(out, int(estimate_bytes(source) * sum(t.weight for t in todo)
                               / max(1.0, sum(t.weight for t in source.tasks))))
@@ -352,8 +362,8 @@ def encode_corpus(
         tokenizer_name=info.name,
         tokenizer_hash=info.hash,
         vocab_size=info.vocab_size,
-        options=opts,
-        run_digest=digest,
+        options=source.options,
+        run_digest=run.digest,
         words=None if words.is_tokenizer else words,
     )
     for rec in map_tasks(
@@ -378,6 +388,8 @@ def encode_corpus(
         "tokens": sum(t["tokens"] for t in tasks),
         "bytes": sum(t["docs_bytes"] + t["words_bytes"] for t in tasks),
     }
+    options = run.identity
+    recorded = options["words"]
     manifest = {
         "format": FORMAT,
         "format_version": FORMAT_VERSION,
@@ -401,8 +413,7 @@ def encode_corpus(
     }
     atomic_write_text(out / "tokenizer.json", info.json)
     atomic_write_json(out / MANIFEST, manifest)
-    shutil.rmtree(out / STATE_DIR, ignore_errors=True)
-    return EncodedManifest.read(out)
+    run.remove()
 
 
 def _refuse_overlap(out: Path, source: Source) -> None:
@@ -423,6 +434,6 @@ def format_encode_summary(manifest: EncodedManifest) -> str:
     return (
         f"encoded {t['documents']:,} documents, {t['words']:,} words, {t['tokens']:,} tokens from "
         f"{mb:,.1f} MB of text in {t['tasks']} tasks\n"
-        f"wrote {manifest.directory}/ ({t['bytes'] / 1e6:,.1f} MB{ratio}; {MANIFEST}, tokenizer.json, "
-        "docs-*.arrow, words-*.arrow)"
+        f"wrote {manifest.directory}/ ({t['bytes'] / 1e6:,.1f} MB{ratio}; {MANIFEST}, "
+        "tokenizer.json, docs-*.arrow, words-*.arrow)"
     )

@@ -245,7 +245,7 @@ def _pack(cache: WordTypeCache, ids: np.ndarray, word_offsets: np.ndarray,
 
 
 def _distinct(packed: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """`unique_rows` of packed words, sorting the many one-column words apart from the few long ones.
+    """`unique_rows` of packed words: the many one-column words sorted apart from the few long ones.
 
     The same distinct rows in the same (lexicographic) order; `first` may name another
     occurrence of a word, which holds the same ids.

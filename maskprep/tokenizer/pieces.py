@@ -61,7 +61,10 @@ def readable_pieces(info: Any, ids: Sequence[int]) -> tuple[list[str], bool]:
 
 
 def shown_pieces(info: Any, ids: Sequence[int]) -> list[str]:
-    """One word's pieces as shown: spaces dropped, `SPACE_MARK` / `PARTIAL` for space-only / partial pieces."""
+    """One word's pieces as shown.
+
+    Spaces are dropped; `SPACE_MARK` / `PARTIAL` stand for space-only / partial pieces.
+    """
     pieces, _lead = readable_pieces(info, ids)
     return [PARTIAL if not p else (p.strip() or SPACE_MARK) for p in pieces]
 

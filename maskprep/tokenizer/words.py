@@ -95,7 +95,7 @@ class WordsConfig:
         return hashlib.sha256(body.encode("utf-8")).hexdigest()
 
     def describe(self) -> dict[str, Any]:
-        """What is recorded in manifests (resume and verify compare it): the definition and libraries."""
+        """What manifests record (resume and verify compare it): the definition and libraries."""
         doc: dict[str, Any] = {"definition": self.definition}
         if self.definition in SEGMENTERS or self.definition == "auto":
             doc["segmenters"] = {lang: segmenter_version(lang) for lang in self.languages()}
@@ -122,7 +122,10 @@ class WordsConfig:
 
 
 def words_option(value: "str | WordsConfig | None", *, option: str = "--words") -> WordsConfig:
-    """``"zh"`` -> ``WordsConfig("zh")``; checks the library is installed (``cohesion`` is built by the caller)."""
+    """``"zh"`` -> ``WordsConfig("zh")``; checks the library is installed.
+
+    (``cohesion`` is built by the caller.)
+    """
     if isinstance(value, WordsConfig):
         return value
     name = (value or "tokenizer").strip().lower()
@@ -302,7 +305,8 @@ def word_ids_by_offsets(
     cls = script_classes(codes)
     doc_of_tok = np.repeat(np.arange(len(texts), dtype=np.int64), np.diff(tok_doc))
     seg_mask, lang_of_char = _segmented(big, cls, base, words)
-    # Word starts of the segmented runs (global character positions), one segmenter call per language.
+    # Word starts of the segmented runs (global character positions), one segmenter call per
+    # language.
     starts_all = [np.zeros(0, np.int64)]
     for lang, mask in lang_of_char.items():
         rs, re_ = _runs(mask)
@@ -343,7 +347,8 @@ def word_ids_by_offsets(
         new[1:] |= special[:-1]
     ids = np.cumsum(new) - 1
     ids[special] = -1
-    # Boundary-crossing: a segmented token ending past its word; another token covering segmented text.
+    # Boundary-crossing: a segmented token ending past its word; another token covering
+    # segmented text.
     seg_cum = np.zeros(C + 1, np.int64)
     np.cumsum(seg_mask, out=seg_cum[1:])
     tend_c = np.clip(tend, 0, C)
@@ -393,7 +398,7 @@ def _segmented(big: str, cls: np.ndarray, base: np.ndarray,
 
 
 def _run_end(mask: np.ndarray) -> np.ndarray:
-    """For each position, the end of the run of True holding it (positions outside runs: themselves)."""
+    """For each position, the end of the run of True holding it (outside runs: the position)."""
     C = len(mask)
     idx = np.arange(C + 1, dtype=np.int64)
     stop = np.where(np.append(mask, False), C + 1, idx)  # a False position is its own run end
