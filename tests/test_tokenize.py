@@ -158,7 +158,8 @@ def test_tokenizer_from_json_gives_each_task_its_own_word_cache(
     assert (first.name, second.name) == ("a", "b")
     assert second.tokenizer is first.tokenizer and second.hash == first.hash
     again = encode_documents(second, ["the king is dead", "long live the king"])
-    fresh = encode_documents(info, ["the king is dead", "long live the king"])  # type: ignore[arg-type]
+    docs = ["the king is dead", "long live the king"]
+    fresh = encode_documents(info, docs)  # type: ignore[arg-type]
     assert np.array_equal(again.ids, fresh.ids)
     assert np.array_equal(again.word_keys, fresh.word_keys)
 
