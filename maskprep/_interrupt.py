@@ -111,7 +111,7 @@ def _kill_workers() -> None:
 
 
 def finish(code: int) -> None:
-    """End the process with `code` (130 after Ctrl-C): pools stopped, output flushed, no exit hooks."""
+    """Exit with `code` (130 after Ctrl-C): pools stopped, output flushed, no exit hooks run."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     if code == 130 or _state["interrupted"]:
         code = 130

@@ -47,9 +47,9 @@ def check_apart(output: str | Path, inputs: Iterable[str | Path | None], *, opti
     """Refuse an output that is, contains or lies inside a corpus input or another input
     (a tokenizer, units, counts), symbolic links resolved.
 
-    >>> check_apart("corpus/counts", ["corpus"])
+    >>> check_apart("corpus/counts", ["corpus"])  # doctest: +ELLIPSIS
     Traceback (most recent call last):
-    maskprep.errors.MaskprepError: -o corpus/counts: lies inside the corpus (corpus); write the output outside the inputs (it would be read back, or overwrite them)
+    maskprep.errors.MaskprepError: -o corpus/counts: lies inside the corpus (corpus); write ...
     """
     out = _real(output)
     for item, kind in [*((i, "corpus") for i in inputs), *((i, "input") for i in others)]:
@@ -126,8 +126,11 @@ def _table_metadata_says_maskprep(path: Path) -> bool:
 
 def refuse_existing_file(path: str | Path, *beside: str | Path, overwrite: bool, option: str = "-o",
                          own_ok: bool = False) -> None:
-    """Refuse to replace an existing file (or the files written `beside` it) without ``--overwrite``;
-    with `own_ok`, a table maskprep wrote there before is replaced. A directory in the way is refused."""
+    """Refuse to replace an existing file (or the files written beside it) without --overwrite.
+
+    With `own_ok`, a table maskprep wrote there before is replaced. A directory in the way is
+    refused.
+    """
     overwrite = overwrite or (own_ok and maskprep_output(path))
     for p in (Path(path), *map(Path, beside)):
         if p.is_dir():

@@ -249,7 +249,9 @@ def lock_dir(output: Path, state: str, *, what: str | None = None) -> Iterator[D
 
 
 def locked_output(state: str) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
-    """Decorate a stage function taking ``output=DIR``: its directory is locked (`lock_dir`) for the call.
+    """Decorate a stage function taking ``output=DIR``: its directory is locked for the call.
+
+    The lock is `lock_dir`'s.
 
     >>> @locked_output(".maskprep-lock")
     ... def run_stage(*, output): ...

@@ -336,6 +336,7 @@ def test_tuple_tables_and_chunking_agree(shakespeare_counts, monkeypatch):
     # Same scores whether tables are given as (keys, counts) pairs or CountTables,
     # and for any chunk size (chunking is an implementation detail).
     import maskprep.units.cohesion as cohesion
+    import maskprep.units.lookup as lookup
 
     c = shakespeare_counts
     N = sum(c[1].values())
@@ -345,7 +346,7 @@ def test_tuple_tables_and_chunking_agree(shakespeare_counts, monkeypatch):
     pairs = {k: (t.keys, t.counts) for k, t in tables.items()}
     a = score_ngrams("pmi", n=3, keys=keys, counts=counts, tables=tables, N=N)
     monkeypatch.setattr(cohesion, "_CHUNK_ROWS", 97)
-    monkeypatch.setattr(cohesion, "_CACHE_ENTRIES", 10)  # exercise the sorted-query search too
+    monkeypatch.setattr(lookup, "_CACHE_ENTRIES", 10)  # exercise the sorted-query search too
     b = score_ngrams("pmi", n=3, keys=keys, counts=counts, tables=pairs, N=N)
     index = NgramIndex.build(pairs)
     c = score_ngrams("pmi", n=3, keys=keys, counts=counts, tables=index, N=N)

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from maskprep.report import charts
+from maskprep.report import charts, frame
 from maskprep.report import html as report
 from maskprep.errors import MaskprepError
 
@@ -137,7 +137,7 @@ def test_small_charts_wrap_titles_and_named_bars_drop_the_legend() -> None:
     assert root.get("width") == "400" and root.get("viewBox", "").startswith("0 0 400 ")
     heading = [t for t in root.iter("text") if t.get("font-weight") == "600"]
     assert len(heading) == 2 and " ".join(t.text or "" for t in heading) == title
-    assert all(charts._text_w(t.text or "", 15) <= 400 - 24 for t in heading)
+    assert all(frame.text_width(t.text or "", 15) <= 400 - 24 for t in heading)
     assert not [r for r in root.iter("rect") if r.get("class") != "bar"]  # no legend swatches
 
 
@@ -263,15 +263,15 @@ def test_histogram_groups_and_normalisation() -> None:
 
 def test_tick_labels_are_round_readable_numbers() -> None:
     for lo, hi in [(0, 0.37), (1.0, 3.1), (0, 1234567), (-3000, 13580), (0.001, 0.0042), (5, 5)]:
-        ticks = charts._nice_ticks(lo, hi)
+        ticks = frame.nice_ticks(lo, hi)
         assert ticks[0] <= lo and ticks[-1] >= hi and 3 <= len(ticks) <= 12
         step = ticks[1] - ticks[0]
         mantissa = step / 10 ** __import__("math").floor(__import__("math").log10(step))
         assert any(abs(mantissa - m) < 1e-6 for m in (1, 2, 2.5, 5))
-    assert charts._tick_labels([0.0, 0.1, 0.2], percent=True) == ["0%", "10%", "20%"]
-    assert charts._tick_labels([0.0, 2.5e6, 5e6], percent=False) == ["0", "2.5M", "5.0M"]
-    assert charts._tick_labels([0.0, 5000.0, 10000.0], percent=False) == ["0", "5,000", "10,000"]
-    assert charts._tick_labels([1.0, 1.25, 1.5], percent=False) == ["1.00", "1.25", "1.50"]
+    assert frame.tick_labels([0.0, 0.1, 0.2], percent=True) == ["0%", "10%", "20%"]
+    assert frame.tick_labels([0.0, 2.5e6, 5e6], percent=False) == ["0", "2.5M", "5.0M"]
+    assert frame.tick_labels([0.0, 5000.0, 10000.0], percent=False) == ["0", "5,000", "10,000"]
+    assert frame.tick_labels([1.0, 1.25, 1.5], percent=False) == ["1.00", "1.25", "1.50"]
 
 
 def test_mismatched_lengths_and_non_numbers_raise() -> None:
@@ -522,7 +522,7 @@ def test_crowded_x_labels_turn_stay_inside_and_thin_out() -> None:
     assert len(turned) == 12
     for t in turned:
         shown = "".join(x for x in t.itertext() if x not in labels)  # drop tooltip text
-        assert float(t.get("x", 0)) - charts._text_w(shown, 11) * math.cos(math.radians(40)) >= 0
+        assert float(t.get("x", 0)) - frame.text_width(shown, 11) * math.cos(math.radians(40)) >= 0
     many = [f"label {i}" for i in range(120)]
     root = parse(
         charts.line_chart(

@@ -101,10 +101,10 @@ def test_fragment_share_sums_nothing_across_extensions():
     ],
 )
 def test_filter_option_errors(kwargs, match):
-    from maskprep.units.select import _options
+    from maskprep.units.options import check_options
 
     meta = {"max_n": 3, "min_count": 2}
     with pytest.raises(MaskprepError, match=match):
-        _options(
+        check_options(
             meta, measure="llr", top=10, min_count=None, per_length=None, max_n=None, **kwargs
         )

@@ -23,8 +23,9 @@ import pytest
 from maskprep.tokenizer.encoding import load_tokenizer
 from maskprep.units.cohesion import CountTable, Measure, binary_split_pmi, score_ngrams
 from maskprep.errors import MaskprepError
-from maskprep.units.files import FORMAT_VERSION, format_top_units, read_units, write_units
-from maskprep.units.select import _quotas, build_units, parse_per_length
+from maskprep.units.files import UNITS_FORMAT_VERSION, format_top_units, read_units, write_units
+from maskprep.units.options import parse_per_length, quotas
+from maskprep.units.select import build_units
 
 PLANTED = [
     "machine learning",
@@ -177,7 +178,7 @@ def test_round_trip_and_token_ids(counts_dir, tmp_path):
     assert rows[0] == "rank\tn\tcount\tscore\ttext" and len(rows) == len(vocab) + 1
     assert rows[1].split("\t")[4] == vocab.text[0]
     schema_meta = json.loads(pq.read_schema(pq_path).metadata[b"maskprep"])
-    assert schema_meta["format_version"] == FORMAT_VERSION and schema_meta["measure"] == "pmi"
+    assert schema_meta["format_version"] == UNITS_FORMAT_VERSION and schema_meta["measure"] == "pmi"
 
 
 def test_by_length_matches_units(counts_dir):
@@ -263,14 +264,14 @@ def test_per_length_quotas_and_flow(counts_dir):
 
 
 def test_quota_arithmetic():
-    assert _quotas(10, {2: 0.5, 3: 0.3, 4: 0.2}, {2: 100, 3: 100, 4: 100}) == {2: 5, 3: 3, 4: 2}
-    assert _quotas(10, {2: 0.5, 3: 0.5}, {2: 2, 3: 100}) == {2: 2, 3: 8}
-    assert _quotas(7, {2: 1 / 3, 3: 1 / 3, 4: 1 / 3}, {2: 100, 3: 100, 4: 100}) == {
+    assert quotas(10, {2: 0.5, 3: 0.3, 4: 0.2}, {2: 100, 3: 100, 4: 100}) == {2: 5, 3: 3, 4: 2}
+    assert quotas(10, {2: 0.5, 3: 0.5}, {2: 2, 3: 100}) == {2: 2, 3: 8}
+    assert quotas(7, {2: 1 / 3, 3: 1 / 3, 4: 1 / 3}, {2: 100, 3: 100, 4: 100}) == {
         2: 3,
         3: 2,
         4: 2,
     }
-    assert _quotas(10, {2: 0.5, 3: 0.5}, {2: 1, 3: 2}) == {2: 1, 3: 2}
+    assert quotas(10, {2: 0.5, 3: 0.5}, {2: 1, 3: 2}) == {2: 1, 3: 2}
 
 
 def test_token_ids_are_the_mid_sentence_form(writable_counts):
@@ -294,7 +295,7 @@ def test_token_ids_are_the_mid_sentence_form(writable_counts):
 
 
 def test_option_help_names_every_measure_range():
-    from maskprep.units.select import OPTION_HELP
+    from maskprep.units.options import OPTION_HELP
 
     assert all(m.range_text in OPTION_HELP["measure"] for m in Measure)
 

@@ -97,7 +97,7 @@ def _value_bins(
 
 
 def _summary(doc: dict[str, Any], order: list[str]) -> str:
-    """Two tables, so each fits the page: what the strategies hide, then what leaks and how targets are shown."""
+    """Two tables, so each fits the page: what is hidden, then what leaks and how targets look."""
     pct = "{:.2%}"
     hidden, leaks = [], []
     for name in order:
@@ -142,7 +142,8 @@ def _summary(doc: dict[str, Any], order: list[str]) -> str:
             "words/unit": ".2f",
             "targets/sequence": ".1f",
         },
-        caption=f"What is hidden: {doc['sample']['sequences']:,} sequences, the same for every strategy",
+        caption=f"What is hidden: {doc['sample']['sequences']:,} sequences, "
+        "the same for every strategy",
     )
     second = report.table(
         headers=[
@@ -166,7 +167,8 @@ def _summary(doc: dict[str, Any], order: list[str]) -> str:
                 "kept",
             )
         },
-        caption="What stays visible and how targets are shown (shares of targets); an empty cell was not measured",
+        caption="What stays visible and how targets are shown (shares of targets); "
+        "an empty cell was not measured",
     )
     return first + second
 
@@ -267,7 +269,10 @@ def _examples(
 def render_compare_html(
     doc: dict[str, Any], *, examples: Sequence[dict[str, Any]], tokenizer: Any
 ) -> str:
-    """The whole page: ``write_page("cmp/compare.html", render_compare_html(doc, examples=ex, tokenizer=info))``."""
+    """The whole page of a comparison, as HTML text.
+
+    ``write_page("cmp/compare.html", render_compare_html(doc, examples=ex, tokenizer=info))``
+    """
     order = list(doc["order"])
     slots = {name: k for k, name in enumerate(order)}  # one colour per strategy on every chart
     measure_charts = []

@@ -23,103 +23,26 @@ table is present)::
                 format, shard_rows, dynamic
     [compare]   strategies, sample, examples, top_words, and rate ... seed (default: [mask]'s)
 
-This module runs nothing (see `maskprep.pipeline.runner`).
+The tables, the types of their keys and the errors naming a key's line are in
+`maskprep.pipeline.keys`. This module runs nothing (see `maskprep.pipeline.runner`).
 """
 
 from __future__ import annotations
 
 import functools
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Mapping
+from typing import Any, Mapping
 
 from ..errors import MaskprepError
 from ..masking.sampler import needs_units
+from .keys import SECTIONS, KeyChecker, check_each, find_key_line, key_error, shown
 
 __all__ = ["RunConfig", "load_run_config", "find_key_line", "key_error", "SECTIONS"]
 
 _MASKING = ("rate", "mix", "mix_per", "span_p", "span_max")
 _PACKING = ("seq_len", "pack")
 _SHARDS = ("copies", "seed", "format", "shard_rows", "dynamic")
-# Allowed keys per table, with the TOML types accepted for each.
-SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
-    "": {"output": (str,)},
-    "corpus": {
-        "paths": (list, str),
-        "doc_sep": (str,),
-        "text_field": (str,),
-        "text_column": (str,),
-        "strict": (bool,),
-        "words": (str,),
-    },
-    "tokenizer": {"path": (str,), "model": (str,), "vocab_size": (int,), "lowercase": (bool,),
-                  "sample": (str, float, int), "seed": (int,)},
-    "audit": {
-        "vocab_sizes": (list,),
-        "tokenizers": (list,),
-        "model": (str,),
-        "lowercase": (bool,),
-        "top_words": (int,),
-        "include_tokenizer": (bool,),
-        "sample": (str, float, int),
-        "seed": (int,),
-    },
-    "count": {"max_n": (int,), "min_count": (int,), "memory": (str, int)},
-    "units": {
-        "measure": (str,),
-        "top": (int,),
-        "min_count": (int,),
-        "per_length": (str, dict),
-        "max_n": (int,),
-        "edge_words": (int,),
-        "fragment_share": (float, int),
-    },
-    "mask": {
-        "strategies": (list, str),
-        "rate": (float, int),
-        "mix": (list, str),
-        "mix_per": (str,),
-        "span_p": (float, int),
-        "span_max": (int,),
-        "seq_len": (int,),
-        "pack": (bool,),
-        "copies": (int,),
-        "seed": (int,),
-        "format": (str,),
-        "shard_rows": (int,),
-        "dynamic": (bool,),
-    },
-    "compare": {
-        "strategies": (list, str),
-        "sample": (int, str),
-        "examples": (int,),
-        "top_words": (int,),
-        "rate": (float, int),
-        "mix": (list, str),
-        "mix_per": (str,),
-        "span_p": (float, int),
-        "span_max": (int,),
-        "seq_len": (int,),
-        "pack": (bool,),
-        "seed": (int,),
-    },
-}
-_TYPE_NAMES = {
-    list: "a list",
-    str: "a string",
-    int: "a whole number",
-    float: "a number",
-    bool: "true or false",
-    dict: "a table",
-}
-
-
-def _type_names(types: tuple[type, ...]) -> str:
-    """What a key takes, in words: (float, int) is "a number", not "a number or a whole number"."""
-    if float in types:
-        types = tuple(t for t in types if t is not int)
-    return " or ".join(_TYPE_NAMES[t] for t in types)
 
 
 @dataclass(frozen=True)
@@ -147,117 +70,10 @@ class RunConfig:
     train_sample: Any = None  # [tokenizer] sample: a corpus.sample.SampleSpec or None
 
 
-def find_key_line(text: str, section: str, key: str | None) -> int | None:
-    """The 1-based line where `key` of table `section` is set (the table header when key is None).
-
-    Dotted keys (``mask.rate = 0.2``) and inline tables (``mask = {rate = 0.2}``)
-    are found too; None when nothing matches.
-
-    >>> find_key_line("[mask]\\nrate = 2\\n", "mask", "rate")
-    2
-    """
-    table, fallback = "", None
-    header = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(#.*)?$")
-    for i, line in enumerate(text.splitlines(), 1):
-        m = header.match(line)
-        if m:
-            table = m.group(1).replace('"', "").replace("'", "").strip()
-            if (key is None and table == section) or (not section and table == key):
-                return i
-            continue
-        name = r"\s*[\"']?%s[\"']?\s*"
-        if (
-            key is not None
-            and table == section
-            and re.match(rf"^{name % re.escape(key)}[=.]", line)
-        ):
-            return i
-        if table == "" and section:
-            if key is not None and re.match(
-                rf"^\s*{re.escape(section)}\s*\.{name % re.escape(key)}=", line
-            ):
-                return i
-            if re.match(rf"^{name % re.escape(section)}[=.]", line) and fallback is None:
-                fallback = i
-    return fallback
-
-
-def key_error(path: Path, text: str, section: str, key: str | None, problem: str) -> MaskprepError:
-    """The error for a key: ``key_error(Path("p.toml"), "[mask]\\nrate = 2\\n", "mask", "rate", "too big")``
-    -> ``MaskprepError("p.toml, line 2: [mask] rate: too big")``."""
-    line = find_key_line(text, section, key)
-    where = f"{path}, line {line}" if line else str(path)
-    what = (f"[{section}] {key}" if section else key) if key else f"[{section}]"
-    return MaskprepError(f"{where}: {what}: {problem}")
-
-
-class _Checker:
-    def __init__(self, path: Path, text: str, doc: Mapping[str, Any]) -> None:
-        self.path, self.text, self.doc, self.base = path, text, doc, path.parent
-
-    def fail(self, section: str, key: str | None, problem: str) -> MaskprepError:
-        return key_error(self.path, self.text, section, key, problem)
-
-    def table(self, section: str) -> dict[str, Any] | None:
-        value = self.doc.get(section)
-        if value is None:
-            return None
-        if not isinstance(value, dict):
-            raise self.fail("", section, f"must be a table ([{section}]), got {_shown(value)}")
-        allowed = SECTIONS[section]
-        for key, v in value.items():
-            if key not in allowed:
-                raise self.fail(
-                    section, key, f"unknown key; [{section}] takes {', '.join(allowed)}"
-                )
-            types = allowed[key]
-            if isinstance(v, bool) and bool not in types or not isinstance(v, types):
-                names = _type_names(types)
-                raise self.fail(section, key, f"must be {names}, got {_shown(v)}")
-        return dict(value)
-
-    def check(self, section: str, key: str, value: Any, fn: Callable[[Any], Any]) -> Any:
-        """fn(value), with its MaskprepError re-raised naming the key and line."""
-        try:
-            return fn(value)
-        except MaskprepError as exc:
-            # The config classes name command-line options (--max-n); here the key is the name.
-            names = "|".join(re.escape(n) for n in (key, key.replace("_", "-")))
-            problem = re.sub(rf"^(?:--)?(?:{names})\b:?\s*", "", str(exc), count=1)
-            raise self.fail(section, key, f"{_shown(value)}: {problem}") from None
-
-    def path_of(self, section: str, key: str, value: str, *, must_exist: bool = True) -> Path:
-        p = Path(value).expanduser()
-        p = p if p.is_absolute() else (self.base / p)
-        if must_exist and not p.exists():
-            raise self.fail(
-                section, key, f"{value!r}: {p} not found (paths are relative to {self.base})"
-            )
-        return p
-
-
-def _shown(value: Any) -> str:
-    text = repr(value) if not isinstance(value, bool) else str(value).lower()
-    return text if len(text) <= 80 else text[:77] + "..."
-
-
-def _make_one(make: Callable[..., Any], key: str, value: Any) -> Any:
-    return make(**{key: value})
-
-
 def _train_size(size: Any, _sizes: Any) -> Any:
     from ..tokenizer.train import TrainConfig
 
     return TrainConfig(vocab_size=size)
-
-
-def _each(
-    c: _Checker, section: str, key: str, values: dict[str, Any], make: Callable[..., Any]
-) -> None:
-    """Check each given key alone through `make(**{key: value})` (the config class's own rules)."""
-    for k in key.split(","):
-        if k in values:
-            c.check(section, k, values[k], functools.partial(_make_one, make, k))
 
 
 def load_run_config(path: str | Path, *, output: str | Path | None = None) -> RunConfig:
@@ -281,7 +97,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
         raise MaskprepError(f"{path}: not UTF-8 text ({exc})") from None
     except tomllib.TOMLDecodeError as exc:
         raise MaskprepError(f"{path}: not valid TOML: {exc}") from None
-    c = _Checker(path, text, doc)
+    c = KeyChecker(path, text, doc)
     for key in doc:
         if key not in SECTIONS and key not in SECTIONS[""]:
             raise c.fail(
@@ -293,7 +109,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     top = {k: v for k, v in doc.items() if k in SECTIONS[""]}
     for key, value in top.items():
         if not isinstance(value, SECTIONS[""][key]):
-            raise c.fail("", key, f"must be a string, got {_shown(value)}")
+            raise c.fail("", key, f"must be a string, got {shown(value)}")
     out = (
         Path(output)
         if output is not None
@@ -311,7 +127,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
         )
     files = tuple(str(p if Path(p).is_absolute() else c.base / p) for p in paths)
     c.check("corpus", "paths", corpus["paths"], lambda v: resolve_inputs(list(files)))
-    _each(c, "corpus", "doc_sep,text_field,text_column,strict", corpus, CorpusOptions)
+    check_each(c, "corpus", "doc_sep,text_field,text_column,strict", corpus, CorpusOptions)
     corpus_options = CorpusOptions(
         **{k: v for k, v in corpus.items() if k not in ("paths", "words")}
     )
@@ -334,7 +150,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
             )
         tokenizer_path = c.path_of("tokenizer", "path", tok["path"])
     else:
-        _each(c, "tokenizer", "model,vocab_size,lowercase", tok, TrainConfig)
+        check_each(c, "tokenizer", "model,vocab_size,lowercase", tok, TrainConfig)
         train = TrainConfig(**{k: v for k, v in tok.items() if k not in ("sample", "seed")})
     train_sample = _sample(c, "tokenizer", tok)
 
@@ -361,7 +177,7 @@ def load_run_config(path: str | Path, *, output: str | Path | None = None) -> Ru
     )
 
 
-def _sample(c: _Checker, section: str, table: Mapping[str, Any]) -> Any:
+def _sample(c: KeyChecker, section: str, table: Mapping[str, Any]) -> Any:
     """The `SampleSpec` of a table's sample / seed keys, or None."""
     from ..corpus.sample import SampleSpec
 
@@ -375,7 +191,7 @@ def _sample(c: _Checker, section: str, table: Mapping[str, Any]) -> Any:
                    lambda v: SampleSpec.parse(v, seed, option="sample"))
 
 
-def _audit(c: _Checker) -> dict[str, Any] | None:
+def _audit(c: KeyChecker) -> dict[str, Any] | None:
     from ..audit.measure import AuditConfig
     from ..tokenizer.train import TrainConfig
 
@@ -389,7 +205,7 @@ def _audit(c: _Checker) -> dict[str, Any] | None:
     if not all(isinstance(t, str) for t in tokenizers):
         raise c.fail("audit", "tokenizers", "must be a list of tokenizer.json paths")
     paths = [str(c.path_of("audit", "tokenizers", t)) for t in tokenizers]
-    _each(c, "audit", "model,lowercase", a, TrainConfig)
+    check_each(c, "audit", "model,lowercase", a, TrainConfig)
     top = a.get("top_words", 25)
     if not 1 <= top <= 10000:
         raise c.fail("audit", "top_words", f"{top}: expected 1 to 10000")
@@ -412,17 +228,17 @@ def _audit(c: _Checker) -> dict[str, Any] | None:
     }
 
 
-def _count(c: _Checker) -> Any:
+def _count(c: KeyChecker) -> Any:
     t = c.table("count")
     if t is None:
         return None
     from ..count.driver import CountConfig
 
-    _each(c, "count", "max_n,min_count,memory", t, CountConfig)
+    check_each(c, "count", "max_n,min_count,memory", t, CountConfig)
     return CountConfig(**t)
 
 
-def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
+def _units(c: KeyChecker, count: Any) -> dict[str, Any] | None:
     t = c.table("units")
     if t is None:
         return None
@@ -432,7 +248,7 @@ def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
         )
     from ..units.cohesion import Measure
     from ..units.filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE
-    from ..units.select import DEFAULT_MEASURE, DEFAULT_TOP, parse_per_length
+    from ..units.options import DEFAULT_MEASURE, DEFAULT_TOP, parse_per_length
 
     out: dict[str, Any] = {
         "measure": c.check(
@@ -482,7 +298,7 @@ def _units(c: _Checker, count: Any) -> dict[str, Any] | None:
     return out
 
 
-def _mask(c: _Checker, has_units: bool) -> dict[str, Any] | None:
+def _mask(c: KeyChecker, has_units: bool) -> dict[str, Any] | None:
     from ..compare.run import parse_strategies
     from ..masking.sampler import MaskingConfig
     from ..packing import PackingConfig
@@ -495,9 +311,9 @@ def _mask(c: _Checker, has_units: bool) -> dict[str, Any] | None:
                          lambda v: parse_strategies(v, option="strategies"))
     if any(s.value == "pmi" for s in strategies) and not has_units:
         raise c.fail("mask", "strategies", needs_units("pmi", "add [count] and [units] tables"))
-    _each(c, "mask", ",".join(_MASKING), t, MaskingConfig)
-    _each(c, "mask", ",".join(_PACKING), t, PackingConfig)
-    _each(c, "mask", ",".join(_SHARDS), t, ShardConfig)
+    check_each(c, "mask", ",".join(_MASKING), t, MaskingConfig)
+    check_each(c, "mask", ",".join(_PACKING), t, PackingConfig)
+    check_each(c, "mask", ",".join(_SHARDS), t, ShardConfig)
     masking = MaskingConfig(**{k: t[k] for k in _MASKING if k in t})
     packing = PackingConfig(**{k: t[k] for k in _PACKING if k in t})
     shards = ShardConfig(**{k: t[k] for k in _SHARDS if k in t})
@@ -509,7 +325,7 @@ def _mask(c: _Checker, has_units: bool) -> dict[str, Any] | None:
     }
 
 
-def _compare(c: _Checker, mask: Mapping[str, Any] | None, has_units: bool) -> Any:
+def _compare(c: KeyChecker, mask: Mapping[str, Any] | None, has_units: bool) -> Any:
     from ..compare.run import CompareConfig
 
     t = c.table("compare")
@@ -521,7 +337,7 @@ def _compare(c: _Checker, mask: Mapping[str, Any] | None, has_units: bool) -> An
         raise c.fail(
             "compare", "sample", f'{t["sample"]!r}: give a whole number of sequences or "all"'
         )
-    _each(
+    check_each(
         c,
         "compare",
         "strategies,sample,examples,top_words," + ",".join(_MASKING + _PACKING) + ",seed",

@@ -14,9 +14,9 @@ and count, mask, compare and the audit of the run's tokenizer read ``OUT/encoded
 (their outputs are those of the raw corpus, byte for byte), so changing a masking
 option reruns only the masks.
 
-Each stage directory holds ``.stage.json``: a fingerprint over the stage's
-options, the fingerprints of its inputs (corpus contents, tokenizer hash,
-upstream stages) and the code version (package version and a hash of the
+Each stage directory holds ``.stage.json`` (`maskprep.pipeline.stages`): a
+fingerprint over the stage's options, the fingerprints of its inputs (corpus
+contents, tokenizer hash, upstream stages) and the code version (package version and a hash of the
 package's source files), plus the files it wrote. A stage whose fingerprint is
 unchanged and whose files are all present is skipped; otherwise its directory
 is replaced. A changed option therefore reruns that stage and the stages that
@@ -32,20 +32,16 @@ This module computes nothing itself; it calls each stage's library function.
 from __future__ import annotations
 
 import dataclasses
-import hashlib
 import importlib.resources
-import json
-import shutil
-import time
-from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, Sequence
+from typing import Any
 
 from ..errors import MaskprepError
-from .._tables import format_table
 from .._files import atomic_write_json as write_json
 from .._files import read_json
 from .config import RunConfig, load_run_config
+from .stages import RUN_FILE, STAGE_FILE, RunResult, StageResult, StageRunner, code_version, \
+    files_in, format_run_summary, stage_fingerprint
 
 __all__ = [
     "StageResult",
@@ -59,147 +55,6 @@ __all__ = [
     "STAGE_FILE",
     "RUN_FILE",
 ]
-
-STAGE_FILE = ".stage.json"
-RUN_FILE = "pipeline.json"
-
-
-@dataclass(frozen=True)
-class StageResult:
-    """One stage of a run: ``StageResult("count", "skipped", 0.0, Path("out/counts"), "ab12...")``."""
-
-    name: str
-    status: str  # "ran" or "skipped"
-    seconds: float  # this run's; 0.0 when skipped
-    output: Path
-    fingerprint: str
-    earlier_seconds: float | None = None  # a skipped stage: its time when it last ran (if recorded)
-
-    def timing(self) -> dict[str, Any]:
-        """The stage's time for pipeline.json, saying which run it comes from."""
-        if self.status == "ran":
-            return {"seconds": round(self.seconds, 3), "seconds_from": "this run"}
-        if self.earlier_seconds is None:
-            return {"seconds": None, "seconds_from": "not recorded"}
-        return {
-            "seconds": round(self.earlier_seconds, 3),
-            "seconds_from": "an earlier run (skipped now)",
-        }
-
-
-@dataclass(frozen=True)
-class RunResult:
-    """What `run_pipeline` did: stages in order, and the comparison's JSON if compare ran or was kept."""
-
-    output: Path
-    config: Path
-    stages: tuple[StageResult, ...]
-    tokenizer: Path
-    compare: dict[str, Any] | None = None
-
-    def stage(self, name: str) -> StageResult:
-        """The result of one stage: ``result.stage("mask.pmi").status`` -> 'skipped'."""
-        return next(s for s in self.stages if s.name == name)
-
-
-_CODE: list[str] = []
-
-
-def code_version() -> str:
-    """Package version plus sha256 of every source file of the package (any code change reruns stages).
-
-    >>> len(code_version()) > 10
-    True
-    """
-    if not _CODE:
-        from .._version import __version__
-
-        h = hashlib.sha256()
-        package = Path(__file__).resolve().parent.parent
-        for p in sorted(package.rglob("*.py")):
-            h.update(p.relative_to(package).as_posix().encode() + b"\0" + p.read_bytes() + b"\0")
-        _CODE.append(f"{__version__}+{h.hexdigest()[:16]}")
-    return _CODE[0]
-
-
-def _jsonable(value: Any) -> Any:
-    if hasattr(value, "value") and not isinstance(value, (int, float, str)):
-        return value.value
-    if isinstance(value, (tuple, list)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if hasattr(value, "__dataclass_fields__"):
-        return {k: _jsonable(getattr(value, k)) for k in value.__dataclass_fields__}
-    if isinstance(value, Path):
-        return str(value)
-    return value
-
-
-def stage_fingerprint(name: str, options: Any, inputs: dict[str, Any]) -> str:
-    """sha256 over a stage's name, options, input fingerprints and the code version.
-
-    >>> len(stage_fingerprint("units", {"top": 5000}, {"counts": "ab12"}))
-    64
-    """
-    doc = {"stage": name, "options": _jsonable(options), "inputs": inputs, "code": code_version()}
-    return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
-
-
-class _Runner:
-    def __init__(self, out: Path, *, force: bool, quiet: bool) -> None:
-        self.out, self.force, self.quiet = out, force, quiet
-        self.results: list[StageResult] = []
-
-    def stage(self, name: str, subdir: str, options: Any, inputs: dict[str, Any],
-              run: Callable[[Path], Sequence[str]]) -> StageResult:
-        """Run `run(dir)` (returning the files it wrote, relative to dir) unless up to date."""
-        d = self.out / subdir
-        fp = stage_fingerprint(name, options, inputs)
-        record = d / STAGE_FILE
-        if not self.force and record.is_file():
-            try:
-                old = json.loads(record.read_text(encoding="utf-8"))
-            except (OSError, ValueError):
-                old = {}
-            if old.get("fingerprint") == fp and all(
-                (d / f).exists() for f in old.get("files", ["?"])
-            ):
-                earlier = old.get("seconds")
-                result = StageResult(name, "skipped", 0.0, d, fp,
-                                     float(earlier) if isinstance(earlier, (int, float)) else None)
-                self._log(result)
-                self.results.append(result)
-                return result
-        if d.exists():
-            shutil.rmtree(d)
-        d.mkdir(parents=True)
-        if not self.quiet:
-            import sys
-
-            print(f"[{name}] running", file=sys.stderr, flush=True)
-        start = time.monotonic()
-        files = sorted(run(d))
-        seconds = time.monotonic() - start
-        write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
-                                   "inputs": inputs, "code": code_version(), "files": files,
-                                   "seconds": round(seconds, 3)})
-        result = StageResult(name, "ran", seconds, d, fp)
-        self._log(result)
-        self.results.append(result)
-        return result
-
-    def _log(self, r: StageResult) -> None:
-        if not self.quiet:
-            import sys
-
-            how = "up to date, skipped" if r.status == "skipped" else f"done in {r.seconds:.1f}s"
-            print(f"[{r.name}] {how}: {r.output}", file=sys.stderr, flush=True)
-
-
-def _files_in(d: Path) -> list[str]:
-    return [str(p.relative_to(d)) for p in d.rglob("*") if p.is_file() and p.name != STAGE_FILE
-            and not any(part.startswith(".") for part in p.relative_to(d).parts)]
 
 
 def _prepare_output(out: Path, config: RunConfig) -> None:
@@ -230,7 +85,7 @@ def run_pipeline(
     executor: Any = None,
     quiet: bool = False,
 ) -> RunResult:
-    """Run every stage of a pipeline file that is not up to date; return what ran and what was skipped.
+    """Run every stage of a pipeline file that is not up to date; return what ran and was skipped.
 
     >>> result = run_pipeline("sample_corpus/demo.toml", output="demo-out")  # doctest: +SKIP
     >>> [s.status for s in result.stages]  # doctest: +SKIP
@@ -285,7 +140,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
     from ..corpus.reader import corpus_fingerprint, resolve_inputs
     from ..tokenizer.encoding import load_tokenizer
 
-    runner = _Runner(out, force=force, quiet=quiet)
+    runner = StageRunner(out, force=force, quiet=quiet)
     corpus = list(cfg.corpus)
     copts = cfg.corpus_options
     corpus_fp = corpus_fingerprint(resolve_inputs(corpus), copts)
@@ -331,13 +186,14 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
     info = load_tokenizer(tok_path)
     inputs = {**base_inputs, "tokenizer": info.hash, "words": words.describe()}
     if any(x is not None for x in (cfg.audit, cfg.count, cfg.mask, cfg.compare)):
-        # tokenize once: every later stage reads the encoded directory (same outputs as from the raw corpus)
+        # tokenize once: every later stage reads the encoded directory (same outputs as from
+        # the raw corpus)
         from ..encoded.write import encode_corpus
 
         def run_enc(d: Path) -> list[str]:
             encode_corpus(corpus, tokenizer=info, output=d, corpus_options=copts, executor=executor,
                           overwrite=True, words=words)
-            return _files_in(d)
+            return files_in(d)
 
         enc_fp = runner.stage(
             "encode", "encoded", {"words": words.describe()}, inputs, run_enc
@@ -378,7 +234,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                 words=words,
                 sample=a["sample"],
             )
-            return _files_in(d)
+            return files_in(d)
 
         runner.stage(
             "audit",
@@ -394,7 +250,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
 
         def run_cnt(d: Path) -> list[str]:
             _count(corpus, tok_path, d, count_cfg, copts, executor, quiet)
-            return _files_in(d)
+            return files_in(d)
 
         counts_fp = runner.stage("count", "counts", count_cfg, inputs, run_cnt).fingerprint
         if cfg.units is not None:
@@ -454,7 +310,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                     overwrite=True,
                     words=words,
                 )
-                return _files_in(d)
+                return files_in(d)
 
             runner.stage(f"mask.{strategy}", f"mask/{strategy}",
                          {"masking": masking, "packing": m["packing"], "shards": m["shards"]},
@@ -556,25 +412,3 @@ def run_demo(*, output: str | Path = "maskprep-demo", force: bool = False, execu
         executor=executor,
         quiet=quiet,
     )
-
-
-_MAIN_FILES = {
-    "tokenizer": "tokenizer.json",
-    "encode": "encoded.json",
-    "audit": "audit.html",
-    "count": "counts.json",
-    "units": "units.tsv",
-    "compare": "compare.html",
-}
-
-
-def format_run_summary(result: RunResult) -> str:
-    """Stage table (status, time, main output) for the terminal: ``print(format_run_summary(result))``."""
-    rows = [("stage", "status", "seconds", "output")]
-    for s in result.stages:
-        main = _MAIN_FILES.get(s.name.split(".")[0])
-        where = s.output / main if main and (s.output / main).exists() else s.output
-        rows.append(
-            (s.name, s.status, f"{s.seconds:.1f}" if s.status == "ran" else "-", str(where))
-        )
-    return format_table(rows, left=(0, 1, 3))

@@ -56,7 +56,8 @@ def table(
     overrides both for the named columns. None is an empty cell, booleans read yes/no.
     Text in the first column (the row's name) does not wrap; headers do.
 
-    >>> table(headers=["tokenizer", "tokens/word"], rows=[["wp-8k", 1.2345]], numeric_format=".2f").count("1.23")
+    >>> table(headers=["tokenizer", "tokens/word"], rows=[["wp-8k", 1.2345]],
+    ...       numeric_format=".2f").count("1.23")
     1
     """
     formats = dict(column_formats or {})
@@ -70,7 +71,8 @@ def table(
             if isinstance(value, numbers.Real) and not isinstance(value, bool):
                 is_int = isinstance(value, numbers.Integral)
                 chosen = formats.get(headers[c]) or (integer_format if is_int else numeric_format)
-                text = _formatted(int(value) if is_int else float(value), chosen)  # type: ignore[call-overload]
+                number = int(value) if is_int else float(value)  # type: ignore[call-overload]
+                text = _formatted(number, chosen)
                 has_number[c] = True
                 cells.append(f'<td class="num">{esc(text)}</td>')
             else:
@@ -122,7 +124,8 @@ def highlighted_sequence(
     masking) appear under each masked token and in its tooltip. Tokens with unit
     id -1 (special tokens) are dimmed.
 
-    >>> highlighted_sequence(["the", "[MASK]", "[MASK]"], masked=[False, True, True], unit_ids=[0, 1, 1], originals=["the", "new", "york"]).count("<mark")
+    >>> highlighted_sequence(["the", "[MASK]", "[MASK]"], masked=[False, True, True],
+    ...                      unit_ids=[0, 1, 1], originals=["the", "new", "york"]).count("<mark")
     1
     """
     n = len(tokens)
@@ -182,14 +185,17 @@ _CSS = """
 --mark:#ffe28a;--markline:#9a6b00}
 @media (prefers-color-scheme:dark){:root{--bg:#15171b;--fg:#e4e6ea;--muted:#a3aab5;--rule:#3a3f47;
 --zebra:#1d2025;--mark:#5b4700;--markline:#e2b33c}}
-*{box-sizing:border-box} html{background:var(--bg);color:var(--fg)} a{color:inherit} p,li{max-width:46rem}
+*{box-sizing:border-box} html{background:var(--bg);color:var(--fg)} a{color:inherit} \
+p,li{max-width:46rem}
 body{margin:0;font:16px/1.55 system-ui,-apple-system,"Segoe UI",Roboto,Helvetica,Arial,sans-serif}
 main{max-width:96rem;margin:0 auto;padding:2rem 1.25rem 3rem}
 h1{font-size:1.85rem;line-height:1.2;margin:0 0 .3rem}
-.subtitle{color:var(--muted);margin:0 0 1.5rem;font-size:1.05rem} nav ol{margin:.5rem 0 0;padding-left:1.4rem;columns:2}
+.subtitle{color:var(--muted);margin:0 0 1.5rem;font-size:1.05rem} \
+nav ol{margin:.5rem 0 0;padding-left:1.4rem;columns:2}
 h2{font-size:1.3rem;margin:2.4rem 0 .8rem;padding-bottom:.3rem;border-bottom:1px solid var(--rule)}
 svg.chart{display:block;max-width:100%;height:auto;margin:1.2rem 0;break-inside:avoid}
-.tablewrap{overflow-x:auto;margin:1rem 0} caption{text-align:left;color:var(--muted);padding-bottom:.3rem}
+.tablewrap{overflow-x:auto;margin:1rem 0} \
+caption{text-align:left;color:var(--muted);padding-bottom:.3rem}
 table{border-collapse:collapse;font-size:.92rem;font-variant-numeric:tabular-nums}
 th,td{padding:.32rem .6rem;border-bottom:1px solid var(--rule);text-align:left;vertical-align:top}
 th{border-bottom:2px solid var(--rule);font-weight:600;overflow-wrap:break-word;hyphens:auto}
@@ -205,14 +211,18 @@ dl.defs dt{font-weight:600} dl.defs dd{margin:0}
 dl.defs{grid-template-columns:1fr}
 dl.defs dd{margin:0 0 .5rem}}
 footer{margin-top:3rem;color:var(--muted);font-size:.85rem}
-.seq{display:flex;flex-wrap:wrap;align-items:flex-start;gap:.35rem .2rem;margin:.8rem 0;padding:.7rem;
-border:1px solid var(--rule);border-radius:6px;font:.9rem/1.3 ui-monospace,Menlo,Consolas,monospace;break-inside:avoid}
-.seq .t{display:inline-flex;flex-direction:column;align-items:center;padding:.05rem .15rem;white-space:pre}
+.seq{display:flex;flex-wrap:wrap;align-items:flex-start;gap:.35rem .2rem;margin:.8rem 0;\
+padding:.7rem;
+border:1px solid var(--rule);border-radius:6px;\
+font:.9rem/1.3 ui-monospace,Menlo,Consolas,monospace;break-inside:avoid}
+.seq .t{display:inline-flex;flex-direction:column;align-items:center;padding:.05rem .15rem;\
+white-space:pre}
 .seq mark{display:inline-flex;flex-wrap:wrap;max-width:100%;gap:.1rem;background:var(--mark);
 color:inherit;border:1px solid var(--markline);border-radius:4px;padding:0 .1rem}
 .seq .sp{color:var(--muted)} .seq .m{font-weight:600}
 .seq .o{font-size:.7rem;font-weight:400;color:var(--muted);line-height:1.1}
-@media print{:root{--bg:#fff;--fg:#000;--muted:#444;--rule:#999;--zebra:#f2f2f2;--mark:#ffe28a;--markline:#7a5500}
+@media print{:root{--bg:#fff;--fg:#000;--muted:#444;--rule:#999;--zebra:#f2f2f2;--mark:#ffe28a;\
+--markline:#7a5500}
 main{max-width:none;padding:0} nav{display:none} h2{break-after:avoid}
 *{-webkit-print-color-adjust:exact;print-color-adjust:exact}}
 """
@@ -225,8 +235,8 @@ def page(*, title: str, sections: Sequence[tuple[str, str]], subtitle: str = "",
     Headings, title, subtitle and notes are escaped; section bodies are trusted
     markup from this module. Three or more sections get a contents list.
 
-    >>> page(title="Audit", sections=[("Tokens per word", paragraph("1.3 on average"))]).startswith("<!DOCTYPE html>")
-    True
+    >>> page(title="Audit", sections=[("Tokens per word", paragraph("1.3 on average"))])[:15]
+    '<!DOCTYPE html>'
     """
     out = [
         "<!DOCTYPE html>",
@@ -259,8 +269,8 @@ def page(*, title: str, sections: Sequence[tuple[str, str]], subtitle: str = "",
         items = "".join(f"<li>{esc(n)}</li>" for n in notes)
         out.append(f'<section class="notes">\n<h2>Notes</h2>\n<ul>{items}</ul>\n</section>')
     out += [
-        "<footer>Written by maskprep. This page is self-contained: it loads nothing and runs no scripts."
-        "</footer>",
+        "<footer>Written by maskprep. This page is self-contained: it loads nothing and runs "
+        "no scripts.</footer>",
         "</main>",
         "</body>",
         "</html>",
@@ -270,7 +280,9 @@ def page(*, title: str, sections: Sequence[tuple[str, str]], subtitle: str = "",
 
 
 def write_page(path: str | os.PathLike[str], html: str) -> Path:
-    """Write ``html`` atomically (temp file beside ``path``, then rename): ``write_page("out/audit.html", html)``.
+    """Write ``html`` atomically (temp file beside ``path``, then rename).
+
+    ``write_page("out/audit.html", html)``
 
     Parent directories are created; an OSError becomes a `MaskprepError` naming the path.
     """

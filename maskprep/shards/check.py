@@ -262,9 +262,9 @@ def verify_shards(directory: str | Path, *, max_faults: int = 50) -> VerifyRepor
     if ss.legacy_layout:
         report.notes.append(
             f"{ss.directory}: metadata at the top of the directory (format version "
-            f"{ss.manifest.format_version}); maskprep reads it, but pyarrow.dataset and other directory "
-            f"readers cannot open the directory until manifest.json, stats.json and tokenizer.json "
-            f"are moved into {META_DIR}/"
+            f"{ss.manifest.format_version}); maskprep reads it, but pyarrow.dataset and other "
+            "directory readers cannot open the directory until manifest.json, stats.json and "
+            f"tokenizer.json are moved into {META_DIR}/"
         )
     if not stats_path.is_file():
         faults.append(f"{stats_path.relative_to(ss.directory)}: missing")
@@ -318,9 +318,8 @@ def _raw_batches(
                 lengths = np.diff(col.offsets.to_numpy())
                 bad = _first(lengths != L)
                 if bad is not None:
-                    faults.append(
-                        f"{record.file} row {row0 + bad}: {name} has {lengths[bad]} entries, not {L}"
-                    )
+                    faults.append(f"{record.file} row {row0 + bad}: {name} has "
+                                  f"{lengths[bad]} entries, not {L}")
                     return
         row0 += part.num_rows
         yield to_numpy(part, seq_len=L, copy=record.copy)
@@ -335,12 +334,18 @@ _CONTROLS = {**{c: chr(0x2400 + c) for c in range(0x20)}, 0x7F: "\u2421",
 
 
 def safe_text(text: str) -> str:
-    """Text with every control character made visible: ``safe_text("a\x1b[31mb")`` -> 'a\u241b[31mb'."""
+    """Text with every control character made visible.
+
+    ``safe_text("a\x1b[31mb")`` -> 'a\u241b[31mb'
+    """
     return text.translate(_CONTROLS)
 
 
 def _pieces(info: Any, ids: list[int]) -> list[str]:
-    """Decoded text of each token in running text (byte and space markers decoded, see `tokenizer.pieces`)."""
+    """Decoded text of each token in running text (byte and space markers decoded).
+
+    See `maskprep.tokenizer.pieces`.
+    """
     from ..tokenizer.pieces import running_text
 
     return [safe_text(p) for p in running_text(info, ids)]  # control characters made visible
@@ -425,8 +430,8 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
     o = ss.options
     words = o.get("words", {"definition": "tokenizer"})
     lines = [
-        f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, words {words['definition']}, "
-        f"rate {o['rate']}, mix "
+        f"{ss.directory}: {plural(len(ss), 'row')}, strategy {o['strategy']}, "
+        f"words {words['definition']}, rate {o['rate']}, mix "
         f"{'/'.join(str(x) for x in o['mix'])}, seed {o['seed']}, "
         + ("dynamic (masked here on the fly with each row's copy)" if ss.dynamic else "static"),
         ("masked runs in colour" if color else "{...} a masked run")
@@ -450,8 +455,9 @@ def format_examples(directory: str | Path, *, n: int = 3, color: bool = False) -
                 seq = int(batch["sequence_id"][r])
                 lines.append("")
                 lines.append(
-                    f"{record.file} row {row_in_file + r}: sequence {seq >> 32}:{seq & 0xFFFFFFFF}, copy "
-                    f"{record.copy}, {plural(length, 'token')}, {plural(sum(target), 'target')} in "
+                    f"{record.file} row {row_in_file + r}: "
+                    f"sequence {seq >> 32}:{seq & 0xFFFFFFFF}, copy {record.copy}, "
+                    f"{plural(length, 'token')}, {plural(sum(target), 'target')} in "
                     f"{plural(len(runs), 'run')}"
                     + (f", {masked.shape[1] - length} padding" if length < masked.shape[1] else "")
                 )

@@ -28,9 +28,15 @@ from ..wording import plural
 from .._files import atomic_path
 from .select import UnitVocabulary
 
-__all__ = ["write_units", "read_units", "read_units_for", "format_top_units", "FORMAT_VERSION"]
+__all__ = [
+    "write_units",
+    "read_units",
+    "read_units_for",
+    "format_top_units",
+    "UNITS_FORMAT_VERSION",
+]
 
-FORMAT_VERSION = 1
+UNITS_FORMAT_VERSION = 1
 """Version of the ``units.parquet`` layout."""
 METADATA_KEY = b"maskprep"
 _KIND = "units"
@@ -50,7 +56,7 @@ def write_units(vocab: UnitVocabulary, path: Union[str, Path]) -> tuple[Path, Pa
     if path.suffix != ".parquet":
         raise MaskprepError(f"-o {path}: give a .parquet file name (a .tsv is written beside it)")
     n = np.asarray(vocab.n, dtype=np.int64)
-    meta = {"kind": _KIND, "format_version": FORMAT_VERSION, "measure": vocab.measure.value,
+    meta = {"kind": _KIND, "format_version": UNITS_FORMAT_VERSION, "measure": vocab.measure.value,
             "options": dict(vocab.options), "tokenizer_hash": vocab.tokenizer_hash,
             "source": dict(vocab.source), "maskprep_version": __version__,
             "word_splitting": dict(vocab.word_splitting)}
@@ -95,7 +101,10 @@ def _list_array(arrays: tuple[np.ndarray, ...], dtype: Any) -> Any:
 
 
 def read_units(path: Union[str, Path]) -> UnitVocabulary:
-    """Load a ``units.parquet`` written by ``write_units``: ``vocab = read_units("units.parquet")``."""
+    """Load a ``units.parquet`` written by ``write_units``.
+
+    ``vocab = read_units("units.parquet")``
+    """
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -120,10 +129,10 @@ def read_units(path: Union[str, Path]) -> UnitVocabulary:
             f"{path}: not a units file (no maskprep units metadata); give the units.parquet "
             "written by maskprep units"
         )
-    if meta.get("format_version") != FORMAT_VERSION:
+    if meta.get("format_version") != UNITS_FORMAT_VERSION:
         raise MaskprepError(
             f"{path}: units format_version {meta.get('format_version')!r}, but this maskprep "
-            f"reads version {FORMAT_VERSION}; re-run maskprep units with this version"
+            f"reads version {UNITS_FORMAT_VERSION}; re-run maskprep units with this version"
         )
     missing = [c for c in _COLUMNS if c not in table.schema.names]
     if missing:
@@ -201,11 +210,15 @@ def format_top_units(vocab: UnitVocabulary, *, per_length: int = 10) -> str:
     n = np.asarray(vocab.n, dtype=np.int64)
     lengths = np.unique(n).tolist()
     head = (
-        f"{plural(len(vocab), 'unit')} by {vocab.measure.value} (range {vocab.measure.range_text}), "
+        f"{plural(len(vocab), 'unit')} by {vocab.measure.value} "
+        f"(range {vocab.measure.range_text}), "
         + ", ".join(f"{int((n == k).sum())} of {k} words" for k in lengths)
     )
     if not len(vocab):
-        return f"0 units by {vocab.measure.value}: no n-gram passed the filters (count, positive association)"
+        return (
+            f"0 units by {vocab.measure.value}: no n-gram passed the filters "
+            "(count, positive association)"
+        )
     lines = [head, _filters_line(vocab)]
     for k in lengths:
         idx = np.flatnonzero(n == k)[:per_length]
@@ -234,8 +247,8 @@ def _filters_line(vocab: UnitVocabulary) -> str:
     if share > 0:
         frags = int(src.get("dropped_fragment", 0))
         parts.append(
-            f"{frags:,} {'was a fragment' if frags == 1 else 'were fragments'} (one n-gram a word longer holds "
-            f">= {share:g} of their occurrences)"
+            f"{frags:,} {'was a fragment' if frags == 1 else 'were fragments'} "
+            f"(one n-gram a word longer holds >= {share:g} of their occurrences)"
         )
     if not parts:
         return "filters: none (--edge-words 0 --fragment-share 0)"

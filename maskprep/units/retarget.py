@@ -198,9 +198,9 @@ def _words_differ(path: Any, vocab: Any, info: Any, bad: np.ndarray) -> str:
     more = f" and {len(bad) - 4:,} more" if len(bad) > 4 else ""
     return (
         f"--units {path}: the words are split the same way, but this tokenizer reads the "
-        f"words of {len(bad):,} of the {plural(len(vocab), 'unit')} differently from the tokenizer that "
-        f"built them: {'; '.join(examples)}{more}; rebuild the units with maskprep count and "
-        "maskprep units using this tokenizer"
+        f"words of {len(bad):,} of the {plural(len(vocab), 'unit')} differently from the "
+        f"tokenizer that built them: {'; '.join(examples)}{more}; rebuild the units with "
+        "maskprep count and maskprep units using this tokenizer"
     )
 
 

@@ -31,14 +31,15 @@ Which n-grams are kept:
   lengths in proportion to their shares. Lengths not listed get no units.
   Without it, all lengths compete in one ranking.
 
-It does not write or read units files, nor list units for the terminal (see
-unit_files.py); nor does it segment sequences into units (that is the ``pmi``
-masking strategy, which consumes ``UnitVocabulary.by_length()``).
+The options and their checks are in ``maskprep.units.options``, the reading
+and checking of the counts directory in ``maskprep.units.countsdir``. It does
+not write or read units files, nor list units for the terminal (see
+``maskprep.units.files``); nor does it segment sequences into units (that is
+the ``pmi`` masking strategy, which consumes ``UnitVocabulary.by_length()``).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
@@ -46,18 +47,14 @@ from typing import Any, Mapping, Union
 
 import numpy as np
 
-from .cohesion import MAX_N, Measure, NgramIndex, score_ngrams, score_with_split_pmi
-from .filters import (
-    DEFAULT_EDGE_WORDS,
-    DEFAULT_FRAGMENT_SHARE,
-    edge_ok,
-    fragment_shares,
-    frequent_words,
-)
+from .cohesion import Measure, NgramIndex, score_ngrams, score_with_split_pmi
+from .countsdir import check_sha256, counts_meta, counts_tokenizer, read_ngrams
+from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, fragment_shares, \
+    frequent_words
+from .options import DEFAULT_MEASURE, DEFAULT_TOP, OPTION_HELP, UnitOptions, check_options, \
+    parse_per_length, quotas
 from .retarget import unit_token_ids, word_splitting
-from .._checks import is_whole
 from ..errors import MaskprepError
-from .._files import read_json
 from ..progress import Progress
 
 __all__ = [
@@ -69,63 +66,6 @@ __all__ = [
     "DEFAULT_MEASURE",
     "OPTION_HELP",
 ]
-
-COUNTS_FORMAT_VERSION = 1
-"""Version of the counts directory this module reads."""
-DEFAULT_TOP = 50_000
-DEFAULT_MEASURE = Measure.LLR
-_COUNTS_FIELDS = (
-    "format_version",
-    "N",
-    "max_n",
-    "min_count",
-    "tokenizer_hash",
-    "corpus_fingerprint",
-)
-
-OPTION_HELP: dict[str, str] = {
-    "measure": "cohesion measure. "
-    + "; ".join(m.description for m in Measure)
-    + ". Units must attract: score > 0 (llr: more frequent than chance on every binary split).",
-    "top": f"keep at most this many units, best first (default {DEFAULT_TOP:,}).",
-    "min_count": "keep only n-grams counted at least this often (default and minimum: the --min-count "
-    "given to maskprep count).",
-    "per_length": "shares of --top per unit length, e.g. 2:0.5,3:0.3,4:0.1,5:0.1 (must add up to 1; unused "
-    "places flow to the other listed lengths; unlisted lengths get none). Default: one ranking "
-    "over all lengths.",
-    "max_n": "longest unit in words, 2..the longest n-gram counted (default: all counted lengths).",
-    "edge_words": f"no unit begins or ends with one of the corpus's K most frequent words (they may stand "
-    f"inside a unit); 0: no such filter (default {DEFAULT_EDGE_WORDS}).",
-    "fragment_share": "drop an n-gram when one n-gram a word longer holds at least this share of its "
-    f"occurrences (a fragment of it); 0: keep fragments (default {DEFAULT_FRAGMENT_SHARE}).",
-}
-"""Help text for each option of ``maskprep units`` (keys are ``build_units`` keywords)."""
-
-
-@dataclass(frozen=True)
-class UnitOptions:
-    """Options of one unit-vocabulary build (validated; see ``build_units``)."""
-
-    measure: Measure
-    top: int
-    min_count: int
-    max_n: int
-    per_length: tuple[tuple[int, float], ...] | None = None
-    edge_words: int = DEFAULT_EDGE_WORDS
-    fragment_share: float = DEFAULT_FRAGMENT_SHARE
-
-    def to_json(self) -> dict[str, Any]:
-        return {
-            "measure": self.measure.value,
-            "top": self.top,
-            "min_count": self.min_count,
-            "max_n": self.max_n,
-            "per_length": None
-            if self.per_length is None
-            else {str(n): s for n, s in self.per_length},
-            "edge_words": self.edge_words,
-            "fragment_share": self.fragment_share,
-        }
 
 
 @dataclass(frozen=True, eq=False)
@@ -175,202 +115,6 @@ class UnitVocabulary:
         return out
 
 
-# ------------------------------------------------------------------ options
-
-def parse_per_length(spec: Union[str, Mapping[int, float], None], *, max_n: int = MAX_N,
-                     option: str = "--per-length") -> tuple[tuple[int, float], ...] | None:
-    """Parse ``"2:0.5,3:0.5"`` into ``((2, 0.5), (3, 0.5))``; shares must add up to 1.
-
-    >>> parse_per_length("3:0.25,2:0.75")
-    ((2, 0.75), (3, 0.25))
-    """
-    if spec is None:
-        return None
-    example = "e.g. 2:0.5,3:0.3,4:0.1,5:0.1"
-    if isinstance(spec, str):
-        items: list[tuple[Any, Any]] = []
-        for piece in spec.split(","):
-            piece = piece.strip()
-            if piece.count(":") != 1:
-                raise MaskprepError(f"{option}: {piece!r} is not LENGTH:SHARE ({example})")
-            items.append(tuple(p.strip() for p in piece.split(":")))  # type: ignore[arg-type]
-    else:
-        items = list(spec.items())
-    shares: dict[int, float] = {}
-    for raw_n, raw_share in items:
-        try:
-            length = int(raw_n)
-        except (TypeError, ValueError):
-            raise MaskprepError(
-                f"{option}: length {raw_n!r} is not a whole number ({example})"
-            ) from None
-        try:
-            share = float(raw_share)
-        except (TypeError, ValueError):
-            raise MaskprepError(
-                f"{option}: share {raw_share!r} for length {length} is not a number ({example})"
-            ) from None
-        if not 2 <= length <= max_n:
-            raise MaskprepError(f"{option}: length {length} is outside 2..{max_n} "
-                                f"(units have 2 or more words, counted up to {max_n})")
-        if not (math.isfinite(share) and 0.0 < share <= 1.0):
-            raise MaskprepError(
-                f"{option}: share {raw_share} for length {length} must be in (0, 1]"
-            )
-        if length in shares:
-            raise MaskprepError(f"{option}: length {length} is given twice")
-        shares[length] = share
-    if not shares:
-        raise MaskprepError(f"{option}: no LENGTH:SHARE pairs given ({example})")
-    total = sum(shares.values())
-    if abs(total - 1.0) > 1e-6:
-        raise MaskprepError(
-            f"{option}: the shares add up to {total:g}; they must add up to 1 ({example})"
-        )
-    return tuple(sorted(shares.items()))
-
-
-def _quotas(top: int, shares: Mapping[int, float], available: Mapping[int, int]) -> dict[int, int]:
-    """Split `top` by `shares` (largest remainder); unused places flow to lengths with room."""
-    take = {n: 0 for n in shares}
-    left = top
-    while left > 0:
-        room = {n: available[n] - take[n] for n in shares if available[n] > take[n]}
-        if not room:
-            break
-        weight = sum(shares[n] for n in room)
-        exact = {n: left * shares[n] / weight for n in room}
-        alloc = {n: int(math.floor(exact[n])) for n in room}
-        spare = left - sum(alloc.values())
-        for n in sorted(room, key=lambda k: (-(exact[k] - alloc[k]), k))[:spare]:
-            alloc[n] += 1
-        placed = {n: min(alloc[n], room[n]) for n in room}
-        take.update({n: take[n] + placed[n] for n in room})
-        left -= sum(placed.values())
-        if not any(placed.values()):
-            break
-    return take
-
-
-# ------------------------------------------------------------------ counts directory
-
-def _counts_meta(counts_dir: Path) -> dict[str, Any]:
-    if not counts_dir.exists():
-        raise MaskprepError(f"COUNTS_DIR {counts_dir}: not found; make it first with "
-                            f"maskprep count CORPUS... -t TOKENIZER.json -o {counts_dir}")
-    if not counts_dir.is_dir():
-        raise MaskprepError(
-            f"COUNTS_DIR {counts_dir}: is a file, not a counts directory written by maskprep count"
-        )
-    path = counts_dir / "counts.json"
-    if not path.is_file():
-        raise MaskprepError(
-            f"COUNTS_DIR {counts_dir}: has no counts.json, so it is not a finished counts "
-            "directory; re-run maskprep count"
-        )
-    meta = read_json(path, what="counts file")
-    if not isinstance(meta, dict):
-        raise MaskprepError(
-            f"{path}: not a counts file (expected a JSON object); re-run maskprep count"
-        )
-    for name in _COUNTS_FIELDS:
-        if name not in meta:
-            raise MaskprepError(
-                f"{path}: field {name!r} is missing; the file is incomplete or from another "
-                "program; re-run maskprep count"
-            )
-    if meta["format_version"] != COUNTS_FORMAT_VERSION:
-        raise MaskprepError(
-            f"{path}: counts format_version {meta['format_version']!r}, but this maskprep "
-            f"reads version {COUNTS_FORMAT_VERSION}; re-run maskprep count with this version"
-        )
-    for name in ("N", "max_n", "min_count"):
-        if not _is_whole(meta[name], 1):
-            raise MaskprepError(
-                f"{path}: field {name!r} must be a whole number >= 1, got {meta[name]!r}; "
-                "re-run maskprep count"
-            )
-    if not isinstance(meta["tokenizer_hash"], str):
-        raise MaskprepError(
-            f"{path}: field 'tokenizer_hash' must be a string; re-run maskprep count"
-        )
-    return meta
-
-
-def _load_tokenizer(counts_dir: Path, expected_hash: str) -> Any:
-    from ..tokenizer.encoding import load_tokenizer
-
-    path = counts_dir / "tokenizer.json"
-    if not path.is_file():
-        raise MaskprepError(
-            f"COUNTS_DIR {counts_dir}: has no tokenizer.json (the copy of the tokenizer "
-            "used for counting); re-run maskprep count"
-        )
-    info = load_tokenizer(path)  # one definition of the tokenizer hash for every stage
-    if info.hash != expected_hash:
-        raise MaskprepError(
-            f"{path}: this tokenizer does not match the tokenizer_hash in counts.json, so the "
-            "counts come from another tokenizer; re-run maskprep count"
-        )
-    return info.tokenizer
-
-
-def _check_sha256(counts_dir: Path, meta: Mapping[str, Any]) -> None:
-    """Every n-gram file must still have the sha256 counts.json recorded (counts of older versions
-    recorded none)."""
-    from .._files import file_sha256
-
-    recorded = meta.get("sha256")
-    if not isinstance(recorded, dict):
-        return
-    for name, digest in sorted(recorded.items()):
-        path = counts_dir / str(name)
-        if path.is_file() and file_sha256(path) != digest:
-            raise MaskprepError(
-                f"{path}: changed or damaged since it was counted (its sha256 differs from "
-                "counts.json); re-run maskprep count"
-            )
-
-
-def _read_ngrams(
-    counts_dir: Path, n: int, *, with_text: bool
-) -> tuple[np.ndarray, np.ndarray, Any]:
-    import pyarrow as pa
-    import pyarrow.parquet as pq
-
-    path = counts_dir / f"ngrams-{n}.parquet"
-    if not path.is_file():
-        raise MaskprepError(
-            f"{path}: missing; the counts directory is incomplete; re-run maskprep count"
-        )
-    wanted = ["count"] + [f"w{j}" for j in range(n)] + (["text"] if with_text else [])
-    try:
-        schema = pq.read_schema(path)
-        missing = [c for c in wanted if c not in schema.names]
-        if missing:
-            raise MaskprepError(
-                f"{path}: missing column(s) {', '.join(missing)}; re-run maskprep count"
-            )
-        table = pq.read_table(path, columns=wanted)
-    except (pa.ArrowException, OSError) as exc:
-        raise MaskprepError(
-            f"{path}: not a readable Parquet file ({exc}); re-run maskprep count"
-        ) from None
-    for j in range(n):
-        if table.schema.field(f"w{j}").type != pa.uint64():
-            raise MaskprepError(
-                f"{path}: column w{j} must be uint64 word keys; re-run maskprep count"
-            )
-    if not pa.types.is_integer(table.schema.field("count").type):
-        raise MaskprepError(f"{path}: column count must be integers; re-run maskprep count")
-    keys = np.empty((table.num_rows, n), dtype=np.uint64)
-    for j in range(n):
-        keys[:, j] = table.column(f"w{j}").to_numpy()
-    counts = table.column("count").to_numpy().astype(np.int64)
-    text = table.column("text").cast(pa.large_string()) if with_text else None
-    return keys, counts, text
-
-
 # ------------------------------------------------------------------ build
 
 def build_units(
@@ -388,7 +132,8 @@ def build_units(
     """Choose the `top` most cohesive n-grams (n >= 2) of a counts directory, best first.
 
     counts_dir: directory written by ``maskprep count``.
-    measure: llr (default) | pmi | pmi-naive | npmi | t (see ``Measure.description`` for each range).
+    measure: llr (default) | pmi | pmi-naive | npmi | t (see ``Measure.description`` for
+        each range).
     top: number of units to keep at most (>= 1).
     min_count: keep only n-grams counted at least this often; default and minimum: the
         counts' own min_count.
@@ -406,11 +151,12 @@ def build_units(
     import pyarrow as pa
 
     counts_dir = Path(counts_dir)
-    meta = _counts_meta(counts_dir)
-    _check_sha256(counts_dir, meta)
-    options = _options(meta, measure=measure, top=top, min_count=min_count, per_length=per_length,
-                       max_n=max_n, edge_words=edge_words, fragment_share=fragment_share)
-    tok = _load_tokenizer(counts_dir, meta["tokenizer_hash"])
+    meta = counts_meta(counts_dir)
+    check_sha256(counts_dir, meta)
+    options = check_options(meta, measure=measure, top=top, min_count=min_count,
+                            per_length=per_length, max_n=max_n, edge_words=edge_words,
+                            fragment_share=fragment_share)
+    tok = counts_tokenizer(counts_dir, meta["tokenizer_hash"])
     lengths = (
         [n for n, _ in options.per_length]
         if options.per_length
@@ -425,7 +171,7 @@ def build_units(
     dropped = {"edge": 0, "fragment": 0}
     with Progress("units", total=last, unit="lengths", quiet=quiet) as progress:
         for k in range(1, last + 1):
-            keys, counts, text = _read_ngrams(counts_dir, k, with_text=k in lengths or
+            keys, counts, text = read_ngrams(counts_dir, k, with_text=k in lengths or
                                               (k == 1 and options.edge_words > 0))
             if k == 1:
                 if int(counts.sum()) > N:
@@ -486,70 +232,9 @@ def build_units(
         word_splitting=word_splitting(tok.to_str()))
 
 
-def _options(
-    meta: Mapping[str, Any],
-    *,
-    measure: Union[Measure, str],
-    top: int,
-    min_count: int | None,
-    per_length: Union[str, Mapping[int, float], None],
-    max_n: int | None,
-    edge_words: int = 0,
-    fragment_share: float = 0.0,
-) -> UnitOptions:
-    counted_max = int(meta["max_n"])
-    if counted_max < 2:
-        raise MaskprepError(
-            "COUNTS_DIR: the counts hold only single words (max_n 1); re-run maskprep count "
-            "with --max-n 2 or more to find multi-word units"
-        )
-    m = Measure.parse(measure)
-    floor = int(meta["min_count"])
-    min_count = floor if min_count is None else min_count
-    for option, value in (("--top", top), ("--min-count", min_count)):
-        if not _is_whole(value, 1):
-            raise MaskprepError(f"{option}: must be a whole number >= 1, got {value!r}")
-    if min_count < floor:
-        raise MaskprepError(
-            f"--min-count {min_count}: the counts were pruned at {floor}, so rarer n-grams are "
-            f"not known; use --min-count {floor} or more, or re-run maskprep count "
-            f"--min-count {min_count}"
-        )
-    max_n = min(counted_max, MAX_N) if max_n is None else max_n
-    if not _is_whole(max_n, 2) or max_n > counted_max:
-        raise MaskprepError(
-            f"--max-n: must be in 2..{counted_max} (the longest n-grams counted), got {max_n!r}"
-        )
-    if not _is_whole(edge_words, 0):
-        raise MaskprepError(
-            f"--edge-words: must be a whole number >= 0 (0: no filter), got {edge_words!r}"
-        )
-    if (
-        isinstance(fragment_share, bool)
-        or not isinstance(fragment_share, (int, float, np.floating))
-        or not 0.0 <= float(fragment_share) <= 1.0
-    ):
-        raise MaskprepError(f"--fragment-share: must be a number in [0, 1] (0: keep fragments), "
-                            f"got {fragment_share!r}")
-    shares = parse_per_length(per_length, max_n=int(max_n))
-    return UnitOptions(
-        measure=m,
-        top=int(top),
-        min_count=int(min_count),
-        max_n=int(max_n),
-        per_length=shares,
-        edge_words=int(edge_words),
-        fragment_share=float(fragment_share),
-    )
-
-
-def _is_whole(value: Any, low: int) -> bool:
-    return is_whole(value, low)
-
-
 @dataclass(frozen=True, eq=False)
 class _Scored:
-    """The attracting candidates of one length, scored, before the fragment filter and the top cut."""
+    """The attracting candidates of one length, scored, before the fragment filter and top cut."""
 
     n: int
     keys: np.ndarray
@@ -634,7 +319,7 @@ def _select(options: UnitOptions, candidates: Mapping[int, tuple[np.ndarray, Any
             0, options.top
         )
     shares = dict(options.per_length)
-    take = _quotas(options.top, shares, {n: candidates[n][1].num_rows for n in shares})
+    take = quotas(options.top, shares, {n: candidates[n][1].num_rows for n in shares})
     return pa.concat_tables([candidates[n][1].slice(0, take[n]) for n in sorted(shares)])
 
 

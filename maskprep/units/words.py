@@ -33,7 +33,7 @@ _U64 = np.uint64
 
 def resolve_words(definition: Any, corpus: Sequence[str], *, corpus_options: Any = None,
                   quiet: bool = False) -> WordsConfig:
-    """The `WordsConfig` of a ``--words`` value; ``cohesion`` learns its words from `corpus` first."""
+    """The `WordsConfig` of a ``--words`` value (``cohesion`` first learns words from `corpus`)."""
     if isinstance(definition, WordsConfig):
         return definition
     if str(definition or "tokenizer").strip().lower() == "cohesion":
