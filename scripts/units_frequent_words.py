@@ -7,12 +7,13 @@ them; exact counts up to trigrams (min count 3); pmi, npmi and llr unit lists
 of the best 1,000 and 5,000 n-grams without the edge-word and fragment
 filters, and pmi and llr lists with the default filters (at most 5,000). For
 each list, the words of the text are grouped into its units (`strategy_units`,
-as `mask --strategy pmi` does), and the script prints the share of tokens inside multi-word units and the
-easy-target share (punctuation or the 100 most frequent words, as
+as `mask --strategy pmi` does), and the script prints the share of tokens inside
+multi-word units and the easy-target share (punctuation or the 100 most frequent words, as
 `maskprep compare` counts it) of those tokens and of all tokens.
 
     python scripts/units_frequent_words.py
-    python scripts/units_frequent_words.py --quick     # one play; pmi: the best 1,000 unfiltered, and filtered
+    python scripts/units_frequent_words.py --quick     # one play; pmi: the best 1,000
+                                                       # unfiltered, and filtered
     python scripts/units_frequent_words.py --quick --lines 1500 --vocab-size 2000   # smoke run
 """
 
@@ -129,9 +130,11 @@ def main() -> None:
                 )
                 in_units += int(mw.sum())
                 maskable += int((units >= 0).sum())
+            easy_inside = inside.to_dict()["easy_target_share"]
+            easy_every = every.to_dict()["easy_target_share"]
             print(
                 f"{measure:7s}   {label:7s} {len(vocab):5d}   {in_units / maskable:26.1%}   "
-                f"{inside.to_dict()['easy_target_share']:22.1%}   {every.to_dict()['easy_target_share']:24.1%}"
+                f"{easy_inside:22.1%}   {easy_every:24.1%}"
             )
     finally:
         shutil.rmtree(work, ignore_errors=True)

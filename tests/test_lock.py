@@ -16,7 +16,7 @@ import time
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
+from click.testing import CliRunner, Result
 
 from maskprep._resume import LOCK_NAME, DirLock, Stage, claim, lock_dir
 from maskprep.cli import cli
@@ -45,6 +45,25 @@ def hold(out: Path, state: str) -> subprocess.Popen:
     return proc
 
 
+def cli_while_held(out: Path, state: str, args: list[str]) -> tuple[Result, int]:
+    """``maskprep --quiet --workers 1 ARGS`` while another process holds `out`'s lock.
+
+    Returns the command's result and the holder's PID (the holder is killed afterwards).
+    """
+    proc = hold(out, state)
+    try:
+        r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", *args])
+    finally:
+        proc.send_signal(signal.SIGKILL)
+        proc.wait()
+    return r, proc.pid
+
+
+def stage_args(command: str, corpus: Path, tokenizer: Path, out: Path, *extra: str) -> list[str]:
+    """``COMMAND CORPUS -t TOKENIZER -o OUT EXTRA...``."""
+    return [command, str(corpus), "-t", str(tokenizer), "-o", str(out), *extra]
+
+
 def test_a_second_claim_is_refused_naming_the_pid_and_a_killed_holder_never_blocks(tmp_path):
     out = tmp_path / "out"
     proc = hold(out, STAGE.state)
@@ -68,27 +87,10 @@ def test_a_second_claim_is_refused_naming_the_pid_and_a_killed_holder_never_bloc
 def test_count_and_mask_refuse_a_locked_directory(tmp_path, shakespeare_small, small_wordpiece):
     for command, state in (("count", ".maskprep-count"), ("mask", ".maskprep")):
         out = tmp_path / command
-        proc = hold(out, state)
-        try:
-            r = CliRunner().invoke(
-                cli,
-                [
-                    "--quiet",
-                    "--workers",
-                    "1",
-                    command,
-                    str(shakespeare_small),
-                    "-t",
-                    str(small_wordpiece),
-                    "-o",
-                    str(out),
-                    "--overwrite",
-                ],
-            )
-        finally:
-            proc.send_signal(signal.SIGKILL)
-            proc.wait()
-        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, (
+        r, pid = cli_while_held(
+            out, state, stage_args(command, shakespeare_small, small_wordpiece, out, "--overwrite")
+        )
+        assert r.exit_code == 1 and f"(PID {pid}) is writing this directory now" in r.output, (
             r.output
         )
         assert "Traceback" not in r.output
@@ -185,26 +187,10 @@ def test_audit_compare_and_run_lock_their_output_directory(
 
     for command in ("audit", "compare"):
         out = tmp_path / command
-        proc = hold(out, LOCK_STATE)
-        try:
-            r = CliRunner().invoke(
-                cli,
-                [
-                    "--quiet",
-                    "--workers",
-                    "1",
-                    command,
-                    str(shakespeare_small),
-                    "-t",
-                    str(small_wordpiece),
-                    "-o",
-                    str(out),
-                ],
-            )
-        finally:
-            proc.send_signal(signal.SIGKILL)
-            proc.wait()
-        assert r.exit_code == 1 and f"(PID {proc.pid}) is writing this directory now" in r.output, (
+        r, pid = cli_while_held(
+            out, LOCK_STATE, stage_args(command, shakespeare_small, small_wordpiece, out)
+        )
+        assert r.exit_code == 1 and f"(PID {pid}) is writing this directory now" in r.output, (
             r.output
         )
     cfg = tmp_path / "run.toml"
@@ -214,26 +200,9 @@ def test_audit_compare_and_run_lock_their_output_directory(
         encoding="utf-8",
     )
     out = tmp_path / "run"
-    proc = hold(out, LOCK_STATE)
-    try:
-        r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "run", str(cfg), "-o", str(out)])
-    finally:
-        proc.send_signal(signal.SIGKILL)
-        proc.wait()
+    r, _ = cli_while_held(out, LOCK_STATE, ["run", str(cfg), "-o", str(out)])
     assert r.exit_code == 1 and "is writing this directory now" in r.output, r.output
-    r = CliRunner().invoke(
-        cli,
-        [
-            "--quiet",
-            "--workers",
-            "1",
-            "compare",
-            str(shakespeare_small),
-            "-t",
-            str(small_wordpiece),
-            "-o",
-            str(tmp_path / "compare"),
-        ],
-    )
+    args = stage_args("compare", shakespeare_small, small_wordpiece, tmp_path / "compare")
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", *args])
     assert r.exit_code == 0, r.output  # the killed holder's lock is stale: no obstacle
     assert not (tmp_path / "compare" / LOCK_STATE).exists()

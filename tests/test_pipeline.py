@@ -24,7 +24,10 @@ ALL = ["tokenizer", "encode", "audit", "count", "units", "mask.token", "mask.pmi
 
 
 def write_config(path: Path, corpus: Path, **changes: str) -> Path:
-    """A small pipeline over `corpus`; `changes` replace whole lines by their key (e.g. rate="rate = 0.2")."""
+    """A small pipeline over `corpus`.
+
+    `changes` replace whole lines by their key (e.g. ``rate="rate = 0.2"``).
+    """
     text = f'''# test pipeline
 [corpus]
 paths = ["{corpus}"]
@@ -119,7 +122,8 @@ def test_first_run_runs_every_stage_and_writes_their_outputs(first_run):
         rec = json.loads((out / d / STAGE_FILE).read_text())
         assert len(rec["fingerprint"]) == 64 and rec["files"]
     assert "8 stages ran, 0 up to date" in output
-    # The corpus is tokenized once: the later stages read OUT/encoded/ (their fingerprints cover it).
+    # The corpus is tokenized once: the later stages read OUT/encoded/ (their fingerprints
+    # cover it).
     assert (out / "encoded" / "encoded.json").is_file()
     for d in ("counts", "mask/token", "compare"):
         assert "encoded" in json.loads((out / d / STAGE_FILE).read_text())["inputs"], d
@@ -169,8 +173,8 @@ def test_force_reruns_everything_and_a_missing_output_reruns_its_stage(copy_of_r
 def test_forced_rerun_with_a_given_tokenizer_gives_identical_outputs(
     tmp_path, shakespeare_small, small_wordpiece
 ):
-    # With the tokenizer loaded from a file (training is the one stage whose token ids may be numbered
-    # differently from run to run), every output of a forced rerun is byte-identical.
+    # With the tokenizer loaded from a file (training is the one stage whose token ids may be
+    # numbered differently from run to run), every output of a forced rerun is byte-identical.
     config = write_config(
         tmp_path / "given.toml",
         shakespeare_small,

@@ -1,4 +1,6 @@
-"""Tests for the HTML report toolkit (report and charts): structure, escaping, gaps, formatting, determinism."""
+"""Tests for the HTML report toolkit (report and charts): structure, escaping, gaps, formatting.
+
+Same inputs give the same bytes (determinism) too."""
 
 from __future__ import annotations
 
@@ -154,7 +156,8 @@ def test_line_chart_none_is_a_gap_not_zero() -> None:
     assert [cmd for cmd, _, _ in verts] == ["M", "L", "M", "L"]  # pen lifted over the gap
     xs = [x for _, x, _ in verts]
     assert len(xs) == 4 and xs == sorted(xs)
-    # The axis starts at the lowest value (2), so a 0 would lie below the plot; every vertex is inside it.
+    # The axis starts at the lowest value (2), so a 0 would lie below the plot; every vertex is
+    # inside it.
     ticks = [float(t.text) for t in root.iter("text") if t.get("text-anchor") == "end" and t.text
              and re.fullmatch(r"[\d.]+", t.text)]
     assert min(ticks) == 2.0
@@ -278,7 +281,8 @@ def test_mismatched_lengths_and_non_numbers_raise() -> None:
     with pytest.raises(ValueError, match="3 values for 2"):
         charts.line_chart(title="t", x_labels=["a", "b"], series={"s": [1, 2, 3]}, y_label="y")
     with pytest.raises(ValueError, match="numbers"):
-        charts.bar_chart(title="t", categories=["a"], series={"s": ["1"]}, y_label="y")  # type: ignore[list-item]
+        text_values: dict = {"s": ["1"]}  # not numbers
+        charts.bar_chart(title="t", categories=["a"], series=text_values, y_label="y")
     with pytest.raises(ValueError, match="2 entries for 3 tokens"):
         report.highlighted_sequence(["a", "b", "c"], masked=[True, False])
     with pytest.raises(ValueError, match="row 0"):

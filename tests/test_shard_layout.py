@@ -16,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
+from click.testing import CliRunner, Result
 
 from maskprep import ShardLoader, open_shards, verify_shards
 from maskprep.cli import cli
@@ -47,6 +47,13 @@ def make(out: Path, text: str, tokenizer: Path, **shards) -> Path:
         executor=QUIET,
     )
     return out
+
+
+def mask_cli(text: str, tokenizer: Path, out: Path, *options: str) -> Result:
+    """``maskprep --quiet mask TEXT -t TOKENIZER -o OUT OPTIONS...`` through the command line."""
+    return CliRunner().invoke(
+        cli, ["--quiet", "mask", text, "-t", str(tokenizer), "-o", str(out), *options]
+    )
 
 
 @pytest.fixture(scope="module")
@@ -203,21 +210,7 @@ def test_old_directories_are_still_read_verified_shown_and_loaded(dirs, fmt, tmp
 
 def test_mask_reports_the_padding_share_and_warns_above_a_quarter(tmp_path, text, small_wordpiece):
     out = tmp_path / "nopack"
-    r = CliRunner().invoke(
-        cli,
-        [
-            "--quiet",
-            "mask",
-            text,
-            "-t",
-            str(small_wordpiece),
-            "-o",
-            str(out),
-            "--no-pack",
-            "--seq-len",
-            "256",
-        ],
-    )
+    r = mask_cli(text, small_wordpiece, out, "--no-pack", "--seq-len", "256")
     assert r.exit_code == 0, r.output
     rows = list(open_shards(out))
     att = np.concatenate([b["attention_mask"] for b in rows])
@@ -232,9 +225,7 @@ def test_mask_reports_the_padding_share_and_warns_above_a_quarter(tmp_path, text
     assert (
         "warning:" in r.stderr and "drop --no-pack" in r.stderr and "shorter --seq-len" in r.stderr
     )
-    packed = CliRunner().invoke(
-        cli, ["--quiet", "mask", text, "-t", str(small_wordpiece), "-o", str(tmp_path / "packed")]
-    )
+    packed = mask_cli(text, small_wordpiece, tmp_path / "packed")
     assert (
         packed.exit_code == 0
         and "padding: 0." in packed.stdout
@@ -266,22 +257,7 @@ def test_show_never_glues_a_random_continuation_piece_to_the_word_before(
     ]
 
     out = tmp_path / "random"
-    r = CliRunner().invoke(
-        cli,
-        [
-            "--quiet",
-            "mask",
-            text,
-            "-t",
-            str(small_wordpiece),
-            "-o",
-            str(out),
-            "--mix",
-            "0,1,0",
-            "--shard-rows",
-            "100000",
-        ],
-    )
+    r = mask_cli(text, small_wordpiece, out, "--mix", "0,1,0", "--shard-rows", "100000")
     assert r.exit_code == 0, r.output
     shown = CliRunner().invoke(cli, ["show", str(out), "-n", "4"])
     assert shown.exit_code == 0, shown.output

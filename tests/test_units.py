@@ -1,4 +1,4 @@
-"""Tests of maskprep.units.select and maskprep.units.files: building, ranking, quotas, files and errors.
+"""Tests of maskprep.units.select, .options and .files: building, ranking, quotas, files, errors.
 
 The counts directory here is built in the test from invented lines with planted
 multi-word terms (demo / planted-unit data, never a reference), using a real
@@ -94,7 +94,10 @@ def _runs(tok, line: str) -> list[list[str]]:
 
 def make_counts_dir(path: Path, *, lines: list[str] | None = None, max_n: int = MAX_N,
                     min_count: int = MIN_COUNT) -> Path:
-    """Write a counts directory per the counts contract (ngrams-<n>.parquet, counts.json, tokenizer.json)."""
+    """Write a counts directory per the counts contract.
+
+    Its files: ngrams-<n>.parquet, counts.json, tokenizer.json.
+    """
     lines = _lines() if lines is None else lines
     tok = _train_tokenizer(lines)
     counters = {n: Counter() for n in range(1, max_n + 1)}
@@ -488,44 +491,20 @@ def test_units_cli_reports_the_filters(counts_dir, tmp_path):
     from maskprep.cli import cli
 
     out = tmp_path / "u.parquet"
-    r = CliRunner().invoke(
-        cli,
-        [
-            "--quiet",
-            "units",
-            str(counts_dir),
-            "-o",
-            str(out),
-            "--edge-words",
-            "4",
-            "--fragment-share",
-            "0.6",
-            "--measure",
-            "pmi",
-            "--show",
-            "2",
-        ],
-    )
+
+    def units(*options: str):  # maskprep --quiet units COUNTS_DIR -o OUT OPTIONS...
+        return CliRunner().invoke(
+            cli, ["--quiet", "units", str(counts_dir), "-o", str(out), *options]
+        )
+
+    r = units("--edge-words", "4", "--fragment-share", "0.6", "--measure", "pmi", "--show", "2")
     assert r.exit_code == 0, r.output
     assert "began or ended with one of the 4 most frequent words" in r.output
     assert "were fragments (one n-gram a word longer holds >= 0.6 of their occurrences)" in r.output
     meta = json.loads(pq.read_schema(out).metadata[b"maskprep"])
     assert meta["options"]["edge_words"] == 4 and meta["options"]["fragment_share"] == 0.6
     assert len(meta["source"]["edge_word_list"]) == 4 and meta["word_splitting"]["normalizer"]
-    r = CliRunner().invoke(
-        cli,
-        [
-            "--quiet",
-            "units",
-            str(counts_dir),
-            "-o",
-            str(out),
-            "--edge-words",
-            "0",
-            "--fragment-share",
-            "0",
-        ],
-    )
+    r = units("--edge-words", "0", "--fragment-share", "0")
     assert r.exit_code == 0 and "filters: none (--edge-words 0 --fragment-share 0)" in r.output
     for bad, message in (
         (["--edge-words", "-2"], "--edge-words: must be a whole number >= 0"),

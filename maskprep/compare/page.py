@@ -145,28 +145,12 @@ def _summary(doc: dict[str, Any], order: list[str]) -> str:
         caption=f"What is hidden: {doc['sample']['sequences']:,} sequences, "
         "the same for every strategy",
     )
+    shares = ["within-word leakage", "within-unit leakage", "easy targets", "shown as mask",
+              "random", "kept"]
     second = report.table(
-        headers=[
-            "strategy",
-            "within-word leakage",
-            "within-unit leakage",
-            "easy targets",
-            "shown as mask",
-            "random",
-            "kept",
-        ],
+        headers=["strategy", *shares],
         rows=leaks,
-        column_formats={
-            h: pct
-            for h in (
-                "within-word leakage",
-                "within-unit leakage",
-                "easy targets",
-                "shown as mask",
-                "random",
-                "kept",
-            )
-        },
+        column_formats={h: pct for h in shares},
         caption="What stays visible and how targets are shown (shares of targets); "
         "an empty cell was not measured",
     )

@@ -19,6 +19,15 @@ from ..errors import MaskprepError
 __all__ = ["SECTIONS", "KeyChecker", "check_each", "find_key_line", "key_error", "shown"]
 
 # Allowed keys per table, with the TOML types accepted for each.
+_MASKING_AND_PACKING: dict[str, tuple[type, ...]] = {  # the keys [mask] and [compare] share
+    "rate": (float, int),
+    "mix": (list, str),
+    "mix_per": (str,),
+    "span_p": (float, int),
+    "span_max": (int,),
+    "seq_len": (int,),
+    "pack": (bool,),
+}
 SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
     "": {"output": (str,)},
     "corpus": {
@@ -59,13 +68,7 @@ SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
     },
     "mask": {
         "strategies": (list, str),
-        "rate": (float, int),
-        "mix": (list, str),
-        "mix_per": (str,),
-        "span_p": (float, int),
-        "span_max": (int,),
-        "seq_len": (int,),
-        "pack": (bool,),
+        **_MASKING_AND_PACKING,
         "copies": (int,),
         "seed": (int,),
         "format": (str,),
@@ -77,13 +80,7 @@ SECTIONS: dict[str, dict[str, tuple[type, ...]]] = {
         "sample": (int, str),
         "examples": (int,),
         "top_words": (int,),
-        "rate": (float, int),
-        "mix": (list, str),
-        "mix_per": (str,),
-        "span_p": (float, int),
-        "span_max": (int,),
-        "seq_len": (int,),
-        "pack": (bool,),
+        **_MASKING_AND_PACKING,
         "seed": (int,),
     },
 }
