@@ -334,18 +334,12 @@ _CONTROLS = {**{c: chr(0x2400 + c) for c in range(0x20)}, 0x7F: "\u2421",
 
 
 def safe_text(text: str) -> str:
-    """Text with every control character made visible.
-
-    ``safe_text("a\x1b[31mb")`` -> 'a\u241b[31mb'
-    """
+    """Text with control characters made visible: ``safe_text("a\x1b[31mb")`` -> 'a\u241b[31mb'."""
     return text.translate(_CONTROLS)
 
 
 def _pieces(info: Any, ids: list[int]) -> list[str]:
-    """Decoded text of each token in running text (byte and space markers decoded).
-
-    See `maskprep.tokenizer.pieces`.
-    """
+    """Each token's text in running text (byte and space markers decoded: `tokenizer.pieces`)."""
     from ..tokenizer.pieces import running_text
 
     return [safe_text(p) for p in running_text(info, ids)]  # control characters made visible
