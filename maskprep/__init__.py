@@ -9,7 +9,8 @@ and run the whole pipeline from one file.
 0.15
 """
 
-from . import _cli_start  # noqa: F401  (first: a Ctrl-C while the command line starts exits quietly)
+# First: a Ctrl-C while the command line starts exits quietly.
+from . import _cli_start  # noqa: F401
 from ._version import __version__
 from .audit import AuditConfig, run_audit
 from .compare import CompareConfig, compare_strategies

@@ -1,4 +1,5 @@
-"""Stage 9, shards: write training-ready Arrow/Parquet shards, read them back, load training batches, verify and show them."""
+"""Stage 9, shards: write training-ready Arrow/Parquet shards, read them back, load training
+batches, verify and show them."""
 
 from .check import format_examples, verify_shards
 from .loader import ShardLoader
