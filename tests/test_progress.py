@@ -59,6 +59,24 @@ def test_count_reports_progress_on_stderr_and_quiet_silences_it(
 
     assert same(quiet.stdout) == same(loud.stdout)
 
+    # the global options also work after the command name, as people type them
+    after = subprocess.run(
+        [sys.executable, "-m", "maskprep", "count", str(shakespeare_small), "-t",
+         str(small_wordpiece), "-o", str(tmp_path / "after"), "--max-n", "2", "--min-count", "2",
+         "--quiet", "--workers", "2"],
+        capture_output=True, text=True, timeout=300, check=False,
+    )
+    assert after.returncode == 0 and after.stderr == "", after.stderr
+    assert same(after.stdout.replace(str(tmp_path / "after"), str(tmp_path / "loud"))) == same(
+        loud.stdout
+    )
+    bad = subprocess.run(
+        [sys.executable, "-m", "maskprep", "count", str(shakespeare_small), "-t",
+         str(small_wordpiece), "-o", str(tmp_path / "bad"), "--workers", "0"],
+        capture_output=True, text=True, timeout=300, check=False,
+    )
+    assert bad.returncode == 1 and "--workers" in bad.stderr and not (tmp_path / "bad").exists()
+
 
 def test_progress_line_format_and_quiet(capsys: pytest.CaptureFixture[str]) -> None:
     with Progress("count", total=2_000_000, unit="bytes") as p:
