@@ -224,7 +224,7 @@ def audit_tokenizer(
     if draw is not None:
         draw.check(stats)
     if stats.documents == 0:
-        raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
+        raise MaskprepError(f"{name_files(corpus)}: corpus is empty (no non-empty documents)")
     warn_literal_specials(info, stats.literal_specials, name_files(corpus))
     forms = [seen[k] for k in sorted(seen)]  # in an order that does not depend on the tasks
     tokens_total, unk_total, cont_total, crossing = totals

@@ -23,6 +23,7 @@ from ..errors import MaskprepError
 from ..progress import Progress
 from ..tokenizer.encoding import TokenizerInfo, save_tokenizer
 from ..tokenizer.train import TrainConfig, check_trained_size, train_tokenizer
+from ..wording import name_files
 
 __all__ = ["Trained", "train_on_corpus", "train_on_sample", "sampled_tasks"]
 
@@ -62,7 +63,7 @@ def train_on_sample(corpus: list[str], *, model: str, vocab_size: int, lowercase
     config = TrainConfig(model=model, vocab_size=vocab_size, lowercase=lowercase)
     if open_source(corpus, corpus_options).encoded:
         raise MaskprepError(
-            f"{', '.join(corpus)}: an encoded directory holds token ids, not text; train "
+            f"{name_files(corpus)}: an encoded directory holds token ids, not text; train "
             "tokenizers on the raw corpus files"
         )
     files = resolve_inputs(corpus)
@@ -95,7 +96,7 @@ def train_on_sample(corpus: list[str], *, model: str, vocab_size: int, lowercase
     if draw is not None:
         draw.check(stats)
     if stats.documents == 0 or info is None:
-        raise MaskprepError(f"{', '.join(corpus)}: corpus is empty (no non-empty documents)")
+        raise MaskprepError(f"{name_files(corpus)}: corpus is empty (no non-empty documents)")
     check_trained_size(info, config, option)
     if output is not None:
         save_tokenizer(info, output)
