@@ -334,3 +334,30 @@ def test_word_starts_need_word_ids_where_the_prefix_could_start_a_word(
     tok.pre_tokenizer = pre_tokenizers.Whitespace()
     assert TokenizerInfo(tok).word_start_table is None
     assert TokenizerInfo(Tokenizer.from_str(base)).word_start_table is not None
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    lengths=st.lists(st.integers(1, 12), max_size=300),
+    vocab=st.integers(2, 40),
+    seed=st.integers(0, 2**32 - 1),
+)
+def test_distinct_words_equal_numpys_unique_rows(lengths: list[int], vocab: int,
+                                                 seed: int) -> None:
+    # Reference: numpy's own np.unique(axis=0) (rows in lexicographic order, with the inverse).
+    # Small vocabularies make long words span several packed columns.
+    from maskprep.tokenizer import grouping
+
+    if not lengths:
+        return
+    cache = grouping.WordTypeCache(vocab, np.zeros(0, np.int32), lambda *a, **k: [])
+    rng = np.random.default_rng(seed)
+    lens = np.array(lengths, dtype=np.int64)
+    ids = rng.integers(0, vocab, size=int(lens.sum())).astype(np.int32)
+    offsets = np.r_[0, np.cumsum(lens)].astype(np.int64)
+    packed = grouping._pack(cache, ids, offsets, lens)
+    rows, first, inverse = grouping._distinct(packed, lens, cache.base)
+    want, want_inverse = np.unique(packed, axis=0, return_inverse=True)
+    assert np.array_equal(rows, want)
+    assert np.array_equal(inverse, want_inverse.ravel())
+    assert np.array_equal(packed[first], rows)

@@ -207,7 +207,7 @@ def group_tokens(cache: WordTypeCache, ids: np.ndarray, starts: np.ndarray,
         return batch, WordGroups(np.zeros((0, 1), np.uint64), [], [], empty, empty)
     lengths = np.diff(word_offsets)
     packed = _pack(cache, ids, word_offsets, lengths)
-    rows, first, inverse = _distinct(packed)
+    rows, first, inverse = _distinct(packed, lengths, cache.base)
     keys = _row_keys(rows, (lengths[first] + cache.per_column - 1) // cache.per_column)
     if joined:
         keys = [_JOINED + k for k in keys]
@@ -234,9 +234,10 @@ def _pack(cache: WordTypeCache, ids: np.ndarray, word_offsets: np.ndarray,
     W, T, per = len(lengths), len(ids), cache.per_column
     ncols = int((int(lengths.max()) + per - 1) // per)
     pos = np.arange(T, dtype=np.int64) - np.repeat(word_offsets[:-1], lengths)
-    contrib = (ids.astype(np.uint64) + np.uint64(1)) * cache.powers[pos % per]
+    one = ids.astype(np.uint64) + np.uint64(1)
     if ncols == 1:  # every word fits one column: one sum per word
-        return np.add.reduceat(contrib, word_offsets[:-1]).reshape(W, 1)
+        return np.add.reduceat(one * cache.powers[pos], word_offsets[:-1]).reshape(W, 1)
+    contrib = one * cache.powers[pos % per]
     flat = np.repeat(np.arange(W, dtype=np.int64) * ncols, lengths) + pos // per
     seg_starts = np.flatnonzero(np.r_[True, flat[1:] != flat[:-1]])
     keys = np.zeros(W * ncols, dtype=np.uint64)
@@ -244,12 +245,42 @@ def _pack(cache: WordTypeCache, ids: np.ndarray, word_offsets: np.ndarray,
     return keys.reshape(W, ncols)
 
 
-def _distinct(packed: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """`unique_rows` of packed words: the many one-column words sorted apart from the few long ones.
+def _distinct(packed: np.ndarray, lengths: np.ndarray,
+              base: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """`unique_rows` of packed words, without sorting most of them.
 
-    The same distinct rows in the same (lexicographic) order; `first` may name another
-    occurrence of a word, which holds the same ids.
+    One-token words (most words) are found with a table over the vocabulary; the others
+    are sorted, one-column words apart from the few long ones. The result has the same
+    distinct rows in the same (lexicographic) order and the same inverse; `first` may name
+    another occurrence of a word, which holds the same ids.
     """
+    W, C = packed.shape
+    one = lengths == 1
+    oi, ri = np.flatnonzero(one), np.flatnonzero(~one)
+    vals = packed[oi, 0].astype(np.int64)  # id + 1, below `base`
+    present = np.zeros(base, dtype=bool)
+    present[vals] = True
+    o_rows = np.flatnonzero(present)
+    rank = np.cumsum(present) - 1
+    where = np.empty(base, dtype=np.int64)
+    where[vals] = oi  # some occurrence of each
+    r_rows, r_first, r_inv = _sorted_distinct(packed[ri])
+    n1 = len(o_rows)
+    rows = np.zeros((n1 + len(r_rows), C), dtype=np.uint64)
+    rows[:n1, 0] = o_rows
+    rows[n1:] = r_rows
+    first = np.concatenate([where[o_rows], ri[r_first]])
+    order = np.argsort(rows[:, 0]) if C == 1 else np.lexsort(rows.T[::-1])
+    place = np.empty(len(order), dtype=np.int64)
+    place[order] = np.arange(len(order), dtype=np.int64)
+    inverse = np.empty(W, dtype=np.int64)
+    inverse[oi] = place[rank[vals]]
+    inverse[ri] = place[n1 + r_inv]
+    return rows[order], first[order], inverse
+
+
+def _sorted_distinct(packed: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """`unique_rows`, sorting the many one-column rows apart from the few long ones."""
     W, C = packed.shape
     long = packed[:, 1:].any(axis=1) if C > 1 else None
     if long is None or long.all() or not long.any():
