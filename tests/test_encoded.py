@@ -408,6 +408,22 @@ def test_encode_killed_twice_then_resumed_equals_an_uninterrupted_run(
     )
 
 
+def test_an_encode_left_by_an_earlier_version_is_not_read_as_a_corpus(
+    tmp_path, three_files, small_wordpiece
+):
+    # Its docs-*.arrow files would otherwise be taken for Arrow corpus files.
+    out = tmp_path / "old"
+    (out / fmt.STATE_DIR).mkdir(parents=True)
+    (out / fmt.STATE_DIR / "encode.json").write_text("{}")
+    shutil.copy(three_files[0], out / "docs-00000.arrow")
+    assert "unfinished encoded directory" in invoke(
+        "count", str(out), "-t", str(small_wordpiece), "-o", str(tmp_path / "c"), code=1
+    )
+    assert "run.json is missing or damaged" in invoke(
+        "encode", *three_files, "-t", str(small_wordpiece), "-o", str(out), "--resume", code=1
+    )
+
+
 def test_a_second_encode_into_a_directory_being_written_is_refused(
     tmp_path, three_files, small_wordpiece
 ):

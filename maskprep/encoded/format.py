@@ -100,7 +100,11 @@ def is_encoded_dir(path: str | Path) -> bool:
 def is_unfinished_encoded_dir(path: str | Path) -> bool:
     """A directory an interrupted `maskprep encode` left (its state, no manifest)."""
     p = Path(path)
-    return p.is_dir() and not (p / MANIFEST).exists() and (p / STATE_DIR / RUN_NAME).is_file()
+    state = p / STATE_DIR
+    # run.json: the shared resume state; encode.json: the state of encodes before it
+    return p.is_dir() and not (p / MANIFEST).exists() and (
+        (state / RUN_NAME).is_file() or (state / "encode.json").is_file()
+    )
 
 
 @dataclass(frozen=True)
