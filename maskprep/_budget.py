@@ -29,7 +29,8 @@ def check_budget(memory: int, *, option: str, executor: Any, tasks: int, copies:
     """Each running task's share of `memory`; too small a share raises `MaskprepError`.
 
     >>> from maskprep.execute import Executor
-    >>> check_budget(2 << 30, option="--memory 2GiB", executor=Executor(workers=2), tasks=8, copies=1,
+    >>> check_budget(2 << 30, option="--memory 2GiB", executor=Executor(workers=2), tasks=8,
+    ...     copies=1,
     ...              shard_rows=16384, seq_len=128) >> 20
     1024
     """
@@ -40,7 +41,8 @@ def check_budget(memory: int, *, option: str, executor: Any, tasks: int, copies:
     if need > share:
         what = (
             f"{copies} cop{'y' if copies == 1 else 'ies'} x --shard-rows {shard_rows} x --seq-len "
-            f"{seq_len} tokens ({rows >> 20} MiB) plus one encoded batch ({BATCH_RESERVE >> 20} MiB)"
+            f"{seq_len} tokens ({rows >> 20} MiB) plus one encoded batch "
+            f"({BATCH_RESERVE >> 20} MiB)"
             if rows
             else f"one encoded batch ({BATCH_RESERVE >> 20} MiB)"
         )

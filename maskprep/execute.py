@@ -97,7 +97,8 @@ def default_workers() -> int:
 # ---------------------------------------------------------------- running one task
 
 def _call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
-    """Run one task; failures come back as (False, message) so every scheduler reports them alike."""
+    """Run one task; failures come back as (False, message) so every scheduler reports them
+    alike."""
     try:
         return True, fn(*args)
     except MaskprepError as exc:
@@ -111,14 +112,16 @@ def _call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
 
 
 def _call_local(cwd: str, fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
-    """`_call` in a pool worker, from the driver's current directory (a kept pool outlives a chdir)."""
+    """`_call` in a pool worker, from the driver's current directory (a kept pool outlives a
+    chdir)."""
     if os.getcwd() != cwd:
         os.chdir(cwd)
     return _call(fn, args)
 
 
 def _call_remote(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
-    """`_call` on a Dask worker: one tokenizer thread per task unless the worker's environment says otherwise."""
+    """`_call` on a Dask worker: one tokenizer thread per task unless the worker's environment says
+    otherwise."""
     for key, value in _ONE_THREAD.items():
         os.environ.setdefault(key, value)
     _no_lookahead()
@@ -138,7 +141,8 @@ def _no_lookahead() -> None:
 
 
 def _worker_init(parent: int) -> None:
-    """Pool worker start-up: one tokenizer thread, die with the driver, leave Ctrl-C to the driver."""
+    """Pool worker start-up: one tokenizer thread, die with the driver, leave Ctrl-C to the
+    driver."""
     os.environ.update(_ONE_THREAD)
     _no_lookahead()
     signal.signal(signal.SIGINT, signal.SIG_IGN)
@@ -221,7 +225,8 @@ def _pool(workers: int) -> ProcessPoolExecutor:
 
 
 def pool_running(workers: int) -> bool:
-    """Is a kept pool of `workers` processes already started (so more tasks on it cost no start-up)?"""
+    """Is a kept pool of `workers` processes already started (so more tasks on it cost no
+    start-up)?"""
     pool = _POOLS.get(workers)
     return (
         pool is not None
@@ -281,7 +286,8 @@ def _workers_ignore_sigint() -> Iterator[None]:
 
 
 def shutdown_pools() -> None:
-    """Stop the kept worker processes (they also stop when this process exits): ``shutdown_pools()``."""
+    """Stop the kept worker processes (they also stop when this process exits):
+    ``shutdown_pools()``."""
     for workers in list(_POOLS):
         _drop_pool(workers, terminate=False)
 
@@ -393,7 +399,8 @@ def _check_shared(client: Any, address: str, directory: str | Path) -> None:
 
 
 def _shared_args(args_list: Sequence[tuple[Any, ...]]) -> list[int]:
-    """Positions holding one and the same (non-trivial) object in every task: sent to the cluster once."""
+    """Positions holding one and the same (non-trivial) object in every task: sent to the cluster
+    once."""
     if len(args_list) < 2 or len({len(a) for a in args_list}) != 1:
         return []
     first = args_list[0]

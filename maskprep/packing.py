@@ -121,8 +121,8 @@ def check_packing_tokenizer(info: TokenizerInfo) -> tuple[int, int, int]:
     if missing:
         raise MaskprepError(
             f"{info.name}: tokenizer has no {' / '.join(missing)} token; add it as a special token "
-            "(e.g. tok.add_special_tokens(['[CLS]', '[SEP]', '[PAD]']) with the tokenizers library, then "
-            "save) or train one with maskprep train-tokenizer"
+            "(e.g. tok.add_special_tokens(['[CLS]', '[SEP]', '[PAD]']) with the tokenizers "
+            "library, then save) or train one with maskprep train-tokenizer"
         )
     return int(info.cls_id), int(info.sep_id), int(info.pad_id)  # type: ignore[arg-type]
 
@@ -171,7 +171,8 @@ class TaskPacker:
     # ------------------------------------------------------------ internals
 
     def _stream(self, batch: EncodedBatch) -> tuple[tuple[np.ndarray, ...], np.ndarray]:
-        """Per stream token: id, task word number (-1 special), word key, word kind; doc+sep lengths."""
+        """Per stream token: id, task word number (-1 special), word key, word kind; doc+sep
+        lengths."""
         ids = np.asarray(batch.ids, dtype=np.int32)
         lengths = batch.word_lengths
         W = len(lengths)
@@ -270,7 +271,8 @@ def pack_batches(
 ) -> Iterator[PackedBatch]:
     """Pack all encoded batches of one task, last sequence padded.
 
-    >>> sum(len(p) for p in pack_batches(info, [info.encode(["To be, or not to be."])], config=PackingConfig(seq_len=8)))  # doctest: +SKIP
+    >>> sum(len(p) for p in pack_batches(info,  # doctest: +SKIP
+    ...     [info.encode(["To be, or not to be."])], config=PackingConfig(seq_len=8)))
     2
     """
     packer = TaskPacker(info, config, task_index=task_index)

@@ -35,8 +35,9 @@ Three measurements, printed as a table:
 
     python scripts/bench_counting.py                   # 50 MB speed, memory, scaling 10/50/200 MB
     python scripts/bench_counting.py --sizes 10,50     # shorter scaling range
-    python scripts/bench_counting.py --quick           # 10 MB, one round (what scripts/bench.py --quick runs)
-    python scripts/bench_counting.py --quick --lines 2000 --speed-mb 1 --sizes 1,2 --vocab-size 4000   # smoke
+    python scripts/bench_counting.py --quick           # 10 MB, one round (bench.py --quick)
+    python scripts/bench_counting.py --quick --lines 2000 --speed-mb 1 --sizes 1,2 \
+        --vocab-size 4000                              # smoke
 """
 
 from __future__ import annotations
@@ -101,7 +102,8 @@ def _varied(text: str, copy: int) -> str:
 def build_corpus(
     work: Path, megabytes: int, text: str = "repeated", lines: int | None = None
 ) -> Path:
-    """The plays, one speech per line, repeated (or varied copies) until `megabytes` MB (10**6 bytes).
+    """The plays, one speech per line, repeated (or varied copies) until `megabytes` MB (10**6
+    bytes).
 
     `lines`: only the first that many speeches (a smoke run).
     """
@@ -135,7 +137,8 @@ def tokenizer(work: Path, lines: int | None = None, vocab_size: int = 8000) -> P
 
 
 def word_texts(info: TokenizerInfo, batches: list[EncodedBatch]) -> list[tuple[int, int, str]]:
-    """(key, WORD, text) of every distinct counted word of the batches: what count's word list holds.
+    """(key, WORD, text) of every distinct counted word of the batches: what count's word list
+    holds.
 
     The text is the word's tokens decoded by the tokenizer, whitespace stripped (the canonical text
     its key is made from), decoded once per key from its first occurrence.
@@ -157,7 +160,8 @@ def word_texts(info: TokenizerInfo, batches: list[EncodedBatch]) -> list[tuple[i
 
 
 def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[Path], float]:
-    """Encode the corpus once, task by task as `count` splits it; save each task's batches and word types."""
+    """Encode the corpus once, task by task as `count` splits it; save each task's batches and word
+    types."""
     files = resolve_inputs([str(corpus)])
     opts = dataclasses.replace(CorpusOptions(), chunk_bytes=TASK_BYTES)
     start = time.perf_counter()
@@ -174,7 +178,8 @@ def encode_tasks(corpus: Path, tok: Path, work: Path) -> tuple[list[Path], list[
 
 
 def count_encoded(path: str, tokenizer_path: str, max_n: int, spill_dir: str, share: int) -> Any:
-    """Task function: `count_task` from already encoded batches (the texts of their words come along).
+    """Task function: `count_task` from already encoded batches (the texts of their words come
+    along).
 
     The task loads the tokenizer from its file (`count_task` builds it from the JSON text it is
     handed; the cost is the same).
@@ -185,8 +190,10 @@ def count_encoded(path: str, tokenizer_path: str, max_n: int, spill_dir: str, sh
     counter = ChunkCounter(
         info, max_n=max_n, spill_dir=Path(spill_dir), share=share, tag=f"t{index:06d}"
     )
-    # The words come as (key, kind, text) tuples decoded before the clock (the worker's fresh tokenizer
-    # has not seen them); the counter's word list is filled with the same check it makes when it reads
+    # The words come as (key, kind, text) tuples decoded before the clock (the worker's fresh
+    # tokenizer
+    # has not seen them); the counter's word list is filled with the same check it makes when it
+    # reads
     # them from the tokenizer's word-type cache.
     vocab = counter.vocab
     for key, kind, text in words:
@@ -198,7 +205,8 @@ def count_encoded(path: str, tokenizer_path: str, max_n: int, spill_dir: str, sh
 
 
 def warm(_: int) -> int:
-    """Task function: import what the counting tasks use (a pool worker starts with nothing loaded)."""
+    """Task function: import what the counting tasks use (a pool worker starts with nothing
+    loaded)."""
     import pyarrow.parquet  # noqa: F401
 
     import maskprep.count.files  # noqa: F401
@@ -209,7 +217,8 @@ def warm(_: int) -> int:
 def engine(
     encoded: list[Path], files: list[Path], tok: Path, work: Path, workers: int
 ) -> tuple[float, dict]:
-    """maskprep's path from EncodedBatch to COUNTS_DIR (count tasks, merges, Parquet writes); (seconds, counts).
+    """maskprep's path from EncodedBatch to COUNTS_DIR (count tasks, merges, Parquet writes);
+    (seconds, counts).
 
     With workers > 1 the process pool is started before the clock starts: in `count` the same pool
     has been running the tokenization, whose cost both sides exclude.
@@ -225,11 +234,14 @@ def engine(
             < workers
         ):
             pass
-    # The baseline's dictionaries (millions of objects) stay in this process; freezing them keeps the
-    # garbage collector from walking them again whenever the engine allocates (`count` has no such heap).
+    # The baseline's dictionaries (millions of objects) stay in this process; freezing them keeps
+    # the
+    # garbage collector from walking them again whenever the engine allocates (`count` has no such
+    # heap).
     gc.collect()
     gc.freeze()
-    os.sync()  # the encoded batches were just written: their write-back must not land inside the clock
+    # the encoded batches were just written: their write-back must not land inside the clock
+    os.sync()
     out = work / f"counts-engine-{workers}"
     shutil.rmtree(out, ignore_errors=True)  # the previous round's
     out.mkdir()
@@ -294,7 +306,8 @@ def baseline(runs: list[list[str]]) -> tuple[float, list[Counter]]:
 
 
 def peak_rss(cmd: list[str]) -> tuple[float, int, float]:
-    """(wall seconds, peak bytes of RSS summed over the process tree, CPU seconds of the tree) of a command."""
+    """(wall seconds, peak bytes of RSS summed over the process tree, CPU seconds of the tree) of a
+    command."""
     import resource
 
     import psutil
@@ -409,8 +422,10 @@ def main() -> None:
             runs = word_runs(encoded)
             words = sum(map(len, runs))
             print(
-                f"speed, {mb:.1f} MB of {args.text} text ({words:,} counted words, {len(encoded)} tasks), n = 1..{MAX_N}, "
-                f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, {t_encode:.0f}s, "
+                f"speed, {mb:.1f} MB of {args.text} text ({words:,} counted words, {len(encoded)} "
+                f"tasks), n = 1..{MAX_N}, "
+                f"--min-count {MIN_COUNT}, from EncodedBatch on (the shared tokenization, "
+                f"{t_encode:.0f}s, "
                 f"is excluded for both); {args.repeat} round(s), each runs all three in turn"
             )
             times: dict[str, list[float]] = {"counter": [], "1": [], "2": []}
@@ -426,7 +441,8 @@ def main() -> None:
                 for workers in (1, 2):
                     t_engine, ours = engine(encoded, files, tok, work, workers)
                     times[str(workers)].append(t_engine)
-                    line += f"   {workers} worker{'s' if workers > 1 else ''} {t_engine:5.2f}s = {t_base / t_engine:4.1f}x"
+                    line += (f"   {workers} worker{'s' if workers > 1 else ''} {t_engine:5.2f}s"
+                             f" = {t_base / t_engine:4.1f}x")
                     if want is not None:
                         same = all(ours[n] == want[n] for n in range(1, MAX_N + 1))
                         line += f" (same counts for every kept n-gram: {same})"
@@ -436,15 +452,18 @@ def main() -> None:
             del runs
             best = {k: min(v) for k, v in times.items()}
             print(
-                f"  Python Counter, 1 process      {best['counter']:8.2f}s   ({best['counter'] / words * 1e9:6.0f} ns/word)"
+                f"  Python Counter, 1 process      {best['counter']:8.2f}s   "
+                f"({best['counter'] / words * 1e9:6.0f} ns/word)"
                 "   best of the rounds"
             )
             for workers in (1, 2):
                 t = best[str(workers)]
                 paired = [c / e for c, e in zip(times["counter"], times[str(workers)])]
                 print(
-                    f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    {t:8.2f}s   "
-                    f"({t / words * 1e9:6.0f} ns/word)   best vs best {best['counter'] / t:5.1f}x faster;   "
+                    f"  maskprep engine, {workers} worker{'s' if workers > 1 else ' '}    "
+                    f"{t:8.2f}s   "
+                    f"({t / words * 1e9:6.0f} ns/word)   best vs best {best['counter'] / t:5.1f}x "
+                    "faster;   "
                     f"same round: median {float(np.median(paired)):.1f}x, lowest {min(paired):.1f}x"
                 )
             start = time.perf_counter()
@@ -453,7 +472,8 @@ def main() -> None:
                     pickle.load(fh)
             t_load = time.perf_counter() - start
             print(
-                f"  (of the engine's time, loading the pickled batches, which `count` itself never does, takes "
+                "  (of the engine's time, loading the pickled batches, which `count` itself never "
+                "does, takes "
                 f"{t_load:.2f}s in one process)"
             )
             for p in encoded:
@@ -465,17 +485,22 @@ def main() -> None:
             need = sum(meta["distinct"][str(n)] * 8 * (n + 1) for n in range(1, MAX_N + 1))
             budget = parse_memory(args.memory)
             print(
-                f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need {need / 2**20:.0f} MiB as "
+                f"memory, {mb:.1f} MB, --memory {args.memory}: distinct n-grams need "
+                f"{need / 2**20:.0f} MiB as "
                 f"uint64 rows ({need / budget:.1f}x the budget)"
             )
             print(
-                f"  peak RSS of the process tree {peak / 2**20:7.0f} MiB   limit (--memory + 400 MiB) "
-                f"{(budget + (400 << 20)) / 2**20:.0f} MiB   ok: {peak < budget + (400 << 20)}   ({secs:.1f}s)"
+                f"  peak RSS of the process tree {peak / 2**20:7.0f} MiB   limit (--memory + 400 "
+                "MiB) "
+                f"{(budget + (400 << 20)) / 2**20:.0f} MiB   ok: {peak < budget + (400 << 20)}   "
+                f"({secs:.1f}s)"
             )
         if "scaling" not in skip:
             print(
-                "scaling: full `maskprep --workers 1 count` (tokenization included), --memory 1GiB; wall time "
-                "depends on the machine's other load, CPU time (user + system, whole process tree) much less"
+                "scaling: full `maskprep --workers 1 count` (tokenization included), --memory "
+                "1GiB; wall time "
+                "depends on the machine's other load, CPU time (user + system, whole process tree) "
+                "much less"
             )
             walls, cpus = [], []
             for size in [int(s) for s in args.sizes.split(",")]:
@@ -485,7 +510,8 @@ def main() -> None:
                 walls.append(secs / size_mb)
                 cpus.append(cpu / size_mb)
                 print(
-                    f"  {size_mb:7.1f} MB  wall {secs:7.1f}s = {secs / size_mb:6.3f} s/MB   CPU {cpu:7.1f}s = "
+                    f"  {size_mb:7.1f} MB  wall {secs:7.1f}s = {secs / size_mb:6.3f} s/MB   CPU "
+                    f"{cpu:7.1f}s = "
                     f"{cpu / size_mb:6.3f} s/MB   peak RSS {peak / 2**20:6.0f} MiB"
                 )
                 c.unlink()
@@ -493,7 +519,8 @@ def main() -> None:
             for name, rates in (("wall", walls), ("CPU", cpus)):
                 mid = float(np.median(rates))
                 print(
-                    f"  {name} time per MB within {max(abs(r / mid - 1) for r in rates):.0%} of the median "
+                    f"  {name} time per MB within {max(abs(r / mid - 1) for r in rates):.0%} of "
+                    "the median "
                     "(target: 25%)"
                 )
     finally:

@@ -204,25 +204,30 @@ def main() -> None:
             target = targets.get(name, 0.4)
             mark = "ok" if sec / bare <= target else "MISSED"
             print(
-                f"{name:<18} {sec:8.2f} {sec / bare:7.2f} {'<= ' + str(target):>7} {rss / 2**20:9.0f}  {mark}"
+                f"{name:<18} {sec:8.2f} {sec / bare:7.2f} {'<= ' + str(target):>7} "
+                f"{rss / 2**20:9.0f}  {mark}"
             )
         mem_limit = (1 << 30) + (400 << 20)
         worst = max(rss for name, (_, rss) in figures.items() if name not in ("count (raw text)",))
         print(
             f"peak memory on the encoded directory: {worst / 2**20:.0f} MiB (target <= "
-            f"{mem_limit / 2**20:.0f} MiB: --memory 1GiB + 400 MiB): {'ok' if worst <= mem_limit else 'MISSED'}"
+            f"{mem_limit / 2**20:.0f} MiB: --memory 1GiB + 400 MiB): "
+            f"{'ok' if worst <= mem_limit else 'MISSED'}"
         )
         if not args.quick:
             cfg = work / "run.toml"
             run_config(cfg, corpus, tok)
             sec, rss = timed(["run", str(cfg), "-o", str(work / "run")])
             print(
-                f"whole run (encode, count, units, 4 masks, compare): {sec:.2f} s = {sec / bare:.2f}x bare "
-                f"(target <= 3x): {'ok' if sec / bare <= 3 else 'MISSED'}; peak {rss / 2**20:.0f} MiB"
+                f"whole run (encode, count, units, 4 masks, compare): {sec:.2f} s = "
+                f"{sec / bare:.2f}x bare "
+                f"(target <= 3x): {'ok' if sec / bare <= 3 else 'MISSED'}; peak {rss / 2**20:.0f} "
+                "MiB"
             )
         if args.flat:
             print(
-                "peak MiB by corpus size (encode, count, mask token, compare on the encoded directory):"
+                "peak MiB by corpus size (encode, count, mask token, compare on the encoded "
+                "directory):"
             )
             for mb in [float(x) for x in args.flat.split(",")]:
                 d = work / f"flat-{mb:g}"

@@ -11,7 +11,8 @@ Measures, over the same corpus and tokenizer, in this process:
 
 Prints tokens per second of each and the ratio mask / bare encode (target >= 0.5).
 
-    python scripts/bench_mask.py CORPUS... [-t tokenizer.json] [--strategies token,word,span] [--workers 2]
+    python scripts/bench_mask.py CORPUS... [-t tokenizer.json] [--strategies token,word,span] \
+        [--workers 2]
     python scripts/bench_mask.py --quick     # one run of each instead of the best of two
 
 Without CORPUS it uses the bundled sample corpus (`maskprep demo --where`);
@@ -116,12 +117,14 @@ def main() -> None:
             f"bare encode (Tokenizer.encode_batch)   {tokens / best['bare'] / 1e6:6.2f} M tokens/s"
         )
         print(
-            f"grouped encode (encode_documents)      {tokens / best['grouped'] / 1e6:6.2f} M tokens/s"
+            f"grouped encode (encode_documents)      {tokens / best['grouped'] / 1e6:6.2f} M "
+            "tokens/s"
         )
         for strategy, workers in runs:
             t = best[f"{strategy}/{workers}"]
             print(
-                f"mask --strategy {strategy:5s} --workers {workers}   {tokens / t / 1e6:6.2f} M tokens/s  "
+                f"mask --strategy {strategy:5s} --workers {workers}   {tokens / t / 1e6:6.2f} M "
+                "tokens/s  "
                 f"= {best['bare'] / t:.2f}x bare encode, {best['grouped'] / t:.2f}x grouped encode"
             )
     finally:

@@ -124,7 +124,8 @@ def main() -> None:
                 statistics.median(times[(cmd, "zh")]),
             )
             print(
-                f"  {cmd:5s}  --words tokenizer {mb / tt:6.2f} MB/s   --words zh {mb / tz:6.2f} MB/s   "
+                f"  {cmd:5s}  --words tokenizer {mb / tt:6.2f} MB/s   --words zh {mb / tz:6.2f} "
+                "MB/s   "
                 f"ratio {tt / tz:.2f}x (target >= 0.5x)"
             )
     finally:

@@ -49,7 +49,8 @@ byte-identical across set-ups.
 
     python scripts/bench_workers.py            # 10 copies (about 45 MB), 8 files, one run each
     python scripts/bench_workers.py --quick    # 2 copies (about 9 MB)
-    python scripts/bench_workers.py --quick --copies 1 --lines 1000 --files 2 --vocab-size 2000 --no-dask  # smoke
+    python scripts/bench_workers.py --quick --copies 1 --lines 1000 --files 2 \
+        --vocab-size 2000 --no-dask  # smoke
 """
 
 from __future__ import annotations
@@ -108,7 +109,8 @@ def digest(directory: Path) -> str:
 
 def timed(where: list[str], command: list[str], out: Path, env: dict[str, str],
           cores: set[int] | None = None) -> tuple[float, float, str]:
-    """Wall seconds, CPU seconds of the command's processes (driver and pool; not Dask's workers), digest.
+    """Wall seconds, CPU seconds of the command's processes (driver and pool; not Dask's workers),
+    digest.
 
     `cores`: run the command on these CPUs only (its threads and processes included).
     """
@@ -133,7 +135,8 @@ def timed(where: list[str], command: list[str], out: Path, env: dict[str, str],
 
 
 def halves_at_once(command: list[str], corpus: list[str], out: Path, env: dict[str, str]) -> float:
-    """Wall seconds of two one-core runs, one per half of the files, started together on different CPUs."""
+    """Wall seconds of two one-core runs, one per half of the files, started together on different
+    CPUs."""
     cpus = sorted(os.sched_getaffinity(0))[:2]
     files = set(corpus)
     rest = [a for a in command if a not in files]
@@ -245,7 +248,8 @@ def main() -> None:
                 None,
             )
         print(
-            f"corpus: {copies} cop{'y' if copies == 1 else 'ies'} of the plays, {size:.1f} MB in {args.files} "
+            f"corpus: {copies} cop{'y' if copies == 1 else 'ies'} of the plays, {size:.1f} MB in "
+            f"{args.files} "
             f"files; {os.cpu_count()} cores; best of {repeat} run(s), interleaved",
             flush=True,
         )
@@ -289,7 +293,8 @@ def main() -> None:
             for label in setups:
                 share = "" if label.startswith("dask") else f"  (CPU {cpu[name, label]:6.1f} s)"
                 print(
-                    f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} MB/s{share}"
+                    f"  {label:36s} {best[name, label]:7.2f} s  {size / best[name, label]:6.2f} "
+                    f"MB/s{share}"
                 )
             w1, w1t, w2 = (
                 best[name, "workers 1"],
@@ -300,21 +305,25 @@ def main() -> None:
             if (name, "halves") in best:
                 hv = best[name, "halves"]
                 print(
-                    f"  {'two halves at once, one core each':36s} {hv:7.2f} s  {size / hv:6.2f} MB/s"
+                    f"  {'two halves at once, one core each':36s} {hv:7.2f} s  {size / hv:6.2f} "
+                    "MB/s"
                 )
                 print(
-                    f"  ceiling of these two cores (one core / two halves at once): {w1c / hv:.2f}x; "
+                    "  ceiling of these two cores (one core / two halves at once): "
+                    f"{w1c / hv:.2f}x; "
                     f"the pool reaches {hv / w2:.0%} of it"
                 )
             print(
-                f"  speed-up --workers 2 vs --workers 1, one core:   {w1c / w2:.2f}x (target >= 1.6x)"
+                f"  speed-up --workers 2 vs --workers 1, one core:   {w1c / w2:.2f}x (target >= "
+                "1.6x)"
             )
             print(f"  speed-up --workers 2 vs --workers 1, one thread: {w1t / w2:.2f}x")
             print(f"  speed-up --workers 2 vs --workers 1 (plain):     {w1 / w2:.2f}x")
             dask_label = next((lb for lb in setups if lb.startswith("dask")), None)
             if dask_label:
                 print(
-                    f"  Dask / local pool (same 2 processes):          {best[name, dask_label] / w2:.2f}x the time"
+                    "  Dask / local pool (same 2 processes):          "
+                    f"{best[name, dask_label] / w2:.2f}x the time"
                 )
             print(
                 f"  outputs identical across set-ups: {'yes' if len(digests[name]) == 1 else 'NO'}"
@@ -324,7 +333,8 @@ def main() -> None:
             f"--workers 2 {fixed['2']:.2f} s (worker processes start and import the libraries)"
         )
         print(
-            f"load average (1 min) before / after: {load[0]:.1f} / {load[1]:.1f} on {os.cpu_count()} cores; "
+            f"load average (1 min) before / after: {load[0]:.1f} / {load[1]:.1f} on "
+            f"{os.cpu_count()} cores; "
             "other processes competing for the cores make the ratios smaller"
         )
         if any(len(d) != 1 for d in digests.values()):

@@ -99,7 +99,8 @@ def test_api_check_catches_what_it_should(tmp_path: Path) -> None:
     bad = tmp_path / "bad.py"
     bad.write_text(
         "import sys\nsys.path.insert(0, 'tests')\nfrom conftest import speeches\n"
-        "from maskprep.compare.run import _load_units\nfrom maskprep.audit.measure import audit_tokenizer\n"
+        "from maskprep.compare.run import _load_units\nfrom maskprep.audit.measure import "
+        "audit_tokenizer\n"
         "from maskprep import load_tokenizer\nload_tokenizer('t')._types\n",
         encoding="utf-8",
     )

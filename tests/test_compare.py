@@ -75,11 +75,13 @@ def comparison(
 
 
 def test_whole_units_never_leak_within_words_and_tokens_do(comparison):
-    # Common practice: word, span and pmi units are whole words, so no piece of a target word stays visible.
+    # Common practice: word, span and pmi units are whole words, so no piece of a target word stays
+    # visible.
     s = comparison[1]["strategies"]
     for name in ("word", "span", "pmi"):
         assert s[name]["within_word_leakage"] == 0.0
-    # Shakespeare with a 4,000-token vocabulary splits some words; random tokens then leave pieces visible.
+    # Shakespeare with a 4,000-token vocabulary splits some words; random tokens then leave pieces
+    # visible.
     assert s["token"]["tokens_per_word"] > 1.05
     assert s["token"]["within_word_leakage"] > 0.05
 
@@ -89,14 +91,17 @@ def test_pmi_masks_more_multiword_units_than_word_and_never_leaks_within_its_uni
     assert s["word"]["multiword_share"] == 0.0
     assert s["pmi"]["multiword_share"] > 0.1
     assert s["pmi"]["within_unit_leakage"] == 0.0
-    # Strategies that ignore the units split them: a token or a single word of a unit is masked alone.
+    # Strategies that ignore the units split them: a token or a single word of a unit is masked
+    # alone.
     assert s["token"]["within_unit_leakage"] > s["word"]["within_unit_leakage"] > 0.05
 
 
 def test_easy_target_share_follows_the_token_budget(comparison):
-    # The budget counts tokens and units are visited in random order, so every token is a target with
+    # The budget counts tokens and units are visited in random order, so every token is a target
+    # with
     # probability close to the rate whatever the grouping: each strategy hides frequent words and
-    # punctuation at about their share of the tokens (which in English text is over half: the 100 most
+    # punctuation at about their share of the tokens (which in English text is over half: the 100
+    # most
     # frequent words and punctuation; Zipf 1949, common practice). pmi is not below token by any
     # margin that a sample can show; what pmi changes is leakage (tests above).
     s = comparison[1]["strategies"]
@@ -109,7 +114,8 @@ def test_easy_target_share_follows_the_token_budget(comparison):
 
 
 def test_frequent_words_of_the_sample_are_english_function_words(comparison, small_wordpiece):
-    # From memory: "the", "and", "i", "to", "of", "you", "a" are among the most frequent words of any
+    # From memory: "the", "and", "i", "to", "of", "you", "a" are among the most frequent words of
+    # any
     # Shakespeare play; the easy-target list is counted from the sample, so it must hold them.
     from maskprep.tokenizer.encoding import load_tokenizer
 
@@ -219,7 +225,8 @@ def test_target_stats_match_a_plain_recount():
     d = TargetStats.from_state(ts.to_state()).to_dict(top_words=1)
     # Key 10 occurs twice (most frequent); its tokens: positions 1 and 4 -> both targets.
     assert d["easy_target_share"] == pytest.approx(2 / 3)
-    # Group 0 = positions 1-3; position 3 is visible, so targets 1 and 2 leak; position 4 alone does not.
+    # Group 0 = positions 1-3; position 3 is visible, so targets 1 and 2 leak; position 4 alone does
+    # not.
     assert d["within_unit_leakage"] == pytest.approx(2 / 3)
     # Bands: both word types rank in the top 100; the comma is the punctuation band.
     top, punct = d["targets_by_band"][0], d["targets_by_band"][-1]

@@ -92,7 +92,8 @@ def test_rate_and_mix_follow_the_published_parameters(strategy_runs, strategy):
 
 
 def test_whole_words_never_leak_and_tokens_do(strategy_runs):
-    # Whole-word masking masks every piece of a chosen word (common practice); random tokens split words.
+    # Whole-word masking masks every piece of a chosen word (common practice); random tokens split
+    # words.
     assert strategy_runs["word"][2]["within_word_leakage"] == 0.0
     assert strategy_runs["span"][2]["within_word_leakage"] == 0.0
     assert strategy_runs["token"][2]["within_word_leakage"] > 0.0
@@ -376,7 +377,8 @@ def test_verify_reports_counts_that_differ_from_the_manifest(tmp_path, strategy_
     ("edit-totals", "manifest.json: totals.rows is"),
 ])
 def test_verify_names_each_kind_of_damage(tmp_path, strategy_runs, damage, message):
-    # Source: the shard contract (manifest lists every shard with its counts; stats.json beside them).
+    # Source: the shard contract (manifest lists every shard with its counts; stats.json beside
+    # them).
     import shutil
 
     d = tmp_path / damage

@@ -1,4 +1,5 @@
-"""Tests for the masking units (maskprep.masking.strategies) and the sampler (maskprep.masking.sampler)."""
+"""Tests for the masking units (maskprep.masking.strategies) and the sampler
+(maskprep.masking.sampler)."""
 
 from __future__ import annotations
 

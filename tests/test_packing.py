@@ -31,7 +31,8 @@ def docs(shakespeare_small: Path) -> list[str]:
 
 
 def library_docs(info, docs):
-    """Per document: (ids, word ids) from the tokenizers library, special tokens in the text marked None."""
+    """Per document: (ids, word ids) from the tokenizers library, special tokens in the text marked
+    None."""
     out = []
     specials = set(int(i) for i in info.special_ids)
     for d in docs:
@@ -42,7 +43,8 @@ def library_docs(info, docs):
 
 
 def reference_rows(info, docs, seq_len, pack):
-    """Plain-Python layout: [CLS] + pieces of the stream doc [SEP] doc [SEP] ...; word ids renumbered per row."""
+    """Plain-Python layout: [CLS] + pieces of the stream doc [SEP] doc [SEP] ...; word ids
+    renumbered per row."""
     piece = seq_len - 1
     streams = []  # list of lists of (id, global word tag or None)
     for d, (ids, words) in enumerate(library_docs(info, docs)):
@@ -187,7 +189,8 @@ def test_options_are_checked(info):
 
 
 def test_packing_is_vectorised_enough(info, docs):
-    # common practice: no Python loop per token - 400 documents x 20 repeats pack in well under a second
+    # common practice: no Python loop per token - 400 documents x 20 repeats pack in well under a
+    # second
     import time
 
     batch = info.encode(docs * 20)

@@ -43,7 +43,8 @@ def info(small_wordpiece: Path):
 
 @pytest.fixture(scope="module")
 def units_file(tmp_path_factory, info, three_files) -> Path:
-    """A small unit vocabulary: the 300 most frequent adjacent word pairs of the text, scored by log count."""
+    """A small unit vocabulary: the 300 most frequent adjacent word pairs of the text, scored by log
+    count."""
     from maskprep.units.cohesion import Measure
     from maskprep.tokenizer.encoding import WORD
     from maskprep.units.files import write_units

@@ -141,7 +141,8 @@ def test_stats_equal_plain_reference(info, packed, strategy):
 
 
 def test_leakage_is_zero_for_whole_words_and_positive_for_tokens(info, packed):
-    # Whole-word masking never masks part of a word; token masking on real text does (common practice).
+    # Whole-word masking never masks part of a word; token masking on real text does (common
+    # practice).
     def leakage(strategy):
         s = MaskStats()
         for r in masked_rows(info, packed, strategy):

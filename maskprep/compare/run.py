@@ -25,24 +25,21 @@ shards and does not choose units.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any, Sequence
 
 import numpy as np
 
-from .._checks import is_whole
 from .._resume import LOCK_STATE, locked_output
 from .._tables import format_table
 from ..errors import MaskprepError
 from ..wording import name_files, plural
-from ..encoded.source import SourceTask
-from ..masking.sampler import UNITS_REMEDY, MaskingConfig, MixPer, Strategy, needs_units
-from ..packing import PackedBatch, PackingConfig
-from ..shards.taskloop import LoopJob, TaskLoop
-from ..masking.strategies import check_seed
+from ..shards.taskloop import LoopJob
 from ..stats.masks import MaskStats
-from ..stats.targets import TOP_WORDS, TargetStats, targets_per_sequence
+from ..stats.targets import TargetStats, targets_per_sequence
+from .config import ALL_STRATEGIES, DEFAULT_SAMPLE, CompareConfig, parse_strategies, \
+    resolve_strategies
+from .task import CompareJob, compare_task
 
 __all__ = [
     "CompareConfig",
@@ -54,203 +51,6 @@ __all__ = [
     "ALL_STRATEGIES",
     "DEFAULT_SAMPLE",
 ]
-
-ALL_STRATEGIES: tuple[Strategy, ...] = (Strategy.TOKEN, Strategy.WORD, Strategy.SPAN, Strategy.PMI)
-DEFAULT_SAMPLE = 10_000
-MAX_EXAMPLES = 20
-
-
-def parse_strategies(value: str | Sequence[str | Strategy] | None, *, option: str = "--strategies",
-                     ) -> tuple[Strategy, ...] | None:
-    """``"token,pmi"`` or ``["token", "pmi"]`` -> strategies in the given order; None stays None.
-
-    >>> parse_strategies("token, span")
-    (<Strategy.TOKEN: 'token'>, <Strategy.SPAN: 'span'>)
-    """
-    if value is None:
-        return None
-    parts = [p.strip() for p in value.split(",")] if isinstance(value, str) else list(value)
-    names = ", ".join(s.value for s in ALL_STRATEGIES)
-    out: list[Strategy] = []
-    for p in parts:
-        try:
-            s = p if isinstance(p, Strategy) else Strategy(p)
-        except ValueError:
-            raise MaskprepError(f"{option}: {p!r} is not a strategy; choose from {names} "
-                                "(comma-separated, e.g. token,word,span,pmi)") from None
-        if s in out:
-            raise MaskprepError(f"{option}: {s.value} is listed twice")
-        out.append(s)
-    if not out:
-        raise MaskprepError(f"{option}: give at least one strategy of {names}")
-    return tuple(out)
-
-
-@dataclass(frozen=True)
-class CompareConfig:
-    """Options of a comparison, validated on construction.
-
-    ``strategies=None`` means all four, pmi only when a unit vocabulary is given.
-    ``sample``: most sequences compared (None: all). ``top_words``: how many of
-    the sample's most frequent words count as easy targets.
-
-    >>> CompareConfig(strategies="token,word", sample=500).strategies
-    (<Strategy.TOKEN: 'token'>, <Strategy.WORD: 'word'>)
-    """
-
-    strategies: tuple[Strategy, ...] | None = None
-    rate: float = 0.15
-    mix: tuple[float, float, float] = (0.8, 0.1, 0.1)
-    mix_per: MixPer = MixPer.TOKEN
-    span_p: float = 0.2
-    span_max: int = 10
-    seq_len: int = 128
-    pack: bool = True
-    seed: int = 0
-    sample: int | None = DEFAULT_SAMPLE
-    examples: int = 3
-    top_words: int = TOP_WORDS
-
-    def __post_init__(self) -> None:
-        base = MaskingConfig(rate=self.rate, mix=self.mix, mix_per=self.mix_per, span_p=self.span_p,
-                             span_max=self.span_max)
-        packing = PackingConfig(seq_len=self.seq_len, pack=self.pack)
-        check_seed(self.seed, 0)
-        set_ = object.__setattr__
-        set_(self, "strategies", parse_strategies(self.strategies))
-        for name in ("rate", "mix", "mix_per", "span_p", "span_max"):
-            set_(self, name, getattr(base, name))
-        set_(self, "seq_len", packing.seq_len)
-        set_(self, "pack", packing.pack)
-        set_(self, "seed", int(self.seed))
-        if self.sample is not None and not is_whole(self.sample, 1):
-            raise MaskprepError(
-                f"--sample must be a whole number of sequences >= 1 or 'all', got {self.sample!r}"
-            )
-        for name, value, low, high in (("--examples", self.examples, 0, MAX_EXAMPLES),
-                                       ("--top-words", self.top_words, 1, 1_000_000)):
-            if not is_whole(value, low, high):
-                raise MaskprepError(
-                    f"{name} must be a whole number from {low} to {high}, got {value!r}"
-                )
-
-    def masking(self, strategy: Strategy) -> MaskingConfig:
-        """The `MaskingConfig` of one strategy: ``config.masking(Strategy.SPAN)``."""
-        return MaskingConfig(strategy=strategy, rate=self.rate, mix=self.mix, mix_per=self.mix_per,
-                             span_p=self.span_p, span_max=self.span_max)
-
-    def packing(self) -> PackingConfig:
-        """The `PackingConfig`: ``CompareConfig(seq_len=256).packing().seq_len`` -> 256."""
-        return PackingConfig(seq_len=self.seq_len, pack=self.pack)
-
-    def to_json(self) -> dict[str, Any]:
-        """The options as JSON values: ``CompareConfig().to_json()["mix"]`` -> [0.8, 0.1, 0.1]."""
-        return {
-            "rate": self.rate,
-            "mix": list(self.mix),
-            "mix_per": self.mix_per.value,
-            "span_p": self.span_p,
-            "span_max": self.span_max,
-            "seq_len": self.seq_len,
-            "pack": self.pack,
-            "seed": self.seed,
-            "sample": self.sample,
-            "examples": self.examples,
-            "top_words": self.top_words,
-        }
-
-
-# ------------------------------------------------------------------ the task function
-
-@dataclass(frozen=True)
-class _Job:
-    loop: LoopJob
-    config: CompareConfig
-    strategies: tuple[Strategy, ...]
-
-
-def _compare_task(job: _Job, task: SourceTask, quota: int | None) -> dict[str, Any]:
-    """Pack one task (its first `quota` sequences) and mask them with every strategy (`TaskLoop`)."""
-    loop = TaskLoop(job.loop, task)
-    cfg = job.config
-    masking = {s: cfg.masking(s) for s in job.strategies}
-    pmi_cfg = cfg.masking(Strategy.PMI)
-    stats = {s: MaskStats() for s in job.strategies}
-    targets = {s: TargetStats() for s in job.strategies}
-    examples: list[dict[str, Any]] = []
-    fallback: list[dict[str, Any]] = []
-    for pb in loop.packed(quota):
-        # the vocabulary units of these words, for within-unit leakage (the pmi strategy's own units)
-        groups = loop.units(pb, pmi_cfg) if loop.table is not None else None
-        rows: dict[Strategy, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
-        for s in job.strategies:
-            units, masked, labels = loop.mask(pb, masking[s], 0)
-            stats[s].add(
-                masked_ids=masked,
-                labels=labels,
-                unit_ids=units,
-                word_ids=pb.word_ids,
-                attention_mask=pb.attention_mask,
-                mask_token_id=loop.mask_id,
-                first_copy=True,
-            )
-            targets[s].add(
-                masked_ids=masked,
-                labels=labels,
-                unit_ids=units,
-                word_ids=pb.word_ids,
-                word_keys=pb.word_keys,
-                word_kinds=pb.word_kinds,
-                attention_mask=pb.attention_mask,
-                mask_token_id=loop.mask_id,
-                group_ids=groups,
-            )
-            rows[s] = (masked, labels, units)
-        if len(examples) < cfg.examples:
-            _pick_examples(pb, rows, groups, examples, fallback, cfg.examples)
-    return {"task": task.index, "sequences": loop.sequences, "read": loop.read.to_dict(),
-            "stats": {s.value: stats[s].to_state() for s in job.strategies},
-            "targets": {s.value: targets[s].to_state() for s in job.strategies},
-            "examples": (examples + fallback)[:cfg.examples]}
-
-
-def _pick_examples(
-    pb: PackedBatch,
-    rows: Mapping[Strategy, tuple[np.ndarray, ...]],
-    groups: np.ndarray | None,
-    examples: list[dict[str, Any]],
-    fallback: list[dict[str, Any]],
-    want: int,
-) -> None:
-    """Keep rows to show: first those holding a multi-word vocabulary unit, else the first rows."""
-    n_words = pb.word_ids.max(axis=1, initial=-1) + 1
-    rich = (
-        np.zeros(len(pb), bool)
-        if groups is None
-        else (groups.max(axis=1, initial=-1) + 1) < n_words
-    )
-    for r in range(len(pb)):
-        dest = examples if rich[r] else fallback
-        if len(examples) >= want or (dest is fallback and len(fallback) >= want):
-            continue
-        dest.append(
-            {
-                "sequence_id": int(pb.sequence_ids[r]),
-                "rich": bool(rich[r]),
-                "input_ids": pb.input_ids[r].tolist(),
-                "attention_mask": pb.attention_mask[r].tolist(),
-                "units": None if groups is None else groups[r].tolist(),
-                "strategies": {
-                    s.value: {
-                        "input_ids": m[r].tolist(),
-                        "labels": lab[r].tolist(),
-                        "unit_ids": u[r].tolist(),
-                    }
-                    for s, (m, lab, u) in rows.items()
-                },
-            }
-        )
-
 
 # ------------------------------------------------------------------ the driver
 
@@ -298,40 +98,19 @@ def _load_units(units: str | Path | None, info: Any,
     return vocab.by_length(), digest, doc
 
 
-def resolve_strategies(
-    config: CompareConfig, has_units: bool
-) -> tuple[tuple[Strategy, ...], dict[str, str]]:
-    """The strategies to run and the skipped ones with the reason.
-
-    >>> resolve_strategies(CompareConfig(), False)[1]["pmi"][:30]
-    'needs a unit vocabulary: pass '
-    """
-    if config.strategies is None:
-        if has_units:
-            return ALL_STRATEGIES, {}
-        return ALL_STRATEGIES[:3], {
-            "pmi": needs_units(
-                "", UNITS_REMEDY + "; skipped, and within-unit leakage is not measured"
-            ).lstrip()
-        }
-    if Strategy.PMI in config.strategies and not has_units:
-        raise MaskprepError(
-            needs_units("--strategies lists pmi, which", UNITS_REMEDY + " or leave pmi out")
-        )
-    return config.strategies, {}
-
-
 @locked_output(LOCK_STATE)
 def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                        config: CompareConfig = CompareConfig(), units: str | Path | None = None,
                        corpus_options: Any = None, executor: Any = None, words: Any = None,
                        memory: str | int = "2GiB") -> dict[str, Any]:
-    """Mask the same sequences with each strategy; write compare.json and compare.html; return the JSON.
+    """Mask the same sequences with each strategy; write compare.json and compare.html; return the
+    JSON.
 
     `words` (a `WordsConfig`, default the tokenizer's words) defines the words of
     the word, span and pmi strategies and of the leakage figures.
 
-    >>> doc = compare_strategies(["plays.txt"], tokenizer="tokenizer.json", output="cmp", units="units.parquet")  # doctest: +SKIP
+    >>> doc = compare_strategies(["plays.txt"], tokenizer="tokenizer.json", output="cmp",
+    ...     units="units.parquet")  # doctest: +SKIP
     >>> doc["strategies"]["pmi"]["within_word_leakage"]  # doctest: +SKIP
     0.0
     """
@@ -382,9 +161,9 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
         units_digest=units_digest,
         words=None if words.is_tokenizer else words,
     )
-    job = _Job(loop=loop, config=config, strategies=strategies)
+    job = CompareJob(loop=loop, config=config, strategies=strategies)
     todo = [(job, t, q) for t, q in zip(tasks, quotas) if q != 0]
-    results = list(map_tasks(_compare_task, todo, executor=executor, label="compare",
+    results = list(map_tasks(compare_task, todo, executor=executor, label="compare",
                              describe=lambda i: todo[i][1].describe()))
     stats = {s: MaskStats() for s in strategies}
     targets = {s: TargetStats() for s in strategies}
@@ -465,15 +244,16 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
 
 def _notes(config: CompareConfig, has_units: bool) -> list[str]:
     notes = [
-        "Every figure is counted from the masked rows of this comparison with the code that writes stats.json "
-        "for maskprep mask (copy 0, the same seed), not taken from the options.",
-        "Rates are over maskable (non-special) tokens. The budget is a number of tokens; strategies with "
-        "longer units take fewer, longer units to meet it, and near the end of a budget long units may not "
-        "fit, so rates can fall slightly short.",
-        f"Easy targets: punctuation, or one of the {config.top_words} most frequent words of the sequences "
-        "compared (frequencies counted in this sample, not from a reference list).",
-        "Within-word leakage: share of targets whose word keeps a visible (unmasked, maskable) token. "
-        "Within-unit leakage: the same with the vocabulary unit of the pmi segmentation of the same words.",
+        "Every figure is counted from the masked rows of this comparison with the code that "
+        "writes stats.json for maskprep mask (copy 0, the same seed), not taken from the options.",
+        "Rates are over maskable (non-special) tokens. The budget is a number of tokens; "
+        "strategies with longer units take fewer, longer units to meet it, and near the end of a "
+        "budget long units may not fit, so rates can fall slightly short.",
+        f"Easy targets: punctuation, or one of the {config.top_words} most frequent words of the "
+        "sequences compared (frequencies counted in this sample, not from a reference list).",
+        "Within-word leakage: share of targets whose word keeps a visible (unmasked, maskable) "
+        "token. Within-unit leakage: the same with the vocabulary unit of the pmi segmentation of "
+        "the same words.",
         "A word or unit cut by a sequence boundary counts once in each sequence.",
     ]
     if not has_units:
@@ -525,7 +305,8 @@ def format_compare_table(doc: dict[str, Any]) -> str:
     lines = [format_table(rows)]
     s = doc["sample"]
     lines.append(
-        f"\n{plural(s['sequences'], 'sequence')} of {doc['options']['seq_len']} tokens, seed {doc['options']['seed']}"
+        f"\n{plural(s['sequences'], 'sequence')} of {doc['options']['seq_len']} tokens, "
+        f"seed {doc['options']['seed']}"
         f", asked rate {doc['options']['rate']:g} of maskable tokens"
     )
     for name, why in doc["skipped"].items():

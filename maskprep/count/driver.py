@@ -53,7 +53,7 @@ from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan
 from ..tokenizer.encoding import TokenizerInfo, warn_literal_specials
 
 from .types import (
-    FORMAT_VERSION,
+    COUNTS_FORMAT_VERSION,
     MAX_N,
     MIN_TASK_MEMORY,
     POOL_ROWS,
@@ -73,7 +73,7 @@ __all__ = [
     "write_task",
     "parse_memory",
     "format_summary",
-    "FORMAT_VERSION",
+    "COUNTS_FORMAT_VERSION",
     "MIN_TASK_MEMORY",
     "MAX_N",
     "TASK_BYTES",
@@ -98,11 +98,13 @@ def count_ngrams(
     quiet: bool = False,
     resume: bool = False,
 ) -> CountSummary:
-    """Count the word n-grams of a corpus exactly into COUNTS_DIR `output`; `resume` finishes an interrupted count.
+    """Count the word n-grams of a corpus exactly into COUNTS_DIR `output`; `resume` finishes an
+    interrupted count.
 
     Finished tasks are recorded in ``COUNTS_DIR/.maskprep-count/`` (see `maskprep.count.resume`).
 
-    >>> count_ngrams(["plays.txt"], tokenizer="tokenizer.json", output="counts", config=CountConfig(max_n=3))  # doctest: +SKIP
+    >>> count_ngrams(["plays.txt"], tokenizer="tokenizer.json", output="counts",  # doctest: +SKIP
+    ...     config=CountConfig(max_n=3))
     CountSummary(output=PosixPath('counts'), N=860226, ...)
     """
     from . import resume as count_state
@@ -122,7 +124,7 @@ def count_ngrams(
     share = task_share(config, executor, len(tasks))
     fingerprint = source.fingerprint
     identity = count_state.run_identity(
-        config, info, fingerprint, task_options, format_version=FORMAT_VERSION
+        config, info, fingerprint, task_options, format_version=COUNTS_FORMAT_VERSION
     )
     with count_state.open_state(output, identity, resume=resume, overwrite=overwrite) as state:
         if state.finished:  # --resume on counts finished with these options: nothing to do
@@ -182,8 +184,11 @@ def write_task(
 
 
 def _for_rows(executor: Executor, rows: int) -> Executor:
-    """The executor for a phase of `rows` rows: small phases run in this process (same results), unless
-    the counting tasks already started the pool."""
+    """The executor for a phase of `rows` rows.
+
+    Small phases run in this process (same results), unless the counting tasks
+    already started the pool.
+    """
     if (
         executor.dask
         or executor.workers == 1
@@ -209,8 +214,9 @@ def finish_counts(
 ) -> CountSummary:
     """Merge the spilled runs of all tasks, write COUNTS_DIR and rename it into place.
 
-    >>> finish_counts(results, info=info, output=Path("counts"), spill=spill, config=config, files=files,
-    ...               corpus_options=CorpusOptions(), executor=Executor(), started=0.0)  # doctest: +SKIP
+    >>> finish_counts(results, info=info, output=Path("counts"), spill=spill,  # doctest: +SKIP
+    ...               config=config, files=files, corpus_options=CorpusOptions(),
+    ...               executor=Executor(), started=0.0)
     """
     max_n = config.max_n
     vocab = Vocabulary()
@@ -268,7 +274,7 @@ def finish_counts(
             literal[s] = literal.get(s, 0) + k
     warn_literal_specials(info, literal, name_files(files))
     meta = {
-        "format_version": FORMAT_VERSION,
+        "format_version": COUNTS_FORMAT_VERSION,
         "N": totals[0],
         "max_n": max_n,
         "min_count": config.min_count,
@@ -318,10 +324,12 @@ def format_summary(summary: CountSummary) -> str:
     >>> print(format_summary(summary))  # doctest: +SKIP
     """
     lines = [
-        f"counted N = {plural(summary.N, 'word position')} in {plural(summary.documents, 'document')} "
+        f"counted N = {plural(summary.N, 'word position')} in "
+        f"{plural(summary.documents, 'document')} "
         f"({plural(summary.tasks, 'task')}, {plural(summary.spill_runs, 'sorted run')} spilled, "
         f"{summary.seconds:.1f}s)",
-        f"{'n':>3}  {'occurrences':>14}  {'distinct':>12}  {'kept (count >= ' + str(summary.min_count) + ')':>20}",
+        f"{'n':>3}  {'occurrences':>14}  {'distinct':>12}  "
+        f"{'kept (count >= ' + str(summary.min_count) + ')':>20}",
     ]
     for n in range(1, summary.max_n + 1):
         lines.append(

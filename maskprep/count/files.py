@@ -121,7 +121,8 @@ class Vocabulary:
 
 
 class _ParquetSink:
-    """Write rows in order as fixed-size row groups, so the file does not depend on how rows arrive."""
+    """Write rows in order as fixed-size row groups, so the file does not depend on how rows
+    arrive."""
 
     def __init__(self, path: Path, n: int, vocab: Vocabulary) -> None:
         import pyarrow as pa
@@ -238,7 +239,8 @@ def write_ngrams(
 # ---------------------------------------------------------------- the directory
 
 def publish(staged: Path, output: Path, max_n: int) -> None:
-    """Rename the finished files into place; counts.json (the mark of a finished count) goes last."""
+    """Rename the finished files into place; counts.json (the mark of a finished count) goes
+    last."""
     for n in range(1, max_n + 1):
         fsync_file(staged / f"ngrams-{n}.parquet")  # on disk before anything is renamed
     (output / "counts.json").unlink(missing_ok=True)

@@ -88,14 +88,16 @@ def _differs(cols: list[np.ndarray]) -> np.ndarray:
 
 def reduce_rows(columns: np.ndarray, counts: np.ndarray, *, fp: np.ndarray | None = None,
                 index_bits: int | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Merge equal n-grams; return a (distinct, n+1) table (keys, summed count) and its fingerprints.
+    """Merge equal n-grams; return a (distinct, n+1) table (keys, summed count) and its
+    fingerprints.
 
     `columns` (n, m) uint64 word keys (any strides), `counts` (m,) uint64,
     `fp` their fingerprints if known. Output rows are in canonical order
     (fingerprint, then keys). `index_bits` only exists so tests can force
     fingerprint-prefix collisions.
 
-    >>> reduce_rows(np.array([[5, 7, 5]], np.uint64), np.array([1, 2, 3], np.uint64))[0][:, 1].tolist() in ([4, 2], [2, 4])
+    >>> reduce_rows(np.array([[5, 7, 5]], np.uint64), np.array([1, 2, 3], np.uint64))[0][:,
+    ...     1].tolist() in ([4, 2], [2, 4])
     True
     """
     n, m = columns.shape
@@ -139,7 +141,8 @@ def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) ->
     Returns the reduced table in canonical order. `index_bits` only exists so
     tests can force prefix clashes.
 
-    >>> reduce_table(np.array([[5, 1], [7, 2], [5, 3]], np.uint64), 1)[:, 1].tolist() in ([4, 2], [2, 4])
+    >>> reduce_table(np.array([[5, 1], [7, 2], [5, 3]], np.uint64), 1)[:, 1].tolist() in ([4, 2],
+    ...     [2, 4])
     True
     """
     m = table.shape[0]
@@ -156,7 +159,8 @@ def reduce_table(table: np.ndarray, n: int, *, index_bits: int | None = None) ->
 
 
 def _sorted_prefixes(fp: np.ndarray, ib: int) -> tuple[np.ndarray, np.ndarray]:
-    """Row order by fingerprint prefix (top 64 - ib bits), and whether each row's prefix equals the next's.
+    """Row order by fingerprint prefix (top 64 - ib bits), and whether each row's prefix equals the
+    next's.
 
     The row index is packed into the low `ib` bits, so a plain (SIMD) sort of
     uint64 gives the permutation, much faster than argsort.
@@ -171,7 +175,8 @@ def _sorted_prefixes(fp: np.ndarray, ib: int) -> tuple[np.ndarray, np.ndarray]:
 def _reduce_sorted(
     table: np.ndarray, fp: np.ndarray, n: int, ib: int
 ) -> tuple[np.ndarray, np.ndarray] | None:
-    """Reduce a row-major (m, n + 1) table when every equal-prefix group is one n-gram; None if two differ.
+    """Reduce a row-major (m, n + 1) table when every equal-prefix group is one n-gram; None if two
+    differ.
 
     Whole rows are gathered into sorted order (one cache line each, about
     twice as fast as n + 1 column gathers) and neighbours with equal prefixes
@@ -201,7 +206,8 @@ def _reduce_sorted(
 
 
 def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray, n: int) -> np.ndarray:
-    """(groups, n + 1) table: the first row of each group of sorted rows (`starts`) and its summed count."""
+    """(groups, n + 1) table: the first row of each group of sorted rows (`starts`) and its summed
+    count."""
     m = len(counts)
     out = np.empty((len(starts), n + 1), np.uint64)
     for j, col in enumerate(cols):
@@ -250,19 +256,17 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
     >>> [t[1].tolist() for t in count_block(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
     [[3], [2]]
     """
-    # Performance: a block (<= 2**16 words by default) stays in cache. Words
-    # get dense ids (b bits); unigrams are a bincount. Level n refines level
-    # n-1: only positions that start an n-gram (>= n words left in the run)
-    # take part, each keyed by (rank of its (n-1)-gram, id of its n-th word)
-    # packed into one uint64 beside the position index, so numpy's SIMD sort
-    # of plain integers yields the permutation (no argsort) and the new dense
-    # ranks. Once a level is nearly all distinct, longer n-grams skip the
-    # grouping (the spill reduce merges equal rows anyway). Fingerprints roll along with the levels (one xor-multiply per
-    # position), so each distinct n-gram's bucket is known before its keys are
-    # gathered, and keys are gathered once, already in bucket order, column by
-    # column (contiguous 1-D gathers). Work per level is linear in the
-    # positions still valid, which shrink with n, and does not depend on how
-    # many n-grams are distinct. Tables stay column-major until written.
+    # Performance: a block (<= 2**16 words by default) stays in cache. Words get dense ids (b
+    # bits); unigrams are a bincount. Level n refines level n-1: only positions that start an
+    # n-gram (>= n words left in the run) take part, each keyed by (rank of its (n-1)-gram, id of
+    # its n-th word) packed into one uint64 beside the position index, so numpy's SIMD sort of
+    # plain integers yields the permutation (no argsort) and the new dense ranks. Once a level is
+    # nearly all distinct, longer n-grams skip the grouping (the spill reduce merges equal rows
+    # anyway). Fingerprints roll along with the levels (one xor-multiply per position), so each
+    # distinct n-gram's bucket is known before its keys are gathered, and keys are gathered once,
+    # already in bucket order, column by column (contiguous 1-D gathers). Work per level is linear
+    # in the positions still valid, which shrink with n, and does not depend on how many n-grams
+    # are distinct. Tables stay column-major until written.
     M = len(wk)
     out: list[tuple[np.ndarray, ...]] = []
     if M == 0:
@@ -305,8 +309,9 @@ def count_block(wk: np.ndarray, rem: np.ndarray, max_n: int) -> list[tuple[np.nd
             first, counts, rank, rank_bits = _group_level(
                 rank[keep], ids[last], int(b), rank_bits, n < max_n
             )
-            # nearly all distinct: grouping the longer n-grams of this block would not pay (the spill
-            # reduce merges equal rows anyway), so they are emitted one per position from now on
+            # nearly all distinct: grouping the longer n-grams of this block would not pay
+            # (the spill reduce merges equal rows anyway), so they are emitted one per
+            # position from now on
             grouping = len(first) < 0.85 * m
             fp = _finish(roll[first])
             at_first = pos[first]
@@ -379,7 +384,8 @@ def count_windows(
 ) -> list[tuple[np.ndarray, np.ndarray]]:
     """(keys (D_n, n) rows, counts (D_n,)) of the distinct n-grams of a block, for n = 1..max_n.
 
-    >>> [c.tolist() for _, c in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
+    >>> [c.tolist() for _,
+    ...     c in count_windows(np.array([4, 4, 4], np.uint64), np.array([3, 2, 1]), 2)]
     [[3], [2]]
     """
     out = []

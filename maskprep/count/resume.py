@@ -1,4 +1,5 @@
-"""Resume state of `maskprep count`: finished chunk tasks recorded durably, so `--resume` skips them.
+"""Resume state of `maskprep count`: finished chunk tasks recorded durably, so `--resume` skips
+them.
 
 Layout, inside COUNTS_DIR while a count is unfinished::
 
@@ -82,7 +83,8 @@ def run_identity(
 ) -> dict[str, Any]:
     """What must not change between the attempts of one count (not --memory, --workers or --strict).
 
-    >>> run_identity(CountConfig(), info, corpus_fingerprint(files), CorpusOptions(), format_version=1)["max_n"]  # doctest: +SKIP
+    >>> run_identity(CountConfig(), info, corpus_fingerprint(files),  # doctest: +SKIP
+    ...     CorpusOptions(), format_version=1)["max_n"]
     5
     """
     return {
@@ -119,9 +121,11 @@ COUNT_STAGE = Stage(noun="count", state=STATE_DIR, marker="counts.json", labels=
 def open_state(
     output: Path, identity: Mapping[str, Any], *, resume: bool, overwrite: bool
 ) -> RunDir:
-    """Lock COUNTS_DIR and check it against `--resume` / `--overwrite` (``run.finished``: nothing to do).
+    """Lock COUNTS_DIR and check it against `--resume` / `--overwrite` (``run.finished``: nothing to
+    do).
 
-    >>> with open_state(Path("counts"), identity, resume=False, overwrite=False) as run: ...  # doctest: +SKIP
+    >>> with open_state(Path("counts"), identity, resume=False,  # doctest: +SKIP
+    ...     overwrite=False) as run: ...
     """
     return claim(output, COUNT_STAGE, identity, resume=resume, overwrite=overwrite)
 
@@ -222,7 +226,8 @@ def count_recorded(
 ) -> Any:
     """Task function: `count.task.count_task` into a fresh attempt directory, then its done-record.
 
-    >>> count_recorded(task, info.json, CountConfig(), "counts/.maskprep-count", CorpusOptions(), 1 << 28, digest)  # doctest: +SKIP
+    >>> count_recorded(task, info.json, CountConfig(), "counts/.maskprep-count",  # doctest: +SKIP
+    ...     CorpusOptions(), 1 << 28, digest)
     """
     root = Path(state_dir)
     attempt = root / f"t{task.index:06d}-{uuid.uuid4().hex[:12]}"

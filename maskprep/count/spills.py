@@ -48,7 +48,8 @@ def _npy_header(rows: int, cols: int) -> bytes:
 class SpillWriter:
     """Stream a (rows, cols) uint64 `.npy` file block by block.
 
-    >>> with SpillWriter(Path("run.npy"), 3) as w: w.write(np.zeros((2, 3), np.uint64))  # doctest: +SKIP
+    >>> with SpillWriter(Path("run.npy"), 3) as w:  # doctest: +SKIP
+    ...     w.write(np.zeros((2, 3), np.uint64))
     """
 
     def __init__(self, path: Path, cols: int) -> None:
@@ -164,7 +165,8 @@ def disk_error(exc: OSError, where: Path, doing: str) -> MaskprepError:
 def merge_partition(job: MergeJob) -> PartitionResult:
     """Task function: sum the runs of one key range of one n exactly, prune, write kept rows.
 
-    >>> merge_partition(MergeJob(2, [("t0-r0000-n2.npy", offsets)], 10, 1 << 18, "kept.npy"))  # doctest: +SKIP
+    >>> merge_partition(MergeJob(2, [("t0-r0000-n2.npy", offsets)], 10, 1 << 18,  # doctest: +SKIP
+    ...     "kept.npy"))
     """
     n = job.n
     per_bucket = np.zeros(0, np.int64)

@@ -1,4 +1,5 @@
-"""One counting task: read a task's encoded batches (tokenizing raw text, or from an encoded directory) and count its n-grams into sorted spills.
+"""One counting task: read a task's encoded batches (tokenizing raw text, or from an encoded
+directory) and count its n-grams into sorted spills.
 
 `ChunkCounter` counts all n = 1..max_n of each batch at once (`kernels.count_block`),
 buffers the distinct n-grams per coarse key range and, when its share of ``--memory``
@@ -56,9 +57,11 @@ def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 class ChunkCounter:
-    """Count the n-grams of a stream of `EncodedBatch`es within a memory share, spilling sorted runs.
+    """Count the n-grams of a stream of `EncodedBatch`es within a memory share, spilling sorted
+    runs.
 
-    >>> c = ChunkCounter(info, max_n=5, spill_dir=Path("spill"), share=256 << 20, tag="t0")  # doctest: +SKIP
+    >>> c = ChunkCounter(info, max_n=5, spill_dir=Path("spill"), share=256 << 20,  # doctest: +SKIP
+    ...     tag="t0")
     >>> c.add(info.encode(["To be, or not to be"])); result = c.finish()  # doctest: +SKIP
     """
 
@@ -207,16 +210,19 @@ class ChunkCounter:
 
 
 def _batch_chars(config: CountConfig, share: int) -> int:
-    # the tokenizer holds about 200 bytes per character of a batch while it encodes, two batches at
-    # once with the look-ahead: a batch of share / 1024 characters keeps that under a fifth of the share
+    # the tokenizer holds about 200 bytes per character of a batch while it encodes, two
+    # batches at once with the look-ahead: a batch of share / 1024 characters keeps that
+    # under a fifth of the share
     return config.batch_chars or int(np.clip(share // 1024, 16_384, 1 << 20))
 
 
 def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
                corpus_options: CorpusOptions, share: int) -> TaskCounts:
-    """Task function: count one task (raw text or an encoded directory's), spilling runs under `spill_dir`.
+    """Task function: count one task (raw text or an encoded directory's), spilling runs under
+    `spill_dir`.
 
-    >>> count_task(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x", CorpusOptions(), 1 << 28)  # doctest: +SKIP
+    >>> count_task(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x",  # doctest: +SKIP
+    ...     CorpusOptions(), 1 << 28)
     """
     info = tokenizer_from_json(
         tokenizer_json

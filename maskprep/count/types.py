@@ -15,10 +15,10 @@ from ..errors import MaskprepError
 from ..tokenizer.words import WordsConfig, words_option
 from .spills import SpillFile
 
-__all__ = ["CountConfig", "TaskCounts", "CountSummary", "parse_memory", "FORMAT_VERSION", "MAX_N",
-           "MIN_TASK_MEMORY", "TASK_BYTES", "POOL_ROWS"]
+__all__ = ["CountConfig", "TaskCounts", "CountSummary", "parse_memory", "COUNTS_FORMAT_VERSION",
+           "MAX_N", "MIN_TASK_MEMORY", "TASK_BYTES", "POOL_ROWS"]
 
-FORMAT_VERSION = 1
+COUNTS_FORMAT_VERSION = 1
 MAX_N = 8
 MIN_TASK_MEMORY = 4 << 20       # below this a task cannot hold a batch and a buffer at once
 TASK_BYTES = 8 << 20            # text files are split into tasks of about this size
@@ -30,7 +30,8 @@ _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
 
 
 def parse_memory(text: str | int, *, option: str = "--memory") -> int:
-    """Bytes from "1GiB", "512MiB", "2G" (K/M/G/T and KiB.. are powers of 1024; KB/MB/GB of 1000) or an int.
+    """Bytes from "1GiB", "512MiB", "2G" (K/M/G/T and KiB.. are powers of 1024; KB/MB/GB of 1000) or
+    an int.
 
     >>> parse_memory("512MiB"), parse_memory("2G"), parse_memory("10MB")
     (536870912, 2147483648, 10000000)

@@ -12,10 +12,10 @@ Sampler, per sequence (vectorised over the batch with numpy):
    get a budget of 0);
 2. units are visited in ascending order of a random priority per unit: the top
    40 bits of draw (PRIORITY, unit index), ties going to the lower unit index
-   (at most 2**24 - 1 units per sequence); a unit is taken only if its token count fits the remaining
-   budget; this goes on until the budget is met or nothing fits. Long units can
-   therefore be skipped near the end of the budget, which makes the lengths of
-   masked units somewhat shorter than the lengths of all units;
+   (at most 2**24 - 1 units per sequence); a unit is taken only if its token
+   count fits the remaining budget; this goes on until the budget is met or
+   nothing fits. Long units can therefore be skipped near the end of the
+   budget, which makes the lengths of masked units somewhat shorter than the lengths of all units;
 3. every token of a taken unit is a target; each target is replaced by the
    mask token, a random id from `random_token_ids` (which may equal the
    original), or kept, with probabilities `mix`, drawn per target token
@@ -165,7 +165,9 @@ def strategy_units(special: np.ndarray, word_ids: np.ndarray, *, config: Masking
                    ) -> np.ndarray:
     """unit_ids int32 (B, L) for `config.strategy` (pmi needs word_keys, word_kinds, units).
 
-    >>> strategy_units(np.array([[1, 0, 0]], bool), np.array([[-1, 0, 0]]), config=MaskingConfig(strategy="word"), sequence_ids=np.array([0], np.uint64), seed=0).tolist()
+    >>> strategy_units(np.array([[1, 0, 0]], bool), np.array([[-1, 0, 0]]),
+    ...     config=MaskingConfig(strategy="word"), sequence_ids=np.array([0], np.uint64),
+    ...     seed=0).tolist()
     [[-1, 0, 0]]
     """
     strategy = config.strategy
@@ -196,7 +198,8 @@ def select_targets(unit_ids: np.ndarray, *, sequence_ids: np.ndarray, seed: int,
                    rate: float = 0.15) -> np.ndarray:
     """Budgeted greedy choice of whole units: bool (B, L), True on target tokens.
 
-    >>> int(select_targets(np.array([[-1, 0, 1, 2, 3]]), sequence_ids=np.array([0], np.uint64), seed=0, rate=0.5).sum())
+    >>> int(select_targets(np.array([[-1, 0, 1, 2, 3]]), sequence_ids=np.array([0], np.uint64),
+    ...     seed=0, rate=0.5).sum())
     2
     """
     unit_ids, sequence_ids = _check_units(unit_ids, sequence_ids)
@@ -261,7 +264,10 @@ def mask_batch(input_ids: np.ndarray, unit_ids: np.ndarray, *, sequence_ids: np.
                random_token_ids: np.ndarray | Sequence[int]) -> tuple[np.ndarray, np.ndarray]:
     """Mask a batch: (masked input_ids int32 (B, L), labels int32 (B, L), -100 off targets).
 
-    >>> ids, labels = mask_batch(np.array([[101, 7, 8, 102]]), np.array([[-1, 0, 1, -1]]), sequence_ids=np.array([0], np.uint64), seed=0, config=MaskingConfig(rate=0.5, mix=(1, 0, 0)), mask_token_id=103, random_token_ids=np.array([7, 8]))
+    >>> ids, labels = mask_batch(np.array([[101, 7, 8, 102]]), np.array([[-1, 0, 1, -1]]),
+    ...     sequence_ids=np.array([0], np.uint64), seed=0,
+    ...     config=MaskingConfig(rate=0.5, mix=(1, 0, 0)), mask_token_id=103,
+    ...     random_token_ids=np.array([7, 8]))
     >>> int((ids == 103).sum()), int((labels != -100).sum())
     (1, 1)
     """

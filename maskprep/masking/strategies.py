@@ -271,7 +271,8 @@ def span_word_starts(
 ) -> np.ndarray:
     """Word starts of span runs, bool (B, Lw); runs are cut at document boundaries.
 
-    >>> span_word_starts(np.array([[0, 0]], bool), np.array([[0, 1]]), sequence_ids=np.array([0], np.uint64), seed=0, span_p=1.0).tolist()
+    >>> span_word_starts(np.array([[0, 0]], bool), np.array([[0, 1]]),
+    ...     sequence_ids=np.array([0], np.uint64), seed=0, span_p=1.0).tolist()
     [[True, True]]
     """
     special, word_ids = _check_tokens(special, word_ids)
@@ -289,7 +290,8 @@ def span_units(special: np.ndarray, word_ids: np.ndarray, *, sequence_ids: np.nd
                copy: int = 0, span_p: float = 0.2, span_max: int = 10) -> np.ndarray:
     """Span units: consecutive runs of words, truncated-geometric lengths.
 
-    >>> span_units(np.array([[0, 0]], bool), np.array([[0, 1]]), sequence_ids=np.array([0], np.uint64), seed=0, span_p=1.0).tolist()
+    >>> span_units(np.array([[0, 0]], bool), np.array([[0, 1]]),
+    ...     sequence_ids=np.array([0], np.uint64), seed=0, span_p=1.0).tolist()
     [[0, 1]]
     """
     starts = span_word_starts(special, word_ids, sequence_ids=sequence_ids, seed=seed, copy=copy,
@@ -390,7 +392,8 @@ def ngram_scores(special: np.ndarray, word_ids: np.ndarray, word_keys: np.ndarra
     An n-gram is looked up only where its n words are all of kind 0 (word, not
     punctuation or padding) and no document boundary lies inside it.
 
-    >>> s = ngram_scores(np.zeros((1, 2), bool), np.array([[0, 1]]), np.array([[5, 6]], np.uint64), np.zeros((1, 2), np.int8), units={2: (np.array([[5, 6]], np.uint64), np.array([2.0]))})
+    >>> s = ngram_scores(np.zeros((1, 2), bool), np.array([[0, 1]]), np.array([[5, 6]], np.uint64),
+    ...     np.zeros((1, 2), np.int8), units={2: (np.array([[5, 6]], np.uint64), np.array([2.0]))})
     >>> s[2][:, 0].tolist()
     [0.0, 2.0]
     """
@@ -443,7 +446,9 @@ def pmi_word_starts(special: np.ndarray, word_ids: np.ndarray, word_keys: np.nda
     single word before any n-gram), so e.g. "a b c" with equal-scoring "a b"
     and "b c" becomes [a b][c].
 
-    >>> pmi_word_starts(np.zeros((1, 3), bool), np.array([[0, 1, 2]]), np.array([[1, 2, 3]], np.uint64), np.zeros((1, 3), np.int8), units={2: (np.array([[2, 3]], np.uint64), np.array([1.0]))}).tolist()
+    >>> pmi_word_starts(np.zeros((1, 3), bool), np.array([[0, 1, 2]]),
+    ...     np.array([[1, 2, 3]], np.uint64), np.zeros((1, 3), np.int8),
+    ...     units={2: (np.array([[2, 3]], np.uint64), np.array([1.0]))}).tolist()
     [[True, True, False]]
     """
     scores = ngram_scores(special, word_ids, word_keys, word_kinds, units=units)
@@ -476,7 +481,9 @@ def pmi_units(special: np.ndarray, word_ids: np.ndarray, word_keys: np.ndarray,
               word_kinds: np.ndarray, *, units: "UnitTable | Mapping") -> np.ndarray:
     """PMI units: the best-scoring segmentation of words into vocabulary n-grams.
 
-    >>> pmi_units(np.zeros((1, 3), bool), np.array([[0, 1, 2]]), np.array([[1, 2, 3]], np.uint64), np.zeros((1, 3), np.int8), units={2: (np.array([[2, 3]], np.uint64), np.array([1.0]))}).tolist()
+    >>> pmi_units(np.zeros((1, 3), bool), np.array([[0, 1, 2]]), np.array([[1, 2, 3]], np.uint64),
+    ...     np.zeros((1, 3), np.int8),
+    ...     units={2: (np.array([[2, 3]], np.uint64), np.array([1.0]))}).tolist()
     [[0, 1, 1]]
     """
     starts = pmi_word_starts(special, word_ids, word_keys, word_kinds, units=units)

@@ -31,7 +31,7 @@ from .._files import read_json
 from ..errors import MaskprepError
 
 __all__ = [
-    "FORMAT_VERSION",
+    "SHARDS_FORMAT_VERSION",
     "READS_VERSIONS",
     "METADATA_KEY",
     "META_DIR",
@@ -44,7 +44,7 @@ __all__ = [
     "FORMATS",
 ]
 
-FORMAT_VERSION = 2
+SHARDS_FORMAT_VERSION = 2
 READS_VERSIONS = (1, 2)
 METADATA_KEY = b"maskprep"
 META_DIR = "_maskprep"
@@ -105,7 +105,7 @@ class ShardManifest:
     totals: Mapping[str, Any]
     shards: tuple[ShardRecord, ...]
     maskprep_version: str = ""
-    format_version: int = FORMAT_VERSION
+    format_version: int = SHARDS_FORMAT_VERSION
 
     def to_json(self) -> dict[str, Any]:
         return {

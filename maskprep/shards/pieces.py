@@ -20,7 +20,7 @@ import numpy as np
 
 from ..errors import MaskprepError
 from .read import ShardSet
-from .write import ARROW_BATCH_ROWS, COPY_DTYPE, PARQUET_GROUP_ROWS
+from .shardfile import ARROW_BATCH_ROWS, COPY_DTYPE, PARQUET_GROUP_ROWS
 
 __all__ = ["PieceFiles"]
 

@@ -1,4 +1,5 @@
-"""Read shards written by `maskprep.shards.write.write_shards` back as numpy batches or a pyarrow dataset.
+"""Read shards written by `maskprep.shards.write.write_shards` back as numpy batches or a pyarrow
+dataset.
 
 `ShardSet` (made by `maskprep.open_shards`) lists the shard files of a
 finished directory from its manifest, iterates them in manifest order as
@@ -23,7 +24,7 @@ import numpy as np
 from ..errors import MaskprepError
 from ..masking.sampler import MaskingConfig, mask_batch
 from .layout import ShardManifest, ShardRecord, metadata_path
-from .write import COPY_DTYPE
+from .shardfile import COPY_DTYPE
 
 __all__ = ["ShardSet", "to_numpy"]
 

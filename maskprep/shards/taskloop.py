@@ -64,7 +64,8 @@ def _head(pb: PackedBatch, k: int) -> PackedBatch:
 
 
 class TaskLoop:
-    """Pack and mask one task: ``for pb in loop.packed(): units, masked, labels = loop.mask(pb, cfg, copy)``."""
+    """Pack and mask one task: ``for pb in loop.packed(): units, masked, labels = loop.mask(pb, cfg,
+    copy)``."""
 
     def __init__(self, job: LoopJob, task: SourceTask) -> None:
         from ..masking.strategies import UnitTable
@@ -86,7 +87,8 @@ class TaskLoop:
 
     @property
     def read(self) -> ReadStats:
-        """Read statistics of the batches packed so far (the whole task's once `packed` is exhausted)."""
+        """Read statistics of the batches packed so far (the whole task's once `packed` is
+        exhausted)."""
         return self.reader.consumed
 
     def packed(self, quota: int | None = None) -> Iterator[PackedBatch]:

@@ -54,8 +54,8 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .._files import atomic_path, atomic_write_text, file_sha256
-from .._resume import RunDir, Stage, claim, write_record
+from .._files import atomic_write_text, file_sha256
+from .._resume import RunDir, write_record
 from .._version import __version__
 from .._checks import is_whole
 from ..errors import MaskprepError
@@ -65,16 +65,13 @@ from ..masking.sampler import MaskingConfig, Strategy, needs_units
 from ..packing import PackingConfig, check_packing_tokenizer
 from ..stats.masks import MaskStats
 from .taskloop import LoopJob, TaskLoop
-from .layout import FORMAT_VERSION, FORMATS as _FORMATS, META_DIR, METADATA_FILES, METADATA_KEY, \
-    STATE_DIR, ShardManifest, ShardRecord, new_metadata_path, shard_name
+from .layout import FORMATS as _FORMATS, METADATA_KEY, SHARDS_FORMAT_VERSION, ShardManifest, \
+    ShardRecord, new_metadata_path
+from .maskdir import done_path, prepare_dir
+from .shardfile import COPY_DTYPE, ShardWriter
 
 __all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards",
-           "FORMAT_VERSION", "METADATA_KEY"]
-
-ARROW_BATCH_ROWS = 1024
-PARQUET_GROUP_ROWS = 8192
-COPY_DTYPE = np.int16  # --copies is at most 1000
-
+           "SHARDS_FORMAT_VERSION", "METADATA_KEY", "COPY_DTYPE", "file_sha256"]
 
 @dataclass(frozen=True)
 class ShardConfig:
@@ -113,76 +110,6 @@ def _write_text(path: Path, text: str) -> None:
     atomic_write_text(path, text)
 
 
-# ------------------------------------------------------------------ writing one file
-
-def _list_column(values: np.ndarray) -> Any:
-    import pyarrow as pa
-
-    n, L = values.shape
-    offsets = pa.array(np.arange(0, (n + 1) * L, L, dtype=np.int32))
-    return pa.ListArray.from_arrays(offsets, pa.array(np.ascontiguousarray(values).ravel()))
-
-
-def _write_file(
-    path: Path, columns: Mapping[str, np.ndarray], *, fmt: str, metadata: Mapping[str, Any]
-) -> None:
-    import pyarrow as pa
-
-    arrays = [_list_column(v) if v.ndim == 2 else pa.array(v) for v in columns.values()]
-    meta = {METADATA_KEY: json.dumps(metadata, sort_keys=True).encode("utf-8")}
-    schema = pa.schema(
-        [pa.field(k, a.type, nullable=False) for k, a in zip(columns, arrays)], metadata=meta
-    )
-    table = pa.Table.from_arrays(arrays, schema=schema)
-    with atomic_path(path) as tmp:
-        if fmt == "arrow":
-            with pa.OSFile(str(tmp), "wb") as sink, pa.ipc.new_file(sink, schema) as writer:
-                writer.write_table(table, max_chunksize=ARROW_BATCH_ROWS)
-        else:
-            import pyarrow.parquet as pq
-
-            pq.write_table(table, str(tmp), row_group_size=PARQUET_GROUP_ROWS, compression="zstd")
-
-
-class _ShardWriter:
-    """Buffers rows of one (task, copy) and writes files of exactly shard_rows rows (the last may be short)."""
-
-    def __init__(
-        self, out: Path, *, task: int, copy: int, config: ShardConfig, metadata: Mapping[str, Any]
-    ) -> None:
-        self.out, self.task, self.copy, self.config = out, task, copy, config
-        self.metadata = {**metadata, "task": task, "copy": copy}
-        self.pending: list[dict[str, np.ndarray]] = []
-        self.rows = 0
-        self.records: list[ShardRecord] = []
-
-    def add(self, columns: dict[str, np.ndarray]) -> None:
-        self.pending.append(columns)
-        self.rows += len(columns["sequence_id"])
-        while self.rows >= self.config.shard_rows:
-            self._flush(self.config.shard_rows)
-
-    def close(self) -> list[ShardRecord]:
-        if self.rows:
-            self._flush(self.rows)
-        return self.records
-
-    def _flush(self, n: int) -> None:
-        cols = {k: np.concatenate([p[k] for p in self.pending]) for k in self.pending[0]}
-        head = {k: v[:n] for k, v in cols.items() if not k.startswith("_")}
-        rest = {k: v[n:] for k, v in cols.items()}
-        self.pending = [rest] if len(rest["sequence_id"]) else []
-        self.rows -= n
-        name = shard_name(self.task, self.copy, len(self.records), self.config.format)
-        path = self.out / name
-        _write_file(path, head, fmt=self.config.format, metadata=self.metadata)
-        self.records.append(ShardRecord(
-            file=name, task=self.task, copy=self.copy, part=len(self.records), rows=n,
-            tokens=int(head["attention_mask"].sum(dtype=np.int64)),
-            maskable=int(cols["_maskable"][:n].sum()), targets=int(cols["_targets"][:n].sum()),
-            bytes=path.stat().st_size, sha256=file_sha256(path)))
-
-
 # ------------------------------------------------------------------ the task function
 
 @dataclass(frozen=True)
@@ -195,19 +122,16 @@ class _Job:
     metadata: Mapping[str, Any] = field(default_factory=dict)
 
 
-def _done_path(out: Path, task: int) -> Path:
-    return out / STATE_DIR / MASK_STAGE_RECORD.format(task)
-
-
 def _shard_task(job: _Job, task: SourceTask) -> dict[str, Any]:
-    """Pack, mask and write one task (`TaskLoop`, from raw text or an encoded directory); returns its done-record."""
+    """Pack, mask and write one task (`TaskLoop`, from raw text or an encoded directory); returns
+    its done-record."""
     out = Path(job.out)
     loop = TaskLoop(job.loop, task)
     for stale in out.glob(f"shard-{task.index:05d}-*"):
         stale.unlink()
     cfg, mcfg = job.shards, job.masking
-    writers = [_ShardWriter(out, task=task.index, copy=c, config=cfg, metadata=job.metadata)
-               for c in range(cfg.copies)]
+    writers = [ShardWriter(out, task=task.index, copy=c, shard_rows=cfg.shard_rows,
+                           fmt=cfg.format, metadata=job.metadata) for c in range(cfg.copies)]
     stats = MaskStats()
     for pb in loop.packed():
         for c, writer in enumerate(writers):
@@ -232,82 +156,11 @@ def _shard_task(job: _Job, task: SourceTask) -> dict[str, Any]:
     records = [r for w in writers for r in w.close()]
     done = {"task": task.index, "run": job.run_digest, "shards": [asdict(r) for r in records],
             "stats": stats.to_state(), "read": loop.read.to_dict()}
-    write_record(_done_path(out, task.index), done)
+    write_record(done_path(out, task.index), done)
     return done
 
 
 # ------------------------------------------------------------------ the driver
-
-_OPTION_LABELS = {
-    "strategy": "--strategy",
-    "rate": "--rate",
-    "mix": "--mix",
-    "mix_per": "--mix-per",
-    "span_p": "--span-p",
-    "span_max": "--span-max",
-    "seq_len": "--seq-len",
-    "pack": "pack (--no-pack)",
-    "copies": "--copies",
-    "seed": "--seed",
-    "format": "--format",
-    "shard_rows": "--shard-rows",
-    "dynamic": "--dynamic",
-    "units_sha256": "units (--units)",
-    "tokenizer_hash": "tokenizer (-t)",
-    "corpus_fingerprint": "corpus (file names, sizes and contents)",
-    "doc_sep": "--doc-sep",
-    "text_field": "--text-field",
-    "text_column": "--text-column",
-    "chunk_bytes": "task size",
-    "maskprep_version": "maskprep version",
-    "units_tokenizer_hash": "the units' tokenizer",
-}
-_FINISHED_NAMES = METADATA_FILES  # in META_DIR; at the top of format version 1 directories
-
-
-def _owned(name: str) -> bool:
-    """Files of OUT that mask writes (replaced by --overwrite); other files are left alone."""
-    return (
-        name in _FINISHED_NAMES
-        or (name.startswith("shard-") and name.endswith(tuple(_FORMATS.values())))
-        or (name.startswith(".shard-") and name.endswith(".tmp"))
-        or any(name.startswith(f".{n}.") for n in _FINISHED_NAMES)
-    )
-
-
-def _remove_owned(out: Path) -> None:
-    for p in out.iterdir():
-        if _owned(p.name) and not p.is_dir():
-            p.unlink()
-    if (out / META_DIR).is_dir():
-        for p in (out / META_DIR).iterdir():
-            if _owned(p.name) and not p.is_dir():
-                p.unlink()
-        if not any((out / META_DIR).iterdir()):
-            (out / META_DIR).rmdir()
-
-
-MASK_STAGE = Stage(
-    noun="mask run",
-    state=STATE_DIR,
-    marker=f"{META_DIR}/manifest.json",
-    labels=_OPTION_LABELS,
-    changed=("units_sha256", "tokenizer_hash", "corpus_fingerprint", "units_tokenizer_hash"),
-    digits=5,
-    on_overwrite=_remove_owned,
-)
-MASK_STAGE_RECORD = "task-{:05d}.json"
-
-
-def _prepare_dir(out: Path, *, overwrite: bool, resume: bool, options: Mapping[str, Any]) -> RunDir:
-    """Lock OUT and check it (see `maskprep._resume.claim`); on resume, drop temporary files of the last run."""
-    run = claim(out, MASK_STAGE, options, resume=resume, overwrite=overwrite)
-    if run.resumed:
-        for tmp in [*out.glob(".*.tmp"), *(out / META_DIR).glob(".*.tmp")]:  # left by the last run
-            tmp.unlink(missing_ok=True)
-        run.clean(p.name for p in run.root.glob("task-*.json"))
-    return run
-
 
 def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
                  masking: MaskingConfig = MaskingConfig(), packing: PackingConfig = PackingConfig(),
@@ -323,7 +176,8 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     `memory` is the budget of all workers together (see `maskprep._budget`); it is checked, not
     part of the run: it may change between attempts of a resumed run.
 
-    >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json", output="shards")  # doctest: +SKIP
+    >>> manifest, stats = write_shards(["plays.txt"], tokenizer="tokenizer.json",  # doctest: +SKIP
+    ...     output="shards")
     """
     from ..encoded.source import open_source
     from ..execute import Executor
@@ -394,7 +248,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     ):  # units of another tokenizer with the same words (token ids re-derived)
         options["units_tokenizer_hash"] = units_built_with
     out = Path(output)
-    run = _prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
+    run = prepare_dir(out, overwrite=overwrite, resume=resume, options=options)
     try:
         job_args = {
             "tokenizer_json": info.json,
@@ -441,7 +295,7 @@ def _write_claimed(
     special_ids = [int(i) for i in info.special_ids]
     metadata = {
         "kind": "maskprep-shard",
-        "format_version": FORMAT_VERSION,
+        "format_version": SHARDS_FORMAT_VERSION,
         "layout": "dynamic" if shards.dynamic else "static",
         **mcfg,
         "seed": shards.seed,

@@ -53,7 +53,9 @@ def _merge_hist(into: dict[int, int], other: Mapping[int, int]) -> None:
 class MaskStats:
     """Running masking statistics; ``stats.add(...)`` per batch, ``stats.to_dict()`` at the end.
 
-    >>> s = MaskStats(); s.add(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]), unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 0]]), attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)
+    >>> s = MaskStats(); s.add(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]),
+    ...     unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 0]]),
+    ...     attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)
     >>> s.to_dict()["within_word_leakage"]
     1.0
     """
@@ -85,7 +87,8 @@ class MaskStats:
         mask_token_id: int,
         first_copy: bool = True,
     ) -> None:
-        """Count one batch of rows (all arrays (B, L)); `first_copy` counts them as new sequences."""
+        """Count one batch of rows (all arrays (B, L)); `first_copy` counts them as new
+        sequences."""
         masked_ids = np.asarray(masked_ids)
         labels = np.asarray(labels)
         unit_ids = np.asarray(unit_ids, dtype=np.int64)
@@ -157,7 +160,8 @@ class MaskStats:
     @classmethod
     def from_state(cls, state: Mapping[str, Any]) -> "MaskStats":
         """Rebuild from `to_state`: ``MaskStats.from_state(s.to_state())``."""
-        s = cls(**{k: int(v) for k, v in state.items() if not isinstance(v, list)})  # type: ignore[arg-type]
+        scalars = {k: int(v) for k, v in state.items() if not isinstance(v, list)}
+        s = cls(**scalars)  # type: ignore[arg-type]
         for k in ("unit_tokens", "unit_words", "row_rates"):
             setattr(s, k, {int(a): int(b) for a, b in state.get(k, [])})
         return s
@@ -230,7 +234,9 @@ def batch_stats(
 ) -> dict[str, Any]:
     """Statistics of one batch of rows as a dict (same keys as stats.json).
 
-    >>> batch_stats(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]), unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 1]]), attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)["masking_rate"]["corpus"]
+    >>> batch_stats(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]),
+    ...     unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 1]]),
+    ...     attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)["masking_rate"]["corpus"]
     0.5
     """
     s = MaskStats()

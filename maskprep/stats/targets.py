@@ -52,7 +52,11 @@ _COUNTERS = ("targets", "group_rows", "unit_targets", "unit_leaked", "punct_word
 class TargetStats:
     """Running target statistics; ``ts.add(...)`` per batch, ``ts.to_dict()`` at the end.
 
-    >>> ts = TargetStats(); ts.add(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]), unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 1]]), word_keys=np.array([[7, 8]], np.uint64), word_kinds=np.array([[0, 1]], np.int8), attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)
+    >>> ts = TargetStats(); ts.add(masked_ids=np.array([[1, 9, 5]]),
+    ...     labels=np.array([[-100, 4, -100]]), unit_ids=np.array([[-1, 0, 1]]),
+    ...     word_ids=np.array([[-1, 0, 1]]), word_keys=np.array([[7, 8]], np.uint64),
+    ...     word_kinds=np.array([[0, 1]], np.int8), attention_mask=np.array([[1, 1, 1]]),
+    ...     mask_token_id=9)
     >>> ts.to_dict()["easy_target_share"]
     1.0
     """
@@ -86,7 +90,8 @@ class TargetStats:
         mask_token_id: int,
         group_ids: np.ndarray | None = None,
     ) -> None:
-        """Count one batch of rows: (B, L) token arrays, (B, Lw) word keys and kinds (0 word, 1 punctuation)."""
+        """Count one batch of rows: (B, L) token arrays, (B, Lw) word keys and kinds (0 word, 1
+        punctuation)."""
         labels = np.asarray(labels)
         word_ids = np.asarray(word_ids, dtype=np.int64)
         keys = np.asarray(word_keys, dtype=np.uint64)
@@ -229,7 +234,9 @@ class TargetStats:
 def targets_per_sequence(stats: MaskStats) -> dict[str, Any]:
     """Histogram of targets per row, from the per-row counts `MaskStats` keeps.
 
-    >>> s = MaskStats(); s.add(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]), unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 1]]), attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)
+    >>> s = MaskStats(); s.add(masked_ids=np.array([[1, 9, 5]]), labels=np.array([[-100, 4, -100]]),
+    ...     unit_ids=np.array([[-1, 0, 1]]), word_ids=np.array([[-1, 0, 1]]),
+    ...     attention_mask=np.array([[1, 1, 1]]), mask_token_id=9)
     >>> targets_per_sequence(s)["histogram"]
     {'1': 1}
     """
