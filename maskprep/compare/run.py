@@ -116,7 +116,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
     """
     from ..corpus.reader import ReadStats
     from ..encoded.source import open_source, read_stats_of
-    from ..execute import Executor, map_tasks
+    from ..execute import Executor, map_tasks, start_workers
     from .._files import atomic_write_json
     from ..packing import check_packing_tokenizer
     from ..tokenizer.words import words_option
@@ -128,6 +128,7 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
 
     check_apart(output, [*source.inputs, *source.files],
                 others=[str(x) for x in (tokenizer, units) if isinstance(x, (str, Path))])
+    start_workers(executor, len(source.tasks), ("maskprep.compare.task", "pyarrow"))
     from .._budget import check_budget
     from ..count.types import parse_memory
 

@@ -46,7 +46,7 @@ from ..encoded.source import open_source
 from .._paths import check_apart
 from ..errors import MaskprepError
 from ..wording import name_files, plural
-from ..execute import Executor, map_tasks, pool_running
+from ..execute import Executor, map_tasks, pool_running, start_workers
 from .._files import file_sha256, fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
@@ -114,6 +114,7 @@ def count_ngrams(
     source = open_source(list(corpus), corpus_options, task_bytes=TASK_BYTES)
     source.check_words(config.words)
     check_apart(output, [*source.inputs, *source.files], others=[_path_of(tokenizer)])
+    start_workers(executor, len(source.tasks), ("maskprep.count.resume", "pyarrow"))
     corpus_options = source.options
     files = [Path(f) for f in source.files]
     info = source.tokenizer(tokenizer, stage="count")

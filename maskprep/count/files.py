@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from .._arrow import arrow_array, arrow_strings, numpy_of
 from .._files import fsync_file, replace
 from ..errors import MaskprepError
 from .spills import PartitionResult, merge_hist, read_rows
@@ -44,10 +45,9 @@ class Vocabulary:
     """
 
     def __init__(self) -> None:
-        import pyarrow as pa
 
         self.keys = np.zeros(0, np.uint64)
-        self.texts: Any = pa.array([], type=pa.large_string())
+        self.texts: Any = arrow_strings([])
         self._pending: list[Any] = []
         self._pending_rows = 0
 
@@ -69,25 +69,23 @@ class Vocabulary:
 
         if not self._pending:
             return
-        keys = np.concatenate([self.keys] + [t.column("key").to_numpy() for t in self._pending])
+        keys = np.concatenate([self.keys] + [numpy_of(t.column("key")) for t in self._pending])
         texts = pa.concat_arrays(
             [self.texts] + [c for t in self._pending for c in t.column("text").chunks]
         )
         self._pending, self._pending_rows = [], 0
         order = np.argsort(keys, kind="stable")
         keys = keys[order]
-        texts = texts.take(pa.array(order))
+        texts = texts.take(arrow_array(order))
         dup = np.flatnonzero(keys[1:] == keys[:-1])
         if len(dup):
-            differ = pc.not_equal(
-                texts.take(pa.array(dup)), texts.take(pa.array(dup + 1))
-            ).to_numpy(zero_copy_only=False)
-            if differ.any():
-                i = int(dup[np.flatnonzero(differ)[0]])
+            differ = pc.not_equal(texts.take(arrow_array(dup)), texts.take(arrow_array(dup + 1)))
+            if pc.any(differ).as_py():
+                i = int(dup[pc.index(differ, True).as_py()])
                 raise collision_error(int(keys[i]), texts[i].as_py(), texts[i + 1].as_py())
             keep = np.ones(len(keys), bool)
             keep[dup + 1] = False
-            keys, texts = keys[keep], texts.filter(pa.array(keep))
+            keys, texts = keys[keep], texts.filter(arrow_array(keep))
         self.keys, self.texts = keys, texts
 
     def save(self, path: str) -> None:
@@ -95,7 +93,7 @@ class Vocabulary:
         import pyarrow as pa
 
         self.finish()
-        table = pa.table({"key": pa.array(self.keys), "text": self.texts})
+        table = pa.table({"key": arrow_array(self.keys), "text": self.texts})
         with pa.OSFile(path, "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
             w.write_table(table)
 
@@ -108,16 +106,16 @@ class Vocabulary:
         query = np.ascontiguousarray(
             rows[:, :n]
         ).ravel()  # row by row: the words of an n-gram side by side
-        index = pc.index_in(pa.array(query), value_set=pa.array(self.keys))
+        index = pc.index_in(arrow_array(query), value_set=arrow_array(self.keys))
         if index.null_count:
             raise RuntimeError("internal error: an n-gram word has no text in the vocabulary")
         words = self.texts.take(index)
         if n == 1:
             return words.cast(pa.string())
         lists = pa.LargeListArray.from_arrays(
-            pa.array(np.arange(0, m * n + 1, n, dtype=np.int64)), words
+            arrow_array(np.arange(0, m * n + 1, n, dtype=np.int64)), words
         )
-        return pc.binary_join(lists, pa.scalar(" ", pa.large_string())).cast(pa.string())
+        return pc.binary_join(lists, arrow_strings([" "])[0]).cast(pa.string())
 
 
 class _ParquetSink:
@@ -150,8 +148,8 @@ class _ParquetSink:
         if rows.shape[0] == 0:
             return
         n = self.n
-        arrays = [self.vocab.join(rows, n), pa.array(rows[:, n].astype(np.int64))]
-        arrays += [pa.array(np.ascontiguousarray(rows[:, j])) for j in range(n)]
+        arrays = [self.vocab.join(rows, n), arrow_array(rows[:, n].astype(np.int64))]
+        arrays += [arrow_array(np.ascontiguousarray(rows[:, j])) for j in range(n)]
         self.pending.append(pa.Table.from_arrays(arrays, schema=self.schema))
         self.pending_rows += rows.shape[0]
         if self.pending_rows >= ROW_GROUP:

@@ -11,9 +11,11 @@ write the counts directory (files.py, driver.py).
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Iterator
 
 import numpy as np
 
+from .._arrow import arrow_array, arrow_strings
 from ..corpus.reader import CorpusOptions
 from ..encoded.format import WordTable
 from ..encoded.source import SourceTask, TaskReader
@@ -23,7 +25,9 @@ from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, red
 from .spills import SpillFile, SpillWriter, disk_error
 from .types import CountConfig, TaskCounts
 
-__all__ = ["ChunkCounter", "count_task"]
+__all__ = ["ChunkCounter", "count_task", "REDUCE_ROWS"]
+
+REDUCE_ROWS = 1 << 16  # rows reduced at once when spilling (a few MB: stays in cache)
 
 
 def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -84,9 +88,14 @@ class ChunkCounter:
         self.vocab: dict[int, str] = {}
         self._seen_types = 0
 
-    def add(self, batch: EncodedBatch) -> None:
-        """Count one batch (its words' texts are collected from the tokenizer's word types)."""
-        self._collect_words(batch)
+    def add(self, batch: EncodedBatch, *, texts_known: bool = False) -> None:
+        """Count one batch (its words' texts are collected from the tokenizer's word types).
+
+        `texts_known`: the texts of the batch's words were given already
+        (`add_word_table`, encoded input), so the tokenizer's cache is not read.
+        """
+        if not texts_known:
+            self._collect_words(batch)
         wk, rem, run_starts = _runs_of(batch)
         M = len(wk)
         if M == 0:
@@ -120,11 +129,7 @@ class ChunkCounter:
                 path = self.spill_dir / f"{self.tag}-r{self.flushes:04d}-n{n}.npy"
                 bucket_rows = np.zeros(FINE_BUCKETS, np.int64)
                 with SpillWriter(path, n + 1) as writer:
-                    buf = self.buffers[n - 1]
-                    for c in range(COARSE_BUCKETS):
-                        pieces, buf[c] = buf[c], []
-                        if not pieces:
-                            continue
+                    for pieces in self._bucket_groups(n):
                         if len(pieces) == 1:
                             keys, counts, fp = pieces[0]
                         else:
@@ -143,6 +148,27 @@ class ChunkCounter:
         self.buffer_bytes = 0
         self.flushes += 1
 
+    def _bucket_groups(self, n: int) -> Iterator[list[tuple[np.ndarray, np.ndarray, np.ndarray]]]:
+        """The buffered pieces of n, consecutive coarse buckets together up to `REDUCE_ROWS` rows.
+
+        Coarse buckets are ranges of the fingerprint, so reducing several at once gives
+        the same rows in the same (canonical) order as reducing them one by one; it
+        only saves the per-call overhead of reducing many small buckets (a small task
+        has a few thousand rows per bucket). The buffer is emptied as it goes.
+        """
+        buf = self.buffers[n - 1]
+        group: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
+        rows = 0
+        for c in range(COARSE_BUCKETS):
+            pieces, buf[c] = buf[c], []
+            group.extend(pieces)
+            rows += sum(len(p[1]) for p in pieces)
+            if rows >= REDUCE_ROWS:
+                yield group
+                group, rows = [], 0
+        if group:
+            yield group
+
     def finish(self, *, task_index: int = 0, documents: int = 0) -> TaskCounts:
         """Spill what is left and write the task's word list; return the task's result."""
         self.flush()
@@ -153,8 +179,8 @@ class ChunkCounter:
         texts = list(self.vocab.values())
         table = pa.table(
             {
-                "key": pa.array(keys[order]),
-                "text": pa.array([texts[i] for i in order.tolist()], type=pa.large_string()),
+                "key": arrow_array(keys[order]),
+                "text": arrow_strings([texts[i] for i in order.tolist()]),
             }
         )
         path = self.spill_dir / f"{self.tag}-words.arrow"
@@ -197,7 +223,7 @@ class ChunkCounter:
         sel = np.flatnonzero(kinds == WORD)
         vocab = self.vocab
         for key, text in zip(
-            keys[sel].tolist(), table.texts.take(sel).to_pylist()
+            keys[sel].tolist(), table.texts.take(arrow_array(sel)).to_pylist()
         ):  # one step per word type
             prev = vocab.setdefault(key, text)
             if prev != text:
@@ -216,6 +242,21 @@ def _batch_chars(config: CountConfig, share: int) -> int:
     return config.batch_chars or int(np.clip(share // 1024, 16_384, 1 << 20))
 
 
+_TOKENIZERS: dict[str, TokenizerInfo] = {}
+
+
+def _shared_tokenizer(tokenizer_json: str) -> TokenizerInfo:
+    """One tokenizer per process for the tasks that do not tokenize (encoded input).
+
+    Building it from its JSON costs about 15 ms; a count of 21 MB has 21 tasks.
+    """
+    info = _TOKENIZERS.get(tokenizer_json)
+    if info is None:
+        _TOKENIZERS.clear()
+        info = _TOKENIZERS[tokenizer_json] = tokenizer_from_json(tokenizer_json)
+    return info
+
+
 def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
                corpus_options: CorpusOptions, share: int) -> TaskCounts:
     """Task function: count one task (raw text or an encoded directory's), spilling runs under
@@ -224,9 +265,10 @@ def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill
     >>> count_task(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x",  # doctest: +SKIP
     ...     CorpusOptions(), 1 << 28)
     """
-    info = tokenizer_from_json(
-        tokenizer_json
-    )  # a fresh word-type cache per task: its entries give the texts
+    if task.encoded is not None:  # the word texts are in the task's word table: any tokenizer
+        info = _shared_tokenizer(tokenizer_json)
+    else:  # a fresh word-type cache per task: its entries give the texts
+        info = tokenizer_from_json(tokenizer_json)
     counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,
                            tag=f"t{task.index:06d}", joined=not config.words.is_tokenizer)
     reader = TaskReader(task, info, corpus_options, batch_chars=_batch_chars(config, share),
@@ -236,7 +278,7 @@ def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill
         if table is not None:  # encoded input: the word texts are in the task's word table
             counter.add_word_table(table)
         for batch in reader:
-            counter.add(batch)
+            counter.add(batch, texts_known=table is not None)
         result = counter.finish(task_index=task.index, documents=reader.consumed.documents)
         result.literal_specials.update(reader.consumed.literal_specials)
         return result

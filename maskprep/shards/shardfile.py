@@ -16,6 +16,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from .._arrow import arrow_array
 from .._files import atomic_path, file_sha256
 from .layout import METADATA_KEY, ShardRecord, shard_name
 
@@ -32,8 +33,8 @@ def list_column(values: np.ndarray) -> Any:
     import pyarrow as pa
 
     n, L = values.shape
-    offsets = pa.array(np.arange(0, (n + 1) * L, L, dtype=np.int32))
-    return pa.ListArray.from_arrays(offsets, pa.array(np.ascontiguousarray(values).ravel()))
+    offsets = arrow_array(np.arange(0, (n + 1) * L, L, dtype=np.int32))
+    return pa.ListArray.from_arrays(offsets, arrow_array(np.ascontiguousarray(values).ravel()))
 
 
 def write_file(
@@ -42,7 +43,7 @@ def write_file(
     """Write `columns` to `path` (atomically) as one Arrow IPC or Parquet file."""
     import pyarrow as pa
 
-    arrays = [list_column(v) if v.ndim == 2 else pa.array(v) for v in columns.values()]
+    arrays = [list_column(v) if v.ndim == 2 else arrow_array(v) for v in columns.values()]
     meta = {METADATA_KEY: json.dumps(metadata, sort_keys=True).encode("utf-8")}
     schema = pa.schema(
         [pa.field(k, a.type, nullable=False) for k, a in zip(columns, arrays)], metadata=meta

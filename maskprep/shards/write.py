@@ -73,6 +73,11 @@ from .shardfile import COPY_DTYPE, ShardWriter
 __all__ = ["ShardConfig", "ShardRecord", "ShardManifest", "write_shards",
            "SHARDS_FORMAT_VERSION", "METADATA_KEY", "COPY_DTYPE", "file_sha256"]
 
+# what a mask task imports, started in each worker while the driver prepares the run
+_WARM = {"arrow": ("maskprep.shards.write", "pyarrow"),
+         "parquet": ("maskprep.shards.write", "pyarrow", "pyarrow.parquet")}
+
+
 @dataclass(frozen=True)
 class ShardConfig:
     """How shards are written: ``ShardConfig(format="parquet", copies=2, seed=1)``.
@@ -180,7 +185,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
     ...     output="shards")
     """
     from ..encoded.source import open_source
-    from ..execute import Executor
+    from ..execute import Executor, start_workers
     from ..tokenizer.words import words_option
 
     executor = executor or Executor()
@@ -190,6 +195,7 @@ def write_shards(corpus: Sequence[str], *, tokenizer: Any, output: str | Path,
 
     check_apart(output, [*source.inputs, *source.files],
                 others=[str(x) for x in (tokenizer, units) if isinstance(x, (str, Path))])
+    start_workers(executor, len(source.tasks), _WARM[shards.format])
     corpus_options = source.options
     info = source.tokenizer(tokenizer, stage="mask")
     mask_id = info.require_mask()
