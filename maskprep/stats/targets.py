@@ -48,6 +48,58 @@ _COUNTERS = ("targets", "group_rows", "unit_targets", "unit_leaked", "punct_word
              "punct_targets")
 
 
+@dataclass(frozen=True)
+class _BatchWords:
+    """The per-key word and token counts of one batch of rows, and where its tokens are.
+
+    They depend on the rows' words and maskable tokens only, not on which tokens are
+    targets, so the strategies of a comparison (each its own `TargetStats`, all on the
+    same rows) share one: see `_batch_words`.
+    """
+
+    uniq: np.ndarray        # distinct word keys (sorted)
+    words: np.ndarray       # word occurrences per key
+    tokens: np.ndarray      # maskable tokens per key
+    inv_tok: np.ndarray     # key index of each maskable token of a word (kind 0)
+    tb: np.ndarray          # row of each maskable token
+    tt: np.ndarray          # position of each maskable token
+    tok_word: np.ndarray    # the token's word is a word (kind 0), not punctuation
+    punct_words: int
+    punct_tokens: int
+
+
+_LAST: list[tuple[tuple[Any, ...], np.ndarray, _BatchWords]] = []
+
+
+def _batch_words(ident: tuple[Any, ...], word_ids: np.ndarray, keys: np.ndarray,
+                 kinds: np.ndarray, maskable: np.ndarray) -> _BatchWords:
+    """`_BatchWords` of these rows; the last one is reused when `ident` holds the same array
+    objects (kept alive here) and the maskable tokens are equal."""
+    if _LAST and all(a is b for a, b in zip(_LAST[0][0], ident)) \
+            and np.array_equal(_LAST[0][1], maskable):
+        return _LAST[0][2]
+    # Words of the rows: kind 0 counted per key, kind 1 (punctuation/whitespace) as one band.
+    wb, ww = np.nonzero(kinds >= 0)
+    is_word = kinds[wb, ww] == 0
+    # Tokens: the word each maskable token belongs to.
+    tb, tt = np.nonzero(maskable)
+    local = word_ids[tb, tt]
+    tok_word = kinds[tb, local] == 0
+    k_tok = keys[tb[tok_word], local[tok_word]]
+    word_keys = keys[wb[is_word], ww[is_word]]
+    uniq, inv = np.unique(np.concatenate([word_keys, k_tok]), return_inverse=True)
+    inv = inv.ravel()
+    n_w = len(word_keys)
+    out = _BatchWords(
+        uniq=uniq,
+        words=np.bincount(inv[:n_w], minlength=len(uniq)).astype(np.int64),
+        tokens=np.bincount(inv[n_w:], minlength=len(uniq)).astype(np.int64),
+        inv_tok=inv[n_w:], tb=tb, tt=tt, tok_word=tok_word,
+        punct_words=int((~is_word).sum()), punct_tokens=int((~tok_word).sum()))
+    _LAST[:] = [(ident, maskable.copy(), out)]
+    return out
+
+
 @dataclass
 class TargetStats:
     """Running target statistics; ``ts.add(...)`` per batch, ``ts.to_dict()`` at the end.
@@ -92,6 +144,7 @@ class TargetStats:
     ) -> None:
         """Count one batch of rows: (B, L) token arrays, (B, Lw) word keys and kinds (0 word, 1
         punctuation)."""
+        ident = (word_ids, word_keys, word_kinds)  # the caller's arrays (see _batch_words)
         labels = np.asarray(labels)
         word_ids = np.asarray(word_ids, dtype=np.int64)
         keys = np.asarray(word_keys, dtype=np.uint64)
@@ -111,27 +164,15 @@ class TargetStats:
             self.group_rows += B
             self.unit_targets += view.targets
             self.unit_leaked += view.leaked_targets
-        # Words of the rows: kind 0 counted per key, kind 1 (punctuation/whitespace) as one band.
-        wb, ww = np.nonzero(kinds >= 0)
-        is_word = kinds[wb, ww] == 0
-        self.punct_words += int((~is_word).sum())
-        # Tokens: the word each maskable token belongs to.
-        tb, tt = np.nonzero(maskable)
-        local = word_ids[tb, tt]
-        tok_word = kinds[tb, local] == 0
-        tok_target = target[tb, tt]
-        self.punct_tokens += int((~tok_word).sum())
-        self.punct_targets += int((tok_target & ~tok_word).sum())
-        ones_w = np.ones(int(is_word.sum()), dtype=np.int64)
-        k_tok = keys[tb[tok_word], local[tok_word]]
-        all_keys = np.concatenate([keys[wb[is_word], ww[is_word]], k_tok])
-        n_w = len(ones_w)
-        w_col = np.concatenate([ones_w, np.zeros(len(k_tok), np.int64)])
-        t_col = np.concatenate([np.zeros(n_w, np.int64), np.ones(len(k_tok), np.int64)])
-        h_col = np.concatenate([np.zeros(n_w, np.int64), tok_target[tok_word].astype(np.int64)])
-        part = sum_by_key(all_keys, w_col, t_col, h_col)
-        self._pending.append(part)
-        self._pending_rows += len(part[0])
+        words = _batch_words(ident, word_ids, keys, kinds, maskable)
+        self.punct_words += words.punct_words
+        self.punct_tokens += words.punct_tokens
+        tok_target = target[words.tb, words.tt]
+        self.punct_targets += int((tok_target & ~words.tok_word).sum())
+        hits = np.bincount(words.inv_tok, weights=tok_target[words.tok_word].astype(np.float64),
+                           minlength=len(words.uniq)).astype(np.int64)
+        self._pending.append((words.uniq, words.words, words.tokens, hits))
+        self._pending_rows += len(words.uniq)
         if self._pending_rows > _FLUSH_ROWS:
             self._flush()
 
