@@ -197,16 +197,22 @@ def map_tasks(
                 progress.advance(weights[i])
                 yield value
             return
-        pool = _pool(executor.workers)
+        size = _pool_size(executor.workers)
+        pool = _pool(size)
         try:
-            yield from _ordered(pool, fn, args_list, executor.workers, describe, weights, progress)
+            yield from _ordered(pool, fn, args_list, size, describe, weights, progress)
         except BaseException as exc:
             if isinstance(exc, KeyboardInterrupt) or getattr(pool, "_broken", False):
-                _drop_pool(executor.workers, terminate=True)
+                _drop_pool(size, terminate=True)
             raise
 
 
 _POOLS: dict[int, ProcessPoolExecutor] = {}
+
+
+def _pool_size(workers: int) -> int:
+    """Pool processes for `workers` workers: this process is the last worker (see `_ordered`)."""
+    return max(1, workers - 1)
 
 
 def _pool(workers: int) -> ProcessPoolExecutor:
@@ -244,8 +250,9 @@ def start_workers(executor: Executor, tasks: int, modules: Sequence[str] = ()) -
     """
     if executor.dask or executor.workers == 1 or tasks <= 1 or pool_running(executor.workers):
         return
-    pool = _pool(executor.workers)
-    for _ in range(min(executor.workers, tasks)):
+    size = _pool_size(executor.workers)
+    pool = _pool(size)
+    for _ in range(min(size, tasks)):
         try:
             with _workers_ignore_sigint():
                 pool.submit(_warm, tuple(modules))
@@ -254,9 +261,9 @@ def start_workers(executor: Executor, tasks: int, modules: Sequence[str] = ()) -
 
 
 def pool_running(workers: int) -> bool:
-    """Is a kept pool of `workers` processes already started (so more tasks on it cost no
+    """Is the kept pool for `workers` workers already started (so more tasks on it cost no
     start-up)?"""
-    pool = _POOLS.get(workers)
+    pool = _POOLS.get(_pool_size(workers))
     return (
         pool is not None
         and not getattr(pool, "_broken", False)
@@ -330,9 +337,14 @@ def _ordered(
     weights: list[float],
     progress: Progress,
 ) -> Iterator[Any]:
-    """Keep a bounded window of tasks in flight; yield results in order."""
+    """Keep a bounded window of tasks in flight on the pool; yield results in order.
+
+    This process is a worker too: whenever no result is ready and tasks remain that
+    are not yet sent, it runs the next one itself (its tasks start at once, while the
+    pool's processes are still starting, and ``--workers N`` costs N - 1 extra
+    processes). Results are the same whoever computes them, so outputs do not change.
+    """
     n = len(args_list)
-    window = max(2 * workers, 2)
     futures: dict[int, Any] = {}
     done: dict[int, Any] = {}
     nxt = 0
@@ -346,29 +358,46 @@ def _ordered(
             "--memory may help"
         )
 
+    def send(limit: int) -> None:  # tasks to the pool until `limit` are unfinished there
+        nonlocal nxt
+        while nxt < n and len(futures) < limit:
+            try:
+                with _workers_ignore_sigint():
+                    futures[nxt] = pool.submit(_call_local, cwd, fn, args_list[nxt])
+            except BrokenProcessPool:
+                raise died(nxt) from None
+            nxt += 1
+
+    def collect(ready: list[int]) -> None:
+        for i in sorted(ready):
+            try:
+                ok, value = futures.pop(i).result()
+            except BrokenProcessPool:
+                raise died(i) from None
+            if not ok:
+                raise MaskprepError(f"{describe(i)}: {value}")
+            progress.advance(weights[i])
+            done[i] = value
+
     try:
         while emit < n:
-            while nxt < n and len(futures) + len(done) < window:
-                try:
-                    with _workers_ignore_sigint():
-                        futures[nxt] = pool.submit(_call_local, cwd, fn, args_list[nxt])
-                except BrokenProcessPool:
-                    raise died(nxt) from None
-                nxt += 1
+            collect([i for i, f in futures.items() if f.done()])
             if emit in done:
                 yield done.pop(emit)
                 emit += 1
                 continue
-            finished, _ = wait(list(futures.values()), return_when=FIRST_COMPLETED)
-            for i in sorted(i for i, f in futures.items() if f in finished):
-                try:
-                    ok, value = futures.pop(i).result()
-                except BrokenProcessPool:
-                    raise died(i) from None
+            send(workers)  # one task running in each pool process
+            if nxt < n:  # and one here; meanwhile one more waits for each pool process
+                i = nxt
+                nxt += 1
+                send(2 * workers)
+                ok, value = _call(fn, args_list[i])
                 if not ok:
                     raise MaskprepError(f"{describe(i)}: {value}")
                 progress.advance(weights[i])
                 done[i] = value
+                continue
+            wait(list(futures.values()), return_when=FIRST_COMPLETED)
     except KeyboardInterrupt:  # the caller kills the pool; cancelled futures would upset its thread
         raise
     except BaseException:  # a failed task, or the caller stopped early
