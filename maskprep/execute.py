@@ -350,8 +350,11 @@ def _ordered(
     nxt = 0
     emit = 0
     cwd = os.getcwd()
+    failing = -1  # index of the task that failed: the tasks sent before it still finish
 
     def died(i: int) -> MaskprepError:
+        nonlocal failing
+        failing = i
         return MaskprepError(
             f"{describe(i)}: a worker process died while running this task (killed, or out of "
             "memory?); finished tasks are kept for --resume; fewer --workers or a smaller "
@@ -375,9 +378,14 @@ def _ordered(
             except BrokenProcessPool:
                 raise died(i) from None
             if not ok:
-                raise MaskprepError(f"{describe(i)}: {value}")
+                raise failed(i, value)
             progress.advance(weights[i])
             done[i] = value
+
+    def failed(i: int, message: str) -> MaskprepError:
+        nonlocal failing
+        failing = i
+        return MaskprepError(f"{describe(i)}: {message}")
 
     try:
         while emit < n:
@@ -393,7 +401,7 @@ def _ordered(
                 send(2 * workers)
                 ok, value = _call(fn, args_list[i])
                 if not ok:
-                    raise MaskprepError(f"{describe(i)}: {value}")
+                    raise failed(i, value)
                 progress.advance(weights[i])
                 done[i] = value
                 continue
@@ -401,7 +409,9 @@ def _ordered(
     except KeyboardInterrupt:  # the caller kills the pool; cancelled futures would upset its thread
         raise
     except BaseException:  # a failed task, or the caller stopped early
-        running = [f for f in futures.values() if not f.cancel()]
+        # tasks before the failed one finish (and record their work, for --resume); later ones
+        # that have not started are dropped
+        running = [f for i, f in futures.items() if i < failing or not f.cancel()]
         if running and not getattr(pool, "_broken", False):
             wait(running)  # tasks already running finish and record their work (for --resume)
         raise
