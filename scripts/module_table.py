@@ -24,6 +24,8 @@ ORDER = [
     "_resume",
     "_interrupt",
     "_budget",
+    "_arrow",
+    "_pool",
     "execute",
     "corpus",
     "tokenizer",
