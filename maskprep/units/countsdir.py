@@ -15,7 +15,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from .._checks import is_whole
-from ..count.types import FORMAT_VERSION as COUNTS_FORMAT_VERSION
+from ..count.types import COUNTS_FORMAT_VERSION
 from ..errors import MaskprepError
 from .._files import file_sha256, read_json
 
