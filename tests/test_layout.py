@@ -8,6 +8,8 @@ from pathlib import Path
 import maskprep
 
 PACKAGE = Path(maskprep.__file__).resolve().parent
+MAX_LINES = 500  # a module longer than this is split by concept
+MAX_WIDTH = 100  # characters per line, as pyproject's ruff line-length
 
 
 def _module_name(path: Path) -> str:
@@ -108,7 +110,19 @@ def test_every_module_has_a_docstring_and_stays_short() -> None:
             f"{path.relative_to(PACKAGE)}: no module docstring"
         )
         lines = text.count("\n")
-        assert lines <= 800, f"{path.relative_to(PACKAGE)}: {lines} lines (split it by concept)"
+        where = path.relative_to(PACKAGE)
+        assert lines <= MAX_LINES, f"{where}: {lines} lines (split it by concept)"
+
+
+def test_no_line_of_the_package_is_over_100_characters() -> None:
+    # Characters, not bytes or display width: a line of CJK text counts each character once.
+    long = [
+        f"{path.relative_to(PACKAGE)}:{number} ({len(line)})"
+        for path in sorted(PACKAGE.rglob("*.py"))
+        for number, line in enumerate(path.read_text(encoding="utf-8").splitlines(), 1)
+        if len(line) > MAX_WIDTH
+    ]
+    assert not long, f"lines over {MAX_WIDTH} characters: " + ", ".join(long)
 
 
 def test_public_api_is_explicit() -> None:
