@@ -55,9 +55,8 @@ class Progress:
     def _write(self, *, final: bool) -> None:
         elapsed = time.monotonic() - self._start
         if self.total:
-            self.total = max(
-                self.total, self.done
-            )  # an estimate that fell short grows with the count
+            # an estimate that fell short grows with the count
+            self.total = max(self.total, self.done)
             share = self.done / self.total
             msg = f"{self.label}: {share:6.1%} ({_fmt(self.done)}/{_fmt(self.total)} {self.unit})"
         else:

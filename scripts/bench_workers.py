@@ -270,10 +270,11 @@ def main() -> None:
                     )
                     best[name, "halves"] = min(best.get((name, "halves"), float("inf")), seconds)
         load.append(os.getloadavg()[0])
+        # two tasks, so --workers 2 starts its pool
         tiny = [
             work / "tiny-1.txt",
             work / "tiny-2.txt",
-        ]  # two tasks, so --workers 2 starts its pool
+        ]
         for p in tiny:
             p.write_text("To be, or not to be, that is the question.\n", encoding="utf-8")
         fixed = {

@@ -106,9 +106,8 @@ def test_listed_words_and_forms_equal_a_plain_recount(
             assert form["token_strings"] == [info.tokenizer.id_to_token(i) for i in ids]
             assert len(form["pieces"].split(JOIN)) == len(ids)
             assert unmarked(form["pieces"]) == r["word"]
-        assert (
-            r["pieces"] == r["forms"][0]["pieces"] and r["tokens"] >= 2
-        )  # never a one-piece word
+        # never a one-piece word
+        assert r["pieces"] == r["forms"][0]["pieces"] and r["tokens"] >= 2
 
 
 def test_byte_level_words_have_forms_and_readable_pieces(
@@ -124,9 +123,8 @@ def test_byte_level_words_have_forms_and_readable_pieces(
         marks = [f["pieces"].startswith(SPACE_MARK) for f in r["forms"]]
         assert sum(marks) == 1  # exactly one form carries the leading space
     for r in rows:
-        assert not re.search("[\u0120\u0100-\u0143]", r["pieces"]), (
-            r
-        )  # no raw byte symbols such as Ġ
+        # no raw byte symbols such as Ġ
+        assert not re.search("[\u0120\u0100-\u0143]", r["pieces"]), r
     # Characters the vocabulary never saw fall back to bytes; each piece still reads as text and
     # the pieces spell what the library's own decoder gives (planted inputs, checked against it).
     for text in (" na\u00efve", " caf\u00e9", " \u6771\u4eac"):

@@ -1,4 +1,5 @@
-"""Running on a Dask cluster gives exactly the files a single machine gives; failures name their chunk.
+"""Running on a Dask cluster gives exactly the files a single machine gives; failures name their
+chunk.
 
 A `distributed.LocalCluster` (two worker processes, one thread each, bound to
 127.0.0.1, no dashboard) is started and closed by this module. `count`,
@@ -43,9 +44,8 @@ MODULE_TIME_LIMIT = 600  # seconds: a hung scheduler fails the run instead of st
 @pytest.fixture(scope="module")
 def cluster_address():
     faulthandler.dump_traceback_later(MODULE_TIME_LIMIT, exit=True)
-    warnings.filterwarnings(
-        "ignore", message="Port 8787 is already in use"
-    )  # the scheduler's loopback HTTP port
+    # the scheduler's loopback HTTP port
+    warnings.filterwarnings("ignore", message="Port 8787 is already in use")
     cluster = distributed.LocalCluster(
         n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
     )
@@ -98,7 +98,8 @@ def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(
     }
     for name, where in modes.items():
         base = tmp_path / name
-        # --memory 8MiB: runs spill, and the spill pattern differs per executor (memory is shared by the workers)
+        # --memory 8MiB: runs spill, and the spill pattern differs per executor (memory is shared
+        # by the workers)
         summary = invoke(
             *where,
             "count",
@@ -152,9 +153,8 @@ def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(
         "shards/_maskprep/stats.json",
         "shards/.maskprep/task-00002.json",
     } <= set(reference)
-    assert (
-        len([f for f in reference if f.startswith("shards/shard-")]) > 6
-    )  # several tasks x copies x parts
+    # several tasks x copies x parts
+    assert len([f for f in reference if f.startswith("shards/shard-")]) > 6
     assert json.loads(reference["counts/counts.json"])["N"] > 50_000
     for name in ("workers-2", "dask"):
         assert sorted(outputs[name]) == sorted(reference), name
@@ -240,7 +240,10 @@ def test_relative_paths_resolve_against_the_driver_not_the_worker(
 
 
 def test_dask_is_imported_only_when_asked_for(tmp_path, tiny_files, small_wordpiece):
-    run = "cli(['--quiet', '--workers', '1', {!r}, *{!r}, '-t', {!r}, '-o', {!r}], standalone_mode=False, obj={{}})\n"
+    run = (
+        "cli(['--quiet', '--workers', '1', {!r}, *{!r}, '-t', {!r}, '-o', {!r}], "
+        "standalone_mode=False, obj={{}})\n"
+    )
     code = ("import sys\nfrom maskprep.cli import cli\n"
             + run.format("count", tiny_files, str(small_wordpiece), str(tmp_path / "counts"))
             + run.format("mask", tiny_files, str(small_wordpiece), str(tmp_path / "shards"))
@@ -380,15 +383,13 @@ def test_a_failing_chunk_is_named_and_the_run_resumes(
     with pytest.raises(MaskprepError) as failure:
         _stage(command, files, small_wordpiece, out, strict, executor)
     message = str(failure.value)
-    assert message.startswith(
-        f"{bad} (bytes {second.start}-{second.end}): "
-    )  # CorpusTask.describe()
+    # CorpusTask.describe()
+    assert message.startswith(f"{bad} (bytes {second.start}-{second.end}): ")
     assert "invalid UTF-8 at byte offset" in message
     assert not (out / FINISHED[command]).exists()
     first = out / RECORD_OF_TASK_0[command]
-    deadline = (
-        time.monotonic() + 30
-    )  # on Dask a task already running when another fails still finishes
+    # on Dask a task already running when another fails still finishes
+    deadline = time.monotonic() + 30
     while not first.is_file() and time.monotonic() < deadline:
         time.sleep(0.05)
     if where != "dask":

@@ -308,9 +308,8 @@ def test_an_interrupted_encode_resumes_to_the_same_files(
     )
     before = (out / "docs-00000.arrow").stat().st_mtime_ns
     opts = ("--workers", "1", "encode", *three_files, "-t", str(small_wordpiece), "-o", str(out))
-    assert "options differ" in invoke(
-        *opts, "--resume", code=1
-    )  # another task size than the failed run
+    # another task size than the failed run
+    assert "options differ" in invoke(*opts, "--resume", code=1)
     encode_corpus(
         three_files,
         tokenizer=str(small_wordpiece),

@@ -212,9 +212,8 @@ def test_a_restored_loader_continues_with_the_next_batch(arrow_dir, workers, aft
     assert all(np.array_equal(a, b) for a, b in zip(head + tail, full)) and len(
         head + tail
     ) == len(full)
-    assert (
-        again.state()["epoch"] == 3 and again.state()["batches"] == 0
-    )  # epoch done: the next begins
+    # epoch done: the next begins
+    assert again.state()["epoch"] == 3 and again.state()["batches"] == 0
     # worker processes: each worker's copy skips its own share of the delivered batches, and a
     # restarted DataLoader (asking worker 0 first) goes on with batch `after` + 1 of the same order
     if workers > 1:
@@ -336,9 +335,8 @@ def test_batches_kept_by_the_caller_are_never_overwritten(arrow_dir, parquet_dir
     for directory in (arrow_dir, parquet_dir):
         kw = dict(batch_size=8, buffer_rows=64, seed=3, epoch=1)
         copied = [{k: v.copy() for k, v in b.items()} for b in ShardLoader(directory, **kw)]
-        kept = list(
-            ShardLoader(directory, **kw)
-        )  # window arrays are reused only when nothing views them
+        # window arrays are reused only when nothing views them
+        kept = list(ShardLoader(directory, **kw))
         assert len(kept) == len(copied)
         assert all(np.array_equal(a[k], b[k]) for a, b in zip(kept, copied) for k in a)
 
@@ -391,10 +389,9 @@ def test_the_readme_training_loop_runs_and_resumes_after_a_crash(arrow_dir, tmp_
         train(first, crash_at=23)  # killed during the 24th step; the state saved after step 20
     rest: list = []
     train(rest)
-    assert (
-        first[:20] + rest == whole
-    )  # steps 21, 22, 23 are trained again after the restart, as with
-    # any checkpoint; nothing is skipped or repeated beyond them
+    # steps 21, 22, 23 are trained again after the restart, as with any checkpoint; nothing is
+    # skipped or repeated beyond them
+    assert first[:20] + rest == whole
 
 
 def row_keys_of_ids(input_ids, labels) -> bytes:

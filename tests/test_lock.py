@@ -79,9 +79,8 @@ def test_a_second_claim_is_refused_naming_the_pid_and_a_killed_holder_never_bloc
     assert (out / STAGE.state / LOCK_NAME).is_file()  # a stale lock file: the OS released the lock
     with claim(out, STAGE, {"n": 1}, resume=True, overwrite=False) as run:
         assert not run.resumed and (out / STAGE.state / LOCK_NAME).is_file()
-    assert sorted(p.name for p in (out / STAGE.state).iterdir()) == [
-        "run.json"
-    ]  # lock removed on release
+    # lock removed on release
+    assert sorted(p.name for p in (out / STAGE.state).iterdir()) == ["run.json"]
 
 
 def test_count_and_mask_refuse_a_locked_directory(tmp_path, shakespeare_small, small_wordpiece):
@@ -133,9 +132,8 @@ def test_claim_rules(tmp_path):
         claim(foreign, STAGE, {}, resume=True, overwrite=False)
     with pytest.raises(MaskprepError, match="directory is not empty"):
         claim(foreign, STAGE, {}, resume=False, overwrite=False)
-    assert [p.name for p in foreign.iterdir()] == [
-        "notes.txt"
-    ]  # a refused claim leaves nothing behind
+    # a refused claim leaves nothing behind
+    assert [p.name for p in foreign.iterdir()] == ["notes.txt"]
 
 
 @pytest.mark.slow

@@ -82,9 +82,10 @@ def long_line(tmp_path_factory, shakespeare_corpus: Path) -> Path:
 
 
 def peak_mib(*args: str) -> tuple[int, str]:
-    """Run `python -m maskprep ARGS` from a fresh process; the largest resident size of its children."""
+    """Run `python -m maskprep ARGS` in a fresh process; the peak resident size of its children."""
     probe = (
-        "import resource, subprocess, sys; r = subprocess.run(sys.argv[1:], capture_output=True, text=True); "
+        "import resource, subprocess, sys; "
+        "r = subprocess.run(sys.argv[1:], capture_output=True, text=True); "
         "print(r.returncode, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss >> 10); "
         "sys.stderr.write(r.stderr)"
     )

@@ -100,6 +100,7 @@ def docs_of(path: Path) -> list[str]:
 def run(tmp: Path, corpus: list[Path], tokenizer: Path, **kw: object) -> Path:
     out = tmp / "counts"
     executor = kw.pop("executor", Executor(workers=1))
+    # type: ignore[arg-type]
     count_ngrams(
         [str(c) for c in corpus],
         tokenizer=tokenizer,
@@ -108,7 +109,7 @@ def run(tmp: Path, corpus: list[Path], tokenizer: Path, **kw: object) -> Path:
         executor=executor,
         overwrite=True,
         quiet=True,
-    )  # type: ignore[arg-type]
+    )
     return out
 
 
@@ -555,12 +556,10 @@ def test_cli_disk_full_while_spilling(
     assert r.exit_code == 1
     assert "no space left on device while spilling" in r.output
     assert calls["n"] > 3
-    assert [p.name for p in out.iterdir()] == [
-        ".maskprep-count"
-    ]  # no partial counts, only the resume state
-    assert [p.name for p in (out / ".maskprep-count").iterdir()] == [
-        "run.json"
-    ]  # the failed attempt is gone
+    # no partial counts, only the resume state
+    assert [p.name for p in out.iterdir()] == [".maskprep-count"]
+    # the failed attempt is gone
+    assert [p.name for p in (out / ".maskprep-count").iterdir()] == ["run.json"]
     monkeypatch.setattr(maskprep.count.spills, "write_block", real)  # space freed
     r = invoke(
         "count",

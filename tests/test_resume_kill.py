@@ -188,9 +188,8 @@ def test_count_killed_while_counting_merging_and_writing_then_resumed_equals_an_
     assert nothing_finished()
     records = count_records(out)
     assert len(records) == len(plays_in_files)
-    assert all(
-        records[name] == mtime for name, mtime in early.items()
-    )  # recorded tasks were not counted again
+    # recorded tasks were not counted again
+    assert all(records[name] == mtime for name, mtime in early.items())
     # 3: while writing the Parquet files
     kill_when(
         ["count", *args, "-o", str(out), "--resume"],

@@ -80,15 +80,13 @@ def test_outputs_on_or_inside_inputs_are_refused(tmp_path, corpus_dir, small_wor
                 ["audit", str(corpus_dir), "-t", tok]):
         r = run(*cmd, "-o", str(corpus_dir / "out"))
         one_clean_line(r, "lies inside the corpus")
-    r = run(
-        "mask", str(victim), "-t", tok, "-o", str(corpus_dir)
-    )  # the output folder holds the corpus
+    # the output folder holds the corpus
+    r = run("mask", str(victim), "-t", tok, "-o", str(corpus_dir))
     one_clean_line(r, "it would write inside the corpus")
     link = tmp_path / "link"
     link.symlink_to(corpus_dir)
-    r = run(
-        "count", str(corpus_dir), "-t", tok, "-o", str(link / "counts")
-    )  # through a symbolic link
+    # through a symbolic link
+    r = run("count", str(corpus_dir), "-t", tok, "-o", str(link / "counts"))
     one_clean_line(r, "lies inside the corpus")
     counts = tmp_path / "counts"
     assert run("count", str(victim), "-t", tok, "-o", str(counts), "--max-n", "2").returncode == 0

@@ -190,9 +190,8 @@ def test_old_directories_are_still_read_verified_shown_and_loaded(dirs, fmt, tmp
         for k, ids in zip(
             batch["sequence_id"].astype(np.int64) * 4 + batch["copy"], batch["input_ids"]
         ):
-            assert np.array_equal(
-                new_rows[int(k)], ids
-            )  # the copy is taken from the file's record
+            # the copy is taken from the file's record
+            assert np.array_equal(new_rows[int(k)], ids)
     # moving the three files into _maskprep/ is all a directory reader needs
     (old / "_maskprep").mkdir()
     for f in ("manifest.json", "stats.json", "tokenizer.json"):

@@ -145,9 +145,8 @@ def test_a_size_the_corpus_cannot_give_names_the_option_and_the_limit(
     )
     assert m, str(caught.value)
     most = int(m.group(1).replace(",", ""))
-    assert (
-        _train(shakespeare_small, "unigram", most).vocab_size == most
-    )  # the limit given is exact
+    # the limit given is exact
+    assert _train(shakespeare_small, "unigram", most).vocab_size == most
     with pytest.raises(MaskprepError, match=rf"at most {m.group(1)} tokens"):
         _train(shakespeare_small, "unigram", most + 1)
     # Inside audit the option is --vocab-sizes, and the size that failed is named.

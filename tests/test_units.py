@@ -374,9 +374,8 @@ def test_counts_dir_errors(writable_counts, tmp_path):
         MaskprepError, match=r"ngrams-3\.parquet: missing"
     ):  # fragments of pairs need it
         build_units(d, max_n=2, quiet=True)
-    assert (
-        len(build_units(d, max_n=2, fragment_share=0.0, quiet=True)) > 0
-    )  # without the fragment filter
+    # without the fragment filter
+    assert len(build_units(d, max_n=2, fragment_share=0.0, quiet=True)) > 0
     (d / "tokenizer.json").unlink()
     with pytest.raises(MaskprepError, match="has no tokenizer.json"):
         build_units(d, quiet=True)

@@ -156,9 +156,8 @@ def test_mask_with_units_of_a_tokenizer_with_the_same_words(setup):
     assert carried.text == own.text and np.array_equal(carried.score, own.score)
     assert all(np.array_equal(a, b) for a, b in zip(carried.word_keys, own.word_keys))
     assert all(np.array_equal(a, b) for a, b in zip(carried.token_ids, own.token_ids))
-    assert any(
-        len(a) != len(b) for a, b in zip(carried.token_ids, built.token_ids)
-    )  # other pieces
+    # other pieces
+    assert any(len(a) != len(b) for a, b in zip(carried.token_ids, built.token_ids))
     r = run(
         "mask",
         corpus,

@@ -110,17 +110,17 @@ def _task_words(info: TokenizerInfo, reader: TaskReader) -> list[WordType]:
         return [wt for wt in info.word_types() if wt.kind == WORD]
     sel = np.flatnonzero(table.fields["word_kinds"] == WORD)
     keys, offs = table.fields["word_keys"], table.offsets
+    # one step per word type
     return [
         WordType(int(keys[i]), WORD, text, tuple(table.ids[offs[i] : offs[i + 1]].tolist()))
         for i, text in zip(sel.tolist(), table.texts.take(sel).to_pylist())
-    ]  # one step per word type
+    ]
 
 
 def _audit_task(job: _AuditJob, task: SourceTask) -> dict[str, Any]:
     """Task function: per-word-form figures of one task (raw text or an encoded directory's)."""
-    info = tokenizer_from_json(
-        job.tokenizer_json, name=job.tokenizer_name
-    )  # a fresh word-type cache
+    # a fresh word-type cache
+    info = tokenizer_from_json(job.tokenizer_json, name=job.tokenizer_name)
     reader = TaskReader(task, info, job.options, words=job.words)
     table = _FormTable()
     pending: list[tuple[np.ndarray, ...]] = []
@@ -190,9 +190,8 @@ def audit_tokenizer(
     from ..execute import Executor, map_tasks
 
     source = open_source(corpus, corpus_options)
-    source.tokenizer(
-        info, stage="audit"
-    )  # an encoded directory must have been made with this tokenizer
+    # an encoded directory must have been made with this tokenizer
+    source.tokenizer(info, stage="audit")
     executor = executor or Executor(quiet=quiet)
     wcfg: WordsConfig = source.check_words(words or WordsConfig())
     job = _AuditJob(info.json, info.name, source.options, None if wcfg.is_tokenizer else wcfg)

@@ -183,10 +183,9 @@ def compare_strategies(corpus: Sequence[str], *, tokenizer: Any, output: str | P
         )
     from ..tokenizer.encoding import warn_literal_specials
 
-    warn_literal_specials(info, read.literal_specials, ", ".join(map(str, corpus)))
-    examples = sorted(examples, key=lambda e: not e["rich"])[
-        : config.examples
-    ]  # stable: task order kept
+    warn_literal_specials(info, read.literal_specials, name_files(corpus))
+    # stable: task order kept
+    examples = sorted(examples, key=lambda e: not e["rich"])[: config.examples]
 
     figures = {}
     for s in strategies:

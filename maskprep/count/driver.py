@@ -135,9 +135,8 @@ def count_ngrams(
         )
         state.clean(count_state.attempts_of(done))
         todo = [t for t in tasks if t.index not in done]
-        root = os.path.abspath(
-            state.root
-        )  # absolute paths: a Dask worker's cwd is not the driver's
+        # absolute paths: a Dask worker's cwd is not the driver's
+        root = os.path.abspath(state.root)
         args = [(t, info.json, config, root, corpus_options, share, state.digest) for t in todo]
         for result in map_tasks(count_state.count_recorded, args, executor=executor, label="count",
                                 describe=lambda i: todo[i].describe(),
@@ -261,9 +260,8 @@ def finish_counts(
             )
     distinct = [sum(p.distinct for p in by_n[n]) for n in range(1, max_n + 1)]
     kept = [sum(p.kept for p in by_n[n]) for n in range(1, max_n + 1)]
-    order = sorted(
-        range(1, max_n + 1), key=lambda n: -kept[n - 1]
-    )  # biggest first: better load balance
+    # biggest first: better load balance
+    order = sorted(range(1, max_n + 1), key=lambda n: -kept[n - 1])
     list(map_tasks(write_task, [(str(spill / f"ngrams-{n}.parquet"), n, by_n[n], vocab_path,
                                  max(1024, share // (24 * (n + 1) + 96))) for n in order],
                    executor=_for_rows(executor, 2 * sum(kept)), label="write",

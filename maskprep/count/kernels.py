@@ -211,9 +211,8 @@ def _table(cols: list[np.ndarray], counts: np.ndarray, starts: np.ndarray, n: in
     m = len(counts)
     out = np.empty((len(starts), n + 1), np.uint64)
     for j, col in enumerate(cols):
-        np.take(
-            col, starts, out=out[:, j], mode="clip"
-        )  # clip: indices are in range; no buffered copy
+        # clip: indices are in range; no buffered copy
+        np.take(col, starts, out=out[:, j], mode="clip")
     run = np.cumsum(counts)
     ends = np.append(starts[1:], m) - 1
     out[:, n] = run[ends]

@@ -53,9 +53,8 @@ def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     words = np.flatnonzero(is_word)
     wk = keys[words]
     run_starts = np.flatnonzero(~continues[words])
-    run_ends = (
-        np.append(run_starts[1:], len(wk)) if len(run_starts) else run_starts
-    )  # no words: no runs
+    # no words: no runs
+    run_ends = np.append(run_starts[1:], len(wk)) if len(run_starts) else run_starts
     rem = np.repeat(run_ends, run_ends - run_starts) - np.arange(len(wk), dtype=np.int64)
     return wk, rem, run_starts
 

@@ -94,9 +94,8 @@ class TaskCounts:
     words: int
     flushes: int
     documents: int
-    literal_specials: dict[str, int] = field(
-        default_factory=dict
-    )  # special-token strings in the text
+    # special-token strings in the text
+    literal_specials: dict[str, int] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)

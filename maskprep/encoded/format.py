@@ -126,9 +126,8 @@ class EncodedTask:
     tokens: int
     types: int
     read: Mapping[str, int]
-    batches: tuple[
-        tuple[int, int, int, int], ...
-    ]  # per batch: documents, empty skipped, invalid, bytes
+    # per batch: documents, empty skipped, invalid, bytes
+    batches: tuple[tuple[int, int, int, int], ...]
     crossing_tokens: int = 0    # tokens running past the end of their word (segmenter words only)
 
     def to_json(self) -> dict[str, Any]:

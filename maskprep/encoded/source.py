@@ -201,9 +201,8 @@ def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = No
             tuple(names), tuple(m.corpus["files"]), str(m.corpus["fingerprint"]), opts, tasks, m
         )
     files = resolve_inputs(names)
-    options = dataclasses.replace(
-        options, chunk_bytes=task_size(files, options)
-    )  # recorded as a number
+    # recorded as a number
+    options = dataclasses.replace(options, chunk_bytes=task_size(files, options))
     assert options.chunk_bytes is not None
     task_opts = options if task_bytes is None else dataclasses.replace(
         options, chunk_bytes=min(options.chunk_bytes, task_bytes))

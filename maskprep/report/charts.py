@@ -48,9 +48,8 @@ def line_chart(*, title: str, x_labels: Sequence[str], series: Mapping[str, Sequ
     lo = min(present) if y_min is None else min(min(present), float(y_min))
     ticks = nice_ticks(lo, max(present))
     bottom = ticks[0] if y_min is None else lo
-    ticks = [
-        t for t in ticks if t >= bottom - 1e-12 * max(1.0, abs(bottom))
-    ]  # ticks[-1] >= max > bottom
+    # ticks[-1] >= max > bottom
+    ticks = [t for t in ticks if t >= bottom - 1e-12 * max(1.0, abs(bottom))]
     styles = style_slots(list(series), slots)
     frame = Frame(title=title, names=list(series), slots=styles, x_labels=x_labels,
                    y_label=y_label, x_label=x_label, ticks=ticks, domain=(bottom, ticks[-1]),

@@ -236,9 +236,8 @@ class Frame:
                     extra=f' transform="rotate(-90 {PAD + 10:.1f} {cy:.1f})"',
                 )
             )
-        every = (
-            math.ceil(15 / self.slot) if self.rotate else 1
-        )  # thin out labels closer than a line apart
+        # thin out labels closer than a line apart
+        every = math.ceil(15 / self.slot) if self.rotate else 1
         for i, text in enumerate(self.x_text[::every]):
             x = self.xc(i * every)
             turn = f' transform="rotate(-40 {x:.1f} {self.label_y:.1f})"' if self.rotate else ""

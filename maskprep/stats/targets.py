@@ -122,9 +122,8 @@ class TargetStats:
     punct_targets: int = 0
     keys: np.ndarray = field(default_factory=lambda: np.zeros(0, np.uint64))
     words: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # occurrences per key
-    tokens: np.ndarray = field(
-        default_factory=lambda: np.zeros(0, np.int64)
-    )  # maskable tokens per key
+    # maskable tokens per key
+    tokens: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     hits: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # target tokens per key
     _pending: list[tuple[np.ndarray, ...]] = field(default_factory=list, repr=False)
     _pending_rows: int = field(default=0, repr=False)
@@ -156,9 +155,8 @@ class TargetStats:
         maskable = np.asarray(unit_ids) >= 0
         self.targets += int(target.sum())
         if group_ids is not None:
-            view = (
-                MaskStats()
-            )  # leakage of `group_ids` = MaskStats' within-word leakage with groups as words
+            # leakage of `group_ids` = MaskStats' within-word leakage with groups as words
+            view = MaskStats()
             view.add(masked_ids=masked_ids, labels=labels, unit_ids=unit_ids, word_ids=group_ids,
                      attention_mask=attention_mask, mask_token_id=mask_token_id)
             self.group_rows += B

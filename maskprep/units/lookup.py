@@ -34,9 +34,8 @@ class CountTable:
     keys: np.ndarray  # (m, k) uint64, rows distinct, any order
     counts: np.ndarray  # (m,) int64
     _columns: tuple[np.ndarray, ...] = field(repr=False)  # sorted distinct values per column
-    _levels: tuple[np.ndarray, ...] = field(
-        repr=False
-    )  # sorted distinct packed codes, per column >= 1
+    # sorted distinct packed codes, per column >= 1
+    _levels: tuple[np.ndarray, ...] = field(repr=False)
     _row_of_code: np.ndarray = field(repr=False)
 
     @property
@@ -150,9 +149,8 @@ class NgramIndex:
     """
 
     words: np.ndarray  # sorted distinct word keys (V,)
-    codes: tuple[
-        np.ndarray, ...
-    ]  # codes[k - 1]: sorted codes of the k-grams (k >= 2); codes[0] unused
+    # codes[k - 1]: sorted codes of the k-grams (k >= 2); codes[0] unused
+    codes: tuple[np.ndarray, ...]
     counts: tuple[np.ndarray, ...]  # counts[k - 1][id]: count of the k-gram with that id
 
     @property
