@@ -19,7 +19,14 @@ from .._arrow import arrow_array, arrow_strings
 from ..corpus.reader import CorpusOptions
 from ..encoded.format import WordTable
 from ..encoded.source import SourceTask, TaskReader
-from ..tokenizer.encoding import SPACE, WORD, EncodedBatch, TokenizerInfo, tokenizer_from_json
+from ..tokenizer.encoding import (
+    SPACE,
+    WORD,
+    EncodedBatch,
+    TokenizerInfo,
+    shared_tokenizer,
+    tokenizer_from_json,
+)
 from .files import collision_error
 from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, reduce_rows
 from .spills import SpillFile, SpillWriter, disk_error
@@ -241,21 +248,6 @@ def _batch_chars(config: CountConfig, share: int) -> int:
     return config.batch_chars or int(np.clip(share // 1024, 16_384, 1 << 20))
 
 
-_TOKENIZERS: dict[str, TokenizerInfo] = {}
-
-
-def _shared_tokenizer(tokenizer_json: str) -> TokenizerInfo:
-    """One tokenizer per process for the tasks that do not tokenize (encoded input).
-
-    Building it from its JSON costs about 15 ms; a count of 21 MB has 21 tasks.
-    """
-    info = _TOKENIZERS.get(tokenizer_json)
-    if info is None:
-        _TOKENIZERS.clear()
-        info = _TOKENIZERS[tokenizer_json] = tokenizer_from_json(tokenizer_json)
-    return info
-
-
 def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
                corpus_options: CorpusOptions, share: int) -> TaskCounts:
     """Task function: count one task (raw text or an encoded directory's), spilling runs under
@@ -265,7 +257,7 @@ def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill
     ...     CorpusOptions(), 1 << 28)
     """
     if task.encoded is not None:  # the word texts are in the task's word table: any tokenizer
-        info = _shared_tokenizer(tokenizer_json)
+        info = shared_tokenizer(tokenizer_json)
     else:  # a fresh word-type cache per task: its entries give the texts
         info = tokenizer_from_json(tokenizer_json)
     counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,

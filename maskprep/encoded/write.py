@@ -39,7 +39,7 @@ from .._resume import RunDir, Stage, claim, file_entry, write_record
 from .._version import __version__
 from ..corpus.reader import CorpusOptions, ReadStats
 from ..errors import MaskprepError
-from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, load_tokenizer, tokenizer_from_json
+from ..tokenizer.encoding import EncodedBatch, TokenizerInfo, load_tokenizer, shared_tokenizer
 from .format import (
     BATCH_CHARS,
     COMPRESSION,
@@ -84,19 +84,6 @@ class _Job:
     words: Any = None  # WordsConfig (None: the tokenizer's words)
 
 
-_CACHE: dict[str, TokenizerInfo] = {}
-
-
-def _tokenizer(job: _Job) -> TokenizerInfo:
-    info = _CACHE.get(job.tokenizer_hash)
-    if info is None:
-        _CACHE.clear()
-        info = _CACHE[job.tokenizer_hash] = tokenizer_from_json(
-            job.tokenizer_json, name=job.tokenizer_name
-        )
-    return info
-
-
 def _ids_type(vocab_size: int) -> Any:
     import pyarrow as pa
 
@@ -132,7 +119,7 @@ def encode_task(job: _Job, task: SourceTask) -> dict[str, Any]:
     """Task function: encode one corpus task into docs-T.arrow and words-T.arrow; its record."""
     import pyarrow as pa
 
-    info = _tokenizer(job)
+    info = shared_tokenizer(job.tokenizer_json, name=job.tokenizer_name)
     out = Path(job.out)
     ipc = pa.ipc.IpcWriteOptions(compression=COMPRESSION)
     types = TypeIndex()

@@ -25,7 +25,7 @@ from ..corpus.reader import CorpusOptions, ReadStats
 from ..encoded.source import SourceTask, TaskReader
 from ..masking.sampler import MaskingConfig, Strategy, mask_batch, strategy_units
 from ..packing import PackedBatch, PackingConfig, TaskPacker
-from ..tokenizer.encoding import TokenizerInfo, tokenizer_from_json
+from ..tokenizer.encoding import TokenizerInfo, shared_tokenizer
 
 __all__ = ["LoopJob", "TaskLoop"]
 
@@ -71,8 +71,7 @@ class TaskLoop:
         from ..masking.strategies import UnitTable
 
         self.job, self.task = job, task
-        self.info: TokenizerInfo = _cached("tok", job.tokenizer_hash, lambda: tokenizer_from_json(
-            job.tokenizer_json, name=job.tokenizer_name))
+        self.info: TokenizerInfo = shared_tokenizer(job.tokenizer_json, name=job.tokenizer_name)
         self.table = None
         if job.units is not None:
             self.table = _cached(

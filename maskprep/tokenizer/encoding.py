@@ -70,6 +70,7 @@ __all__ = [
     "warn_literal_specials",
     "load_tokenizer",
     "tokenizer_from_json",
+    "shared_tokenizer",
     "save_tokenizer",
 ]
 
@@ -443,6 +444,26 @@ def tokenizer_from_json(text: str, *, name: str = "tokenizer") -> TokenizerInfo:
     info = copy.copy(proto)
     info.name = name
     info.types = WordTypeCache(info.vocab_size, info.special_ids, info.canonical_texts)
+    return info
+
+
+# One TokenizerInfo per process and tokenizer, for tasks that may share its word-type cache.
+_SHARED: dict[tuple[str, str], TokenizerInfo] = {}
+
+
+def shared_tokenizer(text: str, *, name: str = "tokenizer") -> TokenizerInfo:
+    """The same `TokenizerInfo` for every task of this process that ships this JSON and name.
+
+    For tasks whose output does not depend on what the word-type cache held before (encode,
+    mask, compare, count on an encoded directory); a task that reads the word texts it added
+    needs its own, from `tokenizer_from_json`.
+    """
+    key = (text, name)
+    info = _SHARED.get(key)
+    if info is None:
+        if len(_SHARED) >= 4:
+            _SHARED.clear()
+        info = _SHARED[key] = tokenizer_from_json(text, name=name)
     return info
 
 
