@@ -26,6 +26,7 @@ __all__ = [
     "budget_option",
     "sample_options",
     "make_sample",
+    "SAMPLE_HELP",
     "tokenizer_option",
     "model_option",
 ]
@@ -105,10 +106,19 @@ def model_option(help: str) -> Callable[[Callable[..., Any]], Callable[..., Any]
     )
 
 
+# the help of --sample (what `maskprep.corpus.sample` does with it)
+SAMPLE_HELP = (
+    "Use a seeded sample of the corpus: a share (10% or 0.1) or a size on disk (200MB, 1GiB), "
+    "the same share of every file, whole documents only (--seed chooses it). Uncompressed "
+    "text files with one document per line are sampled by seeded byte ranges aligned to "
+    "document starts, so only the sample is read; other files (compressed, --doc-sep blank, "
+    "Parquet, Arrow) are read in full and each document kept by a seeded coin. "
+    "Default: the whole corpus."
+)
+
+
 def sample_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     """--sample and --seed of audit and train-tokenizer (read with `make_sample`)."""
-    from .corpus.sample import SAMPLE_HELP
-
     fn = click.option(
         "--seed",
         "sample_seed",
@@ -242,8 +252,12 @@ def make_words(copts: dict[str, Any], corpus: Any, ctx: click.Context) -> tuple[
 
     With ``--words cohesion`` the words are learnt from the corpus first.
     """
-    from .units.words import resolve_words
-
     words = copts.pop("words", "tokenizer")
     options = make_corpus_options(**copts)
+    if str(words).strip().lower() != "cohesion":  # a fixed definition: no stage to import
+        from .tokenizer.words import words_option as fixed_words
+
+        return options, fixed_words(words)
+    from .units.words import resolve_words
+
     return options, resolve_words(words, list(corpus), corpus_options=options, quiet=is_quiet(ctx))

@@ -102,8 +102,10 @@ def install() -> None:
 
 
 def _kill_workers() -> None:
+    if "maskprep._pool" not in sys.modules:  # no pool was ever started: nothing to import
+        return
     try:
-        from .execute import kill_pools
+        from ._pool import kill_pools
 
         kill_pools()
     except Exception:  # pragma: no cover - nothing more can be done
@@ -117,9 +119,9 @@ def finish(code: int) -> None:
         code = 130
         say_interrupted()
         _kill_workers()
-    else:
+    elif "maskprep._pool" in sys.modules:  # else no pool was ever started
         try:
-            from .execute import shutdown_pools
+            from ._pool import shutdown_pools
 
             shutdown_pools()
         except Exception:  # pragma: no cover

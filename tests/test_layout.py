@@ -125,11 +125,52 @@ def test_no_line_of_the_package_is_over_100_characters() -> None:
     assert not long, f"lines over {MAX_WIDTH} characters: " + ", ".join(long)
 
 
+LAZY_PACKAGES = ("maskprep", "maskprep.shards", "maskprep.compare")
+
+
+def _typing_imports(package: str) -> dict[str, str]:
+    """{name: module} of the imports a lazy package makes under ``if TYPE_CHECKING:``."""
+    path = PACKAGE.parent.joinpath(*package.split("."), "__init__.py")
+    found: dict[str, str] = {}
+    for node in ast.parse(path.read_text(encoding="utf-8")).body:
+        if isinstance(node, ast.If) and ast.unparse(node.test) == "TYPE_CHECKING":
+            for imp in node.body:
+                assert isinstance(imp, ast.ImportFrom) and imp.level == 1, ast.unparse(imp)
+                for alias in imp.names:
+                    found[alias.asname or alias.name] = f"{package}.{imp.module}"
+    return found
+
+
 def test_public_api_is_explicit() -> None:
-    source = (PACKAGE / "__init__.py").read_text(encoding="utf-8")
-    assert "__getattr__" not in source and "import_module" not in source
-    for name in maskprep.__all__:
-        assert name in dir(maskprep), name
+    """Every public name is imported by name for type checkers, and the lazy attribute is that
+    very object (no name comes from anywhere else)."""
+    import importlib
+
+    for package in LAZY_PACKAGES:
+        mod = importlib.import_module(package)
+        typed = _typing_imports(package)
+        eager = {"__version__", "MaskprepError"} if package == "maskprep" else set()
+        assert set(mod.__all__) == set(typed) | eager, package
+        for name in mod.__all__:
+            assert name in dir(mod), name
+            if name in typed:
+                home = importlib.import_module(typed[name])
+                assert getattr(mod, name) is getattr(home, name), f"{package}.{name}"
+
+
+def test_importing_the_package_loads_no_stage() -> None:
+    """`import maskprep` (the command line's and every pool worker's first step) stays cheap:
+    the stages are imported when a name of theirs is first used."""
+    import subprocess
+    import sys
+
+    code = ("import sys, maskprep, maskprep.shards, maskprep.compare; "
+            "print(' '.join(sorted(m for m in sys.modules if m.startswith('maskprep'))))")
+    loaded = set(subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
+                                text=True).stdout.split())
+    assert loaded == {"maskprep", "maskprep._cli_start", "maskprep._lazy", "maskprep._version",
+                      "maskprep.errors", "maskprep.shards", "maskprep.compare"}
+    assert maskprep.MaskingConfig().rate == 0.15  # and a name still arrives on first use
 
 
 def test_developers_guide_lists_every_module() -> None:

@@ -48,7 +48,6 @@ __all__ = [
     "choose_ranges",
     "keeps_document",
     "describe_sample",
-    "SAMPLE_HELP",
 ]
 
 MIN_BLOCK = 4 << 10
@@ -59,15 +58,6 @@ _SIZES = {"b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
           "kb": 10 ** 3, "mb": 10 ** 6, "gb": 10 ** 9, "tb": 10 ** 12}
 _M64 = (1 << 64) - 1
 _COIN, _BLOCK = 0x636F696E, 0x626C6F63  # tags: the two uses never share a random stream
-
-SAMPLE_HELP = (
-    "Use a seeded sample of the corpus: a share (10% or 0.1) or a size on disk (200MB, 1GiB), "
-    "the same share of every file, whole documents only (--seed chooses it). Uncompressed "
-    "text files with one document per line are sampled by seeded byte ranges aligned to "
-    "document starts, so only the sample is read; other files (compressed, --doc-sep blank, "
-    "Parquet, Arrow) are read in full and each document kept by a seeded coin. "
-    "Default: the whole corpus."
-)
 
 
 @dataclass(frozen=True)
