@@ -63,9 +63,16 @@ class Vocabulary:
         ):  # merge when the pending words double the vocabulary
             self.finish()
 
+    def add_words(self, keys: np.ndarray, texts: Any) -> None:
+        """Add words given as uint64 keys and an Arrow string array (or chunked array) of texts."""
+        import pyarrow as pa
+
+        texts = texts.cast(pa.large_string())  # the type of `arrow_strings`
+        self._pending.append(pa.table({"key": arrow_array(keys), "text": texts}))
+        self._pending_rows += len(keys)
+
     def finish(self) -> None:
         import pyarrow as pa
-        import pyarrow.compute as pc
 
         if not self._pending:
             return
@@ -79,6 +86,8 @@ class Vocabulary:
         texts = texts.take(arrow_array(order))
         dup = np.flatnonzero(keys[1:] == keys[:-1])
         if len(dup):
+            import pyarrow.compute as pc
+
             differ = pc.not_equal(texts.take(arrow_array(dup)), texts.take(arrow_array(dup + 1)))
             if pc.any(differ).as_py():
                 i = int(dup[pc.index(differ, True).as_py()])

@@ -10,8 +10,9 @@ write the counts directory (files.py, driver.py).
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterator
+from typing import Iterator, Sequence
 
 import numpy as np
 
@@ -27,14 +28,58 @@ from ..tokenizer.encoding import (
     shared_tokenizer,
     tokenizer_from_json,
 )
-from .files import collision_error
+from .files import Vocabulary, collision_error
 from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, reduce_rows
 from .spills import SpillFile, SpillWriter, disk_error
 from .types import CountConfig, TaskCounts
 
-__all__ = ["ChunkCounter", "count_task", "REDUCE_ROWS"]
+__all__ = ["ChunkCounter", "CountTask", "count_task", "group_tasks", "REDUCE_ROWS"]
 
 REDUCE_ROWS = 1 << 16  # rows reduced at once when spilling (a few MB: stays in cache)
+
+
+@dataclass(frozen=True)
+class CountTask:
+    """One counting task: one or more consecutive tasks of the source, counted by one counter.
+
+    Counting several small tasks of an encoded directory together spills fewer rows (an
+    n-gram met in several of them is one row) and fewer files.
+    """
+
+    index: int
+    parts: tuple[SourceTask, ...]
+
+    @property
+    def weight(self) -> float:
+        return sum(p.weight for p in self.parts)
+
+    def describe(self) -> str:
+        first, last = self.parts[0].describe(), self.parts[-1].describe()
+        return first if len(self.parts) == 1 else f"{first} .. {last}"
+
+
+def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTask]:
+    """Consecutive source tasks in groups of about equal weight, each about `group_bytes` at most
+    (a task heavier than that alone).
+
+    The groups depend only on the tasks' weights, never on --memory or --workers, so a
+    resumed count finds the same tasks.
+
+    >>> [len(g.parts) for g in group_tasks(tasks_of_1mb_each[:10], 4 << 20)]  # doctest: +SKIP
+    [4, 3, 3]
+    """
+    weights = np.array([t.weight for t in tasks], np.float64)
+    total = float(weights.sum())
+    k = max(1, min(len(tasks), int(np.ceil(total / group_bytes)))) if len(tasks) else 0
+    # cut where the running weight crosses each multiple of total / k
+    mids = np.cumsum(weights) - weights / 2
+    group = np.minimum((mids * k / max(total, 1e-9)).astype(np.int64), k - 1) if k else mids
+    groups: list[CountTask] = []
+    for g in range(k):
+        parts = tuple(t for t, gi in zip(tasks, group.tolist()) if gi == g)
+        if parts:
+            groups.append(CountTask(len(groups), parts))
+    return groups
 
 
 def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -91,7 +136,8 @@ class ChunkCounter:
         self.totals = [0] * max_n
         self.runs: list[SpillFile] = []
         self.flushes = 0
-        self.vocab: dict[int, str] = {}
+        self.vocab: dict[int, str] = {}  # texts of words of raw text (tokenizer's cache)
+        self._tables: list[tuple[np.ndarray, object]] = []  # (keys, texts) of word tables
         self._seen_types = 0
 
     def add(self, batch: EncodedBatch, *, texts_known: bool = False) -> None:
@@ -178,25 +224,20 @@ class ChunkCounter:
     def finish(self, *, task_index: int = 0, documents: int = 0) -> TaskCounts:
         """Spill what is left and write the task's word list; return the task's result."""
         self.flush()
-        import pyarrow as pa
-
-        keys = np.fromiter(self.vocab.keys(), dtype=np.uint64, count=len(self.vocab))
-        order = np.argsort(keys, kind="stable")
-        texts = list(self.vocab.values())
-        table = pa.table(
-            {
-                "key": arrow_array(keys[order]),
-                "text": arrow_strings([texts[i] for i in order.tolist()]),
-            }
-        )
+        words = Vocabulary()
+        if self.vocab:
+            keys = np.fromiter(self.vocab.keys(), dtype=np.uint64, count=len(self.vocab))
+            words.add_words(keys, arrow_strings(list(self.vocab.values())))
+        for keys, texts in self._tables:
+            words.add_words(keys, texts)
+        words.finish()  # sorted by key, one row per key; two texts under one key raise
         path = self.spill_dir / f"{self.tag}-words.arrow"
         try:
-            with pa.OSFile(str(path), "wb") as sink, pa.ipc.new_file(sink, table.schema) as w:
-                w.write_table(table)
+            words.save(str(path))
         except OSError as exc:
             raise disk_error(exc, self.spill_dir, "writing the word list") from None
         return TaskCounts(
-            task_index, self.runs, self.totals, str(path), len(keys), self.flushes, documents
+            task_index, self.runs, self.totals, str(path), len(words.keys), self.flushes, documents
         )
 
     def _collect_words(self, batch: EncodedBatch) -> None:
@@ -224,16 +265,11 @@ class ChunkCounter:
             self.vocab[int(uniq[i])] = text
 
     def add_word_table(self, table: WordTable) -> None:
-        """Texts of the words of an encoded task (its word table); two texts with one key raise."""
+        """Texts of the words of an encoded task (its word table); checked for collisions (two
+        texts under one key) when the task finishes."""
         keys, kinds = table.fields["word_keys"], table.fields["word_kinds"]
         sel = np.flatnonzero(kinds == WORD)
-        vocab = self.vocab
-        for key, text in zip(
-            keys[sel].tolist(), table.texts.take(arrow_array(sel)).to_pylist()
-        ):  # one step per word type
-            prev = vocab.setdefault(key, text)
-            if prev != text:
-                raise collision_error(key, prev, text)
+        self._tables.append((keys[sel], table.texts.take(arrow_array(sel))))
 
     def abort(self) -> None:
         """Drop the buffer (files are removed with the spill directory)."""
@@ -248,30 +284,37 @@ def _batch_chars(config: CountConfig, share: int) -> int:
     return config.batch_chars or int(np.clip(share // 1024, 16_384, 1 << 20))
 
 
-def count_task(task: SourceTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
+def count_task(task: CountTask, tokenizer_json: str, config: CountConfig, spill_dir: str,
                corpus_options: CorpusOptions, share: int) -> TaskCounts:
-    """Task function: count one task (raw text or an encoded directory's), spilling runs under
-    `spill_dir`.
+    """Task function: count one task (raw text or an encoded directory's parts), spilling runs
+    under `spill_dir`.
 
-    >>> count_task(plan_tasks(files)[0], info.json, CountConfig(), "out/.spill-x",  # doctest: +SKIP
-    ...     CorpusOptions(), 1 << 28)
+    >>> count_task(group_tasks(tasks, 4 << 20)[0], info.json, CountConfig(),  # doctest: +SKIP
+    ...     "out/.spill-x", CorpusOptions(), 1 << 28)
     """
-    if task.encoded is not None:  # the word texts are in the task's word table: any tokenizer
+    if all(p.encoded is not None for p in task.parts):  # word texts in the word tables
         info = shared_tokenizer(tokenizer_json)
     else:  # a fresh word-type cache per task: its entries give the texts
         info = tokenizer_from_json(tokenizer_json)
     counter = ChunkCounter(info, max_n=config.max_n, spill_dir=Path(spill_dir), share=share,
                            tag=f"t{task.index:06d}", joined=not config.words.is_tokenizer)
-    reader = TaskReader(task, info, corpus_options, batch_chars=_batch_chars(config, share),
-                        words=None if config.words.is_tokenizer else config.words)
+    documents = 0
+    literal: dict[str, int] = {}
     try:
-        table = reader.word_table()
-        if table is not None:  # encoded input: the word texts are in the task's word table
-            counter.add_word_table(table)
-        for batch in reader:
-            counter.add(batch, texts_known=table is not None)
-        result = counter.finish(task_index=task.index, documents=reader.consumed.documents)
-        result.literal_specials.update(reader.consumed.literal_specials)
+        for part in task.parts:
+            reader = TaskReader(part, info, corpus_options,
+                                batch_chars=_batch_chars(config, share),
+                                words=None if config.words.is_tokenizer else config.words)
+            table = reader.word_table()
+            if table is not None:  # encoded input: the word texts are in the task's word table
+                counter.add_word_table(table)
+            for batch in reader:
+                counter.add(batch, texts_known=table is not None)
+            documents += reader.consumed.documents
+            for s, k in reader.consumed.literal_specials.items():
+                literal[s] = literal.get(s, 0) + k
+        result = counter.finish(task_index=task.index, documents=documents)
+        result.literal_specials.update(literal)
         return result
     except BaseException:
         counter.abort()

@@ -16,12 +16,15 @@ from ..tokenizer.words import WordsConfig, words_option
 from .spills import SpillFile
 
 __all__ = ["CountConfig", "TaskCounts", "CountSummary", "parse_memory", "COUNTS_FORMAT_VERSION",
-           "MAX_N", "MIN_TASK_MEMORY", "TASK_BYTES", "POOL_ROWS"]
+           "MAX_N", "MIN_TASK_MEMORY", "TASK_BYTES", "ENCODED_TASK_BYTES", "POOL_ROWS"]
 
 COUNTS_FORMAT_VERSION = 1
 MAX_N = 8
 MIN_TASK_MEMORY = 4 << 20       # below this a task cannot hold a batch and a buffer at once
 TASK_BYTES = 8 << 20            # text files are split into tasks of about this size
+# an encoded directory's tasks are counted in groups of about this much text: fewer spilled rows
+# and files than one count task each, and still several tasks per worker
+ENCODED_TASK_BYTES = 4 << 20
 POOL_ROWS = 8_000_000  # merges / writes smaller than this run in the driver unless the pool is
 # already running (starting one costs ~1-2 s)
 _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
