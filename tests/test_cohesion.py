@@ -340,3 +340,40 @@ def test_measure_help_text_names_every_range():
     for m in Measure:
         assert m.range_text in m.description
     assert Measure.parse(" NPMI ") is Measure.NPMI
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.lists(st.lists(st.integers(0, 6), min_size=1, max_size=30), min_size=1, max_size=5))
+def test_ngram_index_parts_and_spans_are_exact(docs):
+    # Source: common practice (every contiguous part of every n-gram compared with a Python
+    # Counter of the same text).
+    words = [[f"w{i}" for i in d] for d in docs]
+    c = count_ngrams(words, 4)
+    index = NgramIndex.build({k: as_arrays(list(c[k]), c[k], k) for k in (1, 2, 3, 4)})
+    for k in (2, 3, 4):
+        grams = list(c[k])
+        if not grams:
+            continue
+        ids = index.row_ids[k - 1]
+        keys, _ = as_arrays(grams, c[k], k)
+        pre, suf = index.parts(keys)
+        assert pre.tolist() == index.prefix[k - 1][ids].tolist()
+        assert suf.tolist() == index.suffix[k - 1][ids].tolist()
+        for i in range(k):
+            for j in range(i + 1, k + 1):
+                got = index.counts[j - i - 1][index.span_ids(k, ids, i, j)]
+                assert got.tolist() == [c[j - i][g[i:j]] for g in grams]
+
+
+def test_indexed_fragment_shares_equal_the_plain_ones(shakespeare_counts):
+    # Source: common practice (two ways of computing one figure agree on real text, the
+    # Shakespeare plays installed by a package).
+    from maskprep.units.filters import fragment_shares, indexed_fragment_shares
+
+    c = shakespeare_counts
+    pairs = {k: as_arrays(list(c[k]), c[k], k) for k in (1, 2, 3)}
+    index = NgramIndex.build(pairs)
+    keys, counts = pairs[2]
+    want = fragment_shares(keys, counts, *pairs[3])
+    got = indexed_fragment_shares(index, 2, index.row_ids[1], counts)
+    assert np.array_equal(got, want) and (want > 0).any()

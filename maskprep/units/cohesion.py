@@ -122,12 +122,13 @@ _DESCRIPTIONS = {
 
 
 def score_ngrams(measure: Union[Measure, str], *, n: int, keys: np.ndarray, counts: np.ndarray,
-                 tables: Union[NgramIndex, Mapping[int, TableLike]], N: int) -> np.ndarray:
+                 tables: Union[NgramIndex, Mapping[int, TableLike]], N: int,
+                 parts: tuple[np.ndarray, np.ndarray] | None = None) -> np.ndarray:
     """Score every n-gram (rows of `keys`, (m, n) uint64) by `measure`; float64 (m,).
 
     `tables` is an `NgramIndex` of the k-grams for k = 1..n-1, or a mapping
     ``{k: (keys_k, counts_k)}`` (or ``CountTable``) to build one from; `N` is the
-    number of counted word positions.
+    number of counted word positions; `parts` as for `score_with_split_pmi`.
 
     >>> t1 = (np.array([[1], [2]], np.uint64), np.array([42, 20]))
     >>> s = score_ngrams("pmi", n=2, keys=np.array([[1, 2]], np.uint64), counts=np.array([20]),
@@ -135,7 +136,8 @@ def score_ngrams(measure: Union[Measure, str], *, n: int, keys: np.ndarray, coun
     >>> round(float(s[0] / np.log(2)), 2)
     18.38
     """
-    return _run((Measure.parse(measure),), n=n, keys=keys, counts=counts, tables=tables, N=N)[0]
+    return _run((Measure.parse(measure),), n=n, keys=keys, counts=counts, tables=tables, N=N,
+                parts=parts)[0]
 
 
 def score_with_split_pmi(
@@ -146,13 +148,18 @@ def score_with_split_pmi(
     counts: np.ndarray,
     tables: Union[NgramIndex, Mapping[int, TableLike]],
     N: int,
+    parts: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """``(score_ngrams(...), binary_split_pmi(...))`` in one pass over the parts.
+
+    `parts` (optional, with an `NgramIndex`): the (n-1)-gram ids of each row's first and last
+    n - 1 words, e.g. ``(ix.prefix[n - 1][ids], ix.suffix[n - 1][ids])``, saving their lookup.
 
     >>> scores, split = score_with_split_pmi(
     ...     "llr", n=2, keys=k, counts=c, tables=t, N=n)  # doctest: +SKIP
     """
-    out = _run((Measure.parse(measure), None), n=n, keys=keys, counts=counts, tables=tables, N=N)
+    out = _run((Measure.parse(measure), None), n=n, keys=keys, counts=counts, tables=tables, N=N,
+               parts=parts)
     return out[0], out[1]
 
 
@@ -168,14 +175,23 @@ def binary_split_pmi(*, n: int, keys: np.ndarray, counts: np.ndarray,
 
 
 def _run(kinds: tuple[Measure | None, ...], *, n: int, keys: np.ndarray, counts: np.ndarray,
-         tables: Union[NgramIndex, Mapping[int, TableLike]], N: int) -> list[np.ndarray]:
-    """Each measure of `kinds` (None: binary-split pmi), finding the parts once per chunk."""
+         tables: Union[NgramIndex, Mapping[int, TableLike]], N: int,
+         parts: tuple[np.ndarray, np.ndarray] | None = None) -> list[np.ndarray]:
+    """Each measure of `kinds` (None: binary-split pmi), finding the parts once per chunk.
+
+    `parts`: the (n-1)-gram ids of each row's first and last n - 1 words, when the caller
+    knows them (``NgramIndex.prefix`` / ``suffix`` of indexed n-grams); else they are looked up.
+    """
     keys, counts = _check_inputs(n=n, keys=keys, counts=counts, N=N)
     index = as_index(tables, n)
     out = [np.empty(len(counts), dtype=np.float64) for _ in kinds]
     for start in range(0, len(counts), _CHUNK_ROWS):
         stop = min(start + _CHUNK_ROWS, len(counts))
-        spans = _span_counts(keys[start:stop], counts[start:stop], index, n)
+        if parts is None:
+            pre, suf = index.parts(keys[start:stop])
+        else:
+            pre, suf = parts[0][start:stop], parts[1][start:stop]
+        spans = _span_counts(counts[start:stop], pre, suf, index, n)
         for kind, dest in zip(kinds, out):
             dest[start:stop] = (
                 _split_pmi(spans, n, N) if kind is None else _score_chunk(kind, n, spans, N)
@@ -213,18 +229,22 @@ def _check_inputs(
     return keys, counts
 
 
-def _span_counts(keys: np.ndarray, counts: np.ndarray, index: NgramIndex, n: int
+def _span_counts(counts: np.ndarray, pre: np.ndarray, suf: np.ndarray, index: NgramIndex, n: int
                  ) -> dict[tuple[int, int], np.ndarray]:
-    """Counts (float64) of every sub-span [i, j) of every row; the whole span included."""
+    """Counts (float64) of every sub-span [i, j) of every row; the whole span included.
+
+    `pre` and `suf` are the (n-1)-gram ids of the rows' first and last n - 1 words; every
+    shorter span lies inside one of them and is read through ``NgramIndex.span_ids``.
+    """
     spans: dict[tuple[int, int], np.ndarray] = {(0, n): counts.astype(np.float64)}
-    wid = index.word_ids(keys)
     for i in range(n):
-        ids = wid[:, i]
         for j in range(i + 1, n + 1):
             if (i, j) == (0, n):
-                break
-            if j > i + 1:
-                ids = index.extend(j - i, ids, wid[:, j - 1])
+                continue
+            if j < n:
+                ids = index.span_ids(n - 1, pre, i, j)
+            else:
+                ids = index.span_ids(n - 1, suf, i - 1, n - 1)
             c = index.counts[j - i - 1][ids]
             if (c < counts).any():
                 raise MaskprepError(
@@ -281,10 +301,9 @@ def _llr(c12: np.ndarray, c1: np.ndarray, c2: np.ndarray, N: float) -> np.ndarra
     g = np.zeros_like(c12)
     for o, r, k in ((o11, row1, col1), (o12, row1, col2), (o21, row2, col1), (o22, row2, col2)):
         e = r * k / total
-        pos = o > 0
-        term = np.zeros_like(o)
-        term[pos] = o[pos] * np.log(o[pos] / e[pos])
-        g += term
+        # o ln(o / e) where o > 0; elsewhere o = 0 and the ratio stays 1, so the term is 0
+        ratio = np.divide(o, e, out=np.ones_like(o), where=o > 0)
+        g += o * np.log(ratio, out=ratio)
     return 2.0 * g
 
 

@@ -25,7 +25,7 @@ from .._version import __version__
 from .cohesion import Measure
 from ..errors import MaskprepError
 from ..wording import plural
-from .._arrow import numpy_of
+from .._arrow import arrow_array, arrow_strings, numpy_of
 from .._files import atomic_path
 from .select import UnitVocabulary
 
@@ -67,10 +67,10 @@ def write_units(vocab: UnitVocabulary, path: Union[str, Path]) -> tuple[Path, Pa
                        metadata={METADATA_KEY: json.dumps(meta, sort_keys=True).encode("utf-8")})
     table = pa.table(
         [
-            pa.array(list(vocab.text), pa.string()),
-            pa.array(n.astype(np.int32)),
-            pa.array(np.asarray(vocab.count, np.int64)),
-            pa.array(np.asarray(vocab.score, np.float64)),
+            arrow_strings(vocab.text, large=False),
+            arrow_array(n.astype(np.int32)),
+            arrow_array(np.asarray(vocab.count, np.int64)),
+            arrow_array(np.asarray(vocab.score, np.float64)),
             _list_array(vocab.token_ids, np.int32),
             _list_array(vocab.word_keys, np.uint64),
         ],
@@ -98,7 +98,7 @@ def _list_array(arrays: tuple[np.ndarray, ...], dtype: Any) -> Any:
     offsets = np.concatenate([[0], np.cumsum([len(a) for a in arrays], dtype=np.int64)]).astype(
         np.int32
     )
-    return pa.ListArray.from_arrays(pa.array(offsets), pa.array(flat))
+    return pa.ListArray.from_arrays(arrow_array(offsets), arrow_array(flat))
 
 
 def read_units(path: Union[str, Path]) -> UnitVocabulary:

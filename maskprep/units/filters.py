@@ -29,12 +29,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from .cohesion import CountTable
+from .cohesion import CountTable, NgramIndex
 
 __all__ = [
     "frequent_words",
     "edge_ok",
     "fragment_shares",
+    "indexed_fragment_shares",
     "DEFAULT_EDGE_WORDS",
     "DEFAULT_FRAGMENT_SHARE",
 ]
@@ -121,3 +122,19 @@ def fragment_shares(
         hit = rows >= 0
         np.maximum.at(best, rows[hit], longer[hit])
     return best / counts
+
+
+def indexed_fragment_shares(
+    index: NgramIndex, n: int, ids: np.ndarray, counts: np.ndarray
+) -> np.ndarray:
+    """`fragment_shares` of n-grams held in `index` (their `ids`), against every (n+1)-gram of it.
+
+    The index knows the n-gram ids of each (n+1)-gram's first and last n words, so no key is
+    searched: each (n+1)-gram count goes to its two n-gram parts, and each n-gram keeps the
+    largest it receives.
+    """
+    best = np.zeros(len(index.counts[n - 1]), np.float64)
+    longer = index.counts[n].astype(np.float64)
+    for part in (index.prefix[n], index.suffix[n]):
+        np.maximum.at(best, part, longer)
+    return best[ids] / np.asarray(counts, np.float64)

@@ -2,7 +2,10 @@
 
 ``NgramIndex`` gives every k-gram of lengths 1..K a dense id (its rank among
 sorted ``prefix id * V + last word id`` codes), so finding a part of an
-n-gram costs one ``searchsorted`` per word; ``CountTable`` is the stand-alone
+n-gram costs one ``searchsorted`` per word; it also keeps, for every k-gram,
+the ids of its first and its last k - 1 words, so the parts of an indexed
+n-gram are found once, when its length is added, and every part's count is
+then read by plain array indexing. ``CountTable`` is the stand-alone
 lookup of one table (dense per-column codes from ``np.unique``). Nothing is
 looked up with a Python dict or a loop per n-gram. A part that is missing from
 its table means the counts are corrupt and raises ``MaskprepError``; it is
@@ -140,7 +143,10 @@ class NgramIndex:
 
     A k-gram's id is its rank among ``prefix_id * V + last_word_id`` codes
     (V = number of distinct words), so finding a part costs one sorted search
-    per added word, not one per key column.
+    per added word, not one per key column. Each k-gram (k >= 2) also keeps
+    the ids of its first and of its last k - 1 words (``prefix``, ``suffix``),
+    so the count of any contiguous part of an indexed k-gram is a few array
+    reads, with no search at all (``span_ids``).
 
     >>> ix = NgramIndex.build({1: (np.array([[5], [9]], np.uint64), np.array([3, 4])),
     ...                        2: (np.array([[9, 5]], np.uint64), np.array([2]))})
@@ -152,6 +158,12 @@ class NgramIndex:
     # codes[k - 1]: sorted codes of the k-grams (k >= 2); codes[0] unused
     codes: tuple[np.ndarray, ...]
     counts: tuple[np.ndarray, ...]  # counts[k - 1][id]: count of the k-gram with that id
+    # prefix[k - 1][id], suffix[k - 1][id]: (k-1)-gram ids of its first and last k - 1 words
+    # (k >= 2; index 0 unused)
+    prefix: tuple[np.ndarray, ...] = field(default=(), repr=False)
+    suffix: tuple[np.ndarray, ...] = field(default=(), repr=False)
+    # row_ids[k - 1][r]: the id of row r of the k-gram table as it was given to build or add
+    row_ids: tuple[np.ndarray, ...] = field(default=(), repr=False)
 
     @property
     def max_k(self) -> int:
@@ -161,16 +173,19 @@ class NgramIndex:
     def build(cls, tables: Mapping[int, "TableLike"]) -> "NgramIndex":
         """Index tables ``{k: (keys (m, k) uint64, counts (m,))}`` for k = 1..K (all present)."""
         if not tables:
-            return cls(np.zeros(0, np.uint64), (np.zeros(0, np.uint64),), (np.zeros(0, np.int64),))
+            empty = (np.zeros(0, np.int64),)
+            return cls(np.zeros(0, np.uint64), (np.zeros(0, np.uint64),), empty, empty, empty,
+                       empty)
         arrays = {k: _as_arrays(tables, k) for k in range(1, max(tables) + 1)}
         keys1, counts1 = arrays[1]
-        order = np.argsort(keys1[:, 0], kind="stable")
+        order = np.argsort(keys1[:, 0])  # distinct keys (checked below): one order
         words = keys1[order, 0]
         if len(words) > 1 and (words[1:] == words[:-1]).any():
             raise MaskprepError(
                 "1-gram table: duplicate word keys; the counts are corrupt (re-run maskprep count)"
             )
-        index = cls(words, (words,), (counts1[order],))
+        none = np.zeros(0, np.int64)
+        index = cls(words, (words,), (counts1[order],), (none,), (none,), (_inverse(order),))
         for k in range(2, len(arrays) + 1):
             index = index.add(*arrays[k])
         return index
@@ -178,7 +193,7 @@ class NgramIndex:
     def add(self, keys: np.ndarray, counts: np.ndarray) -> "NgramIndex":
         """A new index with the next length (k = max_k + 1) added.
 
-        ``ix = ix.add(keys_k, counts_k)``
+        ``ix = ix.add(keys_k, counts_k)``; ``ix.row_ids[k - 1]`` gives the id of each row.
         """
         k = self.max_k + 1
         keys = _key_rows(keys, counts, k)
@@ -187,11 +202,9 @@ class NgramIndex:
             raise MaskprepError(
                 f"{k}-gram table too large to index ({len(self.counts[-1])} x {int(v)} codes)"
             )
-        wid = self.word_ids(keys)
-        code = self.prefix_ids(wid[:, : k - 1]).astype(np.uint64) * v + wid[:, k - 1].astype(
-            np.uint64
-        )
-        order = np.argsort(code, kind="stable")
+        pre, suf, last = self._parts(keys)
+        code = pre.astype(np.uint64) * v + last.astype(np.uint64)
+        order = np.argsort(code)  # codes are distinct (checked below), so any sort gives one order
         code = code[order]
         if len(code) > 1 and (code[1:] == code[:-1]).any():
             raise MaskprepError(
@@ -199,16 +212,26 @@ class NgramIndex:
                 "(re-run maskprep count)"
             )
         return NgramIndex(
-            self.words, self.codes + (code,), self.counts + (np.asarray(counts, np.int64)[order],)
+            self.words,
+            self.codes + (code,),
+            self.counts + (np.asarray(counts, np.int64)[order],),
+            self.prefix + (pre[order],),
+            self.suffix + (suf[order],),
+            self.row_ids + (_inverse(order),),
         )
 
     def word_ids(self, keys: np.ndarray) -> np.ndarray:
         """Ids (int64, same shape) of word keys; a word not in the 1-gram table raises."""
-        flat = np.asarray(keys, np.uint64).ravel()
-        pos, ok = _search(self.words, flat)
-        if not ok.all():
-            raise _missing(1, int((~ok).sum()))
-        return pos.reshape(np.shape(keys))
+        import pyarrow.compute as pc
+
+        from .._arrow import arrow_array, numpy_of
+
+        flat = np.ascontiguousarray(keys, np.uint64).ravel()
+        # a hash lookup (Arrow's) is several times faster here than a sorted search
+        pos = pc.index_in(arrow_array(flat), value_set=arrow_array(self.words))
+        if pos.null_count:
+            raise _missing(1, pos.null_count)
+        return numpy_of(pos, np.int64).reshape(np.shape(keys))
 
     def extend(self, k: int, prefix_ids: np.ndarray, last_word_ids: np.ndarray) -> np.ndarray:
         """Ids of the k-grams made of a (k-1)-gram id and a word id; an absent k-gram raises."""
@@ -231,10 +254,44 @@ class NgramIndex:
             ids = self.extend(j + 1, ids, wid[:, j])
         return ids
 
+    def parts(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(k-1)-gram ids of the first and of the last k - 1 words of k-gram rows (m, k)."""
+        pre, suf, _ = self._parts(np.asarray(keys, np.uint64))
+        return pre, suf
+
+    def _parts(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """`parts` and the id of each row's last word; an absent part raises."""
+        k = keys.shape[1]
+        if k - 1 > self.max_k:
+            raise MaskprepError(
+                f"the {k - 1}-gram counts are needed to score longer n-grams but were not given"
+            )
+        wid = self.word_ids(keys)
+        if k == 2:
+            return wid[:, 0], wid[:, 1], wid[:, 1]
+        pre = self.prefix_ids(wid[:, : k - 1])
+        # the last k - 1 words: the prefix's own last k - 2 words, then the last word
+        suf = self.extend(k - 1, self.suffix[k - 2][pre], wid[:, k - 1])
+        return pre, suf, wid[:, k - 1]
+
+    def span_ids(self, k: int, ids: np.ndarray, start: int, stop: int) -> np.ndarray:
+        """Ids of words [start, stop) of the indexed k-grams `ids`, as (stop - start)-grams."""
+        for length in range(k, stop, -1):  # drop words on the right, then on the left
+            ids = self.prefix[length - 1][ids]
+        for length in range(stop, stop - start, -1):
+            ids = self.suffix[length - 1][ids]
+        return ids
+
     def counts_of(self, keys: np.ndarray) -> np.ndarray:
         """Counts of the k-grams given as word keys (m, k); absent rows raise."""
         keys = np.asarray(keys, np.uint64)
         return self.counts[keys.shape[1] - 1][self.prefix_ids(self.word_ids(keys))]
+
+
+def _inverse(order: np.ndarray) -> np.ndarray:
+    out = np.empty(len(order), np.int64)
+    out[order] = np.arange(len(order), dtype=np.int64)
+    return out
 
 
 TableLike = Union[CountTable, tuple]

@@ -49,11 +49,12 @@ import numpy as np
 
 from .cohesion import Measure, NgramIndex, score_ngrams, score_with_split_pmi
 from .countsdir import check_sha256, counts_meta, counts_tokenizer, read_ngrams
-from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, fragment_shares, \
-    frequent_words
+from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, frequent_words, \
+    indexed_fragment_shares
 from .options import DEFAULT_MEASURE, DEFAULT_TOP, OPTION_HELP, UnitOptions, check_options, \
     parse_per_length, quotas
 from .retarget import unit_token_ids, word_splitting
+from .._arrow import arrow_array, numpy_of
 from ..errors import MaskprepError
 from ..progress import Progress
 
@@ -183,33 +184,31 @@ def build_units(
                     edge_keys, edge_list = frequent_words(
                         keys, counts, text.to_pylist(), options.edge_words
                     )
+            try:  # every length read is indexed: scoring and fragments read parts from it
+                index = (
+                    NgramIndex.build({1: (keys, counts)})
+                    if index is None
+                    else index.add(keys, counts)
+                )
+            except MaskprepError as exc:
+                raise MaskprepError(f"{counts_dir / f'ngrams-{k}.parquet'}: {exc}") from None
             if k - 1 in pending:  # the fragments of length k - 1 need these k-grams
                 scored = pending.pop(k - 1)
-                candidates[k - 1] = _finish(options, scored, keys, counts, dropped)
+                candidates[k - 1] = _finish(options, scored, index, dropped)
             if k in lengths:
-                assert index is not None
                 pending[k] = _score_length(
                     options, counts_dir, k, keys, counts, text, index, N, edge_keys, dropped
                 )
-            if k < max(lengths):
-                try:
-                    index = (
-                        NgramIndex.build({1: (keys, counts)})
-                        if index is None
-                        else index.add(keys, counts)
-                    )
-                except MaskprepError as exc:
-                    raise MaskprepError(f"{counts_dir / f'ngrams-{k}.parquet'}: {exc}") from None
             progress.advance(1)
     for (
         k,
         scored,
     ) in pending.items():  # the longest counted length: no longer n-grams to compare with
-        candidates[k] = _finish(options, scored, None, None, dropped)
+        candidates[k] = _finish(options, scored, None, dropped)
     chosen = _ranked(_select(options, candidates))
     texts: list[str] = chosen.column("text").cast(pa.string()).to_pylist()
-    n_arr = chosen.column("n").to_numpy().astype(np.int64)
-    rows = chosen.column("row").to_numpy()
+    n_arr = numpy_of(chosen.column("n")).astype(np.int64)
+    rows = numpy_of(chosen.column("row"))
     word_keys = tuple(candidates[int(L)][0][r] for L, r in zip(n_arr.tolist(), rows.tolist()))
     source = {
         "N": N,
@@ -225,8 +224,8 @@ def build_units(
         source["words"] = meta["words"]
     return UnitVocabulary(
         text=tuple(texts), n=n_arr,
-        count=chosen.column("count").to_numpy().astype(np.int64),
-        score=chosen.column("score").to_numpy().astype(np.float64),
+        count=numpy_of(chosen.column("count")).astype(np.int64),
+        score=numpy_of(chosen.column("score")).astype(np.float64),
         token_ids=unit_token_ids(tok, texts), word_keys=word_keys, measure=options.measure,
         options=options.to_json(), tokenizer_hash=meta["tokenizer_hash"], source=source,
         word_splitting=word_splitting(tok.to_str()))
@@ -238,6 +237,7 @@ class _Scored:
 
     n: int
     keys: np.ndarray
+    ids: np.ndarray  # their ids in the NgramIndex
     counts: np.ndarray
     score: np.ndarray
     text: Any  # arrow strings, aligned with keys
@@ -255,17 +255,18 @@ def _score_length(
     edge_keys: np.ndarray,
     dropped: dict[str, int],
 ) -> _Scored:
-    import pyarrow as pa
-
     idx = np.flatnonzero(counts >= options.min_count)
     keys, counts = keys[idx], counts[idx]
+    ids = index.row_ids[n - 1][idx]
+    parts = (index.prefix[n - 1][ids], index.suffix[n - 1][ids])
     try:
         if options.measure.positive_means_cohesive:
-            score = score_ngrams(options.measure, n=n, keys=keys, counts=counts, tables=index, N=N)
+            score = score_ngrams(options.measure, n=n, keys=keys, counts=counts, tables=index, N=N,
+                                 parts=parts)
             ok = score > 0
         else:
             score, split = score_with_split_pmi(
-                options.measure, n=n, keys=keys, counts=counts, tables=index, N=N
+                options.measure, n=n, keys=keys, counts=counts, tables=index, N=N, parts=parts
             )
             ok = split > 0
     except MaskprepError as exc:
@@ -274,23 +275,25 @@ def _score_length(
     edges = edge_ok(keys, edge_keys)
     dropped["edge"] += int((ok & ~edges).sum())
     sel = np.flatnonzero(ok & edges)
-    return _Scored(n, keys[sel], counts[sel], score[sel], text.take(pa.array(idx[sel])))
+    return _Scored(
+        n, keys[sel], ids[sel], counts[sel], score[sel], text.take(arrow_array(idx[sel]))
+    )
 
 
 def _finish(
     options: UnitOptions,
     s: _Scored,
-    longer_keys: np.ndarray | None,
-    longer_counts: np.ndarray | None,
+    index: NgramIndex | None,
     dropped: dict[str, int],
 ) -> tuple[np.ndarray, Any]:
-    """Drop fragments (given the (n+1)-gram counts), keep the best `top` and their ties, rank."""
+    """Drop fragments (given an index holding the (n+1)-grams), keep the best `top` and their
+    ties, rank."""
     import pyarrow as pa
 
     score, counts = s.score, s.counts
     sel = np.arange(len(counts))
-    if options.fragment_share > 0 and longer_keys is not None and longer_counts is not None:
-        whole = fragment_shares(s.keys, counts, longer_keys, longer_counts) < options.fragment_share
+    if options.fragment_share > 0 and index is not None and index.max_k > s.n:
+        whole = indexed_fragment_shares(index, s.n, s.ids, counts) < options.fragment_share
         dropped["fragment"] += int((~whole).sum())
         sel = sel[whole]
     if (
@@ -302,11 +305,11 @@ def _finish(
             | ((score[sel] == score[best]) & (counts[sel] >= counts[best]))
         ]
     table = pa.table({
-        "text": s.text.take(pa.array(sel)),
-        "n": pa.array(np.full(len(sel), s.n, dtype=np.int64)),
-        "count": pa.array(counts[sel]),
-        "score": pa.array(score[sel]),
-        "row": pa.array(np.arange(len(sel), dtype=np.int64)),
+        "text": s.text.take(arrow_array(sel)),
+        "n": arrow_array(np.full(len(sel), s.n, dtype=np.int64)),
+        "count": arrow_array(counts[sel]),
+        "score": arrow_array(score[sel]),
+        "row": arrow_array(np.arange(len(sel), dtype=np.int64)),
     })
     return s.keys[sel], _ranked(table)
 
