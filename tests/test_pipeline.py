@@ -65,9 +65,9 @@ sample = 150
     return path
 
 
-def run(config: Path, out: Path, *extra: str):
+def run(config: Path, out: Path, *extra: str, workers: str = "1"):
     r = CliRunner().invoke(
-        cli, ["--quiet", "--workers", "1", "run", str(config), "-o", str(out), *extra]
+        cli, ["--quiet", "--workers", workers, "run", str(config), "-o", str(out), *extra]
     )
     return r
 
@@ -174,7 +174,8 @@ def test_forced_rerun_with_a_given_tokenizer_gives_identical_outputs(
     tmp_path, shakespeare_small, small_wordpiece
 ):
     # With the tokenizer loaded from a file (training is the one stage whose token ids may be
-    # numbered differently from run to run), every output of a forced rerun is byte-identical.
+    # numbered differently from run to run), every output of a forced rerun is byte-identical,
+    # also on two workers (where units run in the background, beside the token masks).
     config = write_config(
         tmp_path / "given.toml",
         shakespeare_small,
@@ -185,8 +186,13 @@ def test_forced_rerun_with_a_given_tokenizer_gives_identical_outputs(
     )
     a, b = tmp_path / "a", tmp_path / "b"
     assert run(config, a).exit_code == 0
-    assert run(config, b, "--force").exit_code == 0
+    assert run(config, b, "--force", workers="2").exit_code == 0
     assert "tokenizer" not in statuses(a)
+    stages = [json.loads((d / "pipeline.json").read_text())["stages"] for d in (a, b)]
+    assert [s["name"] for s in stages[0]] == [s["name"] for s in stages[1]]
+    assert all("ran_beside" not in s for s in stages[0])
+    beside = [s.get("ran_beside", []) for s in stages[1]]
+    assert beside[[s["name"] for s in stages[1]].index("units")] in ([], ["mask.token"])
     for rel in (
         "mask/pmi/_maskprep/manifest.json",
         "mask/token/_maskprep/stats.json",
@@ -317,3 +323,36 @@ def test_demo_runs_in_time_and_its_shards_verify(tmp_path):
             assert cmp["strategies"][strategy][key] == stats[key]
     again = CliRunner().invoke(cli, ["--quiet", "--workers", "2", "demo", "-o", str(out)])
     assert again.exit_code == 0 and "0 stages ran" in again.output
+
+
+def test_a_background_stage_keeps_its_place_and_reports_its_failure(tmp_path):
+    # Source: common practice (a stage run in a thread is recorded in run order; what it raised
+    # reaches the caller when it is joined).
+    from maskprep.pipeline.stages import StageRunner
+
+    runner = StageRunner(tmp_path, force=False, quiet=True)
+
+    def slow(d: Path) -> list[str]:
+        time.sleep(0.3)
+        (d / "u.txt").write_text("u")
+        return ["u.txt"]
+
+    def quick(d: Path) -> list[str]:
+        (d / "m.txt").write_text("m")
+        return ["m.txt"]
+
+    runner.stage("units", "units", {}, {}, slow, background=True)
+    runner.stage("mask.token", "mask/token", {}, {}, quick)
+    runner.wait("units")
+    runner.stage("mask.pmi", "mask/pmi", {}, {}, quick)
+    assert [r.name for r in runner.results] == ["units", "mask.token", "mask.pmi"]
+    assert runner.results[0].beside == ("mask.token",) and runner.results[0].seconds >= 0.3
+    assert (tmp_path / "units" / STAGE_FILE).is_file()
+
+    def broken(d: Path) -> list[str]:
+        raise MaskprepError("counts are corrupt")
+
+    runner.stage("units2", "units2", {}, {}, broken, background=True)
+    with pytest.raises(MaskprepError, match="counts are corrupt"):
+        runner.finish()
+    assert not (tmp_path / "units2" / STAGE_FILE).exists()

@@ -111,9 +111,12 @@ def run_pipeline(
     made, fresh = not out.exists(), not (out / RUN_FILE).is_file()
     with lock_dir(out, LOCK_STATE):  # one run at a time in OUT; each stage locks its own folder too
         _prepare_output(out, cfg)
+        runner = StageRunner(out, force=force, quiet=quiet)
         try:
-            return _run_stages(cfg, out, force=force, executor=executor, quiet=quiet)
-        except BaseException:
+            return _run_stages(cfg, runner, executor=executor, quiet=quiet)
+        except BaseException as exc:
+            if not isinstance(exc, KeyboardInterrupt):  # Ctrl-C: exit now, the stage reruns
+                runner.settle()
             if (
                 fresh
             ):  # a first run that failed leaves nothing behind: no pipeline.json, no empty folders
@@ -135,12 +138,16 @@ def _undo_first_run(out: Path, made: bool) -> None:
             pass
 
 
-def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet: bool) -> RunResult:
-    """The stages of `run_pipeline` in order, each skipped when up to date."""
+def _run_stages(cfg: RunConfig, runner: StageRunner, *, executor: Any, quiet: bool) -> RunResult:
+    """The stages of `run_pipeline` in order, each skipped when up to date.
+
+    Units are computed in the driver alone, so with local worker processes they run in the
+    background, beside the masks that do not need them (their outputs are the same either way).
+    """
     from ..corpus.reader import corpus_fingerprint, resolve_inputs
     from ..tokenizer.encoding import load_tokenizer
 
-    runner = StageRunner(out, force=force, quiet=quiet)
+    out = runner.out
     corpus = list(cfg.corpus)
     copts = cfg.corpus_options
     corpus_fp = corpus_fingerprint(resolve_inputs(corpus), copts)
@@ -255,6 +262,13 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
         counts_fp = runner.stage("count", "counts", count_cfg, inputs, run_cnt).fingerprint
         if cfg.units is not None:
             u = cfg.units
+            # beside the masks of other strategies, when those run on worker processes
+            background = (
+                not executor.dask
+                and executor.workers > 1
+                and cfg.mask is not None
+                and any(s != "pmi" for s in cfg.mask["strategies"])
+            )
 
             def run_units(d: Path) -> list[str]:
                 from ..units.files import write_units
@@ -269,13 +283,13 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                     max_n=u["max_n"],
                     edge_words=u["edge_words"],
                     fragment_share=u["fragment_share"],
-                    quiet=quiet,
+                    quiet=quiet or background,  # no progress line across the masks' lines
                 )
                 write_units(vocab, d / "units.parquet")
                 return ["units.parquet", "units.tsv"]
 
             units_fp = runner.stage(
-                "units", "units", u, {"counts": counts_fp}, run_units
+                "units", "units", u, {"counts": counts_fp}, run_units, background=background
             ).fingerprint
             units_path = out / "units" / "units.parquet"
 
@@ -295,6 +309,8 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
                 }
             )
             pmi = strategy == "pmi"
+            if pmi:
+                runner.wait("units")
 
             def run_mask(d: Path, masking: MaskingConfig = masking, pmi: bool = pmi) -> list[str]:
                 write_shards(
@@ -321,6 +337,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
         from ..compare.run import compare_strategies
 
         cc = cfg.compare
+        runner.wait("units")
 
         def run_cmp(d: Path) -> list[str]:
             compare_strategies(
@@ -338,6 +355,7 @@ def _run_stages(cfg: RunConfig, out: Path, *, force: bool, executor: Any, quiet:
         r = runner.stage("compare", "compare", cc, {**inputs, "units": units_fp}, run_cmp)
         compare_doc = read_json(r.output / "compare.json", what="comparison")
 
+    runner.finish()
     result = RunResult(
         output=out,
         config=cfg.path,

@@ -10,9 +10,11 @@ Which stages a run has, and in what order, is `maskprep.pipeline.runner`.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 import shutil
+import threading
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -50,11 +52,13 @@ class StageResult:
     output: Path
     fingerprint: str
     earlier_seconds: float | None = None  # a skipped stage: its time when it last ran (if recorded)
+    beside: tuple[str, ...] = ()  # the stages that ran while this one ran in the background
 
     def timing(self) -> dict[str, Any]:
         """The stage's time for pipeline.json, saying which run it comes from."""
         if self.status == "ran":
-            return {"seconds": round(self.seconds, 3), "seconds_from": "this run"}
+            ran = {"seconds": round(self.seconds, 3), "seconds_from": "this run"}
+            return {**ran, "ran_beside": list(self.beside)} if self.beside else ran
         if self.earlier_seconds is None:
             return {"seconds": None, "seconds_from": "not recorded"}
         return {
@@ -128,10 +132,17 @@ class StageRunner:
     def __init__(self, out: Path, *, force: bool, quiet: bool) -> None:
         self.out, self.force, self.quiet = out, force, quiet
         self.results: list[StageResult] = []
+        self._background: dict[str, _Background] = {}
 
     def stage(self, name: str, subdir: str, options: Any, inputs: dict[str, Any],
-              run: Callable[[Path], Sequence[str]]) -> StageResult:
-        """Run `run(dir)` (returning the files it wrote, relative to dir) unless up to date."""
+              run: Callable[[Path], Sequence[str]], *, background: bool = False) -> StageResult:
+        """Run `run(dir)` (returning the files it wrote, relative to dir) unless up to date.
+
+        With `background`, a stage that must run is started in a thread and this returns at
+        once (status "ran", its time not yet known); `wait(name)` joins it before its output
+        is used, and `finish()` before the run's results are read. Only a stage that computes
+        in the driver alone should run so: it then uses the core the other stages leave idle.
+        """
         d = self.out / subdir
         fp = stage_fingerprint(name, options, inputs)
         record = d / STAGE_FILE
@@ -149,23 +160,60 @@ class StageRunner:
                 self._log(result)
                 self.results.append(result)
                 return result
+        for job in self._background.values():
+            if job.thread.is_alive():
+                job.beside.append(name)
         if d.exists():
             shutil.rmtree(d)
         d.mkdir(parents=True)
         if not self.quiet:
             import sys
 
-            print(f"[{name}] running", file=sys.stderr, flush=True)
-        start = time.monotonic()
-        files = sorted(run(d))
-        seconds = time.monotonic() - start
-        write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
-                                   "inputs": inputs, "code": code_version(), "files": files,
-                                   "seconds": round(seconds, 3)})
-        result = StageResult(name, "ran", seconds, d, fp)
+            where = " in the background, beside the stages that do not need it"
+            print(f"[{name}] running{where if background else ''}", file=sys.stderr, flush=True)
+
+        def work() -> float:
+            start = time.monotonic()
+            files = sorted(run(d))
+            seconds = time.monotonic() - start
+            write_json(record, {"stage": name, "fingerprint": fp, "options": _jsonable(options),
+                                "inputs": inputs, "code": code_version(), "files": files,
+                                "seconds": round(seconds, 3)})
+            return seconds
+
+        result = StageResult(name, "ran", 0.0, d, fp)
+        if background:
+            self._background[name] = _Background(work, len(self.results))
+            self.results.append(result)  # its place in the run's order; times filled by wait()
+            return result
+        result = dataclasses.replace(result, seconds=work())
         self._log(result)
         self.results.append(result)
         return result
+
+    def wait(self, name: str) -> None:
+        """Join the background stage `name` (if one runs), raising what it raised."""
+        job = self._background.pop(name, None)
+        if job is None:
+            return
+        seconds = job.join()
+        result = dataclasses.replace(
+            self.results[job.slot], seconds=seconds, beside=tuple(job.beside)
+        )
+        self.results[job.slot] = result
+        self._log(result)
+
+    def finish(self) -> None:
+        """Join every background stage."""
+        for name in list(self._background):
+            self.wait(name)
+
+    def settle(self) -> None:
+        """After a failure elsewhere: let background stages end, ignoring what they raise (the
+        first failure is the one reported), so none still writes while the run cleans up."""
+        for job in self._background.values():
+            job.thread.join()
+        self._background.clear()
 
     def _log(self, r: StageResult) -> None:
         if not self.quiet:
@@ -173,6 +221,33 @@ class StageRunner:
 
             how = "up to date, skipped" if r.status == "skipped" else f"done in {r.seconds:.1f}s"
             print(f"[{r.name}] {how}: {r.output}", file=sys.stderr, flush=True)
+
+
+class _Background:
+    """One stage's work running in a thread of the driver: its time, or what it raised."""
+
+    def __init__(self, work: Callable[[], float], slot: int) -> None:
+        self.slot = slot
+        self.beside: list[str] = []
+        self._seconds = 0.0
+        self._error: BaseException | None = None
+
+        def target() -> None:
+            try:
+                self._seconds = work()
+            except BaseException as exc:  # handed to the main thread by join()
+                self._error = exc
+
+        # a daemon: Ctrl-C in the main thread ends the run without waiting for this stage,
+        # which then has no record and reruns next time
+        self.thread = threading.Thread(target=target, name="maskprep-stage", daemon=True)
+        self.thread.start()
+
+    def join(self) -> float:
+        self.thread.join()
+        if self._error is not None:
+            raise self._error
+        return self._seconds
 
 
 def files_in(d: Path) -> list[str]:
@@ -202,4 +277,7 @@ def format_run_summary(result: RunResult) -> str:
         rows.append(
             (s.name, s.status, f"{s.seconds:.1f}" if s.status == "ran" else "-", str(where))
         )
-    return format_table(rows, left=(0, 1, 3))
+    table = format_table(rows, left=(0, 1, 3))
+    notes = [f"{s.name} ran in the background beside {', '.join(s.beside)}; its seconds "
+             "overlap theirs" for s in result.stages if s.beside]
+    return "\n".join([table, *notes])
