@@ -19,6 +19,7 @@ from typing import Any
 
 import numpy as np
 
+from .._arrow import arrow_array, arrow_strings
 from ..tokenizer.encoding import EncodedBatch, WordGroups
 from .format import PER_WORD
 
@@ -92,13 +93,13 @@ class TypeIndex:
         flat = np.concatenate(self.ids) if self.ids else np.zeros(0, np.int32)
         cols = {
             "ids": pa.ListArray.from_arrays(
-                pa.array(offsets), pa.array(flat.astype(ids_type.to_pandas_dtype()))
+                arrow_array(offsets), arrow_array(flat.astype(ids_type.to_pandas_dtype()))
             )
         }
         for name, col in PER_WORD.items():
             parts = self.fields[name]
-            cols[col] = pa.array(
+            cols[col] = arrow_array(
                 np.concatenate(parts) if parts else np.zeros(0, _FIELD_DTYPES[name])
             )
-        cols["text"] = pa.array(self.texts, type=pa.string())
+        cols["text"] = arrow_strings(self.texts, large=False)
         return pa.table(cols)

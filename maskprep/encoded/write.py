@@ -34,6 +34,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from .._arrow import arrow_array
 from .._files import atomic_path, atomic_write_json, atomic_write_text, read_json
 from .._resume import RunDir, Stage, claim, file_entry, write_record
 from .._version import __version__
@@ -108,9 +109,11 @@ def _docs_schema() -> Any:
 def _record_batch(batch: EncodedBatch, types: np.ndarray, schema: Any) -> Any:
     import pyarrow as pa
 
-    words = pa.ListArray.from_arrays(pa.array(batch.doc_offsets.astype(np.int32)), pa.array(types))
+    words = pa.ListArray.from_arrays(
+        arrow_array(batch.doc_offsets.astype(np.int32)), arrow_array(types)
+    )
     cols = [words] + [
-        pa.array(np.asarray(getattr(batch, name), dtype=np.int64)) for name in PER_DOC
+        arrow_array(np.asarray(getattr(batch, name), dtype=np.int64)) for name in PER_DOC
     ]
     return pa.RecordBatch.from_arrays(cols, schema=schema)
 
