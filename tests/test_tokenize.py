@@ -355,9 +355,10 @@ def test_distinct_words_equal_numpys_unique_rows(lengths: list[int], vocab: int,
     lens = np.array(lengths, dtype=np.int64)
     ids = rng.integers(0, vocab, size=int(lens.sum())).astype(np.int32)
     offsets = np.r_[0, np.cumsum(lens)].astype(np.int64)
-    packed = grouping._pack(cache, ids, offsets, lens)
-    rows, first, inverse = grouping._distinct(packed, lens, cache.base)
+    packed = grouping._pack(cache, ids, offsets, lens)  # every word packed
+    rows, first, inverse, singles = grouping._distinct_words(cache, ids, offsets, lens)
     want, want_inverse = np.unique(packed, axis=0, return_inverse=True)
     assert np.array_equal(rows, want)
     assert np.array_equal(inverse, want_inverse.ravel())
     assert np.array_equal(packed[first], rows)
+    assert singles == len(np.unique(ids[offsets[:-1][lens == 1]]))

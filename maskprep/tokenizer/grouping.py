@@ -113,6 +113,14 @@ class WordTypeCache:
         self.powers = np.array([self.base ** k for k in range(per)], dtype=np.uint64)
         self.specials = {int(i) for i in special_ids}
         self.decode = decode
+        self._singles: dict[bool, _Singles] = {}
+
+    def singles(self, joined: bool) -> "_Singles":
+        """The one-token words held, by token id + 1 (the tokenizer's, or a segmenter's)."""
+        tab = self._singles.get(joined)
+        if tab is None:
+            tab = self._singles[joined] = _Singles(self.base)
+        return tab
 
     def __len__(self) -> int:
         return len(self.entries)
@@ -140,10 +148,33 @@ class WordTypeCache:
             )
             wt = WordType(key, kind, canon, tuple(int(i) for i in ids))
             self.entries[row] = wt
+            if len(ids) == 1:
+                self.singles(joined).put(int(ids[0]) + 1, wt)
             out.append(wt)
         if len(self.entries) > CACHE_LIMIT:  # bound the cache; it refills as needed
             self.entries.clear()
+            self._singles.clear()
         return out
+
+
+class _Singles:
+    """The types of one-token words of a `WordTypeCache`, by token id + 1, as arrays.
+
+    Most words are one token: their types are looked up by indexing instead of by key.
+    A word is here exactly when its key is in the cache's `entries`.
+    """
+
+    def __init__(self, base: int) -> None:
+        self.types: list[WordType | None] = [None] * base
+        self.known = np.zeros(base, dtype=bool)
+        self.key = np.zeros(base, dtype=np.uint64)
+        self.kind = np.zeros(base, dtype=np.int8)
+        self.chars = np.zeros(base, dtype=np.int32)
+
+    def put(self, value: int, wt: WordType) -> None:
+        self.types[value] = wt
+        self.known[value] = True
+        self.key[value], self.kind[value], self.chars[value] = wt.key, wt.kind, len(wt.text)
 
 
 @dataclass(frozen=True)
@@ -206,12 +237,22 @@ def group_tokens(cache: WordTypeCache, ids: np.ndarray, starts: np.ndarray,
                              np.zeros(0, np.int8), np.zeros(0, np.int32))
         return batch, WordGroups(np.zeros((0, 1), np.uint64), [], [], empty, empty)
     lengths = np.diff(word_offsets)
-    packed = _pack(cache, ids, word_offsets, lengths)
-    rows, first, inverse = _distinct(packed, lengths, cache.base)
+    rows, first, inverse, n1 = _distinct_words(cache, ids, word_offsets, lengths)
     keys = _row_keys(rows, (lengths[first] + cache.per_column - 1) // cache.per_column)
     if joined:
         keys = [_JOINED + k for k in keys]
-    types: list[WordType | None] = list(map(cache.entries.get, keys))
+    U = len(keys)
+    singles = cache.singles(joined)
+    one = rows[:n1, 0].astype(np.int64)  # the one-token words come first, by id
+    known = np.zeros(U, dtype=bool)
+    known[:n1] = singles.known[one]
+    type_key, type_kind, type_chars = (np.zeros(U, np.uint64), np.zeros(U, np.int8),
+                                       np.zeros(U, np.int32))
+    type_key[:n1], type_kind[:n1], type_chars[:n1] = (  # read before `add` may clear them
+        singles.key[one], singles.kind[one], singles.chars[one])
+    entries = cache.entries
+    types: list[WordType | None] = [singles.types[v] for v in one.tolist()]
+    types += map(entries.get, keys[n1:])
     missing = [i for i, t in enumerate(types) if t is None]
     if missing:
         id_lists = [ids[word_offsets[w]:word_offsets[w + 1]].tolist()
@@ -219,10 +260,12 @@ def group_tokens(cache: WordTypeCache, ids: np.ndarray, starts: np.ndarray,
         for i, t in zip(missing, cache.add([keys[i] for i in missing], id_lists, joined)):
             types[i] = t
     found: list[WordType] = types  # type: ignore[assignment]  # every entry is set now
-    U = len(found)
-    type_key = np.fromiter((t.key for t in found), dtype=np.uint64, count=U)
-    type_kind = np.fromiter((t.kind for t in found), dtype=np.int8, count=U)
-    type_chars = np.fromiter((len(t.text) for t in found), dtype=np.int32, count=U)
+    rest = np.flatnonzero(~known)  # the types not read from the one-token tables
+    if len(rest):
+        picked = [found[i] for i in rest.tolist()]
+        type_key[rest] = np.fromiter((t.key for t in picked), np.uint64, len(picked))
+        type_kind[rest] = np.fromiter((t.kind for t in picked), np.int8, len(picked))
+        type_chars[rest] = np.fromiter((len(t.text) for t in picked), np.int32, len(picked))
     batch = EncodedBatch(ids, word_offsets, doc_offsets, type_key[inverse], type_kind[inverse],
                          type_chars[inverse])
     return batch, WordGroups(rows, keys, found, first, inverse)
@@ -245,38 +288,42 @@ def _pack(cache: WordTypeCache, ids: np.ndarray, word_offsets: np.ndarray,
     return keys.reshape(W, ncols)
 
 
-def _distinct(packed: np.ndarray, lengths: np.ndarray,
-              base: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """`unique_rows` of packed words, without sorting most of them.
+def _distinct_words(cache: WordTypeCache, ids: np.ndarray, word_offsets: np.ndarray,
+                    lengths: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """`unique_rows` of the words packed by `_pack`, packing only the words of 2+ tokens.
 
-    One-token words (most words) are found with a table over the vocabulary; the others
-    are sorted, one-column words apart from the few long ones. The result has the same
-    distinct rows in the same (lexicographic) order and the same inverse; `first` may name
-    another occurrence of a word, which holds the same ids.
+    One-token words (most words) are found with a table over the vocabulary; their rows
+    (id + 1, then zeros) sort before every longer word's, whose first column is at least
+    the base. Returns the distinct rows in lexicographic order, for each a word holding it
+    (`first`: any occurrence), the distinct row of every word, and how many rows are of one
+    token (they come first).
     """
-    W, C = packed.shape
+    W = len(lengths)
     one = lengths == 1
-    oi, ri = np.flatnonzero(one), np.flatnonzero(~one)
-    vals = packed[oi, 0].astype(np.int64)  # id + 1, below `base`
-    present = np.zeros(base, dtype=bool)
+    oi = np.flatnonzero(one)
+    vals = ids[word_offsets[oi]].astype(np.int64) + 1  # id + 1, below `base`
+    present = np.zeros(cache.base, dtype=bool)
     present[vals] = True
     o_rows = np.flatnonzero(present)
     rank = np.cumsum(present) - 1
-    where = np.empty(base, dtype=np.int64)
+    where = np.empty(cache.base, dtype=np.int64)
     where[vals] = oi  # some occurrence of each
-    r_rows, r_first, r_inv = _sorted_distinct(packed[ri])
     n1 = len(o_rows)
-    rows = np.zeros((n1 + len(r_rows), C), dtype=np.uint64)
+    inverse = np.empty(W, dtype=np.int64)
+    inverse[oi] = rank[vals]
+    if len(oi) == W:
+        return o_rows.astype(np.uint64).reshape(n1, 1), where[o_rows], inverse, n1
+    ri = np.flatnonzero(~one)
+    m_lengths = lengths[ri]
+    m_offsets = np.zeros(len(ri) + 1, dtype=np.int64)
+    np.cumsum(m_lengths, out=m_offsets[1:])
+    packed = _pack(cache, ids[np.repeat(~one, lengths)], m_offsets, m_lengths)
+    r_rows, r_first, r_inv = _sorted_distinct(packed)
+    rows = np.zeros((n1 + len(r_rows), packed.shape[1]), dtype=np.uint64)
     rows[:n1, 0] = o_rows
     rows[n1:] = r_rows
-    first = np.concatenate([where[o_rows], ri[r_first]])
-    order = np.argsort(rows[:, 0]) if C == 1 else np.lexsort(rows.T[::-1])
-    place = np.empty(len(order), dtype=np.int64)
-    place[order] = np.arange(len(order), dtype=np.int64)
-    inverse = np.empty(W, dtype=np.int64)
-    inverse[oi] = place[rank[vals]]
-    inverse[ri] = place[n1 + r_inv]
-    return rows[order], first[order], inverse
+    inverse[ri] = n1 + r_inv
+    return rows, np.concatenate([where[o_rows], ri[r_first]]), inverse, n1
 
 
 def _sorted_distinct(packed: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
