@@ -4,7 +4,8 @@ One spawn pool per worker count is kept for the life of the process, so the stag
 of a run share warm workers. ``--workers N`` starts N - 1 pool processes: the driver
 is the N-th worker (`ordered` runs a task itself whenever no result is ready), so its
 tasks start at once while the pool's processes are still importing. Each pool
-process runs one tokenizer thread and no encoding look-ahead thread, ignores Ctrl-C
+process runs one tokenizer thread and no encoding look-ahead thread, keeps freed memory for
+reuse (`maskprep._malloc`), ignores Ctrl-C
 (the driver handles it and kills the pool) and, on Linux, dies with the driver.
 This module imports no stage.
 """
@@ -22,6 +23,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Callable, Iterator, Sequence
 
+from ._malloc import reuse_freed_memory
 from .errors import MaskprepError, os_error_text
 from .progress import Progress
 
@@ -72,6 +74,7 @@ def _worker_init(parent: int) -> None:
     driver."""
     os.environ.update(ONE_THREAD)
     no_lookahead()
+    reuse_freed_memory()
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     if sys.platform.startswith("linux"):
         try:

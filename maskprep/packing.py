@@ -37,6 +37,7 @@ module does not mask, choose units or write files (see masking.py, shards.py).
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from typing import Iterable, Iterator
 
@@ -160,6 +161,31 @@ class TaskPacker:
                 yield self._rows(tuple(a[:full] for a in stream), np.array([full], dtype=np.int64))
         elif len(seg_lengths):
             yield self._rows(stream, seg_lengths)
+
+    def enough(self, batch: EncodedBatch, rows: int) -> EncodedBatch:
+        """The first documents of `batch` that complete `rows` more sequences, or all of it.
+
+        `add` yields the same first `rows` sequences from them as from the whole batch, so a
+        caller that needs only a few sequences (compare's sample) packs no more than those.
+        (`crossing_tokens` of the part returned stays the whole batch's; packing does not read
+        it.)
+        """
+        doc_len = np.diff(batch.token_doc_offsets())
+        piece = self.config.seq_len - 1
+        if self.config.pack:  # rows completed by the stream up to each document's separator
+            carry = 0 if self._carry is None else len(self._carry[0])
+            made = (carry + np.cumsum(doc_len + (doc_len > 0))) // piece
+        else:  # each document's own rows
+            made = np.cumsum(-(-(doc_len + (doc_len % piece != 0)) // piece))
+        docs = int(np.searchsorted(made, rows)) + 1
+        if docs >= batch.num_docs:
+            return batch
+        words = int(batch.doc_offsets[docs])
+        return dataclasses.replace(
+            batch, ids=batch.ids[:int(batch.word_offsets[words])],
+            word_offsets=batch.word_offsets[:words + 1], doc_offsets=batch.doc_offsets[:docs + 1],
+            word_keys=batch.word_keys[:words], word_kinds=batch.word_kinds[:words],
+            word_chars=batch.word_chars[:words])
 
     def finish(self) -> Iterator[PackedBatch]:
         """Emit the last, padded sequence of the task (packed mode), if any."""

@@ -132,6 +132,30 @@ def test_batch_boundaries_do_not_change_the_sequences(info, docs):
         assert np.array_equal(whole[k], split[k]), k
 
 
+@pytest.mark.parametrize("pack", [True, False])
+@pytest.mark.parametrize("rows", [1, 5, 17, 10_000])
+def test_enough_documents_give_the_same_first_sequences(info, docs, pack, rows):
+    # the rows packed from `TaskPacker.enough`'s documents equal the first rows of the whole
+    # batches (compare packs only the sequences of its sample)
+    whole, _ = packed(info, docs, 33, pack, batch_docs=50)
+    packer = TaskPacker(info, PackingConfig(seq_len=33, pack=pack), task_index=0)
+    got: list = []
+    for i in range(0, len(docs), 50):
+        if packer.sequences >= rows:
+            break
+        batch = packer.enough(info.encode(docs[i:i + 50]), rows - packer.sequences)
+        got += packer.add(batch)
+    if packer.sequences < rows:
+        got += packer.finish()
+    for k in ("input_ids", "word_ids", "attention_mask", "sequence_ids"):
+        first = np.concatenate([getattr(p, k) for p in got])
+        n = min(rows, len(whole[k]))
+        assert len(first) >= n and np.array_equal(first[:n], whole[k][:n]), k
+    keys = np.concatenate([p.word_keys[:, :1] for p in got])  # first word of each row
+    full = np.concatenate([p.word_keys[:, :1] for p in packed(info, docs, 33, pack, 50)[1]])
+    assert np.array_equal(keys[:n], full[:n])
+
+
 def test_sequence_ids_are_task_index_and_position(info, docs):
     got, batches = packed(info, docs, 64, True, batch_docs=50, task_index=3)
     n = len(got["sequence_ids"])

@@ -22,8 +22,10 @@ __all__ = ["cli", "main"]
 def main() -> None:
     """Console-script entry point: Ctrl-C exits 130 within 2 s (see `maskprep._interrupt`)."""
     from .. import _interrupt
+    from .._malloc import reuse_freed_memory
 
     _interrupt.install()
+    reuse_freed_memory()
     code: Any = 0
     try:
         cli(obj={})

@@ -356,10 +356,17 @@ class UnitTable:
         raise RuntimeError("could not find a collision-free hash salt for the unit vocabulary")
 
 
+_WINDOW_MUL = _U64(_M1)  # odd: h -> h * _WINDOW_MUL + x is a bijection for each x
+
+
 def _ngram_hash(keys: np.ndarray, salt: int) -> np.ndarray:
-    h = absorb(salt, keys[:, 0])
+    """Lookup hash of n-grams, uint64 (m,): each word key mixed with the salt, then combined
+    as h * _WINDOW_MUL + next (2 operations per word, so every window of a batch is cheap)."""
+    mixed = absorb(salt, keys)
+    h = mixed[:, 0].copy()
     for i in range(1, keys.shape[1]):
-        h = absorb(h, keys[:, i])
+        h *= _WINDOW_MUL
+        h += mixed[:, i]
     return h
 
 
@@ -411,11 +418,13 @@ def ngram_scores(special: np.ndarray, word_ids: np.ndarray, word_keys: np.ndarra
     first = np.where(kinds != 0, col + 1, np.where(brk, col, 0)).astype(np.int32)
     run = col - np.maximum.accumulate(first, axis=1) + 1
     out: dict[int, np.ndarray] = {}
-    h = absorb(table.salt, keys)
+    mixed = absorb(table.salt, keys)
+    h = mixed
     for n in range(2, table.max_n + 1):
         if Lw < n:
             break
-        h = absorb(h[:, :-1], keys[:, n - 1:])  # window ending at j = column + n - 1
+        h = h[:, :-1] * _WINDOW_MUL  # as _ngram_hash: the window ending at j = column + n - 1
+        h += mixed[:, n - 1:]
         t = table.tables.get(n)
         if t is None:
             continue

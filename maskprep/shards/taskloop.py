@@ -98,6 +98,8 @@ class TaskLoop:
 
         def all_batches() -> Iterator[PackedBatch]:
             for encoded in self.reader:
+                if quota is not None:  # only the documents the quota's sequences need
+                    encoded = packer.enough(encoded, quota - self.sequences)
                 yield from packer.add(encoded)
             yield from packer.finish()
 

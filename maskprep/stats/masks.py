@@ -33,15 +33,41 @@ import numpy as np
 
 from ..masking.sampler import IGNORE_LABEL
 
-__all__ = ["MaskStats", "batch_stats"]
+__all__ = ["MaskStats", "batch_stats", "leaked_targets"]
 
 
 def _add_hist(hist: dict[int, int], values: np.ndarray) -> None:
     if values.size == 0:
         return
-    keys, counts = np.unique(values, return_counts=True)
+    if values.min() >= 0 and values.max() < _SMALL:  # unit lengths: counted without a sort
+        counts = np.bincount(values)
+        keys = np.flatnonzero(counts)
+        counts = counts[keys]
+    else:
+        keys, counts = np.unique(values, return_counts=True)
     for k, c in zip(keys.tolist(), counts.tolist()):
         hist[k] = hist.get(k, 0) + c
+
+
+_SMALL = 1 << 16
+
+
+def leaked_targets(target: np.ndarray, maskable: np.ndarray, word_ids: np.ndarray,
+                   tb: np.ndarray, tt: np.ndarray) -> int:
+    """Targets whose word keeps a maskable token that is not a target (all arrays (B, L);
+    `word_ids` may be any grouping of the tokens, -1 outside; ``tb, tt = np.nonzero(target)``).
+
+    >>> leaked_targets(np.array([[0, 1, 0]], bool), np.array([[0, 1, 1]], bool),
+    ...                np.array([[-1, 0, 0]]), np.array([0]), np.array([1]))
+    1
+    """
+    if tb.size == 0:
+        return 0
+    Lw = int(word_ids.max(initial=-1)) + 1
+    vb, vt = np.nonzero(maskable & ~target)
+    visible = np.zeros(target.shape[0] * Lw, dtype=bool)
+    visible[vb * Lw + word_ids[vb, vt]] = True
+    return int(visible[tb * Lw + word_ids[tb, tt]].sum())
 
 
 def _merge_hist(into: dict[int, int], other: Mapping[int, int]) -> None:
@@ -115,7 +141,6 @@ class MaskStats:
         self.keep += int(is_keep.sum())
         self.random += int(tb.size - is_mask.sum() - is_keep.sum())
 
-        Lw = int(word_ids.max(initial=-1)) + 1
         self.words += int((word_ids.max(axis=1, initial=-1) + 1).sum())
         if tb.size == 0:
             return
@@ -134,10 +159,7 @@ class MaskStats:
         _add_hist(self.unit_words, word_len)
         self.multiword_targets += int(tok_len[word_len >= 2].sum())
         # leakage: a target whose word has a maskable, untargeted token
-        vb, vt = np.nonzero(maskable & ~target)
-        visible = np.zeros(B * Lw, dtype=bool)
-        visible[vb * Lw + word_ids[vb, vt]] = True
-        self.leaked_targets += int(visible[tb * Lw + wt].sum())
+        self.leaked_targets += leaked_targets(target, maskable, word_ids, tb, tt)
 
     def merge(self, other: "MaskStats") -> None:
         """Add another accumulator (e.g. of another task) into this one."""

@@ -15,8 +15,8 @@ the figures a strategy comparison needs beyond ``stats.json``:
 - ``within_unit_leakage``: share of targets whose vocabulary unit (a group of
   tokens given as ``group_ids``, e.g. the pmi segmentation of the same words)
   keeps a maskable token that is not a target. It is counted by
-  `MaskStats` itself, with the groups in place of words, so word leakage and
-  unit leakage are one computation.
+  `masks.leaked_targets`, MaskStats' word leakage with the groups in place of
+  words, so word leakage and unit leakage are one computation.
 
 `targets_per_sequence` reads the per-row target counts `MaskStats` already
 keeps. Word frequencies are kept per distinct word key, so memory grows with
@@ -34,7 +34,7 @@ import numpy as np
 
 from ..masking.sampler import IGNORE_LABEL
 from .._checks import sum_by_key
-from .masks import MaskStats
+from .masks import MaskStats, leaked_targets
 
 __all__ = ["TargetStats", "targets_per_sequence", "TARGET_BANDS", "TOP_WORDS"]
 
@@ -156,12 +156,11 @@ class TargetStats:
         self.targets += int(target.sum())
         if group_ids is not None:
             # leakage of `group_ids` = MaskStats' within-word leakage with groups as words
-            view = MaskStats()
-            view.add(masked_ids=masked_ids, labels=labels, unit_ids=unit_ids, word_ids=group_ids,
-                     attention_mask=attention_mask, mask_token_id=mask_token_id)
+            tb, tt = np.nonzero(target)
             self.group_rows += B
-            self.unit_targets += view.targets
-            self.unit_leaked += view.leaked_targets
+            self.unit_targets += int(tb.size)
+            self.unit_leaked += leaked_targets(target, maskable, np.asarray(group_ids, np.int64),
+                                               tb, tt)
         words = _batch_words(ident, word_ids, keys, kinds, maskable)
         self.punct_words += words.punct_words
         self.punct_tokens += words.punct_tokens
