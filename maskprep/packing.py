@@ -204,10 +204,16 @@ class TaskPacker:
         W = len(lengths)
         word_of_token = np.repeat(np.arange(W, dtype=np.int64), lengths)
         tok_special = np.isin(ids, self.special_ids)
-        has_normal = np.bincount(word_of_token[~tok_special], minlength=W) > 0
+        literal = bool(tok_special.any())  # special tokens inside the text (rare)
+        if literal:
+            has_normal = np.bincount(word_of_token[~tok_special], minlength=W) > 0
+        else:  # every word with a token has a normal one
+            has_normal = lengths > 0
         numbers = np.cumsum(has_normal, dtype=np.int64) - 1 + self._word_base
         self._word_base += int(has_normal.sum())
-        word = np.where(tok_special, -1, numbers[word_of_token])
+        word = numbers[word_of_token]
+        if literal:
+            word = np.where(tok_special, -1, word)
         kinds_w = np.where(batch.word_kinds == WORD, 0, 1).astype(np.int8)  # PUNCT, SPACE -> 1
         key = np.asarray(batch.word_keys, dtype=np.uint64)[word_of_token]
         kind = kinds_w[word_of_token]

@@ -187,13 +187,15 @@ class TargetStats:
         for name in _COUNTERS:
             setattr(self, name, getattr(self, name) + getattr(other, name))
         self._pending.append((other.keys, other.words, other.tokens, other.hits))
-        self._flush()
+        self._pending_rows += len(other.keys)
+        if self._pending_rows > _FLUSH_ROWS:  # else summed at the next read: one sort in all
+            self._flush()
 
     def to_state(self) -> dict[str, Any]:
         """A picklable, JSON-able form; `TargetStats.from_state` reads it back."""
         self._flush()
         out: dict[str, Any] = {k: getattr(self, k) for k in _COUNTERS}
-        out["keys"] = [int(k) for k in self.keys.tolist()]
+        out["keys"] = self.keys.tolist()  # Python ints
         for k in ("words", "tokens", "hits"):
             out[k] = getattr(self, k).tolist()
         return out
