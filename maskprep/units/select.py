@@ -54,7 +54,7 @@ from .filters import DEFAULT_EDGE_WORDS, DEFAULT_FRAGMENT_SHARE, edge_ok, freque
 from .options import DEFAULT_MEASURE, DEFAULT_TOP, OPTION_HELP, UnitOptions, check_options, \
     parse_per_length, quotas
 from .retarget import unit_token_ids, word_splitting
-from .._arrow import arrow_array, numpy_of
+from .._arrow import arrow_array, arrow_strings, numpy_of
 from ..errors import MaskprepError
 from ..progress import Progress
 
@@ -172,9 +172,11 @@ def build_units(
     dropped = {"edge": 0, "fragment": 0}
     with Progress("units", total=last, unit="lengths", quiet=quiet) as progress:
         for k in range(1, last + 1):
-            keys, counts, text = read_ngrams(counts_dir, k, with_text=k in lengths or
-                                              (k == 1 and options.edge_words > 0))
+            # the texts of longer n-grams are their words' texts joined by one space (the counts
+            # format), so only the chosen ones are made, from the words' texts (see _joined)
+            keys, counts, text = read_ngrams(counts_dir, k, with_text=k == 1)
             if k == 1:
+                words = (keys[:, 0].copy(), text.combine_chunks())
                 if int(counts.sum()) > N:
                     raise MaskprepError(
                         f"{counts_dir / 'ngrams-1.parquet'}: word counts add up to more than "
@@ -194,17 +196,17 @@ def build_units(
                 raise MaskprepError(f"{counts_dir / f'ngrams-{k}.parquet'}: {exc}") from None
             if k - 1 in pending:  # the fragments of length k - 1 need these k-grams
                 scored = pending.pop(k - 1)
-                candidates[k - 1] = _finish(options, scored, index, dropped)
+                candidates[k - 1] = _finish(options, scored, index, words, dropped)
             if k in lengths:
                 pending[k] = _score_length(
-                    options, counts_dir, k, keys, counts, text, index, N, edge_keys, dropped
+                    options, counts_dir, k, keys, counts, index, N, edge_keys, dropped
                 )
             progress.advance(1)
     for (
         k,
         scored,
     ) in pending.items():  # the longest counted length: no longer n-grams to compare with
-        candidates[k] = _finish(options, scored, None, dropped)
+        candidates[k] = _finish(options, scored, None, words, dropped)
     chosen = _ranked(_select(options, candidates))
     texts: list[str] = chosen.column("text").cast(pa.string()).to_pylist()
     n_arr = numpy_of(chosen.column("n")).astype(np.int64)
@@ -240,7 +242,6 @@ class _Scored:
     ids: np.ndarray  # their ids in the NgramIndex
     counts: np.ndarray
     score: np.ndarray
-    text: Any  # arrow strings, aligned with keys
 
 
 def _score_length(
@@ -249,14 +250,14 @@ def _score_length(
     n: int,
     keys: np.ndarray,
     counts: np.ndarray,
-    text: Any,
     index: NgramIndex,
     N: int,
     edge_keys: np.ndarray,
     dropped: dict[str, int],
 ) -> _Scored:
     idx = np.flatnonzero(counts >= options.min_count)
-    keys, counts = keys[idx], counts[idx]
+    if len(idx) < len(counts):  # (no copies when every n-gram is kept, the default)
+        keys, counts = keys[idx], counts[idx]
     ids = index.row_ids[n - 1][idx]
     parts = (index.prefix[n - 1][ids], index.suffix[n - 1][ids])
     try:
@@ -275,15 +276,14 @@ def _score_length(
     edges = edge_ok(keys, edge_keys)
     dropped["edge"] += int((ok & ~edges).sum())
     sel = np.flatnonzero(ok & edges)
-    return _Scored(
-        n, keys[sel], ids[sel], counts[sel], score[sel], text.take(arrow_array(idx[sel]))
-    )
+    return _Scored(n, keys[sel], ids[sel], counts[sel], score[sel])
 
 
 def _finish(
     options: UnitOptions,
     s: _Scored,
     index: NgramIndex | None,
+    words: tuple[np.ndarray, Any],
     dropped: dict[str, int],
 ) -> tuple[np.ndarray, Any]:
     """Drop fragments (given an index holding the (n+1)-grams), keep the best `top` and their
@@ -305,13 +305,31 @@ def _finish(
             | ((score[sel] == score[best]) & (counts[sel] >= counts[best]))
         ]
     table = pa.table({
-        "text": s.text.take(arrow_array(sel)),
+        "text": _joined(words, s.keys[sel]),
         "n": arrow_array(np.full(len(sel), s.n, dtype=np.int64)),
         "count": arrow_array(counts[sel]),
         "score": arrow_array(score[sel]),
         "row": arrow_array(np.arange(len(sel), dtype=np.int64)),
     })
     return s.keys[sel], _ranked(table)
+
+
+def _joined(words: tuple[np.ndarray, Any], keys: np.ndarray) -> Any:
+    """The texts of n-grams (rows of word keys): their words' texts joined by one space, as
+    ``maskprep count`` writes them; `words` are the 1-gram keys and their texts."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    m, n = keys.shape
+    pos = pc.index_in(arrow_array(np.ascontiguousarray(keys).ravel()),
+                      value_set=arrow_array(words[0]))
+    if pos.null_count:  # not reached: scoring already found every word in the 1-gram counts
+        raise MaskprepError("corrupt counts: an n-gram word is missing from the 1-gram counts")
+    flat = words[1].take(pos)
+    lists = pa.LargeListArray.from_arrays(
+        arrow_array(np.arange(0, m * n + 1, n, dtype=np.int64)), flat
+    )
+    return pc.binary_join(lists, arrow_strings([" "])[0])
 
 
 def _select(options: UnitOptions, candidates: Mapping[int, tuple[np.ndarray, Any]]) -> Any:
