@@ -49,7 +49,7 @@ from ..wording import name_files, plural
 from ..execute import Executor, map_tasks, pool_running, start_workers
 from .._files import file_sha256, fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
-from .task import CountTask, group_tasks
+from .task import group_tasks
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
 from ..tokenizer.encoding import TokenizerInfo, warn_literal_specials
 
@@ -123,8 +123,7 @@ def count_ngrams(
     executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
     task_options = corpus_options if source.encoded else dataclasses.replace(
         corpus_options, chunk_bytes=min(corpus_options.chunk_bytes or TASK_BYTES, TASK_BYTES))
-    tasks = (group_tasks(source.tasks, ENCODED_TASK_BYTES) if source.encoded
-             else [CountTask(t.index, (t,)) for t in source.tasks])
+    tasks = group_tasks(source.tasks, ENCODED_TASK_BYTES)
     share = task_share(config, executor, len(tasks))
     fingerprint = source.fingerprint
     identity = count_state.run_identity(

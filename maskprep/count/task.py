@@ -16,7 +16,7 @@ from typing import Iterator, Sequence
 
 import numpy as np
 
-from .._arrow import arrow_array, arrow_strings
+from .._arrow import arrow_strings
 from ..corpus.reader import CorpusOptions
 from ..encoded.format import WordTable
 from ..encoded.source import SourceTask, TaskReader
@@ -28,7 +28,7 @@ from ..tokenizer.encoding import (
     shared_tokenizer,
     tokenizer_from_json,
 )
-from .files import Vocabulary, collision_error
+from .files import Vocabulary, collision_error, take_strings
 from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, reduce_rows
 from .spills import SpillFile, SpillWriter, disk_error
 from .types import CountConfig, TaskCounts
@@ -60,26 +60,37 @@ class CountTask:
 
 def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTask]:
     """Consecutive source tasks in groups of about equal weight, each about `group_bytes` at most
-    (a task heavier than that alone).
+    (a task heavier than that alone); a group of raw tasks stays within one corpus file, so a
+    count of several files keeps a task (and a resume record) per file at least.
 
-    The groups depend only on the tasks' weights, never on --memory or --workers, so a
-    resumed count finds the same tasks.
+    The groups depend only on the tasks, never on --memory or --workers, so a resumed
+    count finds the same tasks.
 
     >>> [len(g.parts) for g in group_tasks(tasks_of_1mb_each[:10], 4 << 20)]  # doctest: +SKIP
     [4, 3, 3]
     """
-    weights = np.array([t.weight for t in tasks], np.float64)
-    total = float(weights.sum())
-    k = max(1, min(len(tasks), int(np.ceil(total / group_bytes)))) if len(tasks) else 0
-    # cut where the running weight crosses each multiple of total / k
-    mids = np.cumsum(weights) - weights / 2
-    group = np.minimum((mids * k / max(total, 1e-9)).astype(np.int64), k - 1) if k else mids
     groups: list[CountTask] = []
-    for g in range(k):
-        parts = tuple(t for t, gi in zip(tasks, group.tolist()) if gi == g)
-        if parts:
-            groups.append(CountTask(len(groups), parts))
+    start = 0
+    for end in range(1, len(tasks) + 1):
+        if end < len(tasks) and _file_of(tasks[end]) == _file_of(tasks[start]):
+            continue
+        run = tasks[start:end]
+        weights = np.array([t.weight for t in run], np.float64)
+        total = float(weights.sum())
+        k = max(1, min(len(run), int(np.ceil(total / group_bytes))))
+        # task i goes to the group where the middle of its weight falls, of k equal shares
+        mids = np.cumsum(weights) - weights / 2
+        share = np.minimum((mids * k / max(total, 1e-9)).astype(np.int64), k - 1)
+        for g in range(k):
+            parts = tuple(t for t, gi in zip(run, share.tolist()) if gi == g)
+            if parts:
+                groups.append(CountTask(len(groups), parts))
+        start = end
     return groups
+
+
+def _file_of(task: SourceTask) -> str | None:
+    return task.raw.path if task.raw is not None else None
 
 
 def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -269,7 +280,7 @@ class ChunkCounter:
         texts under one key) when the task finishes."""
         keys, kinds = table.fields["word_keys"], table.fields["word_kinds"]
         sel = np.flatnonzero(kinds == WORD)
-        self._tables.append((keys[sel], table.texts.take(arrow_array(sel))))
+        self._tables.append((keys[sel], take_strings(table.texts, sel)))
 
     def abort(self) -> None:
         """Drop the buffer (files are removed with the spill directory)."""
