@@ -6,8 +6,10 @@ nothing); punctuation-only and special words are not counted and break
 n-grams; n-grams never cross documents. N is the number of counted word
 positions, and every count divides by N.
 
-How: the corpus is split into tasks (`corpus.plan_tasks`). `count_task`
-encodes a task batch by batch and counts all n = 1..max_n at once with numpy
+How: the corpus is split into tasks (`corpus.plan_tasks`, or an encoded directory's),
+consecutive tasks are counted in groups of about ``ENCODED_TASK_BYTES`` of text
+(`task.group_tasks`: fewer spilled rows and files). `count_task` encodes (or reads)
+a group batch by batch and counts all n = 1..max_n at once with numpy
 (`ngram_kernels.count_block`), buffers the distinct n-grams per coarse key range,
 and when its share of ``--memory`` is used, reduces the buffer and spills one
 sorted run per n to ``COUNTS_DIR/.maskprep-count/`` (each finished task is
