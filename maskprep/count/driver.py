@@ -6,7 +6,7 @@ nothing); punctuation-only and special words are not counted and break
 n-grams; n-grams never cross documents. N is the number of counted word
 positions, and every count divides by N.
 
-How: the corpus is split into tasks (`corpus.plan_tasks`, or an encoded directory's),
+How: the corpus is split into tasks (`corpus.plan_tasks`); an encoded directory's
 consecutive tasks are counted in groups of about ``ENCODED_TASK_BYTES`` of text
 (`task.group_tasks`: fewer spilled rows and files). `count_task` encodes (or reads)
 a group batch by batch and counts all n = 1..max_n at once with numpy
@@ -51,7 +51,7 @@ from ..wording import name_files, plural
 from ..execute import Executor, map_tasks, pool_running, start_workers
 from .._files import file_sha256, fsynced_write_text
 from .files import Vocabulary, publish, write_ngrams
-from .task import group_tasks
+from .task import CountTask, group_tasks
 from .spills import MergeJob, PartitionResult, disk_error, merge_partition, plan_merges
 from ..tokenizer.encoding import TokenizerInfo, warn_literal_specials
 
@@ -125,7 +125,10 @@ def count_ngrams(
     executor = dataclasses.replace(executor, quiet=executor.quiet or quiet)
     task_options = corpus_options if source.encoded else dataclasses.replace(
         corpus_options, chunk_bytes=min(corpus_options.chunk_bytes or TASK_BYTES, TASK_BYTES))
-    tasks = group_tasks(source.tasks, ENCODED_TASK_BYTES)
+    # an encoded directory's small tasks in groups; raw tasks one by one, so an error names
+    # the part of the file at fault
+    tasks = (group_tasks(source.tasks, ENCODED_TASK_BYTES) if source.encoded
+             else [CountTask(t.index, (t,)) for t in source.tasks])
     share = task_share(config, executor, len(tasks))
     fingerprint = source.fingerprint
     identity = count_state.run_identity(
