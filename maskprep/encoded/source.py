@@ -91,6 +91,7 @@ class Source:
     options: CorpusOptions          # the reading options (those of the encoded directory, if one)
     tasks: tuple[SourceTask, ...]
     manifest: EncodedManifest | None = None
+    task_bytes: int | None = None   # the size the raw corpus was split by (None if encoded)
 
     @property
     def encoded(self) -> bool:
@@ -173,11 +174,12 @@ def _check_options(
 
 
 def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = None, *,
-                task_bytes: int | None = None) -> Source:
+                task_bytes: int | None = None, min_task_bytes: int | None = None) -> Source:
     """A stage's CORPUS arguments as a `Source`: ``open_source(["enc/"]).encoded`` -> True.
 
-    `task_bytes` caps the size of the raw corpus tasks (count uses smaller tasks); an encoded
-    directory keeps the tasks it was written with.
+    `task_bytes` caps the size of the raw corpus tasks (count uses smaller tasks);
+    `min_task_bytes` raises the default (balanced) size of small ones, unless the options
+    name a chunk size. An encoded directory keeps the tasks it was written with.
     """
     options = options or CorpusOptions()
     names = [str(i) for i in inputs]
@@ -201,11 +203,16 @@ def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = No
             tuple(names), tuple(m.corpus["files"]), str(m.corpus["fingerprint"]), opts, tasks, m
         )
     files = resolve_inputs(names)
+    chosen = options.chunk_bytes is not None
     # recorded as a number
     options = dataclasses.replace(options, chunk_bytes=task_size(files, options))
     assert options.chunk_bytes is not None
-    task_opts = options if task_bytes is None else dataclasses.replace(
-        options, chunk_bytes=min(options.chunk_bytes, task_bytes))
+    size = options.chunk_bytes
+    if min_task_bytes is not None and not chosen:
+        size = max(size, min_task_bytes)
+    if task_bytes is not None:
+        size = min(size, task_bytes)
+    task_opts = dataclasses.replace(options, chunk_bytes=size)
     planned = plan_tasks(files, task_opts)
     weights = task_weights(planned)
     tasks = tuple(
@@ -220,6 +227,7 @@ def open_source(inputs: Sequence[str | Path], options: CorpusOptions | None = No
         corpus_fingerprint(files, options),
         options,
         tasks,
+        task_bytes=size,
     )
 
 
