@@ -115,9 +115,9 @@ def count_ngrams(
 
     started = time.monotonic()
     output = Path(output)
-    # raw text in tasks of at least ENCODED_TASK_BYTES unless CorpusOptions.chunk_bytes says otherwise: one
-    # word-type cache and one set of spills per 4 MiB instead of per 1 MiB (about 1 CPU-s per
-    # 21 MB); an error still names the task's own byte range
+    # raw text in tasks of at least ENCODED_TASK_BYTES unless CorpusOptions.chunk_bytes names
+    # a size: one word-type cache and one set of spills per 4 MiB instead of per 1 MiB (about
+    # 1 CPU-s per 21 MB); an error still names the task's own byte range
     source = open_source(list(corpus), corpus_options, task_bytes=TASK_BYTES,
                          min_task_bytes=ENCODED_TASK_BYTES)
     source.check_words(config.words)
