@@ -59,9 +59,8 @@ class CountTask:
 
 
 def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTask]:
-    """Consecutive source tasks in groups of about equal weight, each about `group_bytes` at most
-    (a task heavier than that alone); a group of raw tasks stays within one corpus file, so a
-    count of several files keeps a task (and a resume record) per file at least.
+    """Consecutive source tasks (an encoded directory's) in groups of about equal weight, each
+    about `group_bytes` at most (a task heavier than that alone).
 
     The groups depend only on the tasks, never on --memory or --workers, so a resumed
     count finds the same tasks.
@@ -69,28 +68,20 @@ def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTa
     >>> [len(g.parts) for g in group_tasks(tasks_of_1mb_each[:10], 4 << 20)]  # doctest: +SKIP
     [4, 3, 3]
     """
+    if not tasks:
+        return []
+    weights = np.array([t.weight for t in tasks], np.float64)
+    total = float(weights.sum())
+    k = max(1, min(len(tasks), int(np.ceil(total / group_bytes))))
+    # task i goes to the group where the middle of its weight falls, of k equal shares
+    mids = np.cumsum(weights) - weights / 2
+    share = np.minimum((mids * k / max(total, 1e-9)).astype(np.int64), k - 1)
     groups: list[CountTask] = []
-    start = 0
-    for end in range(1, len(tasks) + 1):
-        if end < len(tasks) and _file_of(tasks[end]) == _file_of(tasks[start]):
-            continue
-        run = tasks[start:end]
-        weights = np.array([t.weight for t in run], np.float64)
-        total = float(weights.sum())
-        k = max(1, min(len(run), int(np.ceil(total / group_bytes))))
-        # task i goes to the group where the middle of its weight falls, of k equal shares
-        mids = np.cumsum(weights) - weights / 2
-        share = np.minimum((mids * k / max(total, 1e-9)).astype(np.int64), k - 1)
-        for g in range(k):
-            parts = tuple(t for t, gi in zip(run, share.tolist()) if gi == g)
-            if parts:
-                groups.append(CountTask(len(groups), parts))
-        start = end
+    for g in range(k):
+        parts = tuple(t for t, gi in zip(tasks, share.tolist()) if gi == g)
+        if parts:
+            groups.append(CountTask(len(groups), parts))
     return groups
-
-
-def _file_of(task: SourceTask) -> str | None:
-    return task.raw.path if task.raw is not None else None
 
 
 def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
