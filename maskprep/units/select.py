@@ -176,7 +176,6 @@ def build_units(
             # format), so only the chosen ones are made, from the words' texts (see _joined)
             keys, counts, text = read_ngrams(counts_dir, k, with_text=k == 1)
             if k == 1:
-                words = (keys[:, 0].copy(), text.combine_chunks())
                 if int(counts.sum()) > N:
                     raise MaskprepError(
                         f"{counts_dir / 'ngrams-1.parquet'}: word counts add up to more than "
@@ -194,6 +193,8 @@ def build_units(
                 )
             except MaskprepError as exc:
                 raise MaskprepError(f"{counts_dir / f'ngrams-{k}.parquet'}: {exc}") from None
+            if k == 1:  # the words' texts by their id in the index, for _joined
+                words = text.combine_chunks().take(arrow_array(np.argsort(index.row_ids[0])))
             if k - 1 in pending:  # the fragments of length k - 1 need these k-grams
                 scored = pending.pop(k - 1)
                 candidates[k - 1] = _finish(options, scored, index, words, dropped)
@@ -202,11 +203,10 @@ def build_units(
                     options, counts_dir, k, keys, counts, index, N, edge_keys, dropped
                 )
             progress.advance(1)
-    for (
-        k,
-        scored,
-    ) in pending.items():  # the longest counted length: no longer n-grams to compare with
-        candidates[k] = _finish(options, scored, None, words, dropped)
+    # the longest counted length: no longer n-grams to compare with
+    for k, scored in pending.items():
+        assert index is not None  # every length read was indexed
+        candidates[k] = _finish(options, scored, index, words, dropped)
     chosen = _ranked(_select(options, candidates))
     texts: list[str] = chosen.column("text").cast(pa.string()).to_pylist()
     n_arr = numpy_of(chosen.column("n")).astype(np.int64)
@@ -282,17 +282,17 @@ def _score_length(
 def _finish(
     options: UnitOptions,
     s: _Scored,
-    index: NgramIndex | None,
-    words: tuple[np.ndarray, Any],
+    index: NgramIndex,
+    words: Any,
     dropped: dict[str, int],
 ) -> tuple[np.ndarray, Any]:
-    """Drop fragments (given an index holding the (n+1)-grams), keep the best `top` and their
-    ties, rank."""
+    """Drop fragments (when the index holds the (n+1)-grams), keep the best `top` and their
+    ties, rank; `words` are the words' texts by their id in the index."""
     import pyarrow as pa
 
     score, counts = s.score, s.counts
     sel = np.arange(len(counts))
-    if options.fragment_share > 0 and index is not None and index.max_k > s.n:
+    if options.fragment_share > 0 and index.max_k > s.n:
         whole = indexed_fragment_shares(index, s.n, s.ids, counts) < options.fragment_share
         dropped["fragment"] += int((~whole).sum())
         sel = sel[whole]
@@ -305,7 +305,7 @@ def _finish(
             | ((score[sel] == score[best]) & (counts[sel] >= counts[best]))
         ]
     table = pa.table({
-        "text": _joined(words, s.keys[sel]),
+        "text": _joined(index, words, s.keys[sel]),
         "n": arrow_array(np.full(len(sel), s.n, dtype=np.int64)),
         "count": arrow_array(counts[sel]),
         "score": arrow_array(score[sel]),
@@ -314,18 +314,14 @@ def _finish(
     return s.keys[sel], _ranked(table)
 
 
-def _joined(words: tuple[np.ndarray, Any], keys: np.ndarray) -> Any:
+def _joined(index: NgramIndex, words: Any, keys: np.ndarray) -> Any:
     """The texts of n-grams (rows of word keys): their words' texts joined by one space, as
-    ``maskprep count`` writes them; `words` are the 1-gram keys and their texts."""
+    ``maskprep count`` writes them; `words` are the texts by word id in `index`."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
     m, n = keys.shape
-    pos = pc.index_in(arrow_array(np.ascontiguousarray(keys).ravel()),
-                      value_set=arrow_array(words[0]))
-    if pos.null_count:  # not reached: scoring already found every word in the 1-gram counts
-        raise MaskprepError("corrupt counts: an n-gram word is missing from the 1-gram counts")
-    flat = words[1].take(pos)
+    flat = words.take(arrow_array(index.word_ids(keys).ravel()))
     lists = pa.LargeListArray.from_arrays(
         arrow_array(np.arange(0, m * n + 1, n, dtype=np.int64)), flat
     )
