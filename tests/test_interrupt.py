@@ -127,3 +127,25 @@ def test_count_interrupted_anywhere_exits_130_quickly_and_resumes(tmp_path, play
     whole = time.monotonic() - started
     delays = [0.1, 0.45, 0.6, 0.75, 0.9, 1.1] + [whole * f for f in (0.4, 0.6, 0.8, 0.9, 0.97, 1.1)]
     check_interrupts(args, tmp_path / "out", ref, delays, "counts.json")
+
+
+def test_ctrl_c_during_the_command_lines_own_set_up_exits_130_without_traceback():
+    # The window between the full handler's installation and the first command: a Ctrl-C that
+    # lands in the allocator set-up (maskprep._malloc) must be caught like any other.
+    code = (
+        "import os, signal, sys\n"
+        "import maskprep._malloc as m\n"
+        "def hit():\n"
+        "    os.kill(os.getpid(), signal.SIGINT)\n"
+        "    import time; time.sleep(1)\n"
+        "m.reuse_freed_memory = hit\n"
+        "sys.argv = ['maskprep', '--help']\n"
+        "from maskprep.cli import main\n"
+        "main()\n"
+    )
+    proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True,
+                          timeout=60)
+    assert proc.returncode == 130, proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert "interrupted" in proc.stderr
+    assert proc.stdout == ""  # the command itself never ran

@@ -24,10 +24,10 @@ def main() -> None:
     from .. import _interrupt
     from .._malloc import reuse_freed_memory
 
-    _interrupt.install()
-    reuse_freed_memory()
     code: Any = 0
-    try:
+    try:  # a Ctrl-C from the moment the handler is in place is caught here, set-up included
+        _interrupt.install()
+        reuse_freed_memory()
         cli(obj={})
     except SystemExit as exc:
         code = exc.code
