@@ -182,6 +182,21 @@ def test_literal_special_tokens_are_reported_once(tmp_path: Path, small_wordpiec
     assert manifest["corpus"]["literal_special_tokens"] == {"[CLS]": 1, "[MASK]": 3}
     counts = json.loads((tmp_path / "c" / "counts.json").read_text())
     assert counts["literal_special_tokens"] == {"[CLS]": 1, "[MASK]": 3}
+    # counted from an encoded directory (word fields only, no token ids read): the same tally
+    _WARNED.clear()
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "2", "encode", *files, "-t",
+                                 str(small_wordpiece), "-o", str(tmp_path / "e")])
+    assert r.exit_code == 0, r.output
+    _WARNED.clear()
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "2", "count", str(tmp_path / "e"),
+                                 "-o", str(tmp_path / "ce"), "--max-n", "2", "--min-count", "1"])
+    assert r.exit_code == 0, r.output
+    assert r.stderr.splitlines() == [warning]
+    for n in (1, 2):
+        assert (tmp_path / "ce" / f"ngrams-{n}.parquet").read_bytes() == (
+            tmp_path / "c" / f"ngrams-{n}.parquet").read_bytes()
+    assert json.loads((tmp_path / "ce" / "counts.json").read_text())[
+        "literal_special_tokens"] == {"[CLS]": 1, "[MASK]": 3}
     # a corpus without them says nothing
     _WARNED.clear()
     r = CliRunner().invoke(

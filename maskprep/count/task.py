@@ -84,22 +84,22 @@ def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTa
     return groups
 
 
-def _runs_of(batch: EncodedBatch) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _runs_of(kinds: np.ndarray, word_keys: np.ndarray, doc_offsets: np.ndarray
+             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Counted words of a batch: keys [M], words left in their run [M], run start offsets [R].
 
     Space words are dropped; a run ends at any other non-word and at the end of a document.
     """
-    kinds = batch.word_kinds
     W = len(kinds)
     doc_start = np.zeros(W + 1, np.int8)
-    doc_start[batch.doc_offsets[:-1]] = 1
+    doc_start[doc_offsets[:-1]] = 1
     keep = np.flatnonzero(kinds != SPACE)
     if len(keep) == W:
-        kept_kinds, new_doc, keys = kinds, doc_start[:W], batch.word_keys
+        kept_kinds, new_doc, keys = kinds, doc_start[:W], word_keys
     else:  # a document start on a dropped space word moves to the next kept word
         doc = np.cumsum(doc_start[:W])[keep]
         new_doc = np.concatenate(([1], np.diff(doc))) if len(doc) else doc
-        kept_kinds, keys = kinds[keep], batch.word_keys[keep]
+        kept_kinds, keys = kinds[keep], word_keys[keep]
     is_word = kept_kinds == WORD
     continues = np.zeros(len(kept_kinds), bool)
     continues[1:] = is_word[:-1]
@@ -150,7 +150,12 @@ class ChunkCounter:
         """
         if not texts_known:
             self._collect_words(batch)
-        wk, rem, run_starts = _runs_of(batch)
+        self.add_words(batch.word_kinds, batch.word_keys, batch.doc_offsets)
+
+    def add_words(self, kinds: np.ndarray, keys: np.ndarray, doc_offsets: np.ndarray) -> None:
+        """Count one batch given by its words' kinds and keys and its document offsets (the
+        texts of its words known already: `add_word_table`)."""
+        wk, rem, run_starts = _runs_of(kinds, keys, doc_offsets)
         M = len(wk)
         if M == 0:
             return
@@ -310,8 +315,11 @@ def count_task(task: CountTask, tokenizer_json: str, config: CountConfig, spill_
             table = reader.word_table()
             if table is not None:  # encoded input: the word texts are in the task's word table
                 counter.add_word_table(table)
-            for batch in reader:
-                counter.add(batch, texts_known=table is not None)
+                for keys, kinds, doc_offsets in reader.word_fields():  # no token ids needed
+                    counter.add_words(kinds, keys, doc_offsets)
+            else:
+                for batch in reader:
+                    counter.add(batch)
             documents += reader.consumed.documents
             for s, k in reader.consumed.literal_specials.items():
                 literal[s] = literal.get(s, 0) + k

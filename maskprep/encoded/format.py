@@ -63,6 +63,7 @@ __all__ = [
     "words_name",
     "read_word_table",
     "iter_encoded",
+    "iter_word_types",
 ]
 
 FORMAT = "maskprep-encoded"
@@ -295,3 +296,18 @@ def iter_encoded(task: EncodedTask, table: WordTable | None = None) -> Iterator[
         rb = reader.get_batch(i)
         doc_fields = {name: _numpy(rb.column(col), np.int64) for name, col in PER_DOC.items()}
         yield _batch_from(rb.column("words"), doc_fields, table)
+
+
+def iter_word_types(task: EncodedTask) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+    """Per record batch of one encoded task: the word type of each word (int64 [W], an index
+    into the task's word table) and the document offsets into those words (int64 [D + 1]).
+
+    For readers that need only per-word fields (`maskprep count`): no token ids are gathered.
+
+    >>> for types, doc_offsets in iter_word_types(task): ...  # doctest: +SKIP
+    """
+    reader = open_ipc(task.docs, "documents")
+    for i in range(reader.num_record_batches):
+        words = reader.get_batch(i).column("words")
+        offs = _numpy(words.offsets, np.int64)
+        yield _numpy(words.values, np.int64)[offs[0]:offs[-1]], offs - offs[0]

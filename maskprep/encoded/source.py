@@ -27,6 +27,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterator, Sequence
 
+import numpy as np
+
 from ..corpus.reader import (
     CorpusOptions,
     CorpusTask,
@@ -40,6 +42,7 @@ from ..corpus.reader import (
 )
 from ..errors import MaskprepError
 from ..tokenizer.encoding import (
+    SPECIAL,
     EncodedBatch,
     TokenizerInfo,
     WordGroups,
@@ -56,6 +59,7 @@ from .format import (
     is_encoded_dir,
     is_unfinished_encoded_dir,
     iter_encoded,
+    iter_word_types,
     read_word_table,
 )
 
@@ -273,6 +277,36 @@ class TaskReader:
             self.consumed.merge(ReadStats(*d))
             yield batch
         self.consumed = read_stats_of(task.read)
+
+    def word_fields(self) -> Iterator[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """Per batch of an encoded task: word keys (uint64 [W]), word kinds (int8 [W]) and
+        document offsets into the words (int64 [D + 1]); the fields of `EncodedBatch` that
+        `maskprep count` reads, without gathering token ids. Statistics and literal special
+        tokens are kept as when iterating the batches.
+        """
+        task = self.task.encoded
+        if task is None:
+            raise ValueError("TaskReader.word_fields: only an encoded directory's tasks")
+        table = self.word_table()
+        assert table is not None
+        keys, kinds = table.fields["word_keys"], table.fields["word_kinds"]
+        first_ids = table.ids[table.offsets[:-1][kinds == SPECIAL]]  # of each special type
+        special_rank = np.cumsum(kinds == SPECIAL) - 1
+        literal: dict[str, int] = {}
+        deltas = list(task.batches)
+        for i, (types, doc_offsets) in enumerate(iter_word_types(task)):
+            d = deltas[i] if i < len(deltas) else (0, 0, 0, 0)
+            self.consumed.merge(ReadStats(*d))
+            word_kinds = kinds[types]
+            special = types[word_kinds == SPECIAL]
+            if len(special):  # as `tally_literal_specials` counts them from the token ids
+                ids, counts = np.unique(first_ids[special_rank[special]], return_counts=True)
+                for t, n in zip(ids.tolist(), counts.tolist()):
+                    name = self.info.tokenizer.id_to_token(int(t))
+                    literal[name] = literal.get(name, 0) + int(n)
+            yield keys[types], word_kinds, doc_offsets
+        self.consumed = read_stats_of(task.read)
+        self.consumed.literal_specials = literal
 
     def _raw(self, task: CorpusTask) -> Iterator[tuple[EncodedBatch, WordGroups]]:
         total = ReadStats()
