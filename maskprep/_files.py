@@ -109,6 +109,22 @@ def file_sha256(path: str | Path) -> str:
     return h.hexdigest()
 
 
+def file_crc32(path: str | Path, *, head: int = 0) -> int:
+    """zlib CRC-32 of a file's bytes after the first `head`, then of those `head` bytes (so a
+    writer that patches a fixed-size header last can compute it as it writes).
+
+    ``file_crc32("run.npy", head=128)``; with ``head=0`` the plain CRC-32 of the file.
+    """
+    import zlib
+
+    with open(path, "rb") as fh:
+        first = fh.read(head)
+        crc = 0
+        while chunk := fh.read(1 << 22):
+            crc = zlib.crc32(chunk, crc)
+    return zlib.crc32(first, crc)
+
+
 def read_json(path: str | Path, *, what: str = "file") -> Any:
     """Read a JSON file; a missing or broken file raises `MaskprepError` naming it."""
     from .errors import MaskprepError

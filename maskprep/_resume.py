@@ -64,7 +64,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Mapping
 
-from ._files import atomic_write_text, file_sha256, fsync_file, read_json
+from ._files import atomic_write_text, file_crc32, file_sha256, fsync_file, read_json
 from .errors import MaskprepError
 
 __all__ = [
@@ -448,12 +448,19 @@ def file_entry(base: Path, path: str | Path) -> dict[str, Any]:
 
 
 def entry_intact(base: Path, entry: Mapping[str, Any]) -> bool:
-    """Does the file of a record entry still have its recorded size and sha256?"""
+    """Does the file of a record entry still have its recorded size and checksum?
+
+    The checksum is ``sha256``, or ``crc32`` (`maskprep._files.file_crc32`, with the entry's
+    ``crc32_head``) for scratch files that a task checksums as it writes them.
+    """
     p = base / str(entry.get("file", ""))
     try:
-        return (p.is_file() and p.stat().st_size == entry["bytes"]
-                and file_sha256(p) == entry["sha256"])
-    except (OSError, KeyError):
+        if not (p.is_file() and p.stat().st_size == entry["bytes"]):
+            return False
+        if "crc32" in entry:
+            return file_crc32(p, head=int(entry.get("crc32_head", 0))) == int(entry["crc32"])
+        return file_sha256(p) == entry["sha256"]
+    except (OSError, KeyError, TypeError, ValueError):
         return False
 
 

@@ -535,11 +535,11 @@ def test_cli_disk_full_while_spilling(
     calls = {"n": 0}
     real = maskprep.count.spills.write_block
 
-    def failing(fh: object, block: np.ndarray) -> None:
+    def failing(fh: object, block: np.ndarray) -> memoryview:
         calls["n"] += 1
         if calls["n"] > 3:
             raise OSError(errno.ENOSPC, "No space left on device")
-        real(fh, block)  # type: ignore[arg-type]
+        return real(fh, block)  # type: ignore[arg-type]
 
     monkeypatch.setattr(maskprep.count.spills, "write_block", failing)
     out = tmp_path / "c"
@@ -582,3 +582,34 @@ def test_cli_disk_full_while_spilling(
     )
     assert sorted(p.name for p in out.iterdir()) == sorted(p.name for p in fresh.iterdir())
     assert all((out / p.name).read_bytes() == p.read_bytes() for p in fresh.iterdir())
+
+
+def test_spill_checksum_written_in_memory_matches_the_file_and_catches_damage(tmp_path):
+    # A sorted run's CRC-32 is computed from the bytes as they are written, header (patched
+    # last) after the rows; reading the file back must give the same value, and zlib's own
+    # CRC-32 of the whole file (the reference) equals file_crc32 with no header part.
+    import zlib
+
+    from maskprep._files import file_crc32
+    from maskprep._resume import entry_intact
+    from maskprep.count.spills import HEADER_BYTES, SpillWriter
+
+    path = tmp_path / "run.npy"
+    rng = np.random.default_rng(3)
+    with SpillWriter(path, 3) as w:
+        for rows in (5, 0, 1000, 17):
+            w.write(rng.integers(0, 2**63, size=(rows, 3), dtype=np.uint64))
+    data = path.read_bytes()
+    assert np.load(path).shape == (1022, 3)
+    assert w.crc32 == zlib.crc32(data[HEADER_BYTES:] + data[:HEADER_BYTES])
+    assert file_crc32(path, head=HEADER_BYTES) == w.crc32
+    assert file_crc32(path) == zlib.crc32(data)
+    entry = {"file": "run.npy", "bytes": len(data), "crc32": w.crc32, "crc32_head": HEADER_BYTES}
+    assert entry_intact(tmp_path, entry)
+    for where in (20, HEADER_BYTES + 7, len(data) - 1):  # the header's shape, a row, the end
+        damaged = bytearray(data)
+        damaged[where] ^= 0x01
+        path.write_bytes(bytes(damaged))
+        assert not entry_intact(tmp_path, entry), where
+    path.write_bytes(data[:-8])
+    assert not entry_intact(tmp_path, entry)

@@ -333,7 +333,7 @@ def test_count_resume_redoes_a_task_whose_runs_were_damaged(
 
     run_file = out / ".maskprep-count" / json.loads(before)["runs"][0]["file"]
     data = bytearray(run_file.read_bytes())
-    data[-1] ^= 0xFF  # same size, other content: only the sha256 tells
+    data[-1] ^= 0xFF  # same size, other content: only the checksum (the run's CRC-32) tells
     run_file.write_bytes(bytes(data))
     seen = []
     import maskprep.count.resume as count_state

@@ -18,6 +18,7 @@ from __future__ import annotations
 import errno
 import os
 import struct
+import zlib
 from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
@@ -34,15 +35,21 @@ _U64 = np.dtype("<u8")
 
 # ---------------------------------------------------------------- run files
 
-def write_block(fh: BinaryIO, block: np.ndarray) -> None:
-    """Append the bytes of a uint64 block to an open spill file (the one place spills write)."""
-    fh.write(np.ascontiguousarray(block, dtype=_U64).data.cast("B"))
+def write_block(fh: BinaryIO, block: np.ndarray) -> memoryview:
+    """Append the bytes of a uint64 block to an open spill file (the one place spills write);
+    returns those bytes."""
+    data = np.ascontiguousarray(block, dtype=_U64).data.cast("B")
+    fh.write(data)
+    return data
 
 
 def _npy_header(rows: int, cols: int) -> bytes:
     text = "{'descr': '<u8', 'fortran_order': False, 'shape': (%d, %d), }" % (rows, cols)
     body = text.ljust(_HEADER_BYTES - 10 - 1) + "\n"
     return b"\x93NUMPY\x01\x00" + struct.pack("<H", len(body)) + body.encode("latin1")
+
+
+HEADER_BYTES = _HEADER_BYTES
 
 
 class SpillWriter:
@@ -58,12 +65,16 @@ class SpillWriter:
         self.rows = 0
         self._fh: BinaryIO | None = open(path, "wb")
         self._fh.write(_npy_header(0, cols))
+        self._body_crc = 0
+        # once closed: the file's CRC-32 as `maskprep._files.file_crc32(path, head=HEADER_BYTES)`
+        # gives it, computed from the bytes in memory
+        self.crc32: int | None = None
 
     def write(self, block: np.ndarray) -> None:
         if block.shape[0] == 0:
             return
         assert self._fh is not None and block.shape[1] == self.cols
-        write_block(self._fh, block)
+        self._body_crc = zlib.crc32(write_block(self._fh, block), self._body_crc)
         self.rows += block.shape[0]
 
     def close(self) -> None:
@@ -72,7 +83,9 @@ class SpillWriter:
         fh, self._fh = self._fh, None
         try:
             fh.seek(0)
-            fh.write(_npy_header(self.rows, self.cols))
+            header = _npy_header(self.rows, self.cols)
+            fh.write(header)
+            self.crc32 = zlib.crc32(header, self._body_crc)
         finally:
             fh.close()
 
@@ -123,6 +136,7 @@ class SpillFile:
     n: int
     rows: int
     offsets: np.ndarray
+    crc32: int | None = None  # of the file as written (see SpillWriter.crc32; None: not known)
 
 
 @dataclass(frozen=True)

@@ -199,7 +199,7 @@ class ChunkCounter:
                         bucket_rows += np.bincount(fine_bucket(fp), minlength=FINE_BUCKETS)
                 offsets = np.concatenate(([0], np.cumsum(bucket_rows)))
                 if writer.rows:
-                    self.runs.append(SpillFile(str(path), n, writer.rows, offsets))
+                    self.runs.append(SpillFile(str(path), n, writer.rows, offsets, writer.crc32))
                 else:
                     path.unlink()
         except OSError as exc:
