@@ -182,17 +182,19 @@ def task_share(config: CountConfig, executor: Executor, tasks: int) -> int:
 def write_task(
     path: str, n: int, parts: list[PartitionResult], vocab_path: str, band_rows: int
 ) -> str:
-    """Task function: write ngrams-<n>.parquet from the merged key ranges of one n."""
+    """Task function: write ngrams-<n>.parquet from the merged key ranges of one n; returns its
+    sha256 (for counts.json; the files are hashed in parallel, not one by one by the driver)."""
     vocab = Vocabulary()
     vocab.add_file(vocab_path)
     vocab.finish()
     try:
         write_ngrams(Path(path), n, parts, vocab, band_rows)
+        digest = file_sha256(path)
     except OSError as exc:
         raise disk_error(exc, Path(path).parent, f"writing {Path(path).name}") from None
     for p in parts:
         os.unlink(p.path)
-    return path
+    return digest
 
 
 def _for_rows(executor: Executor, rows: int) -> Executor:
@@ -274,10 +276,11 @@ def finish_counts(
     kept = [sum(p.kept for p in by_n[n]) for n in range(1, max_n + 1)]
     # biggest first: better load balance
     order = sorted(range(1, max_n + 1), key=lambda n: -kept[n - 1])
-    list(map_tasks(write_task, [(str(spill / f"ngrams-{n}.parquet"), n, by_n[n], vocab_path,
-                                 max(1024, share // (24 * (n + 1) + 96))) for n in order],
-                   executor=_for_rows(executor, 2 * sum(kept)), label="write",
-                   describe=lambda i: f"ngrams-{order[i]}.parquet"))
+    digests = dict(zip(order, map_tasks(
+        write_task, [(str(spill / f"ngrams-{n}.parquet"), n, by_n[n], vocab_path,
+                      max(1024, share // (24 * (n + 1) + 96))) for n in order],
+        executor=_for_rows(executor, 2 * sum(kept)), label="write",
+        describe=lambda i: f"ngrams-{order[i]}.parquet")))
     documents = sum(r.documents for r in results)
     literal: dict[str, int] = {}
     for r in results:
@@ -309,10 +312,7 @@ def finish_counts(
         },
         "maskprep_version": __version__,
         # checked by the stages that read the files (a flipped byte must not pass as counts)
-        "sha256": {
-            f"ngrams-{n}.parquet": file_sha256(spill / f"ngrams-{n}.parquet")
-            for n in range(1, max_n + 1)
-        },
+        "sha256": {f"ngrams-{n}.parquet": digests[n] for n in range(1, max_n + 1)},
     }
     try:
         fsynced_write_text(spill / "tokenizer.json", info.json)
