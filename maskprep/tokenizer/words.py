@@ -20,7 +20,10 @@ the encode options of every stage and is recorded in every manifest):
 non-space character; a token that runs past that word's end is counted as
 *boundary-crossing* and joins the word it starts in. Everything is numpy over
 the whole batch; the segmenter is called once per batch on the script runs
-joined by newlines (every segmenter here cuts at whitespace).
+joined by newlines (every segmenter here cuts at whitespace). Sudachi (``ja``)
+instead reads every line that holds a Japanese run whole, one call per line,
+since its words depend on the context (digits before a counter, Latin words);
+only its word starts inside the runs count, and every run starts a word.
 """
 
 from __future__ import annotations
@@ -139,12 +142,22 @@ def words_option(value: "str | WordsConfig | None", *, option: str = "--words") 
     return cfg
 
 
+# Segmenters whose dictionary is a package of its own: its version changes the words too.
+DICTIONARIES = {"ja": "sudachidict_core"}
+
+
 def segmenter_version(lang: str) -> str:
+    """``sudachipy 0.7.0, sudachidict_core 20261015``: the library (and dictionary) versions."""
     _extra, module, dist, _what = SEGMENTERS[lang]
-    try:
-        return f"{dist} {importlib.metadata.version(dist)}"
-    except importlib.metadata.PackageNotFoundError:
-        return f"{dist} (not installed)"
+    out = []
+    for name in (dist, DICTIONARIES.get(lang)):
+        if name is None:
+            continue
+        try:
+            out.append(f"{name} {importlib.metadata.version(name)}")
+        except importlib.metadata.PackageNotFoundError:
+            out.append(f"{name} (not installed)")
+    return ", ".join(out)
 
 
 _SEGMENTER_CACHE: dict[str, Callable[[str], list[str]]] = {}
@@ -176,10 +189,18 @@ def _segmenter(lang: str) -> Callable[[str], list[str]]:
     return fn
 
 
+# Sudachi refuses an input of more than 49,149 UTF-8 bytes; 12,000 characters are at most
+# 48,000 bytes. A longer line (no Japanese text has one) is cut every 12,000 characters.
+SUDACHI_CHARS = 12_000
+
+
 def _sudachi(mod: Any) -> Callable[[str], list[str]]:
     try:
-        from sudachipy import Dictionary, SplitMode
-        tok = Dictionary(dict="core").create(mode=SplitMode.C)
+        dictionary = mod.Dictionary(dict="core")
+        mode = mod.SplitMode.C
+        # sudachipy 0.7 names it tokenizer(); create() is the older name
+        make = getattr(dictionary, "tokenizer", None) or dictionary.create
+        tok = make(mode=mode)
     except Exception as exc:  # the dictionary is a separate package
         raise MaskprepError(
             f"--words ja: the Sudachi dictionary is missing ({exc}); install it with "
@@ -187,12 +208,14 @@ def _sudachi(mod: Any) -> Callable[[str], list[str]]:
         ) from None
 
     def fn(text: str) -> list[str]:
+        # One Sudachi call per line (it analyses a line as one sentence context; measured faster
+        # than one call over many lines joined, which also changes the words after each newline).
         out: list[str] = []
-        for line in text.split("\n"):  # Sudachi's input limit is per call; lines are script runs
+        for line in text.split("\n"):
             if out:
                 out.append("\n")
-            if line:
-                out.extend(m.surface() for m in tok.tokenize(line))
+            for a in range(0, len(line), SUDACHI_CHARS):
+                out.extend(m.surface() for m in tok.tokenize(line[a:a + SUDACHI_CHARS]))
         return out
     return fn
 
@@ -238,11 +261,17 @@ def code_points(text: str) -> np.ndarray:
     return np.frombuffer(text.encode("utf-32-le", errors="surrogatepass"), dtype=np.uint32)
 
 
-def _runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Starts and ends of the runs of True."""
+def _runs(mask: np.ndarray, breaks: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Starts and ends of the runs of True, cut at the positions `breaks` (document starts)."""
     m = np.concatenate(([False], mask, [False])).astype(np.int8)
     d = np.diff(m)
-    return np.flatnonzero(d == 1), np.flatnonzero(d == -1)
+    starts, ends = np.flatnonzero(d == 1), np.flatnonzero(d == -1)
+    if breaks is not None:
+        b = breaks[(breaks > 0) & (breaks < len(mask))]
+        b = b[mask[b] & mask[b - 1]]  # a run going on across a break is cut there
+        if len(b):
+            starts, ends = np.union1d(starts, b), np.union1d(ends, b)
+    return starts, ends
 
 
 def segment_runs(text: str, starts: np.ndarray, ends: np.ndarray,
@@ -309,10 +338,16 @@ def word_ids_by_offsets(
     # language.
     starts_all = [np.zeros(0, np.int64)]
     for lang, mask in lang_of_char.items():
-        rs, re_ = _runs(mask)
+        rs, re_ = _runs(mask, base)  # never across documents
         if lang == "cohesion":
             from .lexicon import segment_with_lexicon
             starts_all.append(segment_with_lexicon(big, rs, re_, words))
+        elif lang == "ja":
+            # Sudachi reads each line holding a Japanese run whole (digits and Latin words are
+            # context: 2つ, 3年); only its word starts inside the runs are kept.
+            ls, le = _lines_of(codes, base, rs)
+            st = segment_runs(big, ls, le, _segmenter(lang))
+            starts_all.append(np.union1d(st[mask[st]], rs))
         else:
             starts_all.append(segment_runs(big, rs, re_, _segmenter(lang)))
     seg_starts = np.unique(np.concatenate(starts_all))
@@ -395,6 +430,22 @@ def _segmented(big: str, cls: np.ndarray, base: np.ndarray,
         if mask.any():
             out[lang] = mask
     return cjk | (cls == THAI), out
+
+
+def _lines_of(codes: np.ndarray, base: np.ndarray,
+              starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Start and end of the line (cut at newlines and document ends) of each run, each once."""
+    C = len(codes)
+    idx = np.arange(C, dtype=np.int64)
+    nl = codes == 0x0A
+    after_nl = np.maximum.accumulate(np.where(nl, idx + 1, 0))  # past the last newline <= i
+    next_nl = np.minimum.accumulate(np.where(nl, idx, C)[::-1])[::-1]  # first newline >= i
+    doc = np.searchsorted(base, starts, side="right") - 1
+    ls = np.maximum(after_nl[starts], base[doc])
+    le = np.minimum(next_nl[starts], base[doc + 1])
+    first = np.ones(len(ls), bool)
+    first[1:] = ls[1:] != ls[:-1]
+    return ls[first], le[first]
 
 
 def _run_end(mask: np.ndarray) -> np.ndarray:
