@@ -1,0 +1,284 @@
+"""Word definitions ``ja``, ``th`` and ``auto`` on real Japanese and Thai text.
+
+Real text: the Japanese and Thai translations of the messages of dpkg and apt, the files
+/usr/share/locale/{ja,th}/LC_MESSAGES/{dpkg,apt,libapt-pkg6.0}.mo installed by the Debian
+packages ``dpkg`` and ``apt`` (on every Debian system; the translations are under their
+programs' licence, GPL-2+). Each translated message is one document (whitespace runs made
+one space): 1,567 Japanese and 1,731 Thai messages, many of them mixing Latin words, option
+names and format codes with the Japanese or Thai text. Without the files these tests skip
+and say why.
+
+Segmenters, the references: ``sudachipy`` with ``sudachidict_core`` (split mode C) and
+``pythainlp`` (engine newmm), the extras ``maskprep[ja]`` and ``maskprep[th]``, installed
+by `.ci/run` through the ``test`` extra; ``rjieba`` for the Han-only documents of ``auto``.
+"""
+
+from __future__ import annotations
+
+import importlib.metadata
+import json
+import re
+import struct
+from itertools import zip_longest
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pytest
+from click.testing import CliRunner
+
+from maskprep.cli import cli
+from maskprep.errors import MaskprepError
+from maskprep.tokenizer.encoding import encode_documents, load_tokenizer
+from maskprep.tokenizer.words import WordsConfig, words_option
+
+from conftest import deal_lines, trained_tokenizer
+
+sudachipy = pytest.importorskip(
+    "sudachipy", reason="the ja extra (pip install 'maskprep[ja]') is not installed"
+)
+pytest.importorskip("sudachidict_core", reason="sudachidict_core (maskprep[ja]) is not installed")
+pytest.importorskip("pythainlp", reason="the th extra (pip install 'maskprep[th]') is not installed")
+from pythainlp.tokenize import word_tokenize  # noqa: E402
+
+LOCALE = Path("/usr/share/locale")
+CATALOGS = ("dpkg", "apt", "libapt-pkg6.0")
+# The script classes of maskprep.tokenizer.words (Unicode blocks): Han, kana (without the
+# katakana middle dot U+30FB) and Thai.
+HAN = "\u3400-\u4dbf\u4e00-\u9fff\uf900-\ufaff\u3005\u3007\U00020000-\U0003134f"
+KANA = "\u3041-\u30fa\u30fc-\u30ff\u31f0-\u31ff\uff66-\uff9f"
+JA_RUN = re.compile(f"[{HAN}{KANA}]+")
+HAN_RUN = re.compile(f"[{HAN}]+")
+KANA_CHAR = re.compile(f"[{KANA}]")
+THAI_RUN = re.compile("[\u0e01-\u0e5b]+")
+LATIN = re.compile("[A-Za-z]{2,}")
+
+
+def mo_translations(path: Path) -> list[str]:
+    """The translated strings of a GNU gettext .mo file (format: the gettext manual)."""
+    data = path.read_bytes()
+    order = "<" if struct.unpack("<I", data[:4])[0] == 0x950412DE else ">"
+    _rev, n, _orig, trans = struct.unpack(order + "4I", data[4:20])
+    out = []
+    for i in range(1, n):  # entry 0 is the catalogue's header (the empty msgid)
+        length, offset = struct.unpack(order + "2I", data[trans + 8 * i: trans + 8 * i + 8])
+        out.extend(data[offset: offset + length].decode("utf-8").split("\x00"))  # plurals
+    return out
+
+
+def messages(lang: str) -> list[str]:
+    files = [LOCALE / lang / "LC_MESSAGES" / f"{c}.mo" for c in CATALOGS]
+    missing = [str(f) for f in files if not f.is_file()]
+    if missing:
+        pytest.skip(f"{', '.join(missing)} missing: the {lang} translations of the Debian "
+                    "packages dpkg and apt are the real text of these tests")
+    docs = [" ".join(t.split()) for f in files for t in mo_translations(f)]
+    return [d for d in docs if d]
+
+
+@pytest.fixture(scope="module")
+def ja_docs() -> list[str]:
+    return messages("ja")
+
+
+@pytest.fixture(scope="module")
+def th_docs() -> list[str]:
+    return messages("th")
+
+
+@pytest.fixture(scope="module")
+def corpus(ja_docs, th_docs, tmp_path_factory) -> Path:
+    p = tmp_path_factory.mktemp("jath") / "messages.txt"
+    p.write_text("\n".join(ja_docs + th_docs) + "\n", encoding="utf-8")
+    return p
+
+
+@pytest.fixture(scope="module")
+def bpe(corpus: Path, tmp_path_factory) -> Path:
+    return trained_tokenizer(corpus, tmp_path_factory.mktemp("bpe"), model="bpe", vocab_size=4000)
+
+
+@pytest.fixture(scope="module")
+def wordpiece(corpus: Path, tmp_path_factory) -> Path:
+    return trained_tokenizer(
+        corpus, tmp_path_factory.mktemp("wp"), model="wordpiece", vocab_size=4000
+    )
+
+
+def invoke(*args: str) -> str:
+    result = CliRunner().invoke(cli, ["--quiet", *args])
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    return result.output
+
+
+def byte_tokenizer():
+    """A byte-level BPE tokenizer with no merges: words come from the segmenter alone."""
+    from tokenizers import Tokenizer, decoders, models, pre_tokenizers
+
+    from maskprep.tokenizer.encoding import TokenizerInfo
+
+    vocab = {ch: i for i, ch in enumerate(sorted(pre_tokenizers.ByteLevel.alphabet()))}
+    vocab["<mask>"] = len(vocab)
+    tok = Tokenizer(models.BPE(vocab=vocab, merges=[]))
+    tok.pre_tokenizer = pre_tokenizers.ByteLevel(add_prefix_space=False)
+    tok.decoder = decoders.ByteLevel()
+    return TokenizerInfo(tok, name="bytes")
+
+
+def doc_words(info, docs: list[str], words: WordsConfig | None = None) -> list[list[str]]:
+    batch = encode_documents(info, docs, words) if words else encode_documents(info, docs)
+    by_key = {t.key: t.text for t in info._types.values()}
+    texts = [by_key[k] for k in batch.word_keys.tolist()]
+    d = batch.doc_offsets.tolist()
+    return [texts[d[i]:d[i + 1]] for i in range(len(docs))]
+
+
+# ------------------------------------------------------------------ the references
+
+_SUDACHI = []
+
+
+def sudachi_starts(doc: str) -> set[int]:
+    """Word starts of Sudachi (core dictionary, split mode C) called on the whole document."""
+    if not _SUDACHI:
+        d = sudachipy.Dictionary(dict="core")
+        make = getattr(d, "tokenizer", None) or d.create
+        _SUDACHI.append(make(mode=sudachipy.SplitMode.C))
+    starts, p = set(), 0
+    for m in _SUDACHI[0].tokenize(doc):
+        starts.add(p)
+        p += len(m.surface())
+    return starts
+
+
+def cut_runs(doc: str, run: re.Pattern, starts: set[int]) -> list[tuple[int, int]]:
+    """Spans of the words of each run of `run`: cut at `starts` inside it, and at its ends."""
+    spans = []
+    for m in run.finditer(doc):
+        cuts = sorted({m.start()} | {s for s in starts if m.start() < s < m.end()}) + [m.end()]
+        spans.extend(zip(cuts, cuts[1:]))
+    return spans
+
+
+def ja_reference(doc: str) -> list[tuple[int, int]]:
+    # Source: sudachipy on the document as a whole; maskprep keeps its words in the runs of
+    # Han and kana (every run starts a word).
+    return cut_runs(doc, JA_RUN, sudachi_starts(doc))
+
+
+def th_reference(doc: str) -> list[tuple[int, int]]:
+    # Source: pythainlp's word_tokenize(engine="newmm") called on each Thai run.
+    spans = []
+    for m in THAI_RUN.finditer(doc):
+        p = m.start()
+        for w in word_tokenize(m.group(), engine="newmm"):
+            spans.append((p, p + len(w)))
+            p += len(w)
+    return spans
+
+
+def zh_reference(doc: str) -> list[tuple[int, int]]:
+    # Source: rjieba's cut (accurate mode, HMM) called on each Han run.
+    import rjieba
+
+    spans = []
+    for m in HAN_RUN.finditer(doc):
+        p = m.start()
+        for w in rjieba.cut(m.group(), True):
+            spans.append((p, p + len(w)))
+            p += len(w)
+    return spans
+
+
+def texts(doc: str, spans: list[tuple[int, int]]) -> list[str]:
+    return [doc[a:b] for a, b in spans]
+
+
+def other_reference(info, doc: str, run: re.Pattern) -> list[str]:
+    """The words outside the runs: the tokenizer's own pre-tokenization, less the run characters.
+
+    Source: the `tokenizers` library's pre-tokenizer (``pre_tokenize_str``); a piece such as
+    ``debファイル名`` keeps ``deb``. Words are compared stripped of whitespace, as maskprep
+    shows them, and whitespace-only ones are left out.
+    """
+    in_run = [False] * len(doc)
+    for m in run.finditer(doc):
+        in_run[m.start():m.end()] = [True] * (m.end() - m.start())
+    out = []
+    for _piece, (a, b) in info.tokenizer.pre_tokenizer.pre_tokenize_str(doc):
+        part = ""
+        for i in range(a, b + 1):
+            if i < b and not in_run[i]:
+                part += doc[i]
+            elif part:
+                if part.strip():
+                    out.append(part.strip())
+                part = ""
+    return out
+
+
+def outside(words: list[str], run: re.Pattern) -> list[str]:
+    return [w for w in words if not run.search(w) and w.strip()]
+
+
+# ------------------------------------------------------------------ word boundaries
+
+def test_japanese_words_are_sudachis_on_real_text(ja_docs):
+    info = byte_tokenizer()
+    got = doc_words(info, ja_docs, WordsConfig("ja"))
+    mixed = 0
+    for doc, words in zip(ja_docs, got):
+        assert [w for w in words if JA_RUN.search(w)] == texts(doc, ja_reference(doc)), doc
+        # everything else keeps the tokenizer's own words (its pre-tokenization)
+        assert outside(words, JA_RUN) == other_reference(info, doc, JA_RUN), doc
+        mixed += bool(LATIN.search(doc) and JA_RUN.search(doc))
+    # Measured: 393 of the 1,567 messages mix Latin words (option names, programs) with
+    # Japanese.
+    assert mixed >= 300, mixed
+
+
+def test_thai_words_are_newmms_on_real_text(th_docs):
+    info = byte_tokenizer()
+    got = doc_words(info, th_docs, WordsConfig("th"))
+    mixed = 0
+    for doc, words in zip(th_docs, got):
+        assert [w for w in words if THAI_RUN.search(w)] == texts(doc, th_reference(doc)), doc
+        assert outside(words, THAI_RUN) == other_reference(info, doc, THAI_RUN), doc
+        mixed += bool(LATIN.search(doc) and THAI_RUN.search(doc))
+    # Measured: 466 of the 1,731 messages mix Latin words with Thai.
+    assert mixed >= 300, mixed
+
+
+def test_auto_sends_kana_documents_to_sudachi_han_only_ones_to_jieba_thai_to_newmm(
+    ja_docs, th_docs
+):
+    pytest.importorskip("rjieba", reason="the zh extra (pip install 'maskprep[zh]') is missing")
+    info = byte_tokenizer()
+    docs = [d for pair in zip_longest(ja_docs, th_docs) for d in pair if d]  # one batch
+    got = doc_words(info, docs, WordsConfig("auto"))
+    seen = {"ja": 0, "zh": 0, "th": 0}
+    for doc, words in zip(docs, got):
+        if KANA_CHAR.search(doc):
+            lang, ref = "ja", ja_reference(doc)
+        elif HAN_RUN.search(doc):
+            lang, ref = "zh", zh_reference(doc)  # Han only: the messages like 接続失敗
+        elif THAI_RUN.search(doc):
+            lang, ref = "th", th_reference(doc)
+        else:
+            continue
+        seen[lang] += 1
+        assert [w for w in words if JA_RUN.search(w) or THAI_RUN.search(w)] == texts(doc, ref), \
+            (lang, doc)
+    # Measured: 1,503 Japanese documents with kana, 56 Han-only ones, 1,721 Thai ones.
+    assert seen["ja"] > 1000 and seen["zh"] >= 30 and seen["th"] > 1000, seen
+
+
+def test_words_never_cross_documents():
+    # Source: rjieba cuts 北京 and 清华大学 as words (jieba's README example 我来到北京清华大学,
+    # from memory); split into two documents mid-word, neither may take a word of the other.
+    info = byte_tokenizer()
+    pytest.importorskip("rjieba", reason="the zh extra (pip install 'maskprep[zh]') is missing")
+    assert doc_words(info, ["我来到北", "京清华大学"], WordsConfig("zh")) == \
+        [["我", "来到", "北"], ["京", "清华大学"]]
+    docs = ["接続が閉じられました", "接続タイムアウト"]
+    assert doc_words(info, docs, WordsConfig("ja")) == [texts(d, ja_reference(d)) for d in docs]
