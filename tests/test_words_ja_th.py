@@ -22,14 +22,13 @@ import struct
 from itertools import zip_longest
 from pathlib import Path
 
-import numpy as np
 import pyarrow as pa
 import pytest
 from click.testing import CliRunner
 
 from maskprep.cli import cli
 from maskprep.errors import MaskprepError
-from maskprep.tokenizer.encoding import encode_documents, load_tokenizer
+from maskprep.tokenizer.encoding import encode_documents
 from maskprep.tokenizer.words import WordsConfig, words_option
 
 from conftest import deal_lines, trained_tokenizer
@@ -38,7 +37,9 @@ sudachipy = pytest.importorskip(
     "sudachipy", reason="the ja extra (pip install 'maskprep[ja]') is not installed"
 )
 pytest.importorskip("sudachidict_core", reason="sudachidict_core (maskprep[ja]) is not installed")
-pytest.importorskip("pythainlp", reason="the th extra (pip install 'maskprep[th]') is not installed")
+pytest.importorskip(
+    "pythainlp", reason="the th extra (pip install 'maskprep[th]') is not installed"
+)
 from pythainlp.tokenize import word_tokenize  # noqa: E402
 
 LOCALE = Path("/usr/share/locale")
@@ -357,3 +358,103 @@ def test_whole_word_masking_never_splits_a_segmenter_word(lang, ja_docs, th_docs
     assert crossing > 0  # byte-level BPE merges characters across the segmenters' words
     stats = json.loads((tmp_path / "s" / "_maskprep" / "stats.json").read_text())
     assert stats["within_word_leakage"] == 0.0
+
+
+# ------------------------------------------------------------------ determinism, manifests
+
+@pytest.fixture(scope="module")
+def parts(ja_docs, th_docs, tmp_path_factory) -> list[str]:
+    docs = [d for pair in zip_longest(ja_docs, th_docs) for d in pair if d]
+    return deal_lines(docs, tmp_path_factory.mktemp("parts"), 3, "part{}.txt")
+
+
+def tree_bytes(base: Path) -> dict[str, bytes]:
+    return {str(p.relative_to(base)): p.read_bytes() for p in sorted(base.rglob("*"))
+            if p.is_file() and p.suffix != ".lock"}
+
+
+@pytest.mark.parametrize("lang", ["ja", "th"])
+def test_encode_and_count_are_byte_identical_for_1_and_2_workers(lang, parts, bpe, tmp_path):
+    outputs = {}
+    for workers in ("1", "2"):
+        base = tmp_path / f"w{workers}"
+        invoke("--workers", workers, "encode", *parts, "-t", str(bpe), "-o", str(base / "enc"),
+               "--words", lang)
+        invoke("--workers", workers, "count", *parts, "-t", str(bpe), "-o", str(base / "c"),
+               "--words", lang, "--max-n", "3", "--min-count", "2", "--memory", "8MiB")
+        outputs[workers] = tree_bytes(base)
+    assert any(f.startswith("enc/") for f in outputs["1"])
+    assert sorted(outputs["2"]) == sorted(outputs["1"])
+    assert [f for f in outputs["1"] if outputs["2"][f] != outputs["1"][f]] == []
+
+
+def versions(*dists: str) -> str:
+    return ", ".join(f"{d} {importlib.metadata.version(d)}" for d in dists)
+
+
+def test_manifests_and_the_audit_record_the_segmenter_and_its_version(parts, wordpiece, tmp_path):
+    # Source: the installed distributions' own metadata (importlib.metadata).
+    expected = {
+        "ja": {"ja": versions("sudachipy", "sudachidict_core")},
+        "th": {"th": versions("pythainlp")},
+    }
+    assert WordsConfig("ja").describe() == {"definition": "ja", "segmenters": expected["ja"]}
+    assert WordsConfig("th").label() == f"th ({versions('pythainlp')})"
+    auto = WordsConfig("auto").describe()["segmenters"]
+    assert auto["ja"] == expected["ja"]["ja"] and auto["th"] == expected["th"]["th"]
+    for lang in ("ja", "th"):
+        base = tmp_path / lang
+        invoke("encode", *parts, "-t", str(wordpiece), "-o", str(base / "enc"), "--words", lang)
+        invoke("count", *parts, "-t", str(wordpiece), "-o", str(base / "c"), "--words", lang,
+               "--max-n", "2", "--min-count", "2")
+        out = invoke("audit", *parts, "-t", str(wordpiece), "-o", str(base / "a"),
+                     "--words", lang)
+        for doc in (json.loads((base / "enc" / "encoded.json").read_text())["words"],
+                    json.loads((base / "c" / "counts.json").read_text())["words"],
+                    json.loads((base / "a" / "audit.json").read_text())["words"]):
+            assert doc == {"definition": lang, "segmenters": expected[lang]}, doc
+        assert out.startswith(f"words: {lang} ({expected[lang][lang]})")
+        # the encoded directory gives the same counts as the raw corpus
+        invoke("count", str(base / "enc"), "-o", str(base / "c2"), "--words", lang,
+               "--max-n", "2", "--min-count", "2")
+        for f in ("ngrams-1.parquet", "ngrams-2.parquet"):
+            assert (base / "c" / f).read_bytes() == (base / "c2" / f).read_bytes(), (lang, f)
+
+
+# ------------------------------------------------------------------ missing libraries
+
+@pytest.mark.parametrize("lang, module", [("ja", "sudachipy"), ("th", "pythainlp")])
+def test_a_missing_segmenter_says_how_to_install_it(lang, module, monkeypatch, corpus, bpe,
+                                                    tmp_path):
+    import importlib
+
+    from maskprep.tokenizer import words as words_mod
+
+    real = importlib.import_module
+
+    def without(name, *a, **k):
+        if name == module:
+            raise ImportError(name)
+        return real(name, *a, **k)
+
+    monkeypatch.setattr(words_mod.importlib, "import_module", without)
+    monkeypatch.setattr(words_mod, "_SEGMENTER_CACHE", {})
+    with pytest.raises(MaskprepError, match=rf"--words {lang}: needs the {module} library.*"
+                                            rf"pip install 'maskprep\[{lang}\]'"):
+        words_option(lang)
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "count", str(corpus), "-t",
+                                 str(bpe), "-o", str(tmp_path / "c"), "--words", lang])
+    assert r.exit_code == 1 and f"maskprep[{lang}]" in r.output, r.output
+    assert "Traceback" not in r.output and not (tmp_path / "c" / "counts.json").exists()
+
+
+def test_a_missing_sudachi_dictionary_says_how_to_install_it(monkeypatch):
+    from maskprep.tokenizer import words as words_mod
+
+    def no_dictionary(*a, **k):
+        raise RuntimeError("dictionary not found")  # what sudachipy raises without one
+
+    monkeypatch.setattr(sudachipy, "Dictionary", no_dictionary)
+    monkeypatch.setattr(words_mod, "_SEGMENTER_CACHE", {})
+    with pytest.raises(MaskprepError, match=r"Sudachi dictionary is missing.*sudachidict_core"):
+        words_option("ja")
