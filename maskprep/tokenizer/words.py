@@ -220,11 +220,31 @@ def _sudachi(mod: Any) -> Callable[[str], list[str]]:
     return fn
 
 
+# newmm's time grows with the square of its input's length (pythainlp 5.4: its character
+# cluster pass re-slices the rest of the text at every step), so it is called on pieces of
+# about this many characters, cut after a newline (newmm cuts there anyway: same words).
+# Measured on 372,000 characters of Thai runs: 2.37 s in one call, 0.43 s in pieces of 4,000.
+THAI_CHARS = 4_000
+
+
 def _thai(mod: Any) -> Callable[[str], list[str]]:
     from pythainlp.tokenize import word_tokenize
 
     def fn(text: str) -> list[str]:
-        return list(word_tokenize(text, engine="newmm", keep_whitespace=True))
+        out: list[str] = []
+        a, n = 0, len(text)
+        while a < n:
+            b = a + THAI_CHARS
+            if b >= n:
+                b = n
+            else:
+                nl = text.rfind("\n", a, b)
+                if nl < a:
+                    nl = text.find("\n", b)
+                b = n if nl < 0 else nl + 1
+            out.extend(word_tokenize(text[a:b], engine="newmm", keep_whitespace=True))
+            a = b
+        return out
     return fn
 
 
