@@ -458,3 +458,17 @@ def test_a_missing_sudachi_dictionary_says_how_to_install_it(monkeypatch):
     monkeypatch.setattr(words_mod, "_SEGMENTER_CACHE", {})
     with pytest.raises(MaskprepError, match=r"Sudachi dictionary is missing.*sudachidict_core"):
         words_option("ja")
+
+
+def test_a_japanese_line_past_sudachis_input_limit_is_segmented(ja_docs):
+    # Sudachi refuses more than 49,149 bytes in one call (its error message); a document of
+    # real messages joined by spaces into one line of about 130,000 bytes must still encode.
+    info = byte_tokenizer()
+    doc = " ".join(ja_docs)
+    assert len(doc.encode("utf-8")) > 100_000
+    (words,) = doc_words(info, [doc], WordsConfig("ja"))
+    got = [w for w in words if JA_RUN.search(w)]
+    assert "".join(got) == "".join(JA_RUN.findall(doc))
+    ref = [texts(d, ja_reference(d)) for d in ja_docs]
+    # away from the cuts every 12,000 characters, the words are those of each message alone
+    assert sum(len(r) for r in ref) * 0.98 < len(got) < sum(len(r) for r in ref) * 1.02
