@@ -123,7 +123,8 @@ def finish(code: int) -> None:
         try:
             from ._pool import shutdown_pools
 
-            shutdown_pools()
+            threading.excepthook = _quiet  # the pool's thread may see its workers go
+            shutdown_pools(wait=False)  # idle: killed, not waited for
         except Exception:  # pragma: no cover
             _kill_workers()
     _release_semaphores()

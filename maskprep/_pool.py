@@ -179,11 +179,22 @@ def workers_ignore_sigint() -> Iterator[None]:
         signal.pthread_sigmask(signal.SIG_SETMASK, old_mask)
 
 
-def shutdown_pools() -> None:
+def shutdown_pools(*, wait: bool = True) -> None:
     """Stop the kept worker processes (they also stop when this process exits):
-    ``shutdown_pools()``."""
+    ``shutdown_pools()``.
+
+    ``wait=False`` (the command line's last step, `maskprep._interrupt.finish`, once every
+    task's result is in): the workers are killed instead of waited for, as after Ctrl-C.
+    They are idle, or still starting if the command needed fewer of them; waiting for each
+    to tear its interpreter down cost about 0.05 s at the end of every command, and a worker
+    left to start on its own after the command ended would fail to find the pool's
+    semaphores.
+    """
     for workers in list(_POOLS):
-        drop_pool(workers, terminate=False)
+        pool = _POOLS.pop(workers)
+        if not wait:
+            _kill(pool)
+        pool.shutdown(wait=wait, cancel_futures=wait)
 
 
 def ordered(

@@ -149,3 +149,52 @@ def test_ctrl_c_during_the_command_lines_own_set_up_exits_130_without_traceback(
     assert "Traceback" not in proc.stderr
     assert "interrupted" in proc.stderr
     assert proc.stdout == ""  # the command itself never ran
+
+
+def test_workers_end_with_a_finished_command(tmp_path, plays, small_wordpiece):
+    # The command line does not wait for its idle workers at the end: they must still end
+    # with it (PR_SET_PDEATHSIG on Linux), never outlive it.
+    proc = subprocess.Popen(
+        command("count", *plays, "-t", str(small_wordpiece), "-o", str(tmp_path / "c")),
+        cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+    )
+    workers: list = []
+    while proc.poll() is None and not workers:
+        try:
+            workers = psutil.Process(proc.pid).children(recursive=True)
+        except psutil.NoSuchProcess:
+            break
+        time.sleep(0.01)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 0, err.decode()
+    assert workers, "the pool never started"
+    _, alive = psutil.wait_procs(workers, timeout=2)
+    alive = [p for p in alive if p.status() != psutil.STATUS_ZOMBIE]
+    assert not alive, f"worker processes outlived the command: {[p.pid for p in alive]}"
+    assert b"Traceback" not in err and b"Error" not in err, err.decode()
+
+
+def test_a_command_done_before_its_worker_started_exits_cleanly(tmp_path, plays, small_wordpiece):
+    # `--resume` of a finished count: the pool is started (more than one task), then the
+    # command finds nothing to do and ends while the spawned worker is still starting. The
+    # worker is killed, not left to start on its own (it would fail to find the pool's
+    # semaphores and print a traceback).
+    args = ["count", *plays, "-t", str(small_wordpiece), "-o", str(tmp_path / "c"), "--resume"]
+    assert subprocess.run(command(*args), cwd=ROOT, capture_output=True,
+                          timeout=300).returncode == 0
+    for _ in range(3):
+        proc = subprocess.Popen(command(*args), cwd=ROOT, stdout=subprocess.DEVNULL,
+                                stderr=subprocess.PIPE)
+        workers: list = []
+        while proc.poll() is None:
+            try:
+                workers = psutil.Process(proc.pid).children(recursive=True) or workers
+            except psutil.NoSuchProcess:
+                break
+        _, err = proc.communicate(timeout=60)
+        assert proc.returncode == 0, err.decode()
+        assert workers, "the pool was not started"
+        _, alive = psutil.wait_procs(workers, timeout=2)
+        assert not [p for p in alive if p.status() != psutil.STATUS_ZOMBIE]
+        time.sleep(0.3)  # a worker left to start would have failed by now
+        assert b"Traceback" not in err and b"Error" not in err, err.decode()
