@@ -24,7 +24,7 @@ from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Callable, Iterator, Sequence
 
 from ._malloc import reuse_freed_memory
-from .errors import MaskprepError, os_error_text
+from .errors import MaskprepError, PartError, PartMessage, os_error_text, task_error
 from .progress import Progress
 
 __all__ = ["ENCODE_AHEAD_ENV", "ONE_THREAD", "call", "no_lookahead", "get_pool", "pool_size",
@@ -40,7 +40,7 @@ def call(fn: Callable[..., Any], args: tuple[Any, ...]) -> tuple[bool, Any]:
     try:
         return True, fn(*args)
     except MaskprepError as exc:
-        return False, str(exc)
+        return False, PartMessage(exc) if isinstance(exc, PartError) else str(exc)
     except OSError as exc:  # an OS error is the user's to fix: one line, no traceback
         return False, os_error_text(exc)
     except MemoryError:
@@ -254,7 +254,7 @@ def ordered(
     def failed(i: int, message: str) -> MaskprepError:
         nonlocal failing
         failing = i
-        return MaskprepError(f"{describe(i)}: {message}")
+        return task_error(describe(i), message)
 
     try:
         while emit < n:

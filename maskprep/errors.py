@@ -18,6 +18,29 @@ class MaskprepError(Exception):
     """
 
 
+class PartError(MaskprepError):
+    """A `MaskprepError` of one part of a task made of several (one of a group of small files),
+    whose message names that part first: it is reported as it is, not after the whole task's
+    name (`task_error`)."""
+
+
+class PartMessage(str):
+    """The text of a `PartError`, as a task's failure travels back from a worker."""
+
+
+def task_error(name: str, message: str) -> MaskprepError:
+    """The error for task `name` failing with `message` (its part's own, for a `PartMessage`).
+
+    >>> str(task_error("a.txt .. c.txt (3 files)", "b.txt:2: invalid UTF-8"))
+    'a.txt .. c.txt (3 files): b.txt:2: invalid UTF-8'
+    >>> str(task_error("a.txt .. c.txt (3 files)", PartMessage("b.txt (bytes 0-90): b.txt:2: x")))
+    'b.txt (bytes 0-90): b.txt:2: x'
+    """
+    if isinstance(message, PartMessage):
+        return MaskprepError(str(message))
+    return MaskprepError(f"{name}: {message}")
+
+
 _ADVICE = {
     "EACCES": "check the permissions, or choose another path",
     "EPERM": "check the permissions, or choose another path",

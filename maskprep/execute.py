@@ -51,7 +51,7 @@ from typing import Any, Callable, Iterator, Sequence
 from ._checks import is_whole
 from ._pool import ENCODE_AHEAD_ENV, ONE_THREAD, call, drop_pool, get_pool, kill_pools, \
     no_lookahead, ordered, pool_running, pool_size, shutdown_pools, warm, workers_ignore_sigint
-from .errors import MaskprepError
+from .errors import MaskprepError, task_error
 from .wording import plural
 from .progress import Progress
 
@@ -134,7 +134,7 @@ def map_tasks(
             for i, args in enumerate(args_list):
                 ok, value = call(fn, args)
                 if not ok:
-                    raise MaskprepError(f"{describe(i)}: {value}")
+                    raise task_error(describe(i), value)
                 progress.advance(weights[i])
                 yield value
             return
@@ -290,7 +290,7 @@ def _map_dask(fn: Callable[..., Any], args_list: Sequence[tuple[Any, ...]], exec
                     "finished tasks are kept for --resume"
                 ) from None
             if not ok:
-                raise MaskprepError(f"{describe(i)}: {value}")
+                raise task_error(describe(i), value)
             progress.advance(weights[i])
             done[i] = value
             while emit in done:

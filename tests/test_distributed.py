@@ -88,8 +88,11 @@ def all_files(d: Path) -> dict[str, bytes]:
 
 
 def test_count_units_mask_are_byte_identical_on_dask_and_local_processes(
-    tmp_path, cluster_address, three_files, small_wordpiece
+    tmp_path, cluster_address, three_files, small_wordpiece, monkeypatch
 ):
+    import maskprep.count.driver as driver
+
+    monkeypatch.setattr(driver, "SMALL_FILES_BYTES", 1)  # each small file its own count task
     outputs = {}
     modes = {
         "workers-1": ["--workers", "1"],

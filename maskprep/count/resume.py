@@ -69,7 +69,7 @@ __all__ = [
 ]
 
 STATE_DIR = ".maskprep-count"
-STATE_VERSION = 2  # 2: spill offsets as base64 int64 (1: JSON lists)
+STATE_VERSION = 3  # 3: small raw files counted in groups; 2: spill offsets as base64 int64
 COUNT_STAGE_RECORD = "task-{:06d}.json"
 # how the options of a run are named in messages
 _LABELS = {"max_n": "--max-n", "min_count": "--min-count", "tokenizer_hash": "tokenizer (-t)",

@@ -10,6 +10,7 @@ write the counts directory (files.py, driver.py).
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator, Sequence
@@ -17,15 +18,19 @@ from typing import Iterator, Sequence
 import numpy as np
 
 from .._arrow import arrow_strings
-from ..corpus.reader import CorpusOptions
+from ..corpus.reader import CorpusOptions, iter_documents
+from ..corpus.types import ReadStats
 from ..encoded.format import WordTable
+from ..errors import MaskprepError, PartError, os_error_text
 from ..encoded.source import SourceTask, TaskReader
 from ..tokenizer.encoding import (
     SPACE,
     WORD,
     EncodedBatch,
     TokenizerInfo,
+    encode_grouped,
     shared_tokenizer,
+    tally_literal_specials,
     tokenizer_from_json,
 )
 from .files import Vocabulary, collision_error, take_strings
@@ -33,7 +38,8 @@ from .kernels import COARSE_BUCKETS, FINE_BUCKETS, count_block, fine_bucket, red
 from .spills import SpillFile, SpillWriter, disk_error
 from .types import CountConfig, TaskCounts
 
-__all__ = ["ChunkCounter", "CountTask", "count_task", "group_tasks", "REDUCE_ROWS"]
+__all__ = ["ChunkCounter", "CountTask", "count_task", "group_tasks", "group_small_files",
+           "REDUCE_ROWS"]
 
 REDUCE_ROWS = 1 << 16  # rows reduced at once when spilling (a few MB: stays in cache)
 
@@ -54,8 +60,12 @@ class CountTask:
         return sum(p.weight for p in self.parts)
 
     def describe(self) -> str:
-        first, last = self.parts[0].describe(), self.parts[-1].describe()
-        return first if len(self.parts) == 1 else f"{first} .. {last}"
+        if len(self.parts) == 1:
+            return self.parts[0].describe()
+        first, last = self.parts[0], self.parts[-1]
+        if first.raw is not None and last.raw is not None:  # small files, each read whole
+            return f"{first.raw.path} .. {last.raw.path} ({len(self.parts)} files)"
+        return f"{first.describe()} .. {last.describe()}"
 
 
 def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTask]:
@@ -82,6 +92,42 @@ def group_tasks(tasks: Sequence[SourceTask], group_bytes: float) -> list[CountTa
         if parts:
             groups.append(CountTask(len(groups), parts))
     return groups
+
+
+def group_small_files(tasks: Sequence[SourceTask], group_bytes: float,
+                      compressed_ratio: float) -> list[CountTask]:
+    """Raw-text tasks for counting: consecutive files read whole by one task each (a directory
+    of small files) counted in groups of about `group_bytes` of text (`group_tasks`; the text
+    of a compressed file estimated as `compressed_ratio` times its size); a task that is a
+    part of a larger file stays alone, so an error names its byte range.
+
+    Like `group_tasks`, the groups depend only on the tasks.
+    """
+    per_file: dict[str, int] = {}
+    for t in tasks:
+        if t.raw is not None:
+            per_file[t.raw.path] = per_file.get(t.raw.path, 0) + 1
+    out: list[CountTask] = []
+    run: list[SourceTask] = []
+
+    def close_run() -> None:
+        # grouped by estimated text; the parts keep their own weights (bytes on disk)
+        est = [dataclasses.replace(t, index=i, weight=t.weight * (
+            compressed_ratio if t.raw is not None and t.raw.compression else 1.0))
+            for i, t in enumerate(run)]
+        for g in group_tasks(est, group_bytes):
+            out.append(CountTask(len(out), tuple(run[p.index] for p in g.parts)))
+        run.clear()
+
+    for t in tasks:
+        raw = t.raw
+        if raw is not None and raw.pick is None and per_file[raw.path] == 1:
+            run.append(t)
+        else:
+            close_run()
+            out.append(CountTask(len(out), (t,)))
+    close_run()
+    return out
 
 
 def _runs_of(kinds: np.ndarray, word_keys: np.ndarray, doc_offsets: np.ndarray
@@ -307,11 +353,23 @@ def count_task(task: CountTask, tokenizer_json: str, config: CountConfig, spill_
                            tag=f"t{task.index:06d}", joined=not config.words.is_tokenizer)
     documents = 0
     literal: dict[str, int] = {}
+    words = None if config.words.is_tokenizer else config.words
     try:
+        if len(task.parts) > 1 and all(p.raw is not None for p in task.parts):
+            # small files: their documents in batches across files (a batch per file would
+            # pay the per-batch cost of encoding and grouping once per file)
+            stats = ReadStats()
+            for batch, _ in encode_grouped(info, _across_files(task, corpus_options, stats,
+                                                               _batch_chars(config, share)),
+                                           words):
+                tally_literal_specials(info, batch, literal)
+                counter.add(batch)
+            result = counter.finish(task_index=task.index, documents=stats.documents)
+            result.literal_specials.update(literal)
+            return result
         for part in task.parts:
             reader = TaskReader(part, info, corpus_options,
-                                batch_chars=_batch_chars(config, share),
-                                words=None if config.words.is_tokenizer else config.words)
+                                batch_chars=_batch_chars(config, share), words=words)
             table = reader.word_table()
             if table is not None:  # encoded input: the word texts are in the task's word table
                 counter.add_word_table(table)
@@ -329,3 +387,26 @@ def count_task(task: CountTask, tokenizer_json: str, config: CountConfig, spill_
     except BaseException:
         counter.abort()
         raise
+
+
+def _across_files(task: CountTask, options: CorpusOptions, stats: ReadStats,
+                  batch_chars: int) -> Iterator[list[str]]:
+    """The documents of a group of small files, in order, in batches of about `batch_chars`
+    characters that may span files."""
+    batch: list[str] = []
+    size = 0
+    for part in task.parts:
+        assert part.raw is not None
+        try:
+            for doc in iter_documents(part.raw, options, stats):
+                batch.append(doc)
+                size += len(doc)
+                if size >= batch_chars:
+                    yield batch
+                    batch, size = [], 0
+        except MaskprepError as exc:  # named by the file at fault, not by the whole group
+            raise PartError(f"{part.describe()}: {exc}") from None
+        except OSError as exc:
+            raise PartError(f"{part.describe()}: {os_error_text(exc)}") from None
+    if batch:
+        yield batch

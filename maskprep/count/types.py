@@ -16,7 +16,8 @@ from ..tokenizer.words import WordsConfig, words_option
 from .spills import SpillFile
 
 __all__ = ["CountConfig", "TaskCounts", "CountSummary", "parse_memory", "COUNTS_FORMAT_VERSION",
-           "MAX_N", "MIN_TASK_MEMORY", "TASK_BYTES", "ENCODED_TASK_BYTES", "POOL_ROWS"]
+           "MAX_N", "MIN_TASK_MEMORY", "TASK_BYTES", "ENCODED_TASK_BYTES", "SMALL_FILES_BYTES",
+           "POOL_ROWS"]
 
 COUNTS_FORMAT_VERSION = 1
 MAX_N = 8
@@ -25,6 +26,10 @@ TASK_BYTES = 8 << 20            # text files are split into tasks of about this 
 # an encoded directory's tasks are counted in groups of about this much text: fewer spilled rows
 # and files than one count task each, and still several tasks per worker
 ENCODED_TASK_BYTES = 4 << 20
+# small files read whole, each its own task of the corpus, are counted in groups of about this
+# much text (1 MiB: a few spilled runs per group; the word types of a directory of 16 KB files
+# decoded and spilled 64 times less often than one file at a time, and enough groups to share)
+SMALL_FILES_BYTES = 1 << 20
 POOL_ROWS = 8_000_000  # merges / writes smaller than this run in the driver unless the pool is
 # already running (starting one costs ~1-2 s)
 _UNITS = {"": 1, "b": 1, "k": 1 << 10, "m": 1 << 20, "g": 1 << 30, "t": 1 << 40,
