@@ -387,3 +387,20 @@ def test_parse_strategies():
     assert [s.value for s in parse_strategies(" pmi,token ")] == ["pmi", "token"]
     with pytest.raises(MaskprepError, match="listed twice"):
         parse_strategies("word,word")
+
+
+def test_a_corpus_of_many_files_is_named_briefly_on_the_page(
+    tmp_path, shakespeare_small, small_wordpiece
+):
+    # The page's heading names the first five files and how many more (a directory of 600
+    # files once filled a whole screen before the first chart); compare.json lists them all.
+    from conftest import deal_lines
+
+    lines = shakespeare_small.read_text(encoding="utf-8").splitlines()[:400]
+    files = deal_lines(lines, tmp_path, 9, "part-{}.txt")
+    r = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "compare", *files, "-t",
+                                 str(small_wordpiece), "--sample", "20", "-o", str(tmp_path / "c")])
+    assert r.exit_code == 0, r.output
+    page = (tmp_path / "c" / "compare.html").read_text(encoding="utf-8")
+    assert f"{files[4]} and 4 more files" in page and files[5] not in page
+    assert json.loads((tmp_path / "c" / "compare.json").read_text())["corpus"]["files"] == files

@@ -15,6 +15,7 @@ from .._tables import format_table
 from ..corpus.sample import describe_sample
 from ..report import charts
 from ..report import html as report
+from ..wording import name_files
 from .words import JOIN, PARTIAL, SPACE_MARK, fragmented_words
 
 #: What each column means, for the page (term, definition) and, shortened, the terminal legend.
@@ -304,7 +305,7 @@ def render_audit_html(doc: dict[str, Any]) -> str:
     )
     return report.page(
         title="Vocabulary fragmentation audit",
-        subtitle="Corpus: " + ", ".join(doc["corpus"]) + "; " + words_line(doc)
+        subtitle="Corpus: " + name_files(doc["corpus"], 5) + "; " + words_line(doc)
         + (" " + describe_sample(doc["sample"]) if doc.get("sample") else ""),
         sections=sections,
         notes=notes,

@@ -20,6 +20,7 @@ from typing import Any, Sequence
 
 from ..report import charts
 from ..report import html as report
+from ..wording import name_files
 __all__ = ["render_compare_html", "length_bins"]
 
 _MEASURES = (  # (key path, chart title, axis label, percent)
@@ -289,7 +290,7 @@ def render_compare_html(
     skipped = [f"{name}: {why}" for name, why in doc.get("skipped", {}).items()]
     units = doc.get("units")
     subtitle = (
-        f"Corpus: {', '.join(doc['corpus']['files'])}. Tokenizer: {doc['tokenizer']['name']} "
+        f"Corpus: {name_files(doc['corpus']['files'], 5)}. Tokenizer: {doc['tokenizer']['name']} "
         f"({doc['tokenizer']['vocab_size']:,} tokens)."
         + (
             f" Units: {units['path']} ({units['units']:,} units, {units['measure']})."
