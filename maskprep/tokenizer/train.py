@@ -11,6 +11,14 @@ depend only on which tokens exist: training is byte-identical from run to run.
 
 Unigram vocabularies are learnt by sentencepiece (see unigram.py).
 
+A lowercased WordPiece normaliser also strips every combining mark (category Mn after
+NFD): harmless for uncased English (é -> e), but in other scripts it removes letters (kana
+voicing marks, Thai vowel and tone marks, Devanagari matras, Hebrew and Arabic points).
+`train_tokenizer` then counts the corpus's code points (`CharTally`, numpy), asks the trained
+normaliser what it does to each distinct character (`mark_loss`) and prints one warning line
+(`warn_mark_loss`) when more than `MARK_LOSS_WARN` of the letters outside Latin, Greek and
+Cyrillic lose a mark. BPE and Unigram only lowercase (NFC, NFKC): they keep marks.
+
 It does not load, save or encode with tokenizers (see encoding.py).
 """
 
@@ -18,8 +26,13 @@ from __future__ import annotations
 
 import itertools
 import json
-from dataclasses import dataclass
+import re
+import sys
+import unicodedata
+from dataclasses import dataclass, field
 from typing import Any, Iterable, Iterator
+
+import numpy as np
 
 from ..errors import MaskprepError
 from .encoding import TokenizerInfo
@@ -121,6 +134,9 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
     Unigram training always reaches the size exactly or fails).
     """
     tok, trainer = build_empty_tokenizer(config)
+    tally = CharTally() if config.model == "wordpiece" and config.lowercase else None
+    if tally is not None:
+        texts = tally.wrap(texts)
     if trainer is None:
         sp = SPECIALS["unigram"]
         try:
@@ -139,6 +155,8 @@ def train_tokenizer(texts: Iterable[str], config: TrainConfig = TrainConfig(), *
     # tokenizer in memory equals the hash of the file it is saved to.
     tok = _from_str(_canonical_ids(tok.to_str()))
     info = TokenizerInfo(tok, name=name or f"{config.model}-{config.vocab_size}")
+    if tally is not None:
+        warn_mark_loss(mark_loss(tok, tally.counts(), tally.head), info.name)
     if check_size:
         check_trained_size(info, config, option)
     return info
@@ -196,3 +214,160 @@ def _batched(texts: Iterable[str], size: int = 1000) -> Iterator[list[str]]:
     it = iter(texts)
     while batch := list(itertools.islice(it, size)):
         yield batch
+
+
+# Warn when more than this share of the letters (and marks) of the corpus lose a combining
+# mark outside Latin, Greek and Cyrillic: one in a thousand letters is about one word in two
+# hundred, so the marks belong to the corpus's own language; a few foreign names in an English
+# corpus stay below it.
+MARK_LOSS_WARN = 0.001
+_KEEP_SCRIPTS = ("LATIN", "GREEK", "CYRILLIC")  # where stripping accents is the usual practice
+# Combining marks without a script of their own (Unicode script "Inherited": Combining
+# Diacritical Marks and its Extended and Supplement blocks, marks for symbols, half marks),
+# written mostly on Latin, Greek and Cyrillic letters.
+_INHERITED = ((0x0300, 0x036F), (0x1AB0, 0x1AFF), (0x1DC0, 0x1DFF), (0x20D0, 0x20FF),
+              (0xFE20, 0xFE2F))
+_WARNED: set[tuple[str, ...]] = set()
+
+
+class CharTally:
+    """Counts of the code points of the documents that pass through `wrap` (numpy, batched).
+
+    >>> tally = CharTally(); list(tally.wrap(["ガガ"])); int(tally.counts()[ord("ガ")])
+    ['ガガ']
+    2
+    """
+
+    def __init__(self, batch_chars: int = 1 << 22) -> None:
+        self._counts = np.zeros(0x110000, dtype=np.int64)
+        self._batch: list[str] = []
+        self._size = 0
+        self._limit = batch_chars
+        self.head = ""  # the first batch's text, where `mark_loss` finds its examples
+
+    def wrap(self, texts: Iterable[str]) -> Iterator[str]:
+        """Yield `texts` unchanged, counting their characters."""
+        for text in texts:
+            self._batch.append(text)
+            self._size += len(text)
+            if self._size >= self._limit:
+                self._flush()
+            yield text
+        self._flush()
+
+    def _flush(self) -> None:
+        if self._batch:
+            text = "".join(self._batch)
+            if not self.head:
+                self.head = text
+            raw = text.encode("utf-32-le", "surrogatepass")
+            cps = np.frombuffer(raw, dtype="<u4")
+            self._counts += np.bincount(cps, minlength=0x110000)[:0x110000]
+        self._batch, self._size = [], 0
+
+    def counts(self) -> np.ndarray:
+        """Occurrences of each code point (an array of 0x110000 int64)."""
+        self._flush()
+        return self._counts
+
+
+@dataclass
+class MarkLoss:
+    """What a normaliser's accent stripping removes outside Latin, Greek and Cyrillic."""
+
+    letters: int = 0  # characters of category L* or M* in the corpus
+    lost: int = 0  # of them, those outside Latin, Greek and Cyrillic that lose a mark
+    scripts: dict[str, int] = field(default_factory=dict)  # lost, by script (name's first word)
+    examples: list[tuple[str, str, int]] = field(default_factory=list)  # before, after, count
+
+    @property
+    def share(self) -> float:
+        return self.lost / self.letters if self.letters else 0.0
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"letters": self.letters, "lost_marks": self.lost, "share": self.share,
+                "scripts": dict(self.scripts)}
+
+
+def _marks(text: str) -> int:
+    return sum(unicodedata.category(c) == "Mn" for c in unicodedata.normalize("NFD", text))
+
+
+def mark_script(ch: str) -> str | None:
+    """The script of `ch` by its Unicode name's first word; None for Latin, Greek, Cyrillic.
+
+    A base letter's decomposition names it (Å: LATIN); a combining mark of the inherited
+    blocks is taken as Latin-Greek-Cyrillic (None), another ``COMBINING ...`` mark by its
+    second word (U+3099: KATAKANA-HIRAGANA).
+    """
+    cp = ord(ch)
+    if any(lo <= cp <= hi for lo, hi in _INHERITED):
+        return None
+    base = unicodedata.normalize("NFD", ch)[0]
+    words = unicodedata.name(base, unicodedata.name(ch, "")).split()
+    if not words:
+        return "UNNAMED"
+    script = words[1] if words[0] == "COMBINING" and len(words) > 1 else words[0]
+    return None if script in _KEEP_SCRIPTS else script
+
+
+def mark_loss(tok: Any, counts: np.ndarray, head: str = "") -> MarkLoss:
+    """Which counted characters lose a combining mark under `tok`'s own normaliser.
+
+    One call of ``tok.normalizer.normalize_str`` per distinct character with a mark. The
+    examples are the three most frequent such characters, each shown with up to two
+    characters before it and one after, from its first place in `head` (a standalone Thai
+    mark means little alone).
+    """
+    loss = MarkLoss()
+    lost: dict[str, tuple[str, int]] = {}
+    for cp in np.flatnonzero(counts).tolist():
+        ch, n = chr(cp), int(counts[cp])
+        if unicodedata.category(ch)[0] not in "LM":
+            continue
+        loss.letters += n
+        before = _marks(ch)
+        if not before or tok.normalizer is None:
+            continue
+        script = mark_script(ch)
+        if script is None:
+            continue
+        after = tok.normalizer.normalize_str(ch).strip()
+        if _marks(after) < before:
+            loss.lost += n
+            loss.scripts[script] = loss.scripts.get(script, 0) + n
+            lost[ch] = (after, n)
+    loss.scripts = dict(sorted(loss.scripts.items(), key=lambda kv: (-kv[1], kv[0])))
+    top = sorted(lost.items(), key=lambda kv: (-kv[1][1], kv[0]))[:3]
+    loss.examples = []
+    for ch, (after, n) in top:
+        found = re.search(r"\S{0,2}" + re.escape(ch) + r"\S?", head)
+        shown = found.group(0) if found else ch
+        if found:
+            after = "".join(tok.normalizer.normalize_str(shown).split())
+        loss.examples.append((shown, after, n))
+    return loss
+
+
+def warn_mark_loss(loss: MarkLoss, name: str) -> bool:
+    """One line on stderr if more than `MARK_LOSS_WARN` of the letters lose a mark.
+
+    Printed even with --quiet (as every warning), once per process for the same figures
+    (an audit trains several sizes on one corpus). Returns whether the share is over it.
+    """
+    if loss.share <= MARK_LOSS_WARN:
+        return False
+    scripts = ", ".join(loss.scripts)
+    key = (scripts, str(loss.lost), str(loss.letters))
+    if key in _WARNED:
+        return True
+    _WARNED.add(key)
+    examples = ", ".join(f"{b} -> {a or '(nothing)'}" for b, a, _n in loss.examples)
+    sys.stderr.write(
+        f"warning: tokenizer {name}: lowercasing WordPiece also strips combining marks, and "
+        f"{loss.share:.2%} of the corpus's letters ({loss.lost:,} of {loss.letters:,}; "
+        f"{scripts}) lose one ({examples}), so different words become one; train with "
+        "--no-lowercase to keep the marks (and the case).\n"
+    )
+    sys.stderr.flush()
+    return True
