@@ -139,3 +139,12 @@ def test_latin_accents_do_not_count() -> None:
     loss = mark_loss(tok, tally.counts(), tally.head)
     assert (loss.letters, loss.lost, loss.scripts) == (5, 1, {"KATAKANA": 1})
     assert loss.examples[0][1] == "カ"
+
+
+def test_audit_trained_sizes_warn_once(corpora, tmp_path) -> None:
+    # audit --vocab-sizes trains WordPiece on the spot: one warning for its two sizes.
+    result = CliRunner().invoke(cli, ["--quiet", "--workers", "1", "audit", str(corpora["th"]),
+                                      "--vocab-sizes", "1000,2000", "-o", str(tmp_path / "a")])
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    lines = [line for line in result.stderr.splitlines() if "combining marks" in line]
+    assert len(lines) == 1 and "THAI" in lines[0], result.stderr
