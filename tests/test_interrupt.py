@@ -178,23 +178,31 @@ def test_a_command_done_before_its_worker_started_exits_cleanly(tmp_path, plays,
     # `--resume` of a finished count: the pool is started (more than one task), then the
     # command finds nothing to do and ends while the spawned worker is still starting. The
     # worker is killed, not left to start on its own (it would fail to find the pool's
-    # semaphores and print a traceback).
+    # semaphores and print a traceback into the command's stderr). Survivors are found by a
+    # mark in their environment, since the worker may live too briefly to be seen as a child.
+    import uuid
+
     args = ["count", *plays, "-t", str(small_wordpiece), "-o", str(tmp_path / "c"), "--resume"]
     assert subprocess.run(command(*args), cwd=ROOT, capture_output=True,
                           timeout=300).returncode == 0
     for _ in range(3):
-        proc = subprocess.Popen(command(*args), cwd=ROOT, stdout=subprocess.DEVNULL,
-                                stderr=subprocess.PIPE)
-        workers: list = []
-        while proc.poll() is None:
-            try:
-                workers = psutil.Process(proc.pid).children(recursive=True) or workers
-            except psutil.NoSuchProcess:
-                break
-        _, err = proc.communicate(timeout=60)
-        assert proc.returncode == 0, err.decode()
-        assert workers, "the pool was not started"
-        _, alive = psutil.wait_procs(workers, timeout=2)
-        assert not [p for p in alive if p.status() != psutil.STATUS_ZOMBIE]
+        mark = uuid.uuid4().hex
+        proc = subprocess.run(command(*args), cwd=ROOT, capture_output=True, timeout=60,
+                              env={**os.environ, "MASKPREP_TEST_MARK": mark})
+        assert proc.returncode == 0, proc.stderr.decode()
         time.sleep(0.3)  # a worker left to start would have failed by now
-        assert b"Traceback" not in err and b"Error" not in err, err.decode()
+        assert b"Traceback" not in proc.stderr and b"Error" not in proc.stderr, (
+            proc.stderr.decode())
+        assert not _marked(mark), "a worker outlived its command"
+
+
+def _marked(mark: str) -> list[int]:
+    """Live processes whose environment holds MASKPREP_TEST_MARK=mark."""
+    found = []
+    for p in psutil.process_iter():
+        try:
+            if p.environ().get("MASKPREP_TEST_MARK") == mark and p.status() != psutil.STATUS_ZOMBIE:
+                found.append(p.pid)
+        except (psutil.Error, OSError):
+            continue
+    return found
