@@ -191,10 +191,7 @@ def shutdown_pools(*, wait: bool = True) -> None:
     semaphores.
     """
     for workers in list(_POOLS):
-        pool = _POOLS.pop(workers)
-        if not wait:
-            _kill(pool)
-        pool.shutdown(wait=wait, cancel_futures=wait)
+        drop_pool(workers, terminate=not wait)
 
 
 def ordered(
