@@ -188,14 +188,10 @@ class ChunkCounter:
         self._tables: list[tuple[np.ndarray, object]] = []  # (keys, texts) of word tables
         self._seen_types = 0
 
-    def add(self, batch: EncodedBatch, *, texts_known: bool = False) -> None:
-        """Count one batch (its words' texts are collected from the tokenizer's word types).
-
-        `texts_known`: the texts of the batch's words were given already
-        (`add_word_table`, encoded input), so the tokenizer's cache is not read.
-        """
-        if not texts_known:
-            self._collect_words(batch)
+    def add(self, batch: EncodedBatch) -> None:
+        """Count one batch of raw text (its words' texts are collected from the tokenizer's word
+        types; encoded input gives them with `add_word_table` and counts with `add_words`)."""
+        self._collect_words(batch)
         self.add_words(batch.word_kinds, batch.word_keys, batch.doc_offsets)
 
     def add_words(self, kinds: np.ndarray, keys: np.ndarray, doc_offsets: np.ndarray) -> None:
