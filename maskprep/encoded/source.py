@@ -49,6 +49,7 @@ from ..tokenizer.encoding import (
     encode_grouped,
     load_tokenizer,
     tally_literal_specials,
+    tally_special_ids,
 )
 from .format import (
     BATCH_CHARS,
@@ -300,10 +301,7 @@ class TaskReader:
             word_kinds = kinds[types]
             special = types[word_kinds == SPECIAL]
             if len(special):  # as `tally_literal_specials` counts them from the token ids
-                ids, counts = np.unique(first_ids[special_rank[special]], return_counts=True)
-                for t, n in zip(ids.tolist(), counts.tolist()):
-                    name = self.info.tokenizer.id_to_token(int(t))
-                    literal[name] = literal.get(name, 0) + int(n)
+                tally_special_ids(self.info, first_ids[special_rank[special]], literal)
             yield keys[types], word_kinds, doc_offsets
         self.consumed = read_stats_of(task.read)
         self.consumed.literal_specials = literal

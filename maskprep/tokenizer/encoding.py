@@ -67,6 +67,7 @@ __all__ = [
     "group_words",
     "unique_rows",
     "tally_literal_specials",
+    "tally_special_ids",
     "warn_literal_specials",
     "load_tokenizer",
     "tokenizer_from_json",
@@ -277,10 +278,14 @@ def tally_literal_specials(info: TokenizerInfo, batch: EncodedBatch,
     All are literal: no special tokens are added when encoding.
     """
     special = batch.word_kinds == SPECIAL
-    if not special.any():
-        return
-    ids, counts = np.unique(batch.ids[batch.word_offsets[:-1][special]], return_counts=True)
-    for i, n in zip(ids.tolist(), counts.tolist()):
+    if special.any():
+        tally_special_ids(info, batch.ids[batch.word_offsets[:-1][special]], into)
+
+
+def tally_special_ids(info: TokenizerInfo, ids: np.ndarray, into: dict[str, int]) -> None:
+    """Add special-token words, given by their token ids (one per word), to `into` by string."""
+    uniq, counts = np.unique(ids, return_counts=True)
+    for i, n in zip(uniq.tolist(), counts.tolist()):
         s = info.tokenizer.id_to_token(int(i))
         into[s] = into.get(s, 0) + int(n)
 
