@@ -21,7 +21,7 @@ from __future__ import annotations
 import dataclasses
 import itertools
 import sys
-from typing import Iterator
+from typing import Iterable, Iterator
 
 from .discover import detect_format, resolve_inputs
 from .pieces import PIECE_BYTES, Continued, text_pieces
@@ -40,6 +40,7 @@ __all__ = [
     "corpus_fingerprint",
     "detect_format",
     "iter_batches",
+    "batch_documents",
     "iter_corpus",
     "iter_documents",
     "plan_tasks",
@@ -126,9 +127,18 @@ def iter_batches(
     >>> sum(len(b) for b in iter_batches(task))  # doctest: +SKIP
     1000
     """
+    return batch_documents(iter_documents(task, options, stats), batch_chars)
+
+
+def batch_documents(docs: Iterable[str], batch_chars: int) -> Iterator[list[str]]:
+    """Documents in lists of about `batch_chars` characters in total, in order.
+
+    >>> [len(b) for b in batch_documents(["ab", "cd", "e"], 3)]
+    [2, 1]
+    """
     batch: list[str] = []
     size = 0
-    for doc in iter_documents(task, options, stats):
+    for doc in docs:
         batch.append(doc)
         size += len(doc)
         if size >= batch_chars:

@@ -18,7 +18,7 @@ from typing import Iterator, Sequence
 import numpy as np
 
 from .._arrow import arrow_strings
-from ..corpus.reader import CorpusOptions, iter_documents
+from ..corpus.reader import CorpusOptions, batch_documents, iter_documents
 from ..corpus.types import ReadStats
 from ..encoded.format import WordTable
 from ..errors import MaskprepError, PartError, os_error_text
@@ -355,28 +355,27 @@ def count_task(task: CountTask, tokenizer_json: str, config: CountConfig, spill_
             # small files: their documents in batches across files (a batch per file would
             # pay the per-batch cost of encoding and grouping once per file)
             stats = ReadStats()
-            for batch, _ in encode_grouped(info, _across_files(task, corpus_options, stats,
-                                                               _batch_chars(config, share)),
-                                           words):
+            docs = batch_documents(_across_files(task, corpus_options, stats),
+                                   _batch_chars(config, share))
+            for batch, _ in encode_grouped(info, docs, words):
                 tally_literal_specials(info, batch, literal)
                 counter.add(batch)
-            result = counter.finish(task_index=task.index, documents=stats.documents)
-            result.literal_specials.update(literal)
-            return result
-        for part in task.parts:
-            reader = TaskReader(part, info, corpus_options,
-                                batch_chars=_batch_chars(config, share), words=words)
-            table = reader.word_table()
-            if table is not None:  # encoded input: the word texts are in the task's word table
-                counter.add_word_table(table)
-                for keys, kinds, doc_offsets in reader.word_fields():  # no token ids needed
-                    counter.add_words(kinds, keys, doc_offsets)
-            else:
-                for batch in reader:
-                    counter.add(batch)
-            documents += reader.consumed.documents
-            for s, k in reader.consumed.literal_specials.items():
-                literal[s] = literal.get(s, 0) + k
+            documents = stats.documents
+        else:
+            for part in task.parts:
+                reader = TaskReader(part, info, corpus_options,
+                                    batch_chars=_batch_chars(config, share), words=words)
+                table = reader.word_table()
+                if table is not None:  # encoded input: the word texts are in its word table
+                    counter.add_word_table(table)
+                    for keys, kinds, doc_offsets in reader.word_fields():  # no token ids
+                        counter.add_words(kinds, keys, doc_offsets)
+                else:
+                    for batch in reader:
+                        counter.add(batch)
+                documents += reader.consumed.documents
+                for s, k in reader.consumed.literal_specials.items():
+                    literal[s] = literal.get(s, 0) + k
         result = counter.finish(task_index=task.index, documents=documents)
         result.literal_specials.update(literal)
         return result
@@ -385,24 +384,13 @@ def count_task(task: CountTask, tokenizer_json: str, config: CountConfig, spill_
         raise
 
 
-def _across_files(task: CountTask, options: CorpusOptions, stats: ReadStats,
-                  batch_chars: int) -> Iterator[list[str]]:
-    """The documents of a group of small files, in order, in batches of about `batch_chars`
-    characters that may span files."""
-    batch: list[str] = []
-    size = 0
+def _across_files(task: CountTask, options: CorpusOptions, stats: ReadStats) -> Iterator[str]:
+    """The documents of a group of small files, in order; a reading error names its file."""
     for part in task.parts:
         assert part.raw is not None
         try:
-            for doc in iter_documents(part.raw, options, stats):
-                batch.append(doc)
-                size += len(doc)
-                if size >= batch_chars:
-                    yield batch
-                    batch, size = [], 0
+            yield from iter_documents(part.raw, options, stats)
         except MaskprepError as exc:  # named by the file at fault, not by the whole group
             raise PartError(f"{part.describe()}: {exc}") from None
         except OSError as exc:
             raise PartError(f"{part.describe()}: {os_error_text(exc)}") from None
-    if batch:
-        yield batch
