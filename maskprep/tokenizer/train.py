@@ -284,10 +284,6 @@ class MarkLoss:
     def share(self) -> float:
         return self.lost / self.letters if self.letters else 0.0
 
-    def as_dict(self) -> dict[str, Any]:
-        return {"letters": self.letters, "lost_marks": self.lost, "share": self.share,
-                "scripts": dict(self.scripts)}
-
 
 def _marks(text: str) -> int:
     return sum(unicodedata.category(c) == "Mn" for c in unicodedata.normalize("NFD", text))
